@@ -1,0 +1,28 @@
+"""The measurement core: pure numpy functions from a :class:`Capture` to :class:`Measurement`.
+
+No I/O, no printing, no global state. ``analyze`` runs a set of registered measurements on
+one capture and returns them with the capture's warnings.
+"""
+
+from benchgate.analysis.capture import AdcInfo, Capture
+from benchgate.analysis.measurement import Measurement
+from benchgate.analysis.names import MEASUREMENT_NAMES, MEASUREMENT_TITLES, MEASUREMENT_UNITS
+
+__all__ = [
+    "AdcInfo",
+    "Capture",
+    "Measurement",
+    "MEASUREMENT_NAMES",
+    "MEASUREMENT_TITLES",
+    "MEASUREMENT_UNITS",
+    "analyze",
+    "Analysis",
+]
+
+
+def __getattr__(name):  # lazy: keep `import benchgate.analysis` light
+    if name in ("analyze", "Analysis"):
+        from benchgate.analysis import core
+
+        return getattr(core, name)
+    raise AttributeError(name)

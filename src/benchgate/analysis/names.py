@@ -1,0 +1,67 @@
+"""The measurement names every part of benchgate agrees on, with their units.
+
+Plans refer to these names, reports print them, and the analysis registry implements each.
+"""
+
+from __future__ import annotations
+
+#: name -> unit symbol of the value, in the order reports list them.
+MEASUREMENT_UNITS: dict[str, str] = {
+    "frequency": "Hz",
+    "amplitude": "V",
+    "vpp": "V",
+    "rms": "V",
+    "dc_offset": "V",
+    "thd": "%",
+    "thd_n": "%",
+    "sinad": "dB",
+    "snr": "dB",
+    "sfdr": "dB",
+    "enob": "bits",
+    "startup_time": "s",
+    "duty_cycle": "%",
+    "frequency_drift": "Hz/s",
+}
+
+MEASUREMENT_NAMES: tuple[str, ...] = tuple(MEASUREMENT_UNITS)
+
+#: one-line descriptions for help texts and reports.
+MEASUREMENT_TITLES: dict[str, str] = {
+    "frequency": "frequency of the fundamental (four-parameter sine fit)",
+    "amplitude": "peak amplitude of the fitted fundamental",
+    "vpp": "peak-to-peak voltage",
+    "rms": "AC rms voltage (DC removed)",
+    "dc_offset": "mean (DC) voltage",
+    "thd": "total harmonic distortion, referred to the fundamental",
+    "thd_n": "THD plus noise, referred to the fundamental",
+    "sinad": "signal to noise and distortion ratio",
+    "snr": "signal to noise ratio (harmonics excluded)",
+    "sfdr": "spurious-free dynamic range",
+    "enob": "effective number of bits",
+    "startup_time": "time from record start to 90 % of steady amplitude",
+    "duty_cycle": "high-time duty cycle at the 50 % reference level",
+    "frequency_drift": "slope of frequency over the steady part",
+}
+
+#: single readings a `reading` step can take from a dmm, counter or supply -> unit.
+READING_UNITS: dict[str, str] = {
+    "dc_voltage": "V",
+    "ac_voltage": "V",
+    "dc_current": "A",
+    "frequency": "Hz",
+    "supply_voltage": "V",
+    "supply_current": "A",
+}
+
+#: which instrument roles can take each reading.
+READING_SOURCES: dict[str, tuple[str, ...]] = {
+    "dc_voltage": ("dmm",),
+    "ac_voltage": ("dmm",),
+    "dc_current": ("dmm",),
+    "frequency": ("counter",),
+    "supply_voltage": ("supply",),
+    "supply_current": ("supply",),
+}
+
+#: instrument roles a station may provide and a plan may `require`.
+CAPABILITIES: tuple[str, ...] = ("adc", "supply", "dmm", "counter", "digitizer")

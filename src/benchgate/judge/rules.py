@@ -1,0 +1,145 @@
+"""Decision rules (ILAC-G8:09/2019) and the verdict types."""
+
+from __future__ import annotations
+
+import enum
+import math
+from dataclasses import dataclass
+from typing import Iterable
+
+from benchgate.analysis.measurement import Measurement
+from benchgate.plan.limits import Window
+from benchgate.units.format import format_quantity
+
+DECISION_RULES = ("simple", "guarded")
+
+
+class Verdict(str, enum.Enum):
+    """Outcome of one check, one step or one unit."""
+
+    PASS = "pass"
+    FAIL = "fail"
+    INCONCLUSIVE = "inconclusive"
+    ERROR = "error"
+    ABORTED = "aborted"
+
+    def __str__(self) -> str:
+        return self.value
+
+
+# Precedence when combining: a failure dominates, then an error, then inconclusive.
+_ORDER = {Verdict.FAIL: 4, Verdict.ABORTED: 3, Verdict.ERROR: 2, Verdict.INCONCLUSIVE: 1, Verdict.PASS: 0}
+
+
+@dataclass(frozen=True)
+class CheckVerdict:
+    """A verdict with the reason in words and the rule that produced it."""
+
+    verdict: Verdict
+    reason: str
+    rule: str
+
+    def to_dict(self) -> dict:
+        return {"verdict": self.verdict.value, "reason": self.reason, "rule": self.rule}
+
+
+def _fmt(x: float, unit: str) -> str:
+    return format_quantity(x, unit)
+
+
+def _describe(m: Measurement) -> str:
+    if m.uncertainty is None:
+        return f"{m.name} {_fmt(m.value, m.unit)}"
+    return f"{m.name} {_fmt(m.value, m.unit)} ± {_fmt(m.uncertainty, m.unit)}"
+
+
+def judge(measurement: Measurement | None, window: Window, rule: str = "simple") -> CheckVerdict:
+    """Decide one check.
+
+    Parameters
+    ----------
+    measurement : Measurement or None
+        The measured value; None when the measurement could not be made at all.
+    window : Window
+        Acceptance limits, in the measurement's unit.
+    rule : {"simple", "guarded"}
+        The plan's decision rule; ``window.decision`` overrides it when set.
+
+    Returns
+    -------
+    CheckVerdict
+
+    Raises
+    ------
+    ValueError
+        For an unknown rule, or a window whose unit differs from the measurement's.
+
+    Notes
+    -----
+    Under ``guarded`` a measurement without a stated uncertainty cannot be shown to lie inside
+    the window with the required confidence, so it is inconclusive unless it is outside
+    (simple comparison then fails it).
+
+    References
+    ----------
+    ILAC-G8:09/2019, Guidelines on decision rules and statements of conformity, 4.2.1 (simple
+    acceptance) and 4.2.2 (binary statement with guard band w = U).
+    """
+    rule = window.decision or rule
+    if rule not in DECISION_RULES:
+        raise ValueError(f"unknown decision rule {rule!r}; expected one of {', '.join(DECISION_RULES)}")
+    if measurement is None:
+        return CheckVerdict(Verdict.ERROR, "measurement was not made", rule)
+    if measurement.unit != window.unit:
+        raise ValueError(f"{measurement.name}: window unit {window.unit!r} differs from measurement unit {measurement.unit!r}")
+    if not measurement.valid:
+        return CheckVerdict(Verdict.ERROR, f"{measurement.name} not valid: {measurement.reason}", rule)
+    x = measurement.value
+    u = measurement.uncertainty
+    lo, hi = window.low, window.high
+    what = _describe(measurement)
+    below = lo is not None and x < lo
+    above = hi is not None and x > hi
+    if rule == "simple":
+        if below:
+            return CheckVerdict(Verdict.FAIL, f"{what} below {_fmt(lo, window.unit)}", rule)
+        if above:
+            return CheckVerdict(Verdict.FAIL, f"{what} above {_fmt(hi, window.unit)}", rule)
+        return CheckVerdict(Verdict.PASS, f"{what} inside {_window_text(window)}", rule)
+    # guarded: acceptance zone shrunk by U, rejection zone grown by U
+    if u is None or not math.isfinite(u):
+        if below or above:
+            edge = lo if below else hi
+            side = "below" if below else "above"
+            return CheckVerdict(Verdict.FAIL, f"{what} {side} {_fmt(edge, window.unit)}", rule)
+        return CheckVerdict(Verdict.INCONCLUSIVE, f"{what} has no stated uncertainty; guarded rule cannot accept it", rule)
+    if lo is not None and x + u < lo:
+        return CheckVerdict(Verdict.FAIL, f"{what} below {_fmt(lo, window.unit)} by more than U", rule)
+    if hi is not None and x - u > hi:
+        return CheckVerdict(Verdict.FAIL, f"{what} above {_fmt(hi, window.unit)} by more than U", rule)
+    if (lo is None or x - u >= lo) and (hi is None or x + u <= hi):
+        return CheckVerdict(Verdict.PASS, f"{what} inside {_window_text(window)} with its uncertainty", rule)
+    edge = lo if (lo is not None and x - u < lo) else hi
+    return CheckVerdict(
+        Verdict.INCONCLUSIVE,
+        f"{what} within U of the limit {_fmt(edge, window.unit)}; guard band w = U",
+        rule,
+    )
+
+
+def _window_text(w: Window) -> str:
+    if w.low is not None and w.high is not None:
+        return f"{_fmt(w.low, w.unit)} … {_fmt(w.high, w.unit)}"
+    if w.low is not None:
+        return f"≥ {_fmt(w.low, w.unit)}"
+    return f"≤ {_fmt(w.high, w.unit)}"
+
+
+def combine(verdicts: Iterable[Verdict]) -> Verdict:
+    """A unit's (or step's) verdict from its checks: fail if any failed; else aborted if aborted;
+    else error if any errored; else inconclusive if any was; else pass (also for none)."""
+    worst = Verdict.PASS
+    for v in verdicts:
+        if _ORDER[v] > _ORDER[worst]:
+            worst = v
+    return worst

@@ -1,0 +1,41 @@
+"""Printing values with SI prefixes (the inverse of parsing, at the edges of the program)."""
+
+from __future__ import annotations
+
+import math
+
+_PREFIXES = [(1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""), (1e-3, "m"), (1e-6, "µ"), (1e-9, "n"), (1e-12, "p")]
+# Units printed without an SI prefix: they are ratios or already scaled.
+_NO_PREFIX = {"%", "dB", "dBc", "bits", "ppm", ""}
+
+
+def format_quantity(value: float | None, unit: str, digits: int = 4) -> str:
+    """Format ``value`` (SI base units) with an SI prefix and ``digits`` significant figures.
+
+    >>> format_quantity(1182.0, "Hz")
+    '1.182 kHz'
+    >>> format_quantity(0.0004, "Hz")
+    '400.0 µHz'
+    >>> format_quantity(2.5, "%")
+    '2.500 %'
+    """
+    if value is None:
+        return "—"
+    if not math.isfinite(value):
+        return f"{value} {unit}".strip()
+    if unit in _NO_PREFIX or value == 0:
+        return f"{_sig(value, digits)} {unit}".strip()
+    mag = abs(value)
+    for scale, prefix in _PREFIXES:
+        if mag >= scale * 0.9995:
+            return f"{_sig(value / scale, digits)} {prefix}{unit}"
+    scale, prefix = _PREFIXES[-1]
+    return f"{_sig(value / scale, digits)} {prefix}{unit}"
+
+
+def _sig(x: float, digits: int) -> str:
+    if x == 0:
+        return "0"
+    mag = math.floor(math.log10(abs(x)))
+    decimals = max(0, digits - 1 - mag)
+    return f"{x:.{decimals}f}"
