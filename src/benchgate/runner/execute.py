@@ -1,0 +1,317 @@
+"""Executes a plan's steps, in order, on an open bench, filling the unit record as it goes.
+
+Step kinds: ``supply`` (set voltage / current limit / output), ``wait`` (on the injected clock),
+``prompt`` (operator instruction or yes/no question), ``capture`` (ADC or digitizer record, saved
+at once, analysed, judged) and ``reading`` (settle, read one value, judge). ``on_fail`` and
+``retries`` are applied here; every attempt is noted in the step's record.
+
+Instrument errors (and Ctrl-C) end the unit: the step is marked and the exception travels on to
+the session, which makes the bench safe and writes the reports.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import os
+import threading
+from collections.abc import Callable
+from pathlib import Path
+from typing import Any
+
+from benchgate.analysis.measurement import Measurement
+from benchgate.errors import BenchgateError, InstrumentDisconnected
+from benchgate.judge.rules import Verdict, combine, judge
+from benchgate.record import CaptureRecord, CheckRecord, StepRecord
+
+#: reading quantity -> name of the instrument method that takes it
+READING_METHODS = {
+    "dc_voltage": "measure_dc_voltage",
+    "ac_voltage": "measure_ac_voltage",
+    "dc_current": "measure_dc_current",
+    "frequency": "measure_frequency",
+    "supply_voltage": "measure_voltage",
+    "supply_current": "measure_current",
+}
+
+_YES = ("y", "yes")
+_NO = ("n", "no")
+
+
+class StepError(BenchgateError):
+    """A step that cannot go on (no operator answer, unusable instrument reply); the unit is error."""
+
+    exit_code = 3
+
+    def __init__(self, step_id: str, message: str):
+        super().__init__(message)
+        self.step_id = step_id
+        self.message = message
+
+    def where(self) -> str:
+        return f"step {self.step_id}"
+
+
+def utc_now() -> str:
+    return _dt.datetime.now(_dt.UTC).isoformat(timespec="milliseconds")
+
+
+class Executor:
+    """Runs the steps of ``plan`` on ``bench`` into ``record`` (whose steps it creates).
+
+    ``save_capture(capture, path) -> sha256`` and ``analyze(capture, names, harmonics=) ->
+    Analysis`` are passed in, so the executor does not care where they come from.
+    """
+
+    def __init__(self, plan: Any, bench: Any, record: Any, layout: Any, *, hooks: Any, clock: Any,
+                 ask: Callable[[str], str], unattended: bool,
+                 save_capture: Callable[..., str], analyze: Callable[..., Any]):
+        self.plan = plan
+        self.bench = bench
+        self.record = record
+        self.layout = layout
+        self.hooks = hooks
+        self.clock = clock
+        self.ask = ask
+        self.unattended = unattended
+        self.save_capture = save_capture
+        self.analyze = analyze
+        self.captures: dict[str, Any] = {}  # step id -> Capture (the attempt the record names)
+        self.capture_paths: dict[str, Path] = {}  # file key -> path, every attempt
+        self.current: StepRecord | None = None
+        if not record.steps:
+            record.steps = [StepRecord(id=s.id, kind=s.kind, title=s.title) for s in plan.steps]
+
+    # ------------------------------------------------------------------ the plan
+    def run(self) -> None:
+        total = len(self.plan.steps)
+        for index, (step, srec) in enumerate(zip(self.plan.steps, self.record.steps, strict=True), 1):
+            self.current = srec
+            self.hooks.step_started(index, total, step)
+            try:
+                self._run_step(step, srec)
+            except KeyboardInterrupt:
+                self._end(srec, "aborted", "interrupted by the operator (Ctrl-C)")
+                raise
+            except BenchgateError as exc:
+                self._end(srec, "error", error_reason(exc))
+                raise
+            except Exception as exc:  # a bug or an unexpected library error: still keep the evidence
+                self._end(srec, "error", f"{type(exc).__name__}: {exc}")
+                raise
+            self.hooks.step_finished(srec)
+            if srec.status in ("failed", "error") and step.on_fail == "stop":
+                srec.notes.append("on_fail: stop; the remaining steps were not run")
+                return
+        self.current = None
+
+    def _end(self, srec: StepRecord, status: str, error: str) -> None:
+        srec.status = status
+        srec.error = error
+        srec.ended = utc_now()
+        self.hooks.step_finished(srec)
+
+    def _run_step(self, step: Any, srec: StepRecord) -> None:
+        srec.started = utc_now()
+        attempt = 0
+        while True:
+            attempt += 1
+            srec.attempts = attempt
+            srec.checks = []
+            srec.error = None
+            getattr(self, f"_do_{step.kind}")(step, srec, attempt)
+            srec.status = step_status(srec)
+            if srec.status == "done" or attempt > step.retries:
+                break
+            srec.notes.append(f"attempt {attempt}: {srec.status} — {attempt_summary(srec)}")
+            if not self._confirm_retry(step, srec, attempt):
+                srec.notes.append(f"retry declined after attempt {attempt}")
+                break
+        srec.ended = utc_now()
+
+    def _confirm_retry(self, step: Any, srec: StepRecord, attempt: int) -> bool:
+        text = step.retry_prompt or f"Step {step.id} did not pass; try again?"
+        if self.unattended:
+            srec.notes.append(f"retry {attempt}: unattended, retried without asking ({text})")
+            return True
+        self.hooks.pause()
+        answer = self._read(step, f"{text} [Enter = retry, n = stop] ")
+        if answer.strip().casefold() in _NO:
+            return False
+        srec.notes.append(f"retry {attempt}: {text}" + (f" (operator: {answer.strip()})" if answer.strip() else ""))
+        return True
+
+    def _read(self, step: Any, prompt: str) -> str:
+        try:
+            return self.ask(prompt)
+        except EOFError:
+            raise StepError(step.id, "no operator input (end of input) while the step waited for an answer") from None
+
+    # ------------------------------------------------------------------ step kinds
+    def _do_supply(self, step: Any, srec: StepRecord, attempt: int) -> None:
+        supply = self.bench["supply"]
+        done = []
+        if step.voltage is not None:
+            supply.set_voltage(step.voltage)
+            done.append(f"voltage {step.voltage:g} V")
+        if step.current_limit is not None:
+            supply.set_current_limit(step.current_limit)
+            done.append(f"current limit {step.current_limit:g} A")
+        if step.output is not None:
+            supply.output(bool(step.output))
+            done.append("output on" if step.output else "output off")
+        srec.notes.append("supply: " + (", ".join(done) or "unchanged"))
+
+    def _do_wait(self, step: Any, srec: StepRecord, attempt: int) -> None:
+        self.sleep(step.seconds, f"wait {step.seconds:g} s")
+
+    def sleep(self, seconds: float, text: str) -> None:
+        """Let ``seconds`` pass on the run's clock, reporting progress with the time left."""
+        if seconds <= 0:
+            return
+        chunks = 20 if seconds >= 0.2 else 1
+        for i in range(chunks):
+            self.clock.sleep(seconds / chunks)
+            done = (i + 1) / chunks
+            self.hooks.progress(done, text, seconds * (1 - done))
+
+    def _do_prompt(self, step: Any, srec: StepRecord, attempt: int) -> None:
+        if self.unattended:
+            if step.unattended_answer is None:
+                raise StepError(step.id, f"prompt {step.text!r} needs an operator, and the plan gives no "
+                                         "unattended_answer for it, so an unattended run cannot go on")
+            answer = str(step.unattended_answer)
+            srec.notes.append("answered by the plan's unattended_answer")
+        else:
+            self.hooks.pause()
+            if step.ask:
+                while True:
+                    answer = self._read(step, f"{step.text} [y/n] ").strip().casefold()
+                    if answer in _YES or answer in _NO:
+                        answer = "yes" if answer in _YES else "no"
+                        break
+                    self.hooks.info("please answer y or n")
+            else:
+                answer = self._read(step, f"{step.text} [Enter when done] ").strip()
+        srec.answer = answer
+        if step.ask and step.expect is not None and answer.casefold() != str(step.expect).casefold():
+            srec.error = f"answer {answer!r} to {step.text!r}; {step.expect!r} lets the run go on"
+
+    def _do_reading(self, step: Any, srec: StepRecord, attempt: int) -> None:
+        instrument = self.bench[step.instrument]
+        if step.settle:
+            self.sleep(step.settle, f"settle {step.settle:g} s")
+        method = getattr(instrument, READING_METHODS[step.quantity])
+        measurement = method()
+        for check in step.checks:
+            m = measurement if measurement.name == check.measurement else _renamed(measurement, check.measurement)
+            self._judge(step, srec, check, m)
+
+    def _do_capture(self, step: Any, srec: StepRecord, attempt: int) -> None:
+        instrument = self.bench[step.instrument]
+        key = step.id if attempt == 1 else f"{step.id}-{attempt}"
+        try:
+            capture = self._acquire(step, instrument)
+        except InstrumentDisconnected as exc:
+            if exc.partial is not None and getattr(exc.partial, "n", 0) > 0:
+                self._keep(step, srec, key, exc.partial.with_metadata(partial=True), [])
+            raise
+        names = [c.measurement for c in step.checks]
+        warnings: list[str] = []
+        try:
+            analysis = self.analyze(capture, names, harmonics=step.harmonics)
+            measurements = analysis.measurements
+            warnings = list(analysis.warnings)
+        except (BenchgateError, ValueError) as exc:
+            reason = f"analysis failed: {exc}"
+            measurements = {c.measurement: Measurement.invalid(c.measurement, c.window.unit, reason)
+                            for c in step.checks}
+            warnings = [reason]
+        self._keep(step, srec, key, capture, warnings)
+        for check in step.checks:
+            self._judge(step, srec, check, measurements.get(check.measurement))
+
+    def _acquire(self, step: Any, instrument: Any):
+        def progress(fraction: float, text: str = "") -> None:
+            started.set()
+            self.hooks.progress(fraction, f"capture {step.channel}", step.duration * (1 - fraction))
+
+        started = threading.Event()
+        kwargs = {"duration": step.duration, "rate": step.rate, "progress": progress}
+        if not step.power_on:
+            return instrument.capture(step.channel, **kwargs)
+        # Acquisition first, then the supply: the record must hold the start-up transient.
+        result: dict[str, Any] = {}
+        start_hook = getattr(instrument, "on_acquisition_start", None)
+
+        def work() -> None:
+            try:
+                result["capture"] = instrument.capture(step.channel, **kwargs)
+            except BaseException as exc:  # handed to the main thread below
+                result["error"] = exc
+            finally:
+                started.set()
+
+        if start_hook is not None:
+            start_hook(started.set)
+        worker = threading.Thread(target=work, name=f"capture-{step.id}", daemon=True)
+        worker.start()
+        started.wait(timeout=2.0)
+        if "error" not in result:
+            self.bench["supply"].output(True)
+        while worker.is_alive():
+            worker.join(timeout=0.05)
+        if "error" in result:
+            raise result["error"]
+        return result["capture"]
+
+    # ------------------------------------------------------------------ helpers
+    def _keep(self, step: Any, srec: StepRecord, key: str, capture: Any, warnings: list[str]) -> None:
+        path = Path(self.layout.capture_path(key))
+        path.parent.mkdir(parents=True, exist_ok=True)
+        sha = self.save_capture(capture, path)
+        self.capture_paths[f"capture:{key}"] = path
+        self.captures[step.id] = capture
+        srec.capture = CaptureRecord(
+            file=os.path.relpath(path, self.layout.folder), sha256=sha, channel=capture.channel,
+            sample_rate=capture.sample_rate, samples=capture.n, instrument=step.instrument,
+            warnings=list(warnings))
+
+    def _judge(self, step: Any, srec: StepRecord, check: Any, measurement: Measurement | None) -> None:
+        cv = judge(measurement, check.window, self.plan.decision)
+        rec = CheckRecord(step_id=step.id, measurement=check.measurement, window=check.window,
+                          result=measurement, verdict=cv.verdict, reason=cv.reason, rule=cv.rule)
+        srec.checks.append(rec)
+        self.hooks.check(rec)
+
+
+def _renamed(m: Measurement, name: str) -> Measurement:
+    return Measurement(name=name, value=m.value, unit=m.unit, uncertainty=m.uncertainty, valid=m.valid,
+                       reason=m.reason, details=m.details)
+
+
+def step_status(srec: StepRecord) -> str:
+    """done / failed / error from a finished attempt's checks (and a prompt's answer)."""
+    verdict = combine(c.verdict for c in srec.checks)
+    if verdict == Verdict.FAIL or (srec.kind == "prompt" and srec.error):
+        return "failed"
+    if verdict == Verdict.ERROR:
+        return "error"
+    return "done"
+
+
+def attempt_summary(srec: StepRecord) -> str:
+    bad = [c for c in srec.checks if c.verdict in (Verdict.FAIL, Verdict.ERROR)]
+    if bad:
+        return "; ".join(f"{c.measurement}: {c.reason}" for c in bad)
+    return srec.error or "did not pass"
+
+
+def error_reason(exc: BaseException) -> str:
+    """One line for an error, with the instrument's own error code when it gave one."""
+    if isinstance(exc, BenchgateError):
+        text = exc.one_line()
+        code = getattr(exc, "code", None)
+        if code is not None and str(code) not in text:
+            text += f" (instrument error {code}" + (f", {exc.code_text}" if exc.code_text else "") + ")"
+        return text
+    return f"{type(exc).__name__}: {exc}"

@@ -1,0 +1,118 @@
+"""What a run is told (:class:`RunOptions`) and what it hands back (:class:`RunOutcome`).
+
+Exit codes (the same for ``benchgate run``, ``reanalyze`` and the pytest plugin):
+
+===  ==========================================================
+0    every check passed
+1    at least one check failed
+2    plan, station or usage error (nothing was run)
+3    error or inconclusive: the run could not decide
+130  aborted (Ctrl-C)
+===  ==========================================================
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from benchgate.errors import BenchgateError
+from benchgate.judge.rules import Verdict
+
+EXIT_PASS = 0
+EXIT_FAIL = 1
+EXIT_USAGE = 2
+EXIT_UNDECIDED = 3
+EXIT_ABORTED = 130
+
+_EXIT_FOR_VERDICT = {
+    Verdict.PASS: EXIT_PASS,
+    Verdict.FAIL: EXIT_FAIL,
+    Verdict.ERROR: EXIT_UNDECIDED,
+    Verdict.INCONCLUSIVE: EXIT_UNDECIDED,
+    Verdict.ABORTED: EXIT_ABORTED,
+}
+
+
+def exit_code_for(verdict: Verdict) -> int:
+    """The process exit code a unit verdict maps to."""
+    return _EXIT_FOR_VERDICT[Verdict(verdict)]
+
+
+def worst_exit_code(codes: list[int]) -> int:
+    """The exit code of several units: aborted, then fail, then undecided, then pass."""
+    for code in (EXIT_ABORTED, EXIT_FAIL, EXIT_UNDECIDED, EXIT_USAGE):
+        if code in codes:
+            return code
+    return EXIT_PASS
+
+
+class PreflightError(BenchgateError):
+    """The run was refused before anything was touched (station, calibration, hazards)."""
+
+    exit_code = EXIT_USAGE
+
+    def __init__(self, message: str, where: str | None = None):
+        super().__init__(message)
+        self.message = message
+        self._where = where
+
+    def where(self) -> str | None:
+        return self._where
+
+
+@dataclass
+class RunOptions:
+    """How to run a plan on a unit.
+
+    ``ask`` reads one line of operator input for a prompt (default :func:`input`).
+    ``open_bench`` opens the station's instruments (default
+    :func:`benchgate.instruments.open_station`); tests and the soak pass a fake.
+    ``today`` is the date calibration is judged against (default: today, UTC).
+    """
+
+    operator: str | None = None
+    lot: str | None = None
+    reports_dir: Path = Path("reports")
+    db_path: Path | None = None
+    unattended: bool = False
+    accept_hazards: bool = False
+    allow_expired_calibration: bool = False
+    events: Path | None = None
+    junit: Path | None = None
+    clock: Any = None
+    ui: str = "auto"
+    ask: Callable[[str], str] | None = None
+    open_bench: Callable[..., Any] | None = None
+    today: _dt.date | None = None
+    extra_flags: dict[str, Any] = field(default_factory=dict)
+
+    def __post_init__(self) -> None:
+        self.reports_dir = Path(self.reports_dir)
+        if self.db_path is not None:
+            self.db_path = Path(self.db_path)
+        if self.ui not in ("auto", "rich", "plain", "quiet"):
+            raise ValueError(f"ui must be auto, rich, plain or quiet, got {self.ui!r}")
+
+    @property
+    def database(self) -> Path:
+        return self.db_path if self.db_path is not None else self.reports_dir / "results.sqlite"
+
+    def today_utc(self) -> _dt.date:
+        return self.today or _dt.datetime.now(_dt.UTC).date()
+
+
+@dataclass
+class RunOutcome:
+    """One unit's run: the record, the files written (json, html, junit, captures…), the exit code."""
+
+    record: Any  # benchgate.record.UnitRecord
+    paths: dict[str, Path]
+    exit_code: int
+
+    @property
+    def verdict(self) -> Verdict:
+        return self.record.verdict
