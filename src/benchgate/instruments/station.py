@@ -121,7 +121,13 @@ class Station:
 
 
 def load_station(path) -> Station:
-    """Read a station file. Raises PlanErrors (each error with file:line:column)."""
-    from benchgate.instruments._station_load import load
+    """Read a station file (format in ``docs/stations.md``).
 
-    return load(path)
+    Raises
+    ------
+    PlanErrors
+        Every problem found, each with file:line:column.
+    """
+    from benchgate.instruments._station_load import StationReader
+
+    return StationReader(str(path)).read()
