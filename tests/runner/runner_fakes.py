@@ -109,6 +109,9 @@ class Calibration:
     channels: dict = field(default_factory=dict)
 
     def status(self, today):
+        if self.channels:
+            states = [c.status(today) for c in self.channels.values()]
+            return "expired" if "expired" in states else ("none" if "none" in states else "valid")
         if self.due is None:
             return "none"
         return "expired" if self.due < today else "valid"

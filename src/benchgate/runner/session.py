@@ -71,7 +71,7 @@ class Runner:
         self.options = options
         self.ask = options.ask or _default_ask
         self.display = display or make_display(options.ui, unattended=options.unattended)
-        self.pre = preflight(plan, station, options, self._ask, self.display.info)
+        self.pre = preflight(plan, station, options, self.ask_operator, self.display.info)
         self.services = services or Services.default(options)
         if options.clock is None:
             from benchgate.clock import SystemClock
@@ -84,7 +84,7 @@ class Runner:
         self.done: list[RunOutcome] = []
         self.late_interrupts = 0
 
-    def _ask(self, prompt: str) -> str:
+    def ask_operator(self, prompt: str) -> str:
         self.display.pause()
         return self.ask(prompt)
 
@@ -120,7 +120,7 @@ class Runner:
         record = self.new_record(serial)
         layout = s.layout(o.reports_dir, self.plan.id, serial, record.started)
         executor = Executor(self.plan, None, record, layout, hooks=self.hooks, clock=o.clock,
-                            ask=self._ask, unattended=o.unattended,
+                            ask=self.ask_operator, unattended=o.unattended,
                             save_capture=s.save_capture, analyze=s.analyze)
         self.db.begin_run(record)
         self.hooks.run_started(record, len(self.plan.steps))
