@@ -1,0 +1,456 @@
+"""The SCPI session every SCPI driver shares: pyvisa with the pyvisa-py backend (``@py``).
+
+:class:`ScpiSession` opens a VISA resource (``TCPIP0::host::port::SOCKET`` …), sets read and
+write terminations explicitly, always sets a timeout, records ``*IDN?`` and optionally sends
+``*RST``/``*CLS``. Its verbs follow pyvisa's family: :meth:`~ScpiSession.write` (a configuration
+command, followed by draining ``SYSTem:ERRor?`` until ``0``), :meth:`~ScpiSession.query`,
+:meth:`~ScpiSession.query_float` and :meth:`~ScpiSession.query_binary_values` (an IEEE 488.2
+definite-length block, checked against its header). One lock per instrument covers each
+write+read; after a timeout or a garbled reply the next use first drains stale replies.
+
+Command templates: each driver has SCPI-99 style defaults; a station overrides any of them with
+the instrument option ``commands: {name: "TEMPLATE {value}"}`` (see ``docs/scpi.md``).
+"""
+
+from __future__ import annotations
+
+import re
+import string
+import threading
+import time
+from collections.abc import Mapping
+from typing import Any
+
+import numpy as np
+
+from benchgate.errors import InstrumentError, PlanError
+
+DEFAULT_VISA_LIBRARY = "@py"
+ERROR_QUEUE_CAP = 20  # SYSTem:ERRor? reads before we give up on an instrument's queue
+CHUNK_SIZE = 1 << 20
+
+COMMON_COMMANDS: dict[str, str] = {
+    "identify": "*IDN?",
+    "reset": "*RST",
+    "clear": "*CLS",
+    "operation_complete": "*OPC?",
+    "error_query": "SYST:ERR?",
+}
+
+_ERROR_REPLY = re.compile(r'^\s*([+-]?\d+)\s*,\s*"(.*)"\s*$', re.DOTALL)
+
+
+def station_error(config, message: str) -> PlanError:
+    """A problem with a station entry, at the entry's position when known."""
+    return PlanError(f"{config.role}: {message}", getattr(config, "file", None) or "<station>",
+                     getattr(config, "line", None))
+
+
+def _fields(template: str) -> set[str]:
+    return {name for _lit, name, _spec, _conv in string.Formatter().parse(template) if name}
+
+
+def command_templates(config, defaults: Mapping[str, str]) -> dict[str, str]:
+    """Driver defaults merged with the station's ``commands`` option.
+
+    Unknown template names, non-text templates and placeholders the driver does not supply
+    are station errors.
+    """
+    templates = {**COMMON_COMMANDS, **defaults}
+    overrides = config.option("commands") or {}
+    if not isinstance(overrides, Mapping):
+        raise station_error(config, "'commands' must be a mapping of template name -> text")
+    for name, text in overrides.items():
+        if name not in templates:
+            known = ", ".join(sorted(templates))
+            raise station_error(config, f"unknown command template {name!r} (known: {known})")
+        if not isinstance(text, str) or not text.strip():
+            raise station_error(config, f"command template {name!r} must be non-empty text")
+        try:
+            extra = _fields(text) - _fields(templates[name])
+        except ValueError as exc:
+            raise station_error(config, f"command template {name!r}: {exc}") from None
+        if extra:
+            allowed = ", ".join(sorted(_fields(templates[name]))) or "none"
+            raise station_error(config, f"command template {name!r} uses {{{', '.join(sorted(extra))}}}"
+                                        f" (placeholders allowed: {allowed})")
+        templates[name] = text.strip()
+    return templates
+
+
+def _format_arg(value: Any) -> str:
+    if isinstance(value, bool):
+        return "ON" if value else "OFF"
+    if isinstance(value, (int, np.integer)):
+        return str(int(value))
+    if isinstance(value, (float, np.floating)):
+        return f"{float(value):.10g}"
+    return str(value)
+
+
+def _is_timeout(exc: Exception) -> bool:
+    from pyvisa import constants
+
+    return getattr(exc, "error_code", None) == constants.StatusCode.error_timeout
+
+
+def _widen_socket_reads(res: Any) -> None:
+    """Let pyvisa-py's raw-socket session receive up to CHUNK_SIZE per recv() (it uses 4 KiB).
+
+    A performance setting only (a 4 MB waveform otherwise takes ~1000 select/recv rounds);
+    it touches the backend's session object, so it does nothing when the backend is another.
+    """
+    sessions = getattr(getattr(res, "visalib", None), "sessions", None)
+    backend_session = sessions.get(res.session) if isinstance(sessions, dict) else None
+    if type(backend_session).__name__ == "TCPIPSocketSession" and \
+            isinstance(getattr(backend_session, "max_recv_size", None), int):
+        backend_session.max_recv_size = max(backend_session.max_recv_size, CHUNK_SIZE)
+
+
+class ScpiSession:
+    """One open SCPI instrument (use :meth:`open`)."""
+
+    def __init__(self, role: str, address: str, resource: Any, *, timeout: float,
+                 templates: Mapping[str, str], resync_timeout: float | None = None):
+        self.role = role
+        self.address = address
+        self.timeout = float(timeout)
+        self.templates = dict(templates)
+        self.identity: str | None = None
+        self.stale_errors: list[tuple[int, str]] = []  # queue entries found at open
+        self.discarded_replies = 0  # stale replies drained after timeouts (for diagnostics)
+        self._res = resource
+        self._lock = threading.RLock()
+        self._stale = False
+        self._closed = False
+        self._resync_timeout = resync_timeout or max(1.0, 4.0 * self.timeout)
+
+    # ------------------------------------------------------------------ opening
+    @classmethod
+    def open(cls, config, defaults: Mapping[str, str]) -> ScpiSession:
+        """Open ``config.address`` through pyvisa, identify, optionally reset, clear errors."""
+        import pyvisa
+
+        role = config.role
+        templates = command_templates(config, defaults)
+        timeout = float(config.timeout)
+        if not timeout > 0:
+            raise station_error(config, f"timeout must be > 0 s, got {timeout!r}")
+        library = config.option("visa_library", DEFAULT_VISA_LIBRARY)
+        try:
+            rm = pyvisa.ResourceManager(library)
+        except (OSError, ValueError, pyvisa.errors.Error) as exc:
+            raise InstrumentError(role, f"VISA library {library!r} is not usable: {exc}") from exc
+        try:
+            res = rm.open_resource(config.address, read_termination="\n", write_termination="\n",
+                                   timeout=round(timeout * 1000), open_timeout=round(timeout * 1000))
+        except Exception as exc:  # pyvisa-py raises bare Exception for refused connections
+            raise InstrumentError(role, f"cannot open {config.address}: {exc}") from exc
+        session = cls(role, config.address, res, timeout=timeout, templates=templates,
+                      resync_timeout=config.option("resync_timeout"))
+        try:
+            res.chunk_size = CHUNK_SIZE
+            _widen_socket_reads(res)
+            session.identity = session.query(templates["identify"])
+            if config.option("reset", False):
+                session.write(templates["reset"], check=False)
+                session.write(templates["clear"], check=False)
+            session.stale_errors = session.read_errors()
+        except BaseException:
+            session.close()
+            raise
+        return session
+
+    # ------------------------------------------------------------------ templates
+    def command(self, name: str, **params: Any) -> str:
+        """The text of template ``name`` with ``params`` filled in."""
+        return self.templates[name].format(**{k: _format_arg(v) for k, v in params.items()})
+
+    # ------------------------------------------------------------------ verbs
+    def write(self, command: str, *, check: bool = True) -> None:
+        """Send ``command``; with ``check`` drain the error queue and raise on any entry.
+
+        A write reads nothing, so it goes out even while stale replies wait to be drained
+        (switching a supply off must never wait for that).
+        """
+        with self._lock:
+            self._call("write", command, lambda: self._res.write(command))
+            if check:
+                self.check_errors(command)
+
+    def query(self, command: str, *, timeout: float | None = None) -> str:
+        """Send ``command`` and return the reply line (termination stripped)."""
+        with self._lock:
+            self._prepare()
+            return self._call("query", command, lambda: self._query_line(command, timeout))
+
+    def query_float(self, command: str, *, timeout: float | None = None) -> float:
+        """A query whose reply is one decimal number."""
+        with self._lock:
+            reply = self.query(command, timeout=timeout)
+            try:
+                return float(reply.split(";")[0].strip())
+            except ValueError:
+                self._stale = True
+                raise InstrumentError(self.role, f"{command!r} returned {reply[:40]!r}, not a number") from None
+
+    def query_binary_values(self, command: str, *, datatype: str = "f", is_big_endian: bool = False,
+                            points: int | None = None, timeout: float | None = None) -> np.ndarray:
+        """Send ``command`` and read an IEEE 488.2 definite-length block of ``datatype`` values.
+
+        The header ``#<n><length>`` is checked (digit count, length a whole number of values,
+        ``points`` values when given), then exactly ``length`` bytes and the ``\\n`` termination
+        are read with termination-character detection switched off (binary data may hold 0x0A).
+        """
+        dtype = np.dtype(datatype).newbyteorder(">" if is_big_endian else "<")
+        with self._lock:
+            self._prepare()
+            return self._call("binary query", command,
+                              lambda: self._query_block(command, dtype, points, timeout))
+
+    def check_errors(self, after: str) -> None:
+        """Drain ``SYSTem:ERRor?``; raise InstrumentError for the first entry (if any)."""
+        entries = self.read_errors()
+        if entries:
+            code, text = entries[0]
+            more = f" (and {len(entries) - 1} more: " + "; ".join(
+                f"{c},{t!r}" for c, t in entries[1:]) + ")" if len(entries) > 1 else ""
+            raise InstrumentError(self.role, f"{after!r} rejected: {code},\"{text}\"{more}",
+                                  code=code, code_text=text)
+
+    def read_errors(self) -> list[tuple[int, str]]:
+        """Read ``SYSTem:ERRor?`` until it answers ``0`` (at most ERROR_QUEUE_CAP times)."""
+        entries: list[tuple[int, str]] = []
+        command = self.templates["error_query"]
+        for _ in range(ERROR_QUEUE_CAP):
+            reply = self.query(command)
+            m = _ERROR_REPLY.match(reply)
+            if not m:
+                self._stale = True
+                raise InstrumentError(self.role, f"{command!r} returned {reply[:60]!r}, "
+                                                 "not <code>,\"<text>\"")
+            code, text = int(m.group(1)), m.group(2)
+            if code == 0:
+                return entries
+            entries.append((code, text))
+        raise InstrumentError(self.role, f"error queue still not empty after {ERROR_QUEUE_CAP} reads "
+                                         f"of {command!r} (last {entries[-1][0]},\"{entries[-1][1]}\")",
+                              code=entries[0][0], code_text=entries[0][1])
+
+    def close(self) -> None:
+        with self._lock:
+            if self._closed:
+                return
+            self._closed = True
+            try:
+                self._res.close()
+            except Exception:  # closing a dead socket must not hide the original problem
+                pass
+
+    # ------------------------------------------------------------------ internals
+    def _call(self, what: str, command: str, fn):
+        import pyvisa
+
+        if self._closed:
+            raise InstrumentError(self.role, f"{what} {command!r} on a closed session")
+        try:
+            return fn()
+        except pyvisa.errors.VisaIOError as exc:
+            self._stale = True
+            if _is_timeout(exc):
+                raise InstrumentError(self.role, f"no reply to {command!r} within {self.timeout:g} s "
+                                                 f"({self.address})") from exc
+            raise InstrumentError(self.role, f"{what} {command!r} failed: {exc}") from exc
+        except (OSError, UnicodeDecodeError) as exc:
+            self._stale = True
+            raise InstrumentError(self.role, f"{what} {command!r} failed: {exc}") from exc
+
+    def _with_timeout(self, timeout: float | None, fn):
+        if timeout is None:
+            return fn()
+        self._res.timeout = round(float(timeout) * 1000)
+        try:
+            return fn()
+        finally:
+            self._res.timeout = round(self.timeout * 1000)
+
+    def _query_line(self, command: str, timeout: float | None) -> str:
+        self._res.write(command)
+        raw = self._with_timeout(timeout, self._res.read_raw)
+        try:
+            return raw.decode("ascii").rstrip("\r\n")
+        except UnicodeDecodeError:
+            self._stale = True
+            raise InstrumentError(self.role, f"{command!r} returned non-text bytes {bytes(raw[:20])!r}") from None
+
+    def _read_exact(self, count: int, timeout: float | None) -> bytes:
+        # one backend read for the whole count: fewer copies than the resource's chunk size
+        return bytes(self._with_timeout(timeout, lambda: self._res.read_bytes(count, chunk_size=max(count, 1))))
+
+    def _query_block(self, command: str, dtype: np.dtype, points: int | None,
+                     timeout: float | None) -> np.ndarray:
+        from pyvisa import constants
+
+        self._res.write(command)
+        self._res.set_visa_attribute(constants.VI_ATTR_TERMCHAR_EN, constants.VI_FALSE)
+        try:
+            head = self._read_exact(2, timeout)
+            if head[:1] != b"#" or not head[1:2].isdigit() or head[1:2] == b"0":
+                self._stale = True
+                raise InstrumentError(self.role, f"{command!r} did not return a definite-length block "
+                                                 f"(starts {head!r})")
+            digits = self._read_exact(int(head[1:2]), timeout)
+            if not digits.isdigit():
+                self._stale = True
+                raise InstrumentError(self.role, f"{command!r}: bad block header {head + digits!r}")
+            length = int(digits)
+            if length % dtype.itemsize:
+                self._stale = True
+                raise InstrumentError(self.role, f"{command!r}: block of {length} bytes is not a whole "
+                                                 f"number of {dtype.itemsize}-byte values")
+            if points is not None and length != points * dtype.itemsize:
+                self._stale = True
+                raise InstrumentError(self.role, f"{command!r}: block holds {length // dtype.itemsize} "
+                                                 f"values, expected {points}")
+            data = self._read_exact(length, timeout) if length else b""
+            end = self._read_exact(1, timeout)
+            if end != b"\n":
+                self._stale = True
+                raise InstrumentError(self.role, f"{command!r}: block not followed by the newline "
+                                                 f"termination (got {end!r})")
+        finally:
+            self._res.set_visa_attribute(constants.VI_ATTR_TERMCHAR_EN, constants.VI_TRUE)
+        return np.frombuffer(data, dtype=dtype).astype(np.float64)
+
+    def _prepare(self) -> None:
+        """Before the next exchange after a timeout: drain stale replies.
+
+        Sends ``*IDN?`` and discards every line until the identity recorded at open comes back
+        (the instrument answers in order, so everything before it is stale).
+        """
+        if not self._stale or self._closed:
+            return
+        import pyvisa
+
+        self._stale = False
+        marker = self.templates["identify"]
+        deadline = time.monotonic() + self._resync_timeout
+        try:
+            self._res.write(marker)
+            while True:
+                try:
+                    raw = self._res.read_raw()
+                except pyvisa.errors.VisaIOError as exc:
+                    if not _is_timeout(exc) or time.monotonic() >= deadline:
+                        raise
+                    continue
+                line = raw.decode("ascii", errors="replace").rstrip("\r\n")
+                if self.identity is not None and line == self.identity:
+                    return
+                if self.identity is None and time.monotonic() >= deadline:
+                    return
+                self.discarded_replies += 1
+        except (pyvisa.errors.VisaIOError, OSError) as exc:
+            self._stale = True
+            raise InstrumentError(self.role, f"not answering after an earlier timeout "
+                                             f"({self.address}): {exc}") from exc
+
+
+# ---------------------------------------------------------------------- driver base class
+
+
+def _accuracy_table(config) -> dict[str, tuple[float, float]]:
+    """The ``accuracy`` option as {reading name or "*": (gain, offset)}.
+
+    ``{gain: 0.0005, offset: 0.002}`` applies to every reading; ``{dc_voltage: {...}, ...}``
+    gives one bound per reading. ``gain`` is a fraction of the reading, ``offset`` in the
+    reading's unit.
+    """
+    spec = config.option("accuracy")
+    if spec is None:
+        return {}
+    if not isinstance(spec, Mapping):
+        raise station_error(config, "'accuracy' must be {gain: .., offset: ..} or one per reading")
+    entries = {"*": spec} if set(spec) <= {"gain", "offset"} else dict(spec)
+    table = {}
+    for name, entry in entries.items():
+        if not isinstance(entry, Mapping) or not set(entry) <= {"gain", "offset"}:
+            raise station_error(config, f"accuracy entry {name!r} must have only 'gain' and 'offset'")
+        try:
+            gain, offset = float(entry.get("gain", 0.0)), float(entry.get("offset", 0.0))
+        except (TypeError, ValueError):
+            raise station_error(config, f"accuracy entry {name!r}: gain and offset must be numbers") from None
+        if not (gain >= 0 and offset >= 0 and np.isfinite(gain) and np.isfinite(offset)):
+            raise station_error(config, f"accuracy entry {name!r}: gain and offset must be >= 0")
+        table[str(name)] = (gain, offset)
+    return table
+
+
+class ScpiInstrument:
+    """Shared part of the SCPI drivers: session, identity, readings, context manager."""
+
+    DEFAULT_COMMANDS: Mapping[str, str] = {}
+
+    def __init__(self, config, session: ScpiSession, *, clock=None):
+        self.config = config
+        self.name = config.role
+        self.address = config.address
+        self.calibration = config.calibration
+        self.clock = clock
+        self.session = session
+        self._accuracy = _accuracy_table(config)
+
+    @classmethod
+    def open(cls, config, *, clock=None):
+        _accuracy_table(config)  # station errors before touching the network
+        session = ScpiSession.open(config, cls.DEFAULT_COMMANDS)
+        try:
+            return cls(config, session, clock=clock)
+        except BaseException:
+            session.close()
+            raise
+
+    @property
+    def identity(self) -> str | None:
+        return self.session.identity
+
+    def reading(self, name: str, template: str, unit: str, **params: Any):
+        """Query template ``template`` and return Measurement ``name`` with its uncertainty.
+
+        Expanded uncertainty from the accuracy bound a = gain·|x| + offset taken as a
+        rectangular distribution: u = a/√3, U = 2u (JCGM 100:2008). SCPI's overload value
+        (9.9E37) gives an invalid measurement.
+        """
+        from benchgate.analysis.measurement import Measurement
+
+        command = self.session.command(template, **params)
+        value = self.session.query_float(command)
+        if not np.isfinite(value) or abs(value) >= 9.9e37:
+            return Measurement.invalid(name, unit, f"{self.name} reported overload or no value ({value:g})",
+                                       instrument=self.name)
+        bound = self._accuracy.get(name, self._accuracy.get("*"))
+        uncertainty = None
+        if bound is not None:
+            a = bound[0] * abs(value) + bound[1]
+            uncertainty = 2.0 * a / np.sqrt(3.0)
+        return Measurement(name, value, unit, uncertainty,
+                           details={"instrument": self.name, "command": command})
+
+    def configure(self, template: str, **params: Any) -> None:
+        """Send a configuration template and check the error queue."""
+        self.session.write(self.session.command(template, **params))
+
+    def safe_state(self) -> None:
+        """Leave the instrument safe before closing (a supply switches its output off)."""
+
+    def close(self) -> None:
+        try:
+            self.safe_state()
+        finally:
+            self.session.close()
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()

@@ -1,0 +1,14 @@
+"""SCPI frequency counter (``kind: scpi-counter``)."""
+
+from __future__ import annotations
+
+from benchgate.instruments.scpi import ScpiInstrument
+
+
+class ScpiCounter(ScpiInstrument):
+    """Implements :class:`benchgate.instruments.base.Counter`."""
+
+    DEFAULT_COMMANDS = {"measure_frequency": "MEAS:FREQ?"}
+
+    def measure_frequency(self):
+        return self.reading("frequency", "measure_frequency", "Hz")

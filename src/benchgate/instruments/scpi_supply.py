@@ -1,0 +1,57 @@
+"""SCPI programmable supply: voltage, current limit, output, read-back (``kind: scpi-supply``).
+
+Closing the driver, or leaving its ``with`` block for any reason, switches the output off
+first and checks that it is off.
+"""
+
+from __future__ import annotations
+
+from benchgate.errors import InstrumentError
+from benchgate.instruments.scpi import ScpiInstrument
+
+
+class ScpiSupply(ScpiInstrument):
+    """Implements :class:`benchgate.instruments.base.Supply`."""
+
+    DEFAULT_COMMANDS = {
+        "set_voltage": "SOUR:VOLT {value}",
+        "set_current_limit": "SOUR:CURR {value}",
+        "output": "OUTP {state}",
+        "output_state": "OUTP?",
+        "measure_voltage": "MEAS:VOLT?",
+        "measure_current": "MEAS:CURR?",
+    }
+
+    def set_voltage(self, volts: float) -> None:
+        self.configure("set_voltage", value=float(volts))
+
+    def set_current_limit(self, amps: float) -> None:
+        self.configure("set_current_limit", value=float(amps))
+
+    def output(self, on: bool) -> None:
+        self.configure("output", state=bool(on))
+
+    def output_state(self) -> bool:
+        reply = self.session.query(self.session.command("output_state")).strip().upper()
+        if reply in ("1", "ON"):
+            return True
+        if reply in ("0", "OFF"):
+            return False
+        raise InstrumentError(self.name, f"output state query returned {reply[:30]!r}, not 0/1")
+
+    def measure_voltage(self):
+        return self.reading("supply_voltage", "measure_voltage", "V")
+
+    def measure_current(self):
+        return self.reading("supply_current", "measure_current", "A")
+
+    def safe_state(self) -> None:
+        """Output off, then confirm it is off (the queue is drained, its entries ignored)."""
+        command = self.session.command("output", state=False)
+        self.session.write(command, check=False)
+        if self.output_state():
+            raise InstrumentError(self.name, f"output still ON after {command!r}")
+        try:
+            self.session.read_errors()
+        except InstrumentError:
+            pass  # the output is confirmed off; an untidy queue does not matter at close

@@ -1,0 +1,402 @@
+"""The four emulated SCPI instruments behind the loopback server (``sim.scpi_server``).
+
+Each :class:`EmulatedInstrument` parses program messages (IEEE 488.2 common commands and
+SCPI-99 style headers with short/long forms and optional nodes), keeps a SCPI error queue and
+an event status register, and answers from a :class:`~benchgate.sim.interfaces.ScpiBackend`.
+The command set is described in ``docs/scpi.md``. Nothing here touches sockets.
+"""
+
+from __future__ import annotations
+
+import re
+import threading
+from collections import deque
+from collections.abc import Callable
+from dataclasses import dataclass
+
+import numpy as np
+
+from benchgate.clock import Clock, SystemClock
+from benchgate.sim.interfaces import ScpiBackend
+
+#: standard texts of the error numbers the emulation raises (SCPI-99, from memory)
+ERROR_TEXTS: dict[int, str] = {
+    0: "No error",
+    -102: "Syntax error",
+    -104: "Data type error",
+    -108: "Parameter not allowed",
+    -109: "Missing parameter",
+    -113: "Undefined header",
+    -222: "Data out of range",
+    -224: "Illegal parameter value",
+    -230: "Data corrupt or stale",
+    -350: "Queue overflow",
+}
+
+#: error queue length before overflow (SCPI requires at least two entries)
+QUEUE_LENGTH = 10
+
+# event status register bits (IEEE 488.2): operation complete, query, device, execution, command
+ESR_OPC, ESR_QYE, ESR_DDE, ESR_EXE, ESR_CME = 0x01, 0x04, 0x08, 0x10, 0x20
+
+
+class ScpiCommandError(Exception):
+    """A command the emulated instrument refuses; ends up in its error queue."""
+
+    def __init__(self, code: int, detail: str | None = None):
+        text = ERROR_TEXTS.get(code, "Error")
+        super().__init__(f"{code},{text}")
+        self.code = code
+        self.text = f"{text}; {detail}" if detail else text
+
+
+# ----------------------------------------------------------------------------- headers
+
+_NODE = re.compile(r"\[:?([A-Za-z]+):?\]|:?([A-Za-z]+)")
+
+
+def _compile(spec: str) -> tuple[tuple[str, str, bool], ...]:
+    """``"[SOURce:]VOLTage[:LEVel]"`` -> ((long, short, optional), ...)."""
+    nodes = []
+    pos = 0
+    while pos < len(spec):
+        m = _NODE.match(spec, pos)
+        if not m:
+            raise ValueError(f"bad header spec {spec!r} at {pos}")
+        word = m.group(1) or m.group(2)
+        short = "".join(ch for ch in word if ch.isupper())
+        nodes.append((word.upper(), short, m.group(1) is not None))
+        pos = m.end()
+    return tuple(nodes)
+
+
+def _matches(words: list[str], pattern: tuple[tuple[str, str, bool], ...]) -> bool:
+    if not pattern:
+        return not words
+    long, short, optional = pattern[0]
+    if words and words[0] in (long, short) and _matches(words[1:], pattern[1:]):
+        return True
+    return optional and _matches(words, pattern[1:])
+
+
+def parse_bool(arg: str) -> bool:
+    a = arg.strip().upper()
+    if a in ("ON", "1"):
+        return True
+    if a in ("OFF", "0"):
+        return False
+    raise ScpiCommandError(-224, f"expected ON or OFF, got {arg.strip()!r}")
+
+
+def parse_number(arg: str, low: float, high: float) -> float:
+    """A decimal numeric parameter within [low, high] (MINimum / MAXimum accepted)."""
+    a = arg.strip().upper()
+    if a in ("MIN", "MINIMUM"):
+        return low
+    if a in ("MAX", "MAXIMUM"):
+        return high
+    try:
+        value = float(a)
+    except ValueError:
+        raise ScpiCommandError(-104, f"not a number: {arg.strip()!r}") from None
+    if not np.isfinite(value) or not low <= value <= high:
+        raise ScpiCommandError(-222, f"{value:g} outside {low:g} .. {high:g}")
+    return value
+
+
+Handler = Callable[[str | None], "str | bytes | None"]
+
+
+@dataclass(frozen=True)
+class _Command:
+    pattern: tuple[tuple[str, str, bool], ...]
+    query: bool
+    handler: Handler
+    takes_argument: bool
+
+
+def _split_units(message: str) -> list[str]:
+    """Split a program message at ``;`` outside quoted strings."""
+    parts, cur, quote = [], [], None
+    for ch in message:
+        if quote:
+            cur.append(ch)
+            if ch == quote:
+                quote = None
+        elif ch in "\"'":
+            quote = ch
+            cur.append(ch)
+        elif ch == ";":
+            parts.append("".join(cur))
+            cur = []
+        else:
+            cur.append(ch)
+    parts.append("".join(cur))
+    return [p.strip() for p in parts if p.strip()]
+
+
+class EmulatedInstrument:
+    """Shared behaviour: common commands, error queue, ESR, header dispatch."""
+
+    role = "instrument"
+    model = "EMU"
+
+    def __init__(self, backend: ScpiBackend, clock: Clock | None = None, serial: str = "0001"):
+        self.backend = backend
+        self.clock = clock or SystemClock()
+        self.identity = f"Owl Hollow Kits,BG-{self.model},{serial},1.0"
+        self.lock = threading.RLock()
+        self._errors: deque[tuple[int, str]] = deque()
+        self._esr = 0
+        self._commands: list[_Command] = []
+        self.add("*IDN", True, lambda _a: self.identity, False)
+        self.add("*RST", False, lambda _a: self.reset(), False)
+        self.add("*CLS", False, lambda _a: self.clear_status(), False)
+        self.add("*OPC", True, lambda _a: self.operation_complete(), False)
+        self.add("*OPC", False, lambda _a: self._set_esr(ESR_OPC), False)
+        self.add("*ESR", True, lambda _a: str(self._read_esr()), False)
+        self.add("SYSTem:ERRor[:NEXT]", True, lambda _a: self.next_error(), False)
+        self.add("SYSTem:ERRor:COUNt", True, lambda _a: str(len(self._errors)), False)
+        self.reset()
+
+    # -- tables
+    def add(self, spec: str, query: bool, handler: Handler, takes_argument: bool = True) -> None:
+        if spec.startswith("*"):
+            pattern = ((spec.upper(), spec.upper(), False),)
+        else:
+            pattern = _compile(spec)
+        self._commands.append(_Command(pattern, query, handler, takes_argument))
+
+    # -- status
+    def reset(self) -> None:
+        """``*RST``: instrument settings to their defaults (subclasses add theirs)."""
+
+    def clear_status(self) -> None:
+        self._errors.clear()
+        self._esr = 0
+
+    def operation_complete(self) -> str:
+        return "1"
+
+    def _set_esr(self, bit: int) -> None:
+        self._esr |= bit
+
+    def _read_esr(self) -> int:
+        value, self._esr = self._esr, 0
+        return value
+
+    def push_error(self, code: int, text: str | None = None) -> None:
+        """Add an entry to the error queue (the last entry becomes -350 when it is full)."""
+        text = ERROR_TEXTS.get(code, "Error") if text is None else text
+        with self.lock:
+            if len(self._errors) >= QUEUE_LENGTH:
+                self._errors[-1] = (-350, ERROR_TEXTS[-350])
+            else:
+                self._errors.append((int(code), text))
+            if -199 <= code <= -100:
+                self._set_esr(ESR_CME)
+            elif -299 <= code <= -200:
+                self._set_esr(ESR_EXE)
+            elif -399 <= code <= -300 or code > 0:
+                self._set_esr(ESR_DDE)
+            elif -499 <= code <= -400:
+                self._set_esr(ESR_QYE)
+
+    def next_error(self) -> str:
+        code, text = self._errors.popleft() if self._errors else (0, ERROR_TEXTS[0])
+        return f'{code},"{text}"'
+
+    # -- dispatch
+    def handle(self, message: str) -> str | bytes | None:
+        """Execute one program message; returns the response message (None if no query)."""
+        replies: list[str | bytes] = []
+        with self.lock:
+            for unit in _split_units(message):
+                try:
+                    out = self._execute(unit)
+                except ScpiCommandError as exc:
+                    self.push_error(exc.code, exc.text)
+                    continue
+                if out is not None:
+                    replies.append(out)
+        if not replies:
+            return None
+        if any(isinstance(r, bytes) for r in replies):
+            return b";".join(r if isinstance(r, bytes) else r.encode() for r in replies)
+        return ";".join(replies)  # type: ignore[arg-type]
+
+    def _execute(self, unit: str) -> str | bytes | None:
+        header, _, arg = unit.partition(" ")
+        arg = arg.strip() or None
+        query = header.endswith("?")
+        header = header.rstrip("?").lstrip(":").upper()
+        if not header or not re.fullmatch(r"\*?[A-Z0-9:]+", header):
+            raise ScpiCommandError(-102, f"bad header {unit!r}")
+        words = [header] if header.startswith("*") else [w for w in header.split(":")]
+        for cmd in self._commands:
+            if cmd.query == query and _matches(words, cmd.pattern):
+                if arg is not None and not cmd.takes_argument:
+                    raise ScpiCommandError(-108, header)
+                if arg is None and cmd.takes_argument and not query:
+                    raise ScpiCommandError(-109, header)
+                return cmd.handler(arg)
+        raise ScpiCommandError(-113, f"{header}{'?' if query else ''}")
+
+
+# ----------------------------------------------------------------------------- instruments
+
+
+class EmulatedSupply(EmulatedInstrument):
+    role = "supply"
+    model = "PS30"
+    MAX_VOLTAGE = 30.0
+    MAX_CURRENT = 3.0
+
+    def __init__(self, backend: ScpiBackend, clock: Clock | None = None, serial: str = "0001"):
+        super().__init__(backend, clock, serial)
+        self.add("[SOURce:]VOLTage[:LEVel][:IMMediate][:AMPLitude]", False, self._set_voltage)
+        self.add("[SOURce:]VOLTage[:LEVel][:IMMediate][:AMPLitude]", True, lambda _a: f"{self.voltage:.6g}", False)
+        self.add("[SOURce:]CURRent[:LEVel][:IMMediate][:AMPLitude]", False, self._set_current)
+        self.add("[SOURce:]CURRent[:LEVel][:IMMediate][:AMPLitude]", True, lambda _a: f"{self.current_limit:.6g}", False)
+        self.add("OUTPut[:STATe]", False, self._set_output)
+        self.add("OUTPut[:STATe]", True, lambda _a: "1" if self.output else "0", False)
+        self.add("MEASure[:SCALar]:VOLTage[:DC]", True, lambda _a: f"{self.backend.supply_voltage():.9g}", False)
+        self.add("MEASure[:SCALar]:CURRent[:DC]", True, lambda _a: f"{self.backend.supply_current():.9g}", False)
+
+    def reset(self) -> None:
+        self.voltage, self.current_limit, self.output = 0.0, 0.1, False
+        self._notify()
+
+    def _notify(self) -> None:
+        self.backend.supply_changed(self.voltage, self.current_limit, self.output)
+
+    def _set_voltage(self, arg: str | None) -> None:
+        self.voltage = parse_number(arg or "", 0.0, self.MAX_VOLTAGE)
+        self._notify()
+
+    def _set_current(self, arg: str | None) -> None:
+        self.current_limit = parse_number(arg or "", 0.0, self.MAX_CURRENT)
+        self._notify()
+
+    def _set_output(self, arg: str | None) -> None:
+        self.output = parse_bool(arg or "")
+        self._notify()
+
+
+class EmulatedDmm(EmulatedInstrument):
+    role = "dmm"
+    model = "DM6"
+
+    def __init__(self, backend: ScpiBackend, clock: Clock | None = None, serial: str = "0001"):
+        super().__init__(backend, clock, serial)
+        self.add("MEASure[:SCALar]:VOLTage[:DC]", True, lambda _a: f"{self.backend.dmm_dc_voltage():.9g}", False)
+        self.add("MEASure[:SCALar]:VOLTage:AC", True, lambda _a: f"{self.backend.dmm_ac_voltage():.9g}", False)
+        self.add("MEASure[:SCALar]:CURRent[:DC]", True, lambda _a: f"{self.backend.dmm_dc_current():.9g}", False)
+
+
+class EmulatedCounter(EmulatedInstrument):
+    role = "counter"
+    model = "FC1"
+
+    def __init__(self, backend: ScpiBackend, clock: Clock | None = None, serial: str = "0001"):
+        super().__init__(backend, clock, serial)
+        self.add("MEASure[:SCALar]:FREQuency", True, lambda _a: f"{self.backend.counter_frequency():.12g}", False)
+
+
+class EmulatedDigitizer(EmulatedInstrument):
+    role = "digitizer"
+    model = "DG2"
+    MAX_RATE = 10e6
+    MAX_POINTS = 16_000_000
+
+    def __init__(self, backend: ScpiBackend, clock: Clock | None = None, serial: str = "0001"):
+        super().__init__(backend, clock, serial)
+        self.add("ACQuire:SRATe", False, self._set_rate)
+        self.add("ACQuire:SRATe", True, lambda _a: f"{self.rate:.12g}", False)
+        self.add("ACQuire:POINts", False, self._set_points)
+        self.add("ACQuire:POINts", True, lambda _a: str(self.points), False)
+        self.add("ACQuire:CHANnel", False, self._set_channel)
+        self.add("ACQuire:CHANnel", True, lambda _a: self.channel, False)
+        self.add("[SENSe:]VOLTage:RANGe", False, self._set_range)
+        self.add("[SENSe:]VOLTage:RANGe", True, lambda _a: f"{self.range:.6g}", False)
+        self.add("FORMat[:DATA]", False, self._set_format)
+        self.add("FORMat[:DATA]", True, lambda _a: "REAL,32", False)
+        self.add("FORMat:BORDer", False, self._set_border)
+        self.add("FORMat:BORDer", True, lambda _a: "SWAP" if self.little_endian else "NORM", False)
+        self.add("INITiate[:IMMediate]", False, lambda _a: self._arm(), False)
+        self.add("FETCh:WAVeform", True, lambda _a: self._fetch(), False)
+
+    def reset(self) -> None:
+        self.rate, self.points, self.channel, self.range = 100e3, 1000, "CH1", 10.0
+        self.little_endian = False  # SCPI default byte order is NORMal (big-endian)
+        self._record: np.ndarray | None = None
+        self._done_at = 0.0
+
+    def _set_rate(self, arg: str | None) -> None:
+        self.rate = parse_number(arg or "", 1.0, self.MAX_RATE)
+
+    def _set_points(self, arg: str | None) -> None:
+        value = parse_number(arg or "", 2, self.MAX_POINTS)
+        if value != int(value):
+            raise ScpiCommandError(-224, f"points must be a whole number, got {value:g}")
+        self.points = int(value)
+
+    def _set_channel(self, arg: str | None) -> None:
+        name = (arg or "").strip().strip("\"'")
+        if not re.fullmatch(r"[A-Za-z][A-Za-z0-9_]{0,11}", name):
+            raise ScpiCommandError(-224, f"bad channel name {name!r}")
+        self.channel = name
+
+    def _set_range(self, arg: str | None) -> None:
+        self.range = parse_number(arg or "", 0.01, 100.0)
+
+    def _set_format(self, arg: str | None) -> None:
+        if (arg or "").replace(" ", "").upper() != "REAL,32":
+            raise ScpiCommandError(-224, "only REAL,32 is supported")
+
+    def _set_border(self, arg: str | None) -> None:
+        a = (arg or "").strip().upper()
+        if a in ("SWAP", "SWAPPED"):
+            self.little_endian = True
+        elif a in ("NORM", "NORMAL"):
+            self.little_endian = False
+        else:
+            raise ScpiCommandError(-224, f"byte order must be NORMal or SWAPped, got {a!r}")
+
+    def _arm(self) -> None:
+        record = np.asarray(self.backend.digitizer_record(self.rate, self.points), dtype=np.float64)
+        self._record = np.clip(record, -self.range, self.range)
+        self._done_at = self.clock.monotonic() + self.points / self.rate
+
+    def _wait_done(self) -> None:
+        remaining = self._done_at - self.clock.monotonic()
+        if remaining > 0:
+            self.clock.sleep(remaining)
+
+    def operation_complete(self) -> str:
+        if self._record is not None:
+            self._wait_done()
+        return "1"
+
+    def _fetch(self) -> bytes:
+        if self._record is None:
+            raise ScpiCommandError(-230, "no acquisition since the last reset")
+        self._wait_done()
+        data = self._record.astype("<f4" if self.little_endian else ">f4").tobytes()
+        return definite_block(data)
+
+
+def definite_block(data: bytes) -> bytes:
+    """IEEE 488.2 definite-length arbitrary block: ``#<n><length><bytes>``."""
+    length = str(len(data)).encode()
+    if len(length) > 9:
+        raise ValueError("block too long for a definite-length header")
+    return b"#" + str(len(length)).encode() + length + data
+
+
+EMULATED = {
+    "supply": EmulatedSupply,
+    "dmm": EmulatedDmm,
+    "counter": EmulatedCounter,
+    "digitizer": EmulatedDigitizer,
+}

@@ -1,0 +1,298 @@
+"""A loopback SCPI bench: supply, DMM, counter and digitizer on raw TCP sockets.
+
+:class:`ScpiBench` starts four emulated instruments (``sim.scpi_emulated``), each listening on
+its own TCP port bound only to 127.0.0.1, newline-terminated messages, one thread per
+connection. pyvisa-py reaches them as ``TCPIP0::127.0.0.1::<port>::SOCKET``, exactly like a
+LAN instrument's raw socket port. What the instruments measure comes from a
+:class:`~benchgate.sim.interfaces.ScpiBackend`; :class:`ConstantBackend` is a small stand-in.
+
+Faults (:class:`ScpiFaults`) make the next replies of one instrument slow, missing, or preceded
+by garbage; :meth:`ScpiBench.inject_error` queues a SCPI error.
+"""
+
+from __future__ import annotations
+
+import math
+import socket
+import threading
+from collections import deque
+from collections.abc import Mapping
+from dataclasses import dataclass
+
+import numpy as np
+
+from benchgate.clock import Clock, SystemClock
+from benchgate.sim.interfaces import ScpiBackend
+from benchgate.sim.scpi_emulated import EMULATED, EmulatedInstrument, EmulatedSupply
+
+ROLES: tuple[str, ...] = ("supply", "dmm", "counter", "digitizer")
+HOST = "127.0.0.1"
+
+
+class ConstantBackend:
+    """Fixed readings and a fixed sine, for tests of the server and the drivers.
+
+    The supply draws ``load_current`` (capped by the current limit) while its output is on;
+    the digitizer sees ``amplitude · sin(2π·frequency·t) + offset``.
+    """
+
+    def __init__(self, *, frequency: float = 1000.0, amplitude: float = 1.0, offset: float = 0.0,
+                 dc_voltage: float = 1.25, ac_voltage: float = 0.7071, dc_current: float = 4e-3,
+                 load_current: float = 4e-3):
+        self.frequency, self.amplitude, self.offset = frequency, amplitude, offset
+        self.dc_voltage, self.ac_voltage, self.dc_current = dc_voltage, ac_voltage, dc_current
+        self.load_current = load_current
+        self.voltage, self.current_limit, self.output = 0.0, 0.0, False
+        self.changes: list[tuple[float, float, bool]] = []
+
+    def supply_changed(self, voltage: float, current_limit: float, output: bool) -> None:
+        self.voltage, self.current_limit, self.output = voltage, current_limit, output
+        self.changes.append((voltage, current_limit, output))
+
+    def supply_current(self) -> float:
+        return min(self.load_current, self.current_limit) if self.output else 0.0
+
+    def supply_voltage(self) -> float:
+        return self.voltage if self.output else 0.0
+
+    def dmm_dc_voltage(self) -> float:
+        return self.dc_voltage
+
+    def dmm_ac_voltage(self) -> float:
+        return self.ac_voltage
+
+    def dmm_dc_current(self) -> float:
+        return self.dc_current
+
+    def counter_frequency(self) -> float:
+        return self.frequency
+
+    def digitizer_record(self, rate: float, points: int) -> np.ndarray:
+        t = np.arange(points) / rate
+        return self.amplitude * np.sin(2 * math.pi * self.frequency * t) + self.offset
+
+
+@dataclass
+class _Fault:
+    kind: str  # "slow" | "drop" | "garbage"
+    count: int
+    seconds: float = 0.0
+    data: bytes = b""
+
+
+class ScpiFaults:
+    """Faults applied to the next replies of an instrument (thread-safe).
+
+    ``slow(role, seconds)`` delays replies by wall-clock seconds; ``drop(role)`` never sends
+    them; ``garbage(role, data)`` sends ``data`` just before them.
+    """
+
+    def __init__(self) -> None:
+        self._lock = threading.Lock()
+        self._pending: dict[str, deque[_Fault]] = {r: deque() for r in ROLES}
+
+    def _add(self, role: str, fault: _Fault) -> None:
+        if role not in self._pending:
+            raise ValueError(f"unknown role {role!r} (known: {', '.join(ROLES)})")
+        if fault.count < 1:
+            raise ValueError(f"fault count must be >= 1, got {fault.count}")
+        with self._lock:
+            self._pending[role].append(fault)
+
+    def slow(self, role: str, seconds: float, count: int = 1) -> None:
+        self._add(role, _Fault("slow", count, seconds=float(seconds)))
+
+    def drop(self, role: str, count: int = 1) -> None:
+        self._add(role, _Fault("drop", count))
+
+    def garbage(self, role: str, data: bytes = b"\x15\xfe#garbage\n", count: int = 1) -> None:
+        self._add(role, _Fault("garbage", count, data=bytes(data)))
+
+    def clear(self) -> None:
+        with self._lock:
+            for q in self._pending.values():
+                q.clear()
+
+    def take(self, role: str) -> _Fault | None:
+        """The fault for the reply about to be sent by ``role``, if any (consumes one use)."""
+        with self._lock:
+            q = self._pending.get(role)
+            if not q:
+                return None
+            fault = q[0]
+            fault.count -= 1
+            if fault.count <= 0:
+                q.popleft()
+            return _Fault(fault.kind, 1, fault.seconds, fault.data)
+
+
+class _Listener:
+    """One instrument's TCP port: accept loop plus one thread per connection."""
+
+    def __init__(self, instrument: EmulatedInstrument, faults: ScpiFaults, port: int = 0):
+        self.instrument = instrument
+        self.faults = faults
+        self.sock = socket.socket(socket.AF_INET, socket.SOCK_STREAM)
+        self.sock.setsockopt(socket.SOL_SOCKET, socket.SO_REUSEADDR, 1)
+        self.sock.bind((HOST, port))  # loopback only, never all interfaces
+        self.sock.listen(4)
+        self.port = self.sock.getsockname()[1]
+        self._stop = threading.Event()
+        self._conns: set[socket.socket] = set()
+        self._threads: list[threading.Thread] = []
+        self._lock = threading.Lock()
+        self._accept_thread = threading.Thread(
+            target=self._accept_loop, name=f"scpi-{instrument.role}-accept", daemon=True)
+
+    def start(self) -> None:
+        self._accept_thread.start()
+
+    def _accept_loop(self) -> None:
+        while not self._stop.is_set():
+            try:
+                conn, _addr = self.sock.accept()
+            except OSError:
+                return
+            conn.setsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY, 1)
+            with self._lock:
+                if self._stop.is_set():
+                    conn.close()
+                    return
+                self._conns.add(conn)
+                t = threading.Thread(target=self._serve, args=(conn,),
+                                     name=f"scpi-{self.instrument.role}-conn", daemon=True)
+                self._threads.append(t)
+            t.start()
+
+    def _serve(self, conn: socket.socket) -> None:
+        buf = bytearray()
+        try:
+            while not self._stop.is_set():
+                chunk = conn.recv(65536)
+                if not chunk:
+                    return
+                buf.extend(chunk)
+                while (i := buf.find(b"\n")) >= 0:
+                    line = bytes(buf[:i]).rstrip(b"\r")
+                    del buf[: i + 1]
+                    reply = self.instrument.handle(line.decode("ascii", errors="replace"))
+                    if reply is not None:
+                        self._send(conn, reply)
+        except OSError:
+            return
+        finally:
+            with self._lock:
+                self._conns.discard(conn)
+            conn.close()
+
+    def _send(self, conn: socket.socket, reply: str | bytes) -> None:
+        fault = self.faults.take(self.instrument.role)
+        if fault is not None:
+            if fault.kind == "drop":
+                return
+            if fault.kind == "slow":
+                self._stop.wait(fault.seconds)
+            elif fault.kind == "garbage":
+                conn.sendall(fault.data)
+        data = reply.encode("ascii") if isinstance(reply, str) else reply
+        if len(data) > 65536:
+            conn.sendall(data)
+            conn.sendall(b"\n")
+        else:
+            conn.sendall(data + b"\n")
+
+    def stop(self) -> None:
+        self._stop.set()
+        try:
+            self.sock.close()
+        except OSError:
+            pass
+        with self._lock:
+            conns = list(self._conns)
+            threads = list(self._threads)
+        for c in conns:
+            try:
+                c.shutdown(socket.SHUT_RDWR)
+            except OSError:
+                pass
+        self._accept_thread.join(timeout=2.0)
+        for t in threads:
+            t.join(timeout=2.0)
+
+
+class ScpiBench:
+    """Four emulated SCPI instruments on loopback TCP ports.
+
+    Parameters
+    ----------
+    backend : ScpiBackend
+        What the instruments measure (the simulated board, or :class:`ConstantBackend`).
+    clock : Clock, optional
+        Paces the digitizer's acquisition time (default: real time).
+    faults : ScpiFaults, optional
+        Fault injection handle (one is made when not given; see ``.faults``).
+    ports : mapping role -> int, optional
+        Fixed ports; 0 or missing lets the OS choose.
+    """
+
+    def __init__(self, backend: ScpiBackend, *, clock: Clock | None = None,
+                 faults: ScpiFaults | None = None, ports: Mapping[str, int] | None = None):
+        self.backend = backend
+        self.clock = clock or SystemClock()
+        self.faults = faults or ScpiFaults()
+        self._ports = dict(ports or {})
+        unknown = set(self._ports) - set(ROLES)
+        if unknown:
+            raise ValueError(f"unknown roles in ports: {sorted(unknown)}")
+        self.instruments: dict[str, EmulatedInstrument] = {
+            role: EMULATED[role](backend, self.clock) for role in ROLES}
+        self._listeners: dict[str, _Listener] = {}
+
+    # -- lifecycle
+    def start(self) -> ScpiBench:
+        if self._listeners:
+            return self
+        try:
+            for role in ROLES:
+                listener = _Listener(self.instruments[role], self.faults, self._ports.get(role, 0))
+                self._listeners[role] = listener
+                listener.start()
+        except OSError:
+            self.stop()
+            raise
+        return self
+
+    def stop(self) -> None:
+        listeners, self._listeners = self._listeners, {}
+        for listener in listeners.values():
+            listener.stop()
+
+    def __enter__(self) -> ScpiBench:
+        return self.start()
+
+    def __exit__(self, *exc) -> None:
+        self.stop()
+
+    # -- what tests and the virtual bench look at
+    @property
+    def ports(self) -> dict[str, int]:
+        return {role: lst.port for role, lst in self._listeners.items()}
+
+    @property
+    def resources(self) -> dict[str, str]:
+        """role -> VISA resource string (``TCPIP0::127.0.0.1::<port>::SOCKET``)."""
+        return {role: f"TCPIP0::{HOST}::{port}::SOCKET" for role, port in self.ports.items()}
+
+    @property
+    def supply_output(self) -> bool:
+        """Whether the emulated supply's output is on right now."""
+        supply: EmulatedSupply = self.instruments["supply"]  # type: ignore[assignment]
+        with supply.lock:
+            return bool(supply.output)
+
+    def inject_error(self, role: str, code: int, text: str) -> None:
+        """Put ``code,"text"`` into ``role``'s SCPI error queue."""
+        if role not in self.instruments:
+            raise ValueError(f"unknown role {role!r} (known: {', '.join(ROLES)})")
+        self.instruments[role].push_error(int(code), text)
+
