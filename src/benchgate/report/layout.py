@@ -79,8 +79,8 @@ def utc_stamp(started: str) -> str:
     except ValueError:
         raise ValueError(f"start time {started!r} is not an ISO 8601 time") from None
     if t.tzinfo is None:
-        t = t.replace(tzinfo=_dt.timezone.utc)
-    t = t.astimezone(_dt.timezone.utc)
+        t = t.replace(tzinfo=_dt.UTC)
+    t = t.astimezone(_dt.UTC)
     return t.strftime("%Y%m%dT%H%M%S") + f".{t.microsecond // 1000:03d}Z"
 
 

@@ -1,0 +1,222 @@
+"""The HTML unit report: one self-contained file (inline CSS and SVG, no scripts, no URLs).
+
+Rendered with jinja2 and autoescaping on; every string from a user, a plan or an instrument is
+escaped, and control characters are shown as ``\\xNN`` rather than passed through. Only the SVG
+figures (built by :mod:`benchgate.report.svg`, which escapes its own text) are inserted as markup.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import hashlib
+import os
+import tempfile
+from collections.abc import Mapping
+from pathlib import Path
+from typing import Any
+
+from benchgate.analysis.capture import Capture
+from benchgate.analysis.names import MEASUREMENT_TITLES, READING_UNITS
+from benchgate.record import CheckRecord, StepRecord, UnitRecord
+from benchgate.report import plots
+from benchgate.report.svg import esc
+from benchgate.units.format import format_quantity
+
+SAFETY = "Bench work can hurt people and boards; follow local codes and licensed practice."
+
+HEADLINES = {
+    "pass": "Unit passed every check",
+    "fail": "Unit failed",
+    "inconclusive": "Could not decide: a value lies too close to a limit for its uncertainty",
+    "error": "Could not test: a measurement or instrument could not be trusted",
+    "aborted": "Run aborted before it finished",
+}
+
+_ENV = None
+
+
+def _environment():
+    global _ENV
+    if _ENV is None:
+        import jinja2
+        from markupsafe import Markup
+
+        def finalize(value: Any) -> Any:
+            if isinstance(value, Markup) or not isinstance(value, str):
+                return value
+            return Markup(esc(value))  # escape + visible control characters
+
+        _ENV = jinja2.Environment(
+            loader=jinja2.FileSystemLoader(str(Path(__file__).parent / "templates")),
+            autoescape=True,
+            undefined=jinja2.StrictUndefined,
+            finalize=finalize,
+            trim_blocks=True,
+            lstrip_blocks=True,
+        )
+    return _ENV
+
+
+def _q(x: float | None, unit: str, digits: int = 4) -> str:
+    return "—" if x is None else format_quantity(x, unit, digits)
+
+
+def limits_text(check: CheckRecord) -> str:
+    w = check.window
+    if w.low is not None and w.high is not None:
+        return f"{_q(w.low, w.unit)} … {_q(w.high, w.unit)}"
+    if w.low is not None:
+        return f"≥ {_q(w.low, w.unit)}"
+    return f"≤ {_q(w.high, w.unit)}"
+
+
+def _short(value: Any, limit: int = 90) -> str:
+    if isinstance(value, float):
+        text = f"{value:.6g}"
+    else:
+        text = str(value)
+    return text if len(text) <= limit else text[: limit - 1] + "…"
+
+
+def _check_row(c: CheckRecord, step: StepRecord) -> dict[str, Any]:
+    r = c.result
+    unit = c.window.unit
+    if r is None:
+        value, u = "not measured", "—"
+    elif not r.valid:
+        value, u = f"not valid: {r.reason}", "—"
+    else:
+        value = _q(r.value, r.unit)
+        # GUM (JCGM 100:2008) 7.2.6: an uncertainty is stated with at most two significant digits
+        u = "not stated" if r.uncertainty is None else _q(r.uncertainty, r.unit, 2)
+    details = [(str(k), _short(v)) for k, v in list(c.window.details.items())[:8]]
+    return {
+        "step": step.title or step.id,
+        "step_id": step.id,
+        "measurement": c.measurement,
+        "title": MEASUREMENT_TITLES.get(c.measurement, ""),
+        "value": value,
+        "u": u,
+        "limits": limits_text(c),
+        "nominal": _q(c.window.nominal, unit) if c.window.nominal is not None else "",
+        "derivation": c.window.derived_from,
+        "details": details,
+        "rule": c.rule,
+        "verdict": c.verdict.value,
+        "reason": c.reason,
+    }
+
+
+def _duration(a: str | None, b: str | None) -> str:
+    if not a or not b:
+        return "—"
+    try:
+        d = _dt.datetime.fromisoformat(b) - _dt.datetime.fromisoformat(a)
+    except (ValueError, TypeError):
+        return "—"
+    return format_quantity(d.total_seconds(), "s", 3)
+
+
+def _file_sha256(path: Path) -> str | None:
+    try:
+        h = hashlib.sha256()
+        with open(path, "rb") as f:
+            for block in iter(lambda: f.read(1 << 20), b""):
+                h.update(block)
+        return h.hexdigest()
+    except OSError:
+        return None
+
+
+def _step_view(step: StepRecord, captures: Mapping[str, Capture], folder: Path | None) -> dict[str, Any]:
+    figures: list[plots.Figure] = []
+    notes: list[str] = []
+    cap = step.capture
+    if cap is not None:
+        capture = captures.get(step.id)
+        if folder is not None:
+            found = _file_sha256(folder / cap.file)
+            if found is None:
+                notes.append(f"capture file {cap.file} is not beside the report")
+            elif found != cap.sha256:
+                notes.append(f"capture file {cap.file} has changed since the run (SHA-256 differs)")
+        if capture is None:
+            notes.append("capture not available: plots not drawn")
+        else:
+            figures, more = plots.capture_figures(capture, step.checks)
+            notes.extend(more)
+    bars = [plots.check_figure(c) for c in step.checks]
+    unit = READING_UNITS.get(step.checks[0].measurement) if step.kind == "reading" and step.checks else None
+    return {
+        "id": step.id, "kind": step.kind, "title": step.title or step.id, "status": step.status,
+        "started": step.started or "—", "ended": step.ended or "—",
+        "duration": _duration(step.started, step.ended), "attempts": step.attempts,
+        "retried": step.attempts > 1, "answer": step.answer, "error": step.error,
+        "notes": list(step.notes), "capture": cap, "figures": figures, "bars": bars,
+        "plot_notes": notes, "reading_unit": unit,
+    }
+
+
+def context(record: UnitRecord, captures: Mapping[str, Capture], folder: Path | None = None) -> dict[str, Any]:
+    """Everything the template shows, as plain values (strings escaped by the template)."""
+    from markupsafe import Markup
+
+    verdict = record.verdict.value
+    steps = [_step_view(s, captures, folder) for s in record.steps]
+    for s in steps:
+        s["figures"] = [{"caption": f.caption, "svg": Markup(f.svg), "kind": f.kind} for f in s["figures"]]
+        s["bars"] = [{"caption": f.caption, "svg": Markup(f.svg)} for f in s["bars"]]
+    rows = [_check_row(c, s) for s in record.steps for c in s.checks]
+    counts = {v: sum(1 for r in rows if r["verdict"] == v) for v in ("pass", "fail", "inconclusive", "error")}
+    flags = {str(k): v for k, v in record.flags.items()}
+    cal_problems = [i.role for i in record.instruments
+                    if (i.calibration or {}).get("status", "none") != "valid"]
+    return {
+        "r": record,
+        "verdict": verdict,
+        "verdict_word": verdict.upper(),
+        "headline": HEADLINES.get(verdict, verdict),
+        "serial_shown": record.serial if record.serial != "" else "(empty serial number)",
+        "duration": _duration(record.started, record.ended),
+        "rows": rows,
+        "counts": counts,
+        "steps": steps,
+        "retries": [s for s in steps if s["retried"]],
+        "flags": sorted(flags.items()),
+        "cal_problems": cal_problems,
+        "expired_allowed": bool(flags.get("allow_expired_calibration")),
+        "safety": SAFETY,
+    }
+
+
+def render_html(record: UnitRecord, captures: Mapping[str, Capture] | None = None, *,
+                folder: str | Path | None = None) -> str:
+    """The HTML report of ``record`` as a string.
+
+    Parameters
+    ----------
+    record : UnitRecord
+    captures : mapping of step id to Capture, optional
+        The captured records the plots are drawn from (missing ones are noted, not fatal).
+    folder : path, optional
+        The report's folder; when given, each capture file named in the record is checked
+        against its stored SHA-256 and a mismatch is noted in the report.
+    """
+    ctx = context(record, captures or {}, None if folder is None else Path(folder))
+    return _environment().get_template("unit.html.j2").render(**ctx)
+
+
+def write_html(record: UnitRecord, path: str | Path, captures: Mapping[str, Capture] | None = None) -> Path:
+    """Render and write the HTML report atomically; returns ``path``."""
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    text = render_html(record, captures, folder=path.parent)
+    fd, tmp = tempfile.mkstemp(prefix=".tmp-", suffix=".html", dir=path.parent)
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8") as f:
+            f.write(text)
+        os.replace(tmp, path)
+    except BaseException:
+        Path(tmp).unlink(missing_ok=True)
+        raise
+    return path

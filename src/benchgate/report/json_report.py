@@ -1,0 +1,128 @@
+"""The JSON unit report: ``UnitRecord.to_dict()`` written as strict JSON, and read back.
+
+The body follows ``schemas/unit-report.schema.json`` (JSON Schema draft 2020-12). Values that
+JSON cannot carry (NaN, infinities) become ``null``; numpy scalars and arrays become numbers and
+lists, so a measurement's ``details`` never break the file.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+import tempfile
+from collections.abc import Mapping
+from pathlib import Path
+from typing import Any
+
+from benchgate.errors import BenchgateError
+from benchgate.record import UnitRecord
+
+SCHEMA_FILE = "unit-report.schema.json"
+
+
+class ReportError(BenchgateError):
+    """A stored report that cannot be read, with the file and (for bad JSON) line and column."""
+
+    def __init__(self, message: str, file: str, line: int | None = None, column: int | None = None):
+        super().__init__(message)
+        self.message = message
+        self.file = file
+        self.line = line
+        self.column = column
+
+    def where(self) -> str:
+        parts = [self.file]
+        if self.line is not None:
+            parts.append(str(self.line))
+            if self.column is not None:
+                parts.append(str(self.column))
+        return ":".join(parts)
+
+
+def jsonable(value: Any) -> Any:
+    """``value`` with everything JSON cannot hold made plain (NaN/inf -> None, numpy -> Python)."""
+    if value is None or isinstance(value, (bool, str)):
+        return value
+    if isinstance(value, int):
+        return value
+    if isinstance(value, float):
+        return value if math.isfinite(value) else None
+    if isinstance(value, Mapping):
+        return {str(k): jsonable(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple, set, frozenset)):
+        return [jsonable(v) for v in value]
+    if isinstance(value, os.PathLike):
+        return os.fspath(value)
+    tolist = getattr(value, "tolist", None)  # numpy scalars and arrays
+    if callable(tolist):
+        return jsonable(tolist())
+    if hasattr(value, "value") and isinstance(value.value, str):  # enums such as Verdict
+        return value.value
+    return str(value)
+
+
+def report_dict(record: UnitRecord) -> dict[str, Any]:
+    """The JSON body of ``record``'s report."""
+    return jsonable(record.to_dict())
+
+
+def write_json(record: UnitRecord, path: str | Path) -> Path:
+    """Write ``record`` as a JSON report to ``path`` (atomically: a crash leaves no half file).
+
+    Returns
+    -------
+    Path
+        ``path``.
+    """
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    text = json.dumps(report_dict(record), indent=2, ensure_ascii=False, allow_nan=False)
+    fd, tmp = tempfile.mkstemp(prefix=".tmp-", suffix=".json", dir=path.parent)
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8") as f:
+            f.write(text + "\n")
+        os.replace(tmp, path)
+    except BaseException:
+        Path(tmp).unlink(missing_ok=True)
+        raise
+    return path
+
+
+def read_json(path: str | Path) -> UnitRecord:
+    """Read a JSON unit report back into a :class:`UnitRecord`.
+
+    Raises
+    ------
+    ReportError
+        When the file is missing, not JSON (with line and column), or not a benchgate unit report.
+    """
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise ReportError("no such report file", str(path)) from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise ReportError(f"cannot read report: {exc}", str(path)) from None
+    try:
+        data = json.loads(text)
+    except json.JSONDecodeError as exc:
+        raise ReportError(f"not valid JSON: {exc.msg}", str(path), exc.lineno, exc.colno) from None
+    if not isinstance(data, dict):
+        raise ReportError("not a benchgate unit report (top level is not an object)", str(path))
+    try:
+        return UnitRecord.from_dict(data)
+    except ValueError as exc:
+        raise ReportError(str(exc), str(path)) from None
+    except (KeyError, TypeError) as exc:
+        raise ReportError(f"not a complete benchgate unit report (missing or bad field {exc})", str(path)) from None
+
+
+def load_schema() -> dict[str, Any]:
+    """The unit report's JSON Schema as a dict."""
+    return json.loads(schema_path().read_text(encoding="utf-8"))
+
+
+def schema_path() -> Path:
+    """Where the unit report's JSON Schema file is (``benchgate/schemas/``)."""
+    return Path(__file__).resolve().parent.parent / "schemas" / SCHEMA_FILE

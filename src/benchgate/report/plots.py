@@ -1,0 +1,142 @@
+"""The figures of one unit report, recomputed from the stored captures.
+
+Plot data comes from ``benchgate.analysis.views`` (spectrum, envelope, cycles) and
+``benchgate.analysis.analyze`` (fundamental, harmonics, steady part, start-up time); drawing is
+:mod:`benchgate.report.svg`. A figure that cannot be drawn says why instead of breaking the report.
+"""
+
+from __future__ import annotations
+
+import importlib.util
+import math
+from collections.abc import Iterable
+from dataclasses import dataclass
+
+from benchgate.analysis.capture import Capture
+from benchgate.record import CheckRecord
+from benchgate.report import svg
+
+#: how many cycles of waveform a report shows.
+CYCLES = 4
+#: harmonics marked on the spectrum (2nd … HARMONICS-th).
+HARMONICS = 10
+
+
+@dataclass(frozen=True)
+class Figure:
+    """One drawn figure: a caption and its ``<svg>`` markup."""
+
+    kind: str  # waveform, envelope, spectrum, check
+    caption: str
+    svg: str
+
+
+def _have(module: str) -> bool:
+    return importlib.util.find_spec(module) is not None
+
+
+def _views():
+    if not _have("benchgate.analysis.views"):  # TEMPORARY until the analysis module lands
+        from benchgate.report import _fallback
+
+        return _fallback
+    from benchgate.analysis import views
+
+    return views
+
+
+def _analyse(capture: Capture):
+    if not _have("benchgate.analysis.core"):  # TEMPORARY until the analysis module lands
+        from benchgate.report._fallback import LiteAnalysis
+
+        return LiteAnalysis(capture, HARMONICS)
+    from benchgate.analysis import analyze
+
+    return analyze(capture, ("frequency", "startup_time"), harmonics=HARMONICS)
+
+
+def _valid_value(check: CheckRecord | None) -> float | None:
+    if check is None or check.result is None or not check.result.valid:
+        return None
+    v = check.result.value
+    return v if math.isfinite(v) else None
+
+
+def capture_figures(capture: Capture, checks: Iterable[CheckRecord] = ()) -> tuple[list[Figure], list[str]]:
+    """Waveform, envelope and spectrum of one capture, plus notes on anything left out.
+
+    The start-up instant comes from the step's ``startup_time`` check when it has a valid one,
+    else from the analysis; the fundamental likewise from a ``frequency`` check.
+    """
+    checks = list(checks)
+    by_name = {c.measurement: c for c in checks}
+    notes: list[str] = []
+    figures: list[Figure] = []
+    views = _views()
+    try:
+        analysis = _analyse(capture)
+    except Exception as exc:  # the report must still be written: say what went wrong
+        analysis = None
+        notes.append(f"analysis for the plots failed: {exc}")
+    else:
+        notes.extend(analysis.warnings)
+    fundamental = _valid_value(by_name.get("frequency"))
+    if fundamental is None and analysis is not None and analysis.fundamental:
+        fundamental = float(analysis.fundamental)
+    steady = float(analysis.steady_start) if analysis is not None else 0.0
+    startup = _valid_value(by_name.get("startup_time"))
+    if startup is None and analysis is not None:
+        m = analysis.measurements.get("startup_time")
+        if m is not None and m.valid:
+            startup = m.value
+    label = f"channel {capture.channel}"
+
+    def draw(kind: str, caption: str, make) -> None:
+        try:
+            figures.append(Figure(kind, caption, make()))
+        except Exception as exc:  # one bad figure must not cost the others
+            figures.append(Figure(kind, caption, svg.empty(caption, f"could not draw: {exc}")))
+
+    def wave() -> str:
+        if fundamental:
+            t, v = views.cycles(capture, fundamental, n_cycles=CYCLES)
+        else:
+            part = capture.slice(max(0, capture.n - int(0.02 * capture.sample_rate)))
+            t, v = part.times(), part.samples
+        return svg.waveform(t, v, label=f"waveform, {label}")
+
+    def env() -> str:
+        # each min/max bucket must span a couple of cycles, or the band shows the waveform
+        points = 600 if not fundamental else int(min(600, max(40, capture.duration * fundamental / 2)))
+        t, lo, hi = views.envelope(capture, points=points)
+        return svg.envelope([x - capture.start_time for x in t], lo, hi, startup=startup,
+                            steady_start=steady, label=f"envelope, {label}")
+
+    def spec() -> str:
+        f, db = views.spectrum_db(capture, steady_start=steady, max_points=2048)
+        f_max = min(capture.sample_rate / 2, (HARMONICS + 1) * fundamental) if fundamental else None
+        harmonics = analysis.harmonics if analysis is not None else ()
+        return svg.spectrum(f, db, harmonics=harmonics, fundamental=fundamental, f_max=f_max,
+                            label=f"spectrum, {label}")
+
+    n_text = f"{CYCLES} cycles" if fundamental else "last 20 ms (no fundamental found)"
+    draw("waveform", f"Waveform: {n_text} of the steady part", wave)
+    draw("envelope", "Envelope of the whole record (min/max), start-up instant marked", env)
+    draw("spectrum", "Spectrum in dB relative to the fundamental (Blackman–Harris window), harmonics marked", spec)
+    return figures, notes
+
+
+def check_figure(check: CheckRecord) -> Figure:
+    """The bar showing where value ± U sits inside the check's window."""
+    w = check.window
+    r = check.result
+    value = r.value if r is not None and r.valid else None
+    u = r.uncertainty if r is not None and r.valid else None
+    caption = f"{check.measurement}: value ± U against the window ({check.verdict.value})"
+    try:
+        drawing = svg.check_bar(value, u, w.low, w.high, unit=w.unit, verdict=check.verdict.value,
+                                nominal=w.nominal, guarded=check.rule == "guarded",
+                                label=f"{check.measurement} against its window")
+    except Exception as exc:
+        drawing = svg.empty(caption, f"could not draw: {exc}", height=64)
+    return Figure("check", caption, drawing)
