@@ -81,7 +81,8 @@ class Runner:
         self.db = self.services.open_db(options.database)
         self.events = EventLog(options.events)
         self.hooks = Hooks(self.display, self.events)
-        self.done: list[RunOutcome] = []
+        self.done: list[RunOutcome] = []  # kept only for --junit
+        self.count = 0
         self.late_interrupts = 0
 
     def ask_operator(self, prompt: str) -> str:
@@ -170,8 +171,9 @@ class Runner:
         self.db.finish_run(record, None if report is None else str(report))
         code = EXIT_ABORTED if isinstance(caught, KeyboardInterrupt) else exit_code_for(record.verdict)
         outcome = RunOutcome(record=record, paths=paths, exit_code=code)
-        self.done.append(outcome)
-        if self.options.junit is not None:
+        self.count += 1
+        if self.options.junit is not None:  # JUnit lists every unit of the session
+            self.done.append(outcome)
             from benchgate.report.junit import write_junit
 
             write_junit([(o.record, o.paths) for o in self.done], self.options.junit)

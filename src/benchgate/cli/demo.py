@@ -1,0 +1,74 @@
+"""``benchgate demo``: the main job end to end on the virtual bench, in about a minute."""
+
+from __future__ import annotations
+
+import argparse
+
+
+def add_parser(subparsers) -> argparse.ArgumentParser:
+    p = subparsers.add_parser(
+        "demo", help="run the TB-3 plan over a simulated lot on the virtual bench",
+        description="Start the virtual bench (serial ADC on a pseudo-terminal, SCPI instruments on "
+        "loopback), run the TB-3 tone-board plan over a lot of simulated units (good ones and one of "
+        "each defect), write every unit report and the lot summary, and print the results.")
+    p.add_argument("--units", type=int, default=14, metavar="N",
+                   help="units in the lot (at least one per defect plus one good; default 14)")
+    p.add_argument("--speed", type=float, default=20.0, metavar="X",
+                   help="how much faster than real time the virtual bench runs (default 20)")
+    p.add_argument("--reports", default="reports", metavar="DIR", help="report folder (default: reports)")
+    p.add_argument("--json", action="store_true", help="print the lot as JSON instead of a table")
+    p.set_defaults(func=run)
+    return p
+
+
+def _table(result) -> None:
+    import os
+    import sys
+
+    rows = [(u.serial, u.defect or "—", u.verdict, u.reason) for u in result.units]
+    if sys.stdout.isatty() and not os.environ.get("NO_COLOR"):
+        from rich.console import Console
+        from rich.table import Table
+
+        styles = {"pass": "green", "fail": "red", "inconclusive": "yellow", "error": "magenta"}
+        table = Table(title=f"lot {result.lot} · {len(rows)} units", title_justify="left")
+        for col in ("serial", "defect injected", "verdict", "reason"):
+            table.add_column(col, overflow="fold")
+        for serial, defect, verdict, reason in rows:
+            table.add_row(serial, defect, f"[{styles.get(verdict, '')}]{verdict}[/]", reason)
+        Console().print(table)
+    else:
+        width = max(len(r[0]) for r in rows)
+        dwidth = max(len("defect injected"), *(len(r[1]) for r in rows))
+        print(f"lot {result.lot} · {len(rows)} units")
+        print(f"{'serial':<{width}}  {'defect injected':<{dwidth}}  {'verdict':<12}  reason")
+        for serial, defect, verdict, reason in rows:
+            print(f"{serial:<{width}}  {defect:<{dwidth}}  {verdict:<12}  {reason}")
+
+
+def run(args) -> int:
+    import json
+    import sys
+    from pathlib import Path
+
+    from benchgate.runner.demo import run_demo
+    from benchgate.runner.options import PreflightError
+
+    if args.units < 1:
+        raise PreflightError(f"--units must be at least 1, got {args.units}")
+    if not args.speed > 0:
+        raise PreflightError(f"--speed must be > 0, got {args.speed}")
+
+    def progress(index, total, unit):
+        if not args.json:
+            print(f"[{index:>2}/{total}] {unit.serial}  {unit.verdict}", file=sys.stderr, flush=True)
+
+    result = run_demo(units=args.units, speed=args.speed, reports_dir=Path(args.reports), on_unit=progress)
+    if args.json:
+        print(json.dumps(result.to_dict(), ensure_ascii=False, default=str))
+        return 0
+    _table(result)
+    passed = sum(u.verdict == "pass" for u in result.units)
+    print(f"{passed} of {len(result.units)} passed in {result.seconds:.1f} s")
+    print(f"lot summary: {result.summary_html}")
+    return 0

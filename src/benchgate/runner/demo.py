@@ -1,0 +1,137 @@
+"""The demo lot: the TB-3 plan run over simulated units on the virtual bench, accelerated.
+
+Owl Hollow Kits' tone board TB-3 (invented). A lot of good units, with one unit for each kind of
+defect the simulator has, in a fixed shuffled order, runs through the real runner against the
+virtual bench (serial ADC on a pseudo-terminal, SCPI instruments on loopback sockets). Every
+unit gets its reports and database row; the lot gets a summary page.
+"""
+
+from __future__ import annotations
+
+import random
+import tempfile
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+from benchgate.runner.options import RunOptions
+
+#: every defect the TB-3 simulator knows (interfaces: VirtualBench.load_unit)
+KNOWN_DEFECTS = ("wrong_capacitor", "low_gain", "high_gain", "open_section", "supply_noise", "intermittent")
+PLAN_NAME = "tb3.yaml"
+
+
+def find_plan(name: str = PLAN_NAME) -> Path:
+    """The demo plan: ``testplans/<name>`` of a source checkout, else the copy shipped in the package."""
+    import benchgate
+
+    here = Path(benchgate.__file__).resolve().parent
+    for candidate in (here.parent.parent / "testplans" / name, here / "demo" / name):
+        if candidate.is_file():
+            return candidate
+    from benchgate.runner.options import PreflightError
+
+    raise PreflightError(f"demo plan {name} not found (looked in testplans/ and the package)")
+
+
+def defects(bench_module: Any = None) -> tuple[str, ...]:
+    if bench_module is not None:
+        for attr in ("DEFECTS", "TB3_DEFECTS"):
+            found = getattr(bench_module, attr, None)
+            if found:
+                if isinstance(found, dict):
+                    found = found.get("tb3", found)
+                return tuple(found)
+    return KNOWN_DEFECTS
+
+
+@dataclass
+class DemoUnit:
+    serial: str
+    defect: str | None
+    verdict: str = ""
+    reason: str = ""
+    report: str | None = None
+    html: str | None = None
+
+
+def make_lot(units: int, lot: str, defect_names: tuple[str, ...], seed: int = 2612) -> list[DemoUnit]:
+    """``units`` serials (at least one per defect), defects spread through the lot in a fixed order."""
+    units = max(units, len(defect_names) + 1)
+    kinds: list[str | None] = list(defect_names) + [None] * (units - len(defect_names))
+    rng = random.Random(seed)
+    rng.shuffle(kinds)
+    if kinds[0] is not None:  # start with a good board, as a line usually does
+        first_good = kinds.index(None)
+        kinds[0], kinds[first_good] = kinds[first_good], kinds[0]
+    return [DemoUnit(serial=f"{lot}-{i:03d}", defect=k) for i, k in enumerate(kinds, 1)]
+
+
+@dataclass
+class DemoResult:
+    lot: str
+    units: list[DemoUnit]
+    summary: dict
+    summary_html: Path
+    reports_dir: Path
+    seconds: float
+
+    def to_dict(self) -> dict:
+        return {
+            "lot": self.lot,
+            "units": [{"serial": u.serial, "defect": u.defect, "verdict": u.verdict, "reason": u.reason,
+                       "report": u.report, "html": u.html} for u in self.units],
+            "summary": {"html": str(self.summary_html), **self.summary},
+            "reports": str(self.reports_dir),
+            "seconds": round(self.seconds, 3),
+        }
+
+
+def write_lot_summary(db: Any, lot: str, path: Path) -> dict:
+    """Write the lot summary HTML from the database; returns the summary as a dict."""
+    from benchgate.report import summary_html as module
+
+    summary = db.summary(lot=lot)
+    writer = getattr(module, "write_summary_html", None)
+    if writer is not None:
+        writer(summary, path)
+    else:
+        path.write_text(module.render_summary_html(summary), encoding="utf-8")
+    return summary.to_dict() if hasattr(summary, "to_dict") else dict(summary)
+
+
+def run_demo(*, units: int = 14, speed: float = 20.0, reports_dir: Path | None = None,
+             lot: str = "TB3-2612", on_unit: Any = None) -> DemoResult:
+    """Run the demo lot; ``on_unit(index, total, unit)`` is called as each unit finishes."""
+    import time
+
+    from benchgate.instruments.station import load_station
+    from benchgate.plan import load_plan
+    from benchgate.runner.session import Runner
+    from benchgate.sim import bench as bench_module
+
+    t0 = time.monotonic()
+    plan = load_plan(find_plan())
+    reports_dir = Path(reports_dir) if reports_dir is not None else Path("reports")
+    reports_dir.mkdir(parents=True, exist_ok=True)
+    lot_units = make_lot(units, lot, defects(bench_module))
+    workdir = tempfile.mkdtemp(prefix="benchgate-demo-")
+    with bench_module.VirtualBench("tb3", speed=speed, workdir=workdir) as vb:
+        station = load_station(vb.station_path)
+        options = RunOptions(operator="demo", lot=lot, reports_dir=reports_dir, unattended=True,
+                             accept_hazards=True, clock=vb.clock, ui="quiet",
+                             extra_flags={"demo": True, "clock_speed": speed})
+        with Runner(plan, station, options) as runner:
+            for index, unit in enumerate(lot_units, 1):
+                vb.load_unit(unit.serial, unit.defect)
+                outcome = runner.run(unit.serial)
+                unit.verdict = outcome.record.verdict.value
+                unit.reason = outcome.record.reason
+                unit.report = None if "json" not in outcome.paths else str(outcome.paths["json"])
+                unit.html = None if "html" not in outcome.paths else str(outcome.paths["html"])
+                if on_unit is not None:
+                    on_unit(index, len(lot_units), unit)
+            summary_path = reports_dir / f"summary-{lot}.html"
+            summary = write_lot_summary(runner.db, lot, summary_path)
+    return DemoResult(lot=lot, units=lot_units, summary=summary, summary_html=summary_path,
+                      reports_dir=reports_dir, seconds=time.monotonic() - t0)
