@@ -1,0 +1,67 @@
+"""Hostile serial numbers through the runner: safe file names, escaped HTML, correct rows."""
+
+from __future__ import annotations
+
+import json
+import sqlite3
+
+import pytest
+from runner_fakes import Station, fake_analyze, fake_save_capture, make_bench, standard_plan
+
+from benchgate.clock import ManualClock
+from benchgate.runner.options import RunOptions
+from benchgate.runner.session import Runner, Services
+
+HOSTILE = ["../../x", "<script>alert('x')</script>", "quote\"s and 'single'", "S" * 500, "",
+           "Ünïcødé-板-🔧", "nul\x00and\x1bescape", "/etc/passwd", "CON", "a/b\\c"]
+
+
+@pytest.fixture(scope="module")
+def lot(tmp_path_factory):
+    from benchgate.report import write_reports
+    from benchgate.report.layout import ReportLayout
+    from benchgate.store import ResultsDB
+
+    root = tmp_path_factory.mktemp("hostile")
+    bench = make_bench()
+    svc = Services(open_bench=lambda station, clock=None, roles=None: bench, save_capture=fake_save_capture,
+                   analyze=fake_analyze, write_reports=write_reports, layout=ReportLayout,
+                   open_db=ResultsDB.open)
+    options = RunOptions(reports_dir=root / "reports", ui="quiet", clock=ManualClock(), operator="<b>op</b>")
+    with Runner(standard_plan(), Station(), options, services=svc) as runner:
+        outcomes = [runner.run(s) for s in HOSTILE]
+    return root, options, outcomes
+
+
+def test_files_stay_inside_the_plan_folder(lot):
+    root, options, outcomes = lot
+    plan_dir = (options.reports_dir / "fake").resolve()
+    folders = set()
+    for o in outcomes:
+        for key, path in o.paths.items():
+            resolved = path.resolve()
+            assert resolved.is_relative_to(plan_dir), (key, path)
+            assert resolved.exists()
+            name = resolved.relative_to(plan_dir).parts[0]
+            assert all(ch.isprintable() and ch not in "/\\" for ch in name)
+        folders.add(o.paths["json"].parent)
+    assert len(folders) == len(HOSTILE)  # still unique per serial
+    assert not (root / "x").exists()
+
+
+def test_reports_keep_the_serial_verbatim_and_html_escapes_it(lot):
+    _, _, outcomes = lot
+    for serial, o in zip(HOSTILE, outcomes, strict=True):
+        assert json.loads(o.paths["json"].read_text(encoding="utf-8"))["serial"] == serial
+        html = o.paths["html"].read_text(encoding="utf-8")
+        assert "<script>alert" not in html and "<b>op</b>" not in html
+    script = outcomes[1].paths["html"].read_text(encoding="utf-8")
+    assert "&lt;script&gt;" in script
+
+
+def test_database_rows_are_correct(lot):
+    _, options, outcomes = lot
+    conn = sqlite3.connect(options.database)
+    rows = dict(conn.execute("SELECT run_id, serial FROM runs WHERE complete = 1").fetchall())
+    conn.close()
+    assert rows == {o.record.run_id: s for s, o in zip(HOSTILE, outcomes, strict=True)}
