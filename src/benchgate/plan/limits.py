@@ -3,8 +3,9 @@
 from __future__ import annotations
 
 import math
+from collections.abc import Mapping
 from dataclasses import dataclass, field
-from typing import Any, Mapping
+from typing import Any
 
 
 @dataclass(frozen=True)
@@ -62,7 +63,7 @@ class Window:
         }
 
     @classmethod
-    def from_dict(cls, d: Mapping[str, Any]) -> "Window":
+    def from_dict(cls, d: Mapping[str, Any]) -> Window:
         return cls(
             unit=d["unit"],
             low=d.get("low"),

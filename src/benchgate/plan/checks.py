@@ -1,0 +1,220 @@
+"""Reading one check's limit: min/max, nominal with tolerance, or a window derived from the circuit."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from benchgate.plan import derive
+from benchgate.plan.fields import Collector
+from benchgate.plan.limits import Window
+from benchgate.plan.model import DECISIONS
+from benchgate.plan.yamlpos import YNode
+from benchgate.units.eseries import is_preferred, nearest_preferred, series_for_tolerance
+from benchgate.units.format import format_quantity
+from benchgate.units.parse import UnitError
+from benchgate.units.tolerance import Part, Tolerance, parse_part, parse_tolerance
+
+LIMIT_KEYS = ("min", "max", "nominal", "tolerance", "from_circuit", "margin", "decision")
+MC_KEYS = ("draws", "seed", "distribution")
+SERIES_ORDER = ("E6", "E12", "E24", "E48", "E96")
+_CACHE: dict[Any, derive.Derivation] = {}
+_CACHE_MAX = 256
+
+
+def parse_limit(c: Collector, node: YNode, path: str, measurement: str, unit: str,
+                mc_defaults: dict[str, Any]) -> Window | None:
+    """The window of one check, or None after recording errors."""
+    m = c.mapping(node, path, LIMIT_KEYS)
+    if m is None:
+        return None
+    n_err = len(c.errors)
+    lo = c.quantity(m.get("min"), f"{path}.min", unit)
+    hi = c.quantity(m.get("max"), f"{path}.max", unit)
+    nominal = c.quantity(m.get("nominal"), f"{path}.nominal", unit)
+    decision = c.choice(m.get("decision"), f"{path}.decision", DECISIONS)
+    tol = None
+    if "tolerance" in m:
+        tol = _tolerance(c, m["tolerance"], f"{path}.tolerance", unit)
+        if "nominal" not in m:
+            c.error(m["tolerance"], f"{path}: a tolerance needs a nominal value")
+        if "min" in m or "max" in m:
+            c.error(m["tolerance"], f"{path}: give either min/max or nominal with tolerance, not both")
+    if "margin" in m and "from_circuit" not in m:
+        c.error(c.key_pos(node, "margin"), f"{path}: margin widens a from_circuit window; there is none here")
+    has_given = any(k in m for k in ("min", "max", "tolerance"))
+    if "nominal" in m and not has_given and "from_circuit" not in m:
+        c.error(m["nominal"], f"{path}: a nominal alone is not a window; add a tolerance or min/max")
+    if not has_given and "from_circuit" not in m and "nominal" not in m:
+        c.error(node, f"{path}: a limit needs min and/or max, nominal with tolerance, or from_circuit")
+    if len(c.errors) > n_err:
+        return None
+    given: Window | None = None
+    if tol is not None and nominal is not None:
+        lo, hi = tol.bounds(nominal)
+        given = Window(unit=unit, low=lo, high=hi, nominal=nominal,
+                       derived_from=f"nominal {format_quantity(nominal, unit)} {tol}", decision=decision)
+    elif lo is not None or hi is not None:
+        if lo is not None and hi is not None and lo > hi:
+            c.error(m["min"], f"{path}: min {m['min'].value!r} is above max {m['max'].value!r}")
+            return None
+        if nominal is not None and ((lo is not None and nominal < lo) or (hi is not None and nominal > hi)):
+            c.error(m["nominal"], f"{path}: nominal {m['nominal'].value!r} lies outside its own window")
+            return None
+        given = Window(unit=unit, low=lo, high=hi, nominal=nominal, derived_from="given", decision=decision)
+    if "from_circuit" not in m:
+        return given
+    fc = m["from_circuit"]
+    circuit, mc = parse_circuit(c, fc, f"{path}.from_circuit", measurement, mc_defaults)
+    margin = None
+    if "margin" in m:
+        margin = _tolerance(c, m["margin"], f"{path}.margin", unit)
+    if circuit is None or (len(c.errors) > n_err):
+        return None
+    try:
+        d = _analyse(circuit, measurement, unit, mc, given)
+    except ValueError as exc:
+        c.error(fc, f"{path}.from_circuit: {exc}")
+        return None
+    w = derive.derived_window(circuit, d, margin=margin, given=given, decision=decision)
+    if given is not None and given.nominal is not None and not given.contains(d.nominal):
+        c.error(fc, f"{path}: the design nominal {format_quantity(d.nominal, unit)} lies outside the given window")
+        return None
+    return w
+
+
+def _tolerance(c: Collector, node: YNode, path: str, unit: str) -> Tolerance | None:
+    try:
+        return parse_tolerance(node.value, unit, field=path)
+    except UnitError as exc:
+        c.error(node, str(exc))
+        return None
+
+
+def _analyse(circuit: derive.Circuit, measurement: str, unit: str, mc: dict[str, Any],
+             given: Window | None) -> derive.Derivation:
+    win = None if given is None else (given.low, given.high)
+    key = (circuit.topology, tuple(sorted(circuit.options.items())), tuple(sorted(circuit.parts.items())),
+           measurement, unit, mc["draws"], mc["seed"], mc["distribution"], win)
+    if key not in _CACHE:
+        if len(_CACHE) >= _CACHE_MAX:
+            _CACHE.clear()
+        _CACHE[key] = derive.analyse(circuit, measurement, draws=mc["draws"], seed=mc["seed"],
+                                     distribution=mc["distribution"], window=win, unit=unit)
+    return _CACHE[key]
+
+
+def parse_monte_carlo(c: Collector, node: YNode | None, path: str, base: dict[str, Any]) -> dict[str, Any]:
+    out = dict(base)
+    m = c.mapping(node, path, MC_KEYS)
+    if not m:
+        return out
+    draws = c.integer(m.get("draws"), f"{path}.draws", derive.MIN_DRAWS, 1_000_000)
+    seed = c.integer(m.get("seed"), f"{path}.seed", 0, 2**63 - 1)
+    dist = c.choice(m.get("distribution"), f"{path}.distribution", derive.DISTRIBUTIONS)
+    for k, v in (("draws", draws), ("seed", seed), ("distribution", dist)):
+        if v is not None:
+            out[k] = v
+    return out
+
+
+def parse_circuit(c: Collector, node: YNode, path: str, measurement: str,
+                  mc_defaults: dict[str, Any]) -> tuple[derive.Circuit | None, dict[str, Any]]:
+    mc = dict(mc_defaults)
+    if not node.is_map:
+        c.error(node, f"{path}: expected a mapping with a topology and its parts")
+        return None, mc
+    topo_node = node.value.get("topology")
+    if topo_node is None:
+        c.error(node, f"{path}: missing required key 'topology' ({', '.join(derive.TOPOLOGIES)})")
+        return None, mc
+    topology = c.choice(topo_node, f"{path}.topology", derive.TOPOLOGIES)
+    if topology is None:
+        return None, mc
+    info = derive.TOPOLOGIES[topology]
+    allowed = ["topology", "monte_carlo", *info["options"], *info["parts"]]
+    m = c.mapping(node, path, allowed)
+    if m is None:
+        return None, mc
+    n_err = len(c.errors)
+    if measurement not in info["outputs"]:
+        c.error(topo_node, f"{path}: {topology} gives {', '.join(info['outputs'])}, not {measurement}")
+    mc = parse_monte_carlo(c, m.get("monte_carlo"), f"{path}.monte_carlo", mc_defaults)
+    options: dict[str, Any] = {}
+    parts: dict[str, Part] = {}
+    if topology == "rc_ladder":
+        form = c.choice(m.get("form"), f"{path}.form", ("highpass", "lowpass"))
+        if "form" not in m:
+            c.error(node, f"{path}: missing required key 'form' (highpass: series C, shunt R; lowpass: series R, shunt C)")
+        n = c.integer(m.get("sections"), f"{path}.sections", 3, 8)
+        options = {"form": form, "sections": 3 if "sections" not in m else n}
+        for key in ("R", "C"):
+            if key not in m:
+                c.error(node, f"{path}: missing required key {key!r}")
+                continue
+            _ladder_parts(c, m[key], f"{path}.{key}", key, options["sections"] or 3, parts)
+        for key in ("source", "load"):
+            if key in m:
+                p = _part(c, m[key], f"{path}.{key}", "Ω", note=False)
+                if p is not None:
+                    parts[key] = p
+    else:
+        required = info["required"]
+        optional: tuple[str, ...] = ()
+        if topology == "lc_tank":
+            kind = c.choice(m.get("type"), f"{path}.type", ("colpitts", "hartley"))
+            if "type" not in m:
+                c.error(node, f"{path}: missing required key 'type' (colpitts or hartley)")
+            options = {"type": kind}
+            if kind is None:
+                return None, mc
+            required, optional = derive.LC_PARTS[kind]
+            for key in m:
+                if key in info["parts"] and key not in required + optional:
+                    c.error(c.key_pos(node, key), f"{path}: {key!r} is not a part of a {kind} tank "
+                                                  f"(parts: {', '.join(required + optional)})")
+        for key in required:
+            if key not in m:
+                c.error(node, f"{path}: missing required part {key!r}")
+        for key in (*required, *optional):
+            if key in m:
+                p = _part(c, m[key], f"{path}.{key}", info["parts"][key])
+                if p is not None:
+                    parts[key] = p
+    if len(c.errors) > n_err:
+        return None, mc
+    return derive.Circuit(topology, options, parts), mc
+
+
+def _ladder_parts(c: Collector, node: YNode, path: str, key: str, n: int, parts: dict[str, Part]) -> None:
+    unit = "Ω" if key == "R" else "F"
+    if node.is_list:
+        if len(node.value) != n:
+            c.error(node, f"{path}: {len(node.value)} values for {n} sections; give one per section or one shared value")
+            return
+        for i, item in enumerate(node.value):
+            p = _part(c, item, f"{path}[{i}]", unit)
+            if p is not None:
+                parts[f"{key}{i + 1}"] = p
+        return
+    p = _part(c, node, path, unit)
+    if p is not None:
+        for i in range(n):  # one value, N independent physical parts
+            parts[f"{key}{i + 1}"] = p
+
+
+def _part(c: Collector, node: YNode, path: str, unit: str, *, note: bool = True) -> Part | None:
+    try:
+        p = parse_part(node.value, unit, field=path)
+    except UnitError as exc:
+        c.error(node, str(exc))
+        return None
+    t = p.tolerance
+    if note and t.relative and t.minus == t.plus and t.plus > 0:
+        name = series_for_tolerance(t.plus * 100)
+        # fine if in the series for its tolerance or any coarser one (parts are sold that way)
+        coarser = SERIES_ORDER[: SERIES_ORDER.index(name) + 1]
+        if not any(is_preferred(p.nominal, s) for s in coarser):
+            near = nearest_preferred(p.nominal, name)
+            c.note(node, f"{path}: {format_quantity(p.nominal, unit)} is not an {name} value "
+                         f"(IEC 60063, for {t}); nearest preferred {format_quantity(near, unit)}")
+    return p

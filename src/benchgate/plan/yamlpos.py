@@ -1,0 +1,206 @@
+"""A safe YAML reader that keeps the line and column of every node.
+
+Only plain data comes out (mappings with string keys, lists, strings, numbers, booleans, null):
+no object is ever constructed from a tag, nothing is evaluated. Duplicate keys, tabs in
+indentation, unknown tags and runaway alias expansion are errors with their position.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+from benchgate.errors import PlanError, PlanErrors
+
+_MAX_NODES = 200_000
+_MAX_DEPTH = 64
+_MAX_BYTES = 4_000_000
+
+_T = "tag:yaml.org,2002:"
+_SCALAR_TAGS = {_T + n for n in ("str", "int", "float", "bool", "null", "timestamp")}
+
+
+@dataclass
+class YNode:
+    """A value read from YAML with where it starts (line and column from 1)."""
+
+    value: Any  # dict[str, YNode] | list[YNode] | str | int | float | bool | None
+    line: int
+    column: int
+    # for mappings: key -> (line, column) of the key itself
+    key_pos: dict[str, tuple[int, int]] = field(default_factory=dict)
+
+    @property
+    def is_map(self) -> bool:
+        return isinstance(self.value, dict)
+
+    @property
+    def is_list(self) -> bool:
+        return isinstance(self.value, list)
+
+    def plain(self) -> Any:
+        """The value as plain Python data (for hashing and schema validation)."""
+        if isinstance(self.value, dict):
+            return {k: v.plain() for k, v in self.value.items()}
+        if isinstance(self.value, list):
+            return [v.plain() for v in self.value]
+        return self.value
+
+
+def load_text(text: str, file: str) -> YNode:
+    """Parse one YAML document into :class:`YNode` values; raises PlanErrors with positions."""
+    import yaml
+
+    errors: list[PlanError] = []
+    _check_tabs(text, file, errors)
+    if errors:
+        raise PlanErrors(errors)
+    if not text.strip() or all(
+        not ln.strip() or ln.lstrip().startswith("#") for ln in text.splitlines()
+    ):
+        raise PlanErrors([PlanError("the file is empty (no YAML content)", file, 1, 1)])
+    try:
+        node = yaml.compose(text, Loader=yaml.SafeLoader)
+    except yaml.MarkedYAMLError as exc:
+        mark = exc.problem_mark or exc.context_mark
+        problem = exc.problem or exc.context or "invalid YAML"
+        line, col = (mark.line + 1, mark.column + 1) if mark else (1, 1)
+        raise PlanErrors([PlanError(f"YAML syntax error: {problem}", file, line, col)]) from None
+    except yaml.YAMLError as exc:  # reader errors: characters YAML does not allow
+        pos = getattr(exc, "position", None)
+        line, col = _line_col(text, pos) if isinstance(pos, int) else (1, 1)
+        ch = getattr(exc, "character", None)
+        what = f"character {ch!r} (U+{ord(ch):04X})" if isinstance(ch, str) and ch else "a character"
+        raise PlanErrors([PlanError(f"{what} is not allowed in YAML", file, line, col)]) from None
+    except RecursionError:
+        raise PlanErrors([PlanError("YAML nested too deeply", file, 1, 1)]) from None
+    if node is None:
+        raise PlanErrors([PlanError("the file is empty (no YAML content)", file, 1, 1)])
+    conv = _Converter(file)
+    result = conv.convert(node, 0, set())
+    if conv.errors:
+        raise PlanErrors(conv.errors)
+    return result
+
+
+def load_file(path: str) -> tuple[YNode, str]:
+    """Read and parse ``path``; returns the tree and the text. Raises PlanErrors."""
+    try:
+        with open(path, "rb") as fh:
+            raw = fh.read(_MAX_BYTES + 1)
+    except FileNotFoundError:
+        raise PlanErrors([PlanError("no such file", path)]) from None
+    except IsADirectoryError:
+        raise PlanErrors([PlanError("is a directory, not a plan file", path)]) from None
+    except OSError as exc:
+        raise PlanErrors([PlanError(f"cannot read: {exc.strerror or exc}", path)]) from None
+    if len(raw) > _MAX_BYTES:
+        raise PlanErrors([PlanError(f"file larger than {_MAX_BYTES} bytes; not a plan", path, 1, 1)])
+    if raw.startswith(b"\xef\xbb\xbf"):
+        raw = raw[3:]
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        good = raw[: exc.start].decode("utf-8", errors="replace")
+        line, col = _line_col(good + "?", len(good))
+        raise PlanErrors([PlanError(
+            f"not UTF-8 text (byte 0x{raw[exc.start]:02X}); a plan is a UTF-8 YAML file",
+            path, line, col)]) from None
+    nul = text.find("\x00")
+    if nul >= 0:
+        line, col = _line_col(text, nul)
+        raise PlanErrors([PlanError("binary data (NUL byte); a plan is a UTF-8 YAML file", path, line, col)])
+    return load_text(text, path), text
+
+
+def _line_col(text: str, pos: int) -> tuple[int, int]:
+    before = text[:pos]
+    line = before.count("\n") + 1
+    col = pos - (before.rfind("\n") + 1) + 1
+    return line, col
+
+
+def _check_tabs(text: str, file: str, errors: list[PlanError]) -> None:
+    for i, ln in enumerate(text.splitlines(), start=1):
+        indent = len(ln) - len(ln.lstrip(" \t"))
+        j = ln.find("\t", 0, indent)
+        if j >= 0:
+            errors.append(PlanError("tab character in indentation; YAML indents with spaces", file, i, j + 1))
+            if len(errors) >= 20:
+                return
+
+
+class _Converter:
+    def __init__(self, file: str):
+        self.file = file
+        self.errors: list[PlanError] = []
+        self.count = 0
+        import yaml
+
+        self._yaml = yaml
+        self._ctor = yaml.constructor.SafeConstructor()
+
+    def _err(self, msg: str, node) -> None:
+        m = node.start_mark
+        self.errors.append(PlanError(msg, self.file, m.line + 1, m.column + 1))
+
+    def convert(self, node, depth: int, active: set[int]) -> YNode:
+        yaml = self._yaml
+        m = node.start_mark
+        pos = (m.line + 1, m.column + 1)
+        self.count += 1
+        if self.count > _MAX_NODES:
+            if self.count == _MAX_NODES + 1:
+                self._err("too many YAML nodes (alias expansion?); a plan is small", node)
+            return YNode(None, *pos)
+        if depth > _MAX_DEPTH or id(node) in active:
+            self._err("YAML nested too deeply or refers to itself", node)
+            return YNode(None, *pos)
+        if isinstance(node, yaml.ScalarNode):
+            return YNode(self._scalar(node), *pos)
+        active = active | {id(node)}
+        if isinstance(node, yaml.SequenceNode):
+            if node.tag != _T + "seq":
+                self._err(f"unsupported YAML tag {node.tag!r}", node)
+            return YNode([self.convert(v, depth + 1, active) for v in node.value], *pos)
+        if isinstance(node, yaml.MappingNode):
+            if node.tag != _T + "map":
+                self._err(f"unsupported YAML tag {node.tag!r}", node)
+            out: dict[str, YNode] = {}
+            key_pos: dict[str, tuple[int, int]] = {}
+            for knode, vnode in node.value:
+                km = knode.start_mark
+                if not isinstance(knode, yaml.ScalarNode) or knode.tag == _T + "merge":
+                    self._err("keys must be plain names (no merge keys, lists or mappings as keys)", knode)
+                    continue
+                key = self._scalar(knode)
+                if not isinstance(key, str):
+                    key = str(key).lower() if isinstance(key, bool) else str(key)
+                if key in out:
+                    first = key_pos[key]
+                    self._err(f"duplicate key {key!r} (first given at line {first[0]}, column {first[1]})", knode)
+                    continue
+                key_pos[key] = (km.line + 1, km.column + 1)
+                out[key] = self.convert(vnode, depth + 1, active)
+            return YNode(out, *pos, key_pos=key_pos)
+        self._err("unsupported YAML node", node)
+        return YNode(None, *pos)
+
+    def _scalar(self, node) -> Any:
+        tag = node.tag
+        if tag not in _SCALAR_TAGS:
+            self._err(f"unsupported YAML tag {tag!r}; plans hold plain values only", node)
+            return None
+        try:
+            if tag == _T + "int":
+                return self._ctor.construct_yaml_int(node)
+            if tag == _T + "float":
+                return self._ctor.construct_yaml_float(node)
+            if tag == _T + "bool":
+                return self._ctor.construct_yaml_bool(node)
+            if tag == _T + "null":
+                return None
+        except (ValueError, self._yaml.YAMLError):
+            self._err(f"cannot read {node.value!r} as {tag.rsplit(':', 1)[-1]}", node)
+            return None
+        return str(node.value)  # str and timestamps stay text
