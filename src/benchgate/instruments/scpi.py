@@ -14,7 +14,9 @@ the instrument option ``commands: {name: "TEMPLATE {value}"}`` (see ``docs/scpi.
 
 from __future__ import annotations
 
+import os
 import re
+import socket
 import string
 import threading
 import time
@@ -94,16 +96,30 @@ def _is_timeout(exc: Exception) -> bool:
     return getattr(exc, "error_code", None) == constants.StatusCode.error_timeout
 
 
-def _widen_socket_reads(res: Any) -> None:
-    """Let pyvisa-py's raw-socket session receive up to CHUNK_SIZE per recv() (it uses 4 KiB).
-
-    A performance setting only (a 4 MB waveform otherwise takes ~1000 select/recv rounds);
-    it touches the backend's session object, so it does nothing when the backend is another.
-    """
+def _socket_session(res: Any) -> Any:
+    """pyvisa-py's raw-socket session object behind ``res``, or None (another backend/kind)."""
     sessions = getattr(getattr(res, "visalib", None), "sessions", None)
     backend_session = sessions.get(res.session) if isinstance(sessions, dict) else None
-    if type(backend_session).__name__ == "TCPIPSocketSession" and \
-            isinstance(getattr(backend_session, "max_recv_size", None), int):
+    return backend_session if type(backend_session).__name__ == "TCPIPSocketSession" else None
+
+
+def _tune_socket_session(role: str, address: str, res: Any) -> None:
+    """Two fixes for pyvisa-py raw sockets; both do nothing with another backend.
+
+    pyvisa-py does not look at the outcome of its non-blocking connect, so a refused
+    connection only shows later as a timeout: check ``SO_ERROR`` now and say so. And it reads
+    4 KiB per recv(); let it take up to CHUNK_SIZE (a 4 MB waveform otherwise costs about a
+    thousand select/recv rounds).
+    """
+    backend_session = _socket_session(res)
+    if backend_session is None:
+        return
+    sock = getattr(backend_session, "interface", None)
+    if isinstance(sock, socket.socket):
+        err = sock.getsockopt(socket.SOL_SOCKET, socket.SO_ERROR)
+        if err:
+            raise InstrumentError(role, f"cannot open {address}: {os.strerror(err)}")
+    if isinstance(getattr(backend_session, "max_recv_size", None), int):
         backend_session.max_recv_size = max(backend_session.max_recv_size, CHUNK_SIZE)
 
 
@@ -150,7 +166,7 @@ class ScpiSession:
                       resync_timeout=config.option("resync_timeout"))
         try:
             res.chunk_size = CHUNK_SIZE
-            _widen_socket_reads(res)
+            _tune_socket_session(role, config.address, res)
             session.identity = session.query(templates["identify"])
             if config.option("reset", False):
                 session.write(templates["reset"], check=False)

@@ -148,6 +148,7 @@ class EmulatedInstrument:
         self.lock = threading.RLock()
         self._errors: deque[tuple[int, str]] = deque()
         self._esr = 0
+        self.received: deque[str] = deque(maxlen=500)  # program messages, newest last
         self._commands: list[_Command] = []
         self.add("*IDN", True, lambda _a: self.identity, False)
         self.add("*RST", False, lambda _a: self.reset(), False)
@@ -211,6 +212,7 @@ class EmulatedInstrument:
         """Execute one program message; returns the response message (None if no query)."""
         replies: list[str | bytes] = []
         with self.lock:
+            self.received.append(message)
             for unit in _split_units(message):
                 try:
                     out = self._execute(unit)

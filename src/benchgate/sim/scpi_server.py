@@ -136,6 +136,7 @@ class _Listener:
         self.sock.setsockopt(socket.SOL_SOCKET, socket.SO_REUSEADDR, 1)
         self.sock.bind((HOST, port))  # loopback only, never all interfaces
         self.sock.listen(4)
+        self.sock.settimeout(0.5)  # accept wakes up to look at the stop flag even without shutdown
         self.port = self.sock.getsockname()[1]
         self._stop = threading.Event()
         self._conns: set[socket.socket] = set()
@@ -151,8 +152,11 @@ class _Listener:
         while not self._stop.is_set():
             try:
                 conn, _addr = self.sock.accept()
+            except TimeoutError:
+                continue
             except OSError:
                 return
+            conn.settimeout(None)
             conn.setsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY, 1)
             with self._lock:
                 if self._stop.is_set():
@@ -201,21 +205,27 @@ class _Listener:
         else:
             conn.sendall(data + b"\n")
 
-    def stop(self) -> None:
+    def signal_stop(self) -> None:
+        """Stop accepting and wake every thread (shutdown wakes a blocked accept/recv)."""
         self._stop.set()
+        for s in [self.sock, *self._connections()]:
+            try:
+                s.shutdown(socket.SHUT_RDWR)
+            except OSError:
+                pass
         try:
             self.sock.close()
         except OSError:
             pass
+
+    def _connections(self) -> list[socket.socket]:
         with self._lock:
-            conns = list(self._conns)
-            threads = list(self._threads)
-        for c in conns:
-            try:
-                c.shutdown(socket.SHUT_RDWR)
-            except OSError:
-                pass
+            return list(self._conns)
+
+    def join(self) -> None:
         self._accept_thread.join(timeout=2.0)
+        with self._lock:
+            threads = list(self._threads)
         for t in threads:
             t.join(timeout=2.0)
 
@@ -265,7 +275,9 @@ class ScpiBench:
     def stop(self) -> None:
         listeners, self._listeners = self._listeners, {}
         for listener in listeners.values():
-            listener.stop()
+            listener.signal_stop()
+        for listener in listeners.values():
+            listener.join()
 
     def __enter__(self) -> ScpiBench:
         return self.start()
