@@ -1,0 +1,241 @@
+"""The three Owl Hollow boards, and units drawn from them.
+
+A :class:`Board` lists its parts with nominal values and tolerances (the TB-3, WO-1 and PF-2
+designs agreed in the interfaces); :func:`draw_unit` draws one unit's values within tolerance,
+seeded by a stable hash of its serial number (same serial, same parts), and applies a defect.
+A :class:`Unit` builds the circuit simulation from its parts and answers, for times since
+power-on: the board's output node, the fixture test point, and the supply current.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import math
+from dataclasses import dataclass, field
+from types import MappingProxyType
+from typing import Mapping
+
+import numpy as np
+
+from benchgate.errors import BenchgateError
+from benchgate.sim.circuits import astable, rc_ladder, wien
+from benchgate.sim.circuits.trace import LoopTrace
+
+DEFECTS = ("wrong_capacitor", "low_gain", "high_gain", "open_section", "supply_noise", "intermittent")
+
+#: simulation steps per second for the oscillator models (~100 steps a period at 1 kHz)
+SIM_RATE = 100_000.0
+OPEN_CAPACITOR = 2e-12  # an open capacitor leaves its stray capacitance
+OPEN_RESISTOR = 1e9
+
+
+class SimError(BenchgateError):
+    """A virtual-bench request that cannot be met (unknown board or defect)."""
+
+
+@dataclass(frozen=True)
+class Part:
+    nominal: float
+    tolerance: float  # relative half-width of the band (0.05 = ±5 %)
+    unit: str
+
+
+@dataclass(frozen=True)
+class Board:
+    model: str  # "tb3"
+    name: str  # "TB-3 tone board"
+    supply: float  # V
+    parts: Mapping[str, Part]
+    defects: tuple[str, ...]  # the defects that mean something for this board
+    coupling: str  # "ac" (fixture couples to the ADC mid-rail) or "dc"
+    test_point_gain: float  # fixture divider from the output node to the test point
+    bias: float  # the output node's DC level when powered (V)
+
+
+def _parts(**kw: tuple[float, float, str]) -> Mapping[str, Part]:
+    return MappingProxyType({k: Part(*v) for k, v in kw.items()})
+
+
+BOARDS: dict[str, Board] = {
+    "tb3": Board(
+        "tb3", "TB-3 tone board", 9.0,
+        _parts(R1=(6.8e3, 0.05, "Ω"), R2=(6.8e3, 0.05, "Ω"), R3=(6.8e3, 0.05, "Ω"),
+               C1=(10e-9, 0.10, "F"), C2=(10e-9, 0.10, "F"), C3=(10e-9, 0.10, "F"),
+               gain=(40.0, 0.04, ""), Rc=(1.0e3, 0.05, "Ω"), Rin=(47e3, 0.10, "Ω")),
+        DEFECTS, "ac", 1.0 / 2.7, 4.9),
+    "wo1": Board(
+        "wo1", "WO-1 Wien-bridge oscillator", 12.0,
+        _parts(R1=(16e3, 0.01, "Ω"), R2=(16e3, 0.01, "Ω"), C1=(10e-9, 0.05, "F"),
+               C2=(10e-9, 0.05, "F"), Rf=(21e3, 0.01, "Ω"), Rg=(10e3, 0.01, "Ω"),
+               Rd=(33e3, 0.05, "Ω")),
+        DEFECTS, "ac", 0.9, 6.0),
+    "pf2": Board(
+        "pf2", "PF-2 pulse board", 9.0,
+        _parts(R1=(1e3, 0.05, "Ω"), R2=(6.8e3, 0.05, "Ω"), C=(100e-9, 0.10, "F")),
+        ("wrong_capacitor", "supply_noise", "intermittent"), "dc", 1.0 / 3.0, 0.0),
+}
+
+
+def get_board(model: str) -> Board:
+    key = str(model).lower().replace("-", "").replace("_", "")
+    if key not in BOARDS:
+        raise SimError(f"unknown board {model!r}; choose one of {', '.join(BOARDS)}")
+    return BOARDS[key]
+
+
+def serial_seed(serial: str) -> int:
+    """A stable 64-bit seed from a serial number (SHA-256, not Python's salted hash)."""
+    return int.from_bytes(hashlib.sha256(str(serial).encode("utf-8")).digest()[:8], "big")
+
+
+@dataclass(frozen=True)
+class Unit:
+    """One unit under test: its board, serial, drawn part values and defect."""
+
+    board: Board
+    serial: str
+    values: Mapping[str, float]
+    defect: str | None = None
+    seed: int = 0
+    _cache: dict = field(default_factory=dict, compare=False, repr=False)
+
+    # -- the circuit ------------------------------------------------------------------------
+    def circuit(self):
+        """The circuit parameters (LadderParams, WienParams or AstableParams)."""
+        v = self.values
+        if self.board.model == "tb3":
+            return rc_ladder.LadderParams(
+                r=(v["R1"], v["R2"], v["R3"]), c=(v["C1"], v["C2"], v["C3"]), gain=v["gain"],
+                r_out=v["Rc"], r_in=v["Rin"], supply=self.board.supply, bias=self.board.bias,
+                bias_current=0.3e-3)
+        if self.board.model == "wo1":
+            return wien.WienParams(r1=v["R1"], r2=v["R2"], c1=v["C1"], c2=v["C2"], rf=v["Rf"],
+                                   rg=v["Rg"], rd=v["Rd"], supply=self.board.supply)
+        return astable.AstableParams(r1=v["R1"], r2=v["R2"], c=v["C"], supply=self.board.supply)
+
+    def _trace(self) -> LoopTrace | None:
+        if self.board.model == "pf2":
+            return None
+        if "trace" not in self._cache:
+            p = self.circuit()
+            module = rc_ladder if self.board.model == "tb3" else wien
+            step = module.stepper(p, SIM_RATE, seed=self.seed & 0xFFFFFFFF)
+            self._cache["trace"] = LoopTrace(step, 1000.0)
+        return self._cache["trace"]
+
+    def node(self, tau: np.ndarray) -> np.ndarray:
+        """The board's output node (V) at ``tau`` s after power-on (continuously powered)."""
+        tau = np.asarray(tau, dtype=np.float64)
+        trace = self._trace()
+        if trace is None:
+            return astable.output(self.circuit(), tau)
+        return trace.values(tau)
+
+    def steady_frequency(self) -> float | None:
+        trace = self._trace()
+        return self.circuit().frequency if trace is None else trace.steady_frequency
+
+    def current(self, tau: np.ndarray) -> np.ndarray:
+        """Supply current (A) at ``tau`` s after power-on (continuously powered)."""
+        tau = np.asarray(tau, dtype=np.float64)
+        p = self.circuit()
+        if self.board.model == "pf2":
+            return astable.supply_current(p, tau)
+        module = rc_ladder if self.board.model == "tb3" else wien
+        return module.supply_current(p, self.node(tau))
+
+    # -- defects acting over time -----------------------------------------------------------
+    def dropouts(self, horizon: float) -> np.ndarray:
+        """For an ``intermittent`` unit: (start, end) pairs of contact loss after power-on."""
+        if self.defect != "intermittent":
+            return np.empty((0, 2))
+        rng = np.random.default_rng(self.seed ^ 0x5EED)
+        out, t = [], float(rng.uniform(0.12, 0.2))
+        while t < horizon:
+            d = float(rng.uniform(0.02, 0.05))
+            out.append((t, t + d))
+            t += d + float(rng.uniform(0.15, 0.35))
+        return np.asarray(out).reshape(-1, 2)
+
+    def effective_time(self, tau: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Time since the circuit last (re)started, and whether it is connected, at ``tau``."""
+        tau = np.asarray(tau, dtype=np.float64)
+        drops = self.dropouts(float(np.max(tau, initial=0.0)) + 1.0)
+        if drops.size == 0:
+            return tau, np.ones(tau.shape, dtype=bool)
+        k = np.searchsorted(drops[:, 0], tau, side="right") - 1
+        inside = (k >= 0) & (tau < drops[np.maximum(k, 0), 1])
+        restart = np.where(k >= 0, drops[np.maximum(k, 0), 1], 0.0)
+        return np.where(inside, 0.0, tau - restart), ~inside
+
+    def test_point(self, tau: np.ndarray, rng: np.random.Generator | None = None) -> np.ndarray:
+        """Fixture test-point voltage (V) at ``tau`` s after power-on: AC part of the output
+        through the divider (AC-coupled boards) or the divided output (DC-coupled)."""
+        tau = np.asarray(tau, dtype=np.float64)
+        t_eff, connected = self.effective_time(tau)
+        node = self.node(t_eff)
+        b = self.board
+        level = np.where(connected, node - b.bias if b.coupling == "ac" else node, 0.0)
+        tp = b.test_point_gain * level
+        if self.defect == "supply_noise":
+            tp = tp + 0.15 * np.sin(2 * math.pi * 100.0 * tau)
+            if rng is not None:
+                tp = tp + rng.normal(0.0, 0.05, size=tau.shape)
+        return tp
+
+    def rail_ripple(self, tau: np.ndarray) -> np.ndarray:
+        tau = np.asarray(tau, dtype=np.float64)
+        if self.defect == "supply_noise":
+            return 0.3 * np.sin(2 * math.pi * 100.0 * tau)
+        return np.zeros(tau.shape)
+
+    def draw(self, tau: np.ndarray) -> np.ndarray:
+        """Supply current (A) at ``tau`` s after power-on, defects included."""
+        t_eff, connected = self.effective_time(tau)
+        return np.where(connected, self.current(t_eff), 0.4e-3)
+
+
+def _apply_defect(board: Board, values: dict[str, float], defect: str, rng: np.random.Generator) -> None:
+    m = board.model
+    if defect == "wrong_capacitor":
+        caps = sorted(k for k in values if k.startswith("C"))
+        values[caps[int(rng.integers(len(caps)))]] *= 2.2  # e.g. 22n fitted for 10n
+    elif defect == "low_gain":
+        if m == "tb3":
+            values["gain"] *= 0.6
+        else:
+            values["Rf"] *= 0.9  # gain 2.9 < 3
+    elif defect == "high_gain":
+        if m == "tb3":
+            values["gain"] *= 5.0
+        else:
+            values["Rf"] *= 1.6
+    elif defect == "open_section":
+        if m == "tb3":
+            values[f"C{int(rng.integers(1, 4))}"] = OPEN_CAPACITOR
+        else:
+            values["R1"] = OPEN_RESISTOR
+
+
+def draw_unit(board: str | Board, serial: str, defect: str | None = None) -> Unit:
+    """Draw one unit's part values within tolerance, seeded by its serial number.
+
+    Values are normal about the nominal with σ = tolerance/3, kept inside the tolerance band.
+    Raises SimError for an unknown board, an unknown defect, or a defect that means nothing
+    for this board (e.g. open_section on the PF-2, which has no sections).
+    """
+    b = board if isinstance(board, Board) else get_board(board)
+    if defect is not None and defect not in DEFECTS:
+        raise SimError(f"unknown defect {defect!r}; choose one of {', '.join(DEFECTS)}")
+    if defect is not None and defect not in b.defects:
+        raise SimError(f"defect {defect!r} means nothing for the {b.name}; "
+                       f"it can have: {', '.join(b.defects)}")
+    seed = serial_seed(serial)
+    rng = np.random.default_rng(seed)
+    values = {}
+    for name, part in b.parts.items():
+        z = float(np.clip(rng.normal(0.0, 1.0 / 3.0), -1.0, 1.0))
+        values[name] = part.nominal * (1.0 + part.tolerance * z)
+    if defect is not None:
+        _apply_defect(b, values, defect, np.random.default_rng(seed ^ 0xDEFEC7))
+    return Unit(b, str(serial), MappingProxyType(values), defect, seed)
