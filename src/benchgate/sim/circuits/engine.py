@@ -19,8 +19,8 @@ from __future__ import annotations
 
 import math
 import operator
+from collections.abc import Callable
 from dataclasses import dataclass
-from typing import Callable
 
 import numpy as np
 
@@ -94,7 +94,7 @@ class LoopStepper:
         self._c_out = list(map(float, system.c_out))
         self._d_out = float(system.d_out)
         self.x = list(map(float, x0))
-        self.e = self._solve(sum(c * xi for c, xi in zip(map(float, c_in), self.x)), float(system.d_in), 0.0)
+        self.e = self._solve(sum(c * xi for c, xi in zip(map(float, c_in), self.x, strict=False)), float(system.d_in), 0.0)
         self._e_prev = self.e
 
     def _solve(self, ystar: float, dd: float, guess: float) -> float:
@@ -109,7 +109,7 @@ class LoopStepper:
         fd = self.system.amp.fd
         lo0, hi0 = self.system.amp.low, self.system.amp.high
         mul = operator.mul
-        rows = tuple(zip(phi, g0, g1))
+        rows = tuple(zip(phi, g0, g1, strict=False))
         x, e, e_prev = self.x, self.e, self._e_prev
         for k in range(int(n)):
             ystar = cg * e + sum(map(mul, cy, x))

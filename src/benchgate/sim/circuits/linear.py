@@ -54,7 +54,7 @@ class FirstOrderHold:
     g1: np.ndarray  # (n,)  multiplies u[k+1]
 
     @classmethod
-    def build(cls, a: np.ndarray, b: np.ndarray, h: float) -> "FirstOrderHold":
+    def build(cls, a: np.ndarray, b: np.ndarray, h: float) -> FirstOrderHold:
         a = np.asarray(a, dtype=np.float64)
         b = np.asarray(b, dtype=np.float64).reshape(-1)
         n = a.shape[0]
