@@ -206,11 +206,15 @@ def render_html(record: UnitRecord, captures: Mapping[str, Capture] | None = Non
     return _environment().get_template("unit.html.j2").render(**ctx)
 
 
-def write_html(record: UnitRecord, path: str | Path, captures: Mapping[str, Capture] | None = None) -> Path:
-    """Render and write the HTML report atomically; returns ``path``."""
+def write_html(record: UnitRecord, path: str | Path, captures: Mapping[str, Capture] | None = None, *,
+               folder: str | Path | None = None) -> Path:
+    """Render and write the HTML report atomically; returns ``path``.
+
+    ``folder`` is where the record's capture files live (default: beside ``path``).
+    """
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
-    text = render_html(record, captures, folder=path.parent)
+    text = render_html(record, captures, folder=path.parent if folder is None else folder)
     fd, tmp = tempfile.mkstemp(prefix=".tmp-", suffix=".html", dir=path.parent)
     try:
         with os.fdopen(fd, "w", encoding="utf-8") as f:

@@ -1,0 +1,154 @@
+"""The HTML unit report: self-contained, escaped, with a verdict banner and plots (issue 5)."""
+
+from __future__ import annotations
+
+import importlib.util
+from html.parser import HTMLParser
+
+import pytest
+from report_samples import HOSTILE_SERIAL, make_record, save_npz, tone_capture
+
+from benchgate.judge.rules import Verdict
+from benchgate.report import plots, write_reports
+from benchgate.report.html import SAFETY, render_html
+from benchgate.report.layout import ReportLayout
+
+
+class _Tags(HTMLParser):
+    def __init__(self):
+        super().__init__()
+        self.tags: list[str] = []
+        self.urls: list[str] = []
+        self.svgs: list[dict] = []
+
+    def handle_starttag(self, tag, attrs):
+        self.tags.append(tag)
+        a = dict(attrs)
+        for key in ("src", "href", "xlink:href", "action", "data", "poster"):
+            if key in a:
+                self.urls.append(a[key])
+        if tag == "svg":
+            self.svgs.append(a)
+
+
+def _parse(html: str) -> _Tags:
+    p = _Tags()
+    p.feed(html)
+    p.close()
+    return p
+
+
+@pytest.fixture(scope="module")
+def capture():
+    return tone_capture()
+
+
+@pytest.fixture
+def written(tmp_path, capture):
+    layout = ReportLayout(tmp_path, "tb3", HOSTILE_SERIAL, "2026-12-01T10:00:00Z")
+    layout.ensure()
+    cap_path = layout.capture_path("capture-tone")
+    sha = save_npz(capture, cap_path)
+    rec = make_record(HOSTILE_SERIAL, capture_file=layout.relative(cap_path), sha256=sha)
+    paths = write_reports(rec, layout, {"capture-tone": capture})
+    return rec, paths
+
+
+def test_write_reports_gives_json_and_html_named_by_verdict(written):
+    rec, paths = written
+    assert set(paths) == {"json", "html"}
+    assert paths["html"].name == "20261201T100000.000Z-pass.html"
+    assert paths["json"].with_suffix(".html") == paths["html"]
+    assert paths["html"].parent.parent.name == "tb3"
+
+
+def test_no_external_url_and_no_script(written):
+    html = written[1]["html"].read_text(encoding="utf-8")
+    low = html.lower()
+    # the issue's rule: one self-contained file, nothing fetched from anywhere
+    for bad in ("http:", "https:", "ftp:", "<script", "@import", "@font-face", "url(", "<link", "<iframe"):
+        assert bad not in low, bad
+    parsed = _parse(html)
+    assert not [u for u in parsed.urls if not u.startswith("#")], parsed.urls
+    assert not {"script", "link", "img", "iframe", "object", "embed"} & set(parsed.tags)
+    assert 'src="//' not in low and 'href="//' not in low
+
+
+def test_user_and_instrument_text_is_escaped(written):
+    html = written[1]["html"].read_text(encoding="utf-8")
+    assert "&lt;script&gt;alert(&#x27;x&#x27;)&lt;/script&gt; &quot;TB3&quot; &amp; ../../x" in html
+    assert "Wren &lt;o&#x27;neil&gt;" in html
+    assert "yes &lt;b&gt;bold&lt;/b&gt;" in html
+    assert "Capture the tone &lt;out&gt;" in html
+    assert "re-seated the board &lt;clip&gt; &amp; probe" in html
+    assert "<b>bold" not in html and "<clip>" not in html
+
+
+def test_banner_identity_and_safety_footer(written):
+    rec, paths = written
+    html = paths["html"].read_text(encoding="utf-8")
+    assert 'class="banner"' in html and '<span class="vword">PASS</span>' in html
+    assert "Unit passed every check" in html
+    assert rec.plan_hash in html and "OWL,PSU-30,7,2.1" in html and "expired" in html
+    assert "--allow-expired-calibration" in html
+    assert "Acknowledged: typed by operator" in html
+    assert SAFETY in html
+    assert "Reanalysis" not in html
+
+
+def test_plots_are_present_and_drawn(written):
+    html = written[1]["html"].read_text(encoding="utf-8")
+    svgs = _parse(html).svgs
+    labels = [s.get("aria-label", "") for s in svgs]
+    for kind in ("waveform", "envelope", "spectrum"):
+        assert any(label.startswith(kind) for label in labels), labels
+    assert sum("against its window" in label for label in labels) == 5  # one bar per check
+    assert html.count("<polyline") >= 2 and "<polygon" in html  # traces, envelope band
+    assert "start-up" in html and "f₀" in html
+    assert "could not draw" not in html
+
+
+def test_plots_use_the_analysis_views_when_present():
+    views = plots._views()
+    if importlib.util.find_spec("benchgate.analysis.views") is not None:
+        import benchgate.analysis.views as real
+
+        assert views is real
+    else:
+        pytest.skip("benchgate.analysis.views not written yet; the report uses its stand-in")
+
+
+def test_fail_and_reanalysis(tmp_path, capture):
+    rec = make_record("TB3-0099", fail=True, reanalysis=True)
+    assert rec.verdict is Verdict.FAIL
+    html = render_html(rec, {"capture-tone": capture})
+    assert '<span class="vword">FAIL</span>' in html and "Unit failed" in html
+    assert "above 1.030 kHz" in html
+    assert "Reanalysis" in html and "20261130T090000.000Z-fail.json" in html and "run-0001" in html
+
+
+def test_missing_and_changed_captures_are_noted(tmp_path, capture):
+    rec = make_record(capture_file="gone.npz")
+    html = render_html(rec, {}, folder=tmp_path)
+    assert "capture file gone.npz is not beside the report" in html
+    assert "capture not available: plots not drawn" in html
+    save_npz(capture, tmp_path / "gone.npz")
+    html = render_html(rec, {"capture-tone": capture}, folder=tmp_path)
+    assert "has changed since the run (SHA-256 differs)" in html
+
+
+def test_control_characters_are_shown_not_passed_through():
+    html = render_html(make_record("esc\x1b[31m\x00end"), {})
+    assert "\x1b" not in html and "\x00" not in html
+    assert "esc\\x1b[31m\\x00end" in html
+
+
+def test_empty_serial_is_stated():
+    assert "(empty serial number)" in render_html(make_record(""), {})
+
+
+def test_hostile_channel_name_is_escaped_inside_svg(capture):
+    rec = make_record()
+    evil = capture.__class__(capture.samples, capture.sample_rate, channel='"><svg onload=x>', adc=capture.adc)
+    html = render_html(rec, {"capture-tone": evil})
+    assert "onload=x>" not in html and "&quot;&gt;&lt;svg onload=x&gt;" in html
