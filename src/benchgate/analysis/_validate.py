@@ -1,0 +1,102 @@
+"""The one place capture samples are checked before measuring.
+
+Returns warnings (shown with the capture) and, when nothing can be measured at all, a
+fatal reason that every measurement repeats. Clipping is reported separately because it
+spoils levels and distortion but not frequency or timing.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from benchgate.analysis.capture import Capture
+
+#: fewest samples any measurement is attempted on.
+MIN_SAMPLES = 16
+
+
+@dataclass(frozen=True)
+class Checked:
+    """Outcome of :func:`check_capture`."""
+
+    fatal: str | None
+    warnings: tuple[str, ...]
+    clipped: str | None  # reason text when the waveform is clipped or flat-topped
+    pulse_like: bool
+    low_state: float
+    high_state: float
+
+
+def state_levels(x: np.ndarray, bins: int = 256) -> tuple[float, float]:
+    """Low and high state levels: modes of the lower and upper halves of the histogram.
+
+    References
+    ----------
+    IEEE Std 181-2011, state levels by the histogram method.
+    """
+    lo, hi = float(np.min(x)), float(np.max(x))
+    if hi <= lo:
+        return lo, hi
+    idx = ((x - lo) * (bins / (hi - lo))).astype(np.int64)
+    np.minimum(idx, bins - 1, out=idx)
+    counts = np.bincount(idx, minlength=bins)
+    centres = lo + (np.arange(bins) + 0.5) * ((hi - lo) / bins)
+    half = bins // 2
+    low = centres[int(np.argmax(counts[:half]))]
+    high = centres[half + int(np.argmax(counts[half:]))]
+    return float(low), float(high)
+
+
+def is_pulse_like(x: np.ndarray, low: float, high: float) -> bool:
+    """True when most samples sit near one of two state levels (a square wave or pulse train)."""
+    span = high - low
+    if span <= 0:
+        return False
+    near = (np.abs(x - low) < 0.1 * span) | (np.abs(x - high) < 0.1 * span)
+    return bool(np.mean(near) >= 0.8)
+
+
+def check_capture(capture: Capture) -> Checked:
+    """Check a capture's samples: count, finiteness, flat line, clipping or flat tops."""
+    x = capture.samples
+    warnings: list[str] = []
+    if x.size < MIN_SAMPLES:
+        reason = f"too few samples ({x.size}; at least {MIN_SAMPLES} needed)"
+        return Checked(reason, (reason,), None, False, np.nan, np.nan)
+    bad = int(np.count_nonzero(~np.isfinite(x)))
+    if bad:
+        reason = f"{bad} NaN or infinite sample(s) in the record"
+        return Checked(reason, (reason,), None, False, np.nan, np.nan)
+    lo, hi = float(np.min(x)), float(np.max(x))
+    span = hi - lo
+    scale = max(abs(lo), abs(hi), 1e-300)
+    flat_limit = 2.0 * capture.adc.lsb if capture.adc is not None else 1e-9 * scale
+    if span <= flat_limit:
+        reason = "flat line: no oscillation in the record"
+        return Checked(reason, (reason,), None, False, lo, hi)
+    low, high = state_levels(x)
+    pulse = is_pulse_like(x, low, high)
+    clipped = None
+    if capture.adc is not None:
+        adc = capture.adc
+        tol = 0.5 * adc.lsb
+        at_low = int(np.count_nonzero(x <= adc.low_rail + tol))
+        at_high = int(np.count_nonzero(x >= adc.high_rail - tol))
+        if at_low >= 2 or at_high >= 2:
+            where = " and ".join(name for name, count in (("low", at_low), ("high", at_high)) if count >= 2)
+            if pulse:
+                warnings.append(f"a pulse state sits at the ADC {where} rail; its level may be limited")
+            else:
+                clipped = f"clipped at the ADC {where} rail ({at_low + at_high} samples)"
+    elif not pulse:
+        tol = 1e-9 * span
+        top = int(np.count_nonzero(x >= hi - tol))
+        bottom = int(np.count_nonzero(x <= lo + tol))
+        frac = max(top, bottom) / x.size
+        if frac >= 0.04 and max(top, bottom) >= 3:
+            clipped = f"flat tops: {100 * frac:.1f} % of samples sit at one extreme (clipping?)"
+    if clipped:
+        warnings.append(clipped)
+    return Checked(None, tuple(warnings), clipped, pulse, low, high)

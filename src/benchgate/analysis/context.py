@@ -1,0 +1,173 @@
+"""Intermediate results shared by the measurements of one capture, computed once on demand.
+
+``analyze`` builds one :class:`Context` per capture and hands it to every registered
+measurement; a measurement called on its own builds a private one. Nothing here is global.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from functools import cached_property
+
+import numpy as np
+
+from benchgate.analysis import _steady, sinefit, spectrum
+from benchgate.analysis._validate import Checked, check_capture
+from benchgate.analysis.capture import Capture
+
+#: fewest cycles in the analysed part for frequency, amplitude and timing.
+MIN_CYCLES = 3.0
+#: highest fundamental, as a fraction of the sample rate.
+MAX_FRACTION_OF_RATE = 0.45
+#: detection margin (natural log units) above the largest periodogram value noise would give.
+DETECTION_MARGIN = 25.0
+
+
+@dataclass(frozen=True)
+class Tone:
+    """The fitted fundamental of the steady part, or why there is none to trust."""
+
+    fit: sinefit.SineFit | None
+    frequency: float  # Hz (NaN when no fit)
+    cycles: float
+    reason: str | None  # None when the tone can be trusted
+
+    @property
+    def ok(self) -> bool:
+        return self.reason is None
+
+
+class Context:
+    """Lazily computed facts about one capture (validation, steady part, fit, spectrum)."""
+
+    def __init__(self, capture: Capture, *, harmonics: int = 10):
+        if int(harmonics) < 1:
+            raise ValueError(f"harmonics must be at least 1, got {harmonics!r}")
+        self.capture = capture
+        self.harmonics = int(harmonics)
+
+    @cached_property
+    def checked(self) -> Checked:
+        return check_capture(self.capture)
+
+    @property
+    def fatal(self) -> str | None:
+        return self.checked.fatal
+
+    @cached_property
+    def coarse(self) -> float:
+        """Coarse fundamental (Hz) of the whole record."""
+        if self.fatal:
+            return math.nan
+        if self.capture.n > 65536:  # long record: reuse one Blackman–Harris transform
+            return spectrum.peak_frequency(self._full_spectrum)
+        return spectrum.coarse_frequency(self.capture.samples, self.capture.sample_rate)
+
+    @cached_property
+    def _full_spectrum(self) -> spectrum.Spectrum:
+        return spectrum.power_spectrum(self.capture.samples, self.capture.sample_rate, "blackmanharris")
+
+    @cached_property
+    def steady(self) -> _steady.Steady:
+        cap = self.capture
+        f0 = self.coarse
+        if self.fatal or not f0 > 0:
+            return _steady.Steady(0, math.nan, math.nan, None, False, None)
+        env = self.envelope
+        tail = cap.samples[int(cap.n * (1.0 - _steady.TAIL_FRACTION)):]
+        omega = 2.0 * math.pi * f0 / cap.sample_rate
+        noise_var = sinefit.fit3(tail, omega).residual_var if tail.size >= 8 else float(np.var(tail))
+        return _steady.find_steady(env, cap.n, cap.n * f0 / cap.sample_rate, noise_var)
+
+    @cached_property
+    def envelope(self) -> _steady.Envelope | None:
+        if self.fatal or not self.coarse > 0:
+            return None
+        return _steady.envelope(self.capture.samples, self.capture.sample_rate / self.coarse)
+
+    @property
+    def start(self) -> int:
+        return self.steady.start
+
+    @cached_property
+    def y(self) -> np.ndarray:
+        """Samples of the steady part."""
+        return self.capture.samples[self.start:]
+
+    @property
+    def steady_start_time(self) -> float:
+        return self.start / self.capture.sample_rate
+
+    @cached_property
+    def warnings(self) -> tuple[str, ...]:
+        out = list(self.checked.warnings)
+        if self.steady.warning:
+            out.append(self.steady.warning)
+        tone = self.tone
+        if not self.fatal and tone.reason and tone.reason not in out:
+            out.append(tone.reason)
+        return tuple(out)
+
+    @cached_property
+    def tone(self) -> Tone:
+        if self.fatal:
+            return Tone(None, math.nan, 0.0, self.fatal)
+        fs = self.capture.sample_rate
+        y = self.y
+        n = y.size
+        if n < 16:
+            return Tone(None, math.nan, 0.0, "steady part too short to fit a sine")
+        f0 = self.coarse if self.start == 0 else spectrum.coarse_frequency(y, fs)
+        if not f0 > 0:
+            return Tone(None, math.nan, 0.0, "no spectral peak: no oscillation found")
+        w0 = 2.0 * math.pi * f0 / fs
+        if f0 * n / fs < 20 and n <= 65536:
+            w0 = sinefit.best_start(y, w0)
+        fit = sinefit.fit4(y, w0)
+        freq = fit.omega * fs / (2.0 * math.pi)
+        cycles = freq * n / fs
+        detection = n * fit.amplitude ** 2 / (4.0 * fit.residual_var) if fit.residual_var > 0 else math.inf
+        reason = None
+        if detection < math.log(n) + DETECTION_MARGIN:
+            reason = "no tone detected above the noise (no oscillation?)"
+        elif freq > MAX_FRACTION_OF_RATE * fs:
+            reason = f"fundamental near Nyquist (above {MAX_FRACTION_OF_RATE:g} of the sample rate)"
+        elif cycles < MIN_CYCLES:
+            reason = f"fewer than {MIN_CYCLES:g} cycles in the record ({cycles:.2f})"
+        elif not fit.converged:
+            reason = "the four-parameter sine fit did not converge"
+        return Tone(fit, freq, cycles, reason)
+
+    @cached_property
+    def spectrum(self) -> spectrum.Spectrum:
+        if self.start == 0 and self.capture.n > 65536:
+            return self._full_spectrum
+        return spectrum.power_spectrum(self.y, self.capture.sample_rate, "blackmanharris")
+
+    def memo(self, key: str, compute):
+        """Compute a shared intermediate result once (measurement modules keep theirs here)."""
+        cache = self.__dict__.setdefault("_memo", {})
+        if key not in cache:
+            cache[key] = compute()
+        return cache[key]
+
+    def cycle_bounds(self) -> np.ndarray | None:
+        """Sample indices (into ``y``) of whole-cycle boundaries of the steady part, or None."""
+        tone = self.tone
+        if not tone.ok:
+            return None
+        period = self.capture.sample_rate / tone.frequency
+        k = int(math.floor(self.y.size / period))
+        if k < 1:
+            return None
+        return np.round(np.arange(k + 1) * period).astype(np.int64).clip(0, self.y.size)
+
+
+def get_context(capture: Capture, context: Context | None, *, harmonics: int = 10) -> Context:
+    """The shared context when one is given (it must belong to ``capture``), else a new one."""
+    if context is None:
+        return Context(capture, harmonics=harmonics)
+    if context.capture is not capture:
+        raise ValueError("the analysis context belongs to a different capture")
+    return context

@@ -1,0 +1,90 @@
+"""``analyze``: run the registered measurements on one capture and collect its warnings."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterable
+from dataclasses import dataclass, field
+from typing import Any
+
+from benchgate.analysis.capture import Capture
+from benchgate.analysis.context import Context
+from benchgate.analysis.distortion import harmonic_analysis, levels_dbc
+from benchgate.analysis.measurement import Measurement
+from benchgate.analysis.names import MEASUREMENT_NAMES
+from benchgate.analysis.registry import MEASUREMENTS, measure
+
+
+@dataclass(frozen=True)
+class Analysis:
+    """Everything measured on one capture.
+
+    ``steady_start`` is the time (s from the record start) where the steady part begins;
+    ``fundamental`` the fitted frequency (Hz) or None; ``harmonics`` holds
+    ``(order, frequency Hz, level dBc)`` for each harmonic considered.
+    """
+
+    warnings: tuple[str, ...]
+    measurements: dict[str, Measurement]
+    steady_start: float
+    fundamental: float | None
+    harmonics: tuple[tuple[int, float, float], ...]
+    samples: int = 0
+    sample_rate: float = math.nan
+    duration: float = 0.0
+    extra: dict[str, Any] = field(default_factory=dict)
+
+    def to_dict(self) -> dict[str, Any]:
+        """The shape ``benchgate analyze --json`` prints (docs/analyze-output.schema.json)."""
+        return {
+            "capture": {
+                "samples": self.samples,
+                "sample_rate": self.sample_rate,
+                "duration": self.duration,
+                "warnings": list(self.warnings),
+                "steady_start": self.steady_start,
+            },
+            "measurements": {name: m.to_dict() for name, m in self.measurements.items()},
+        }
+
+
+def analyze(capture: Capture, names: Iterable[str] | None = None, *, harmonics: int = 10) -> Analysis:
+    """Measure a capture.
+
+    Parameters
+    ----------
+    capture : Capture
+        The record.
+    names : iterable of str, optional
+        Measurement names (default: all of ``MEASUREMENT_NAMES``, in that order).
+    harmonics : int
+        Highest harmonic order summed for THD (and listed in ``Analysis.harmonics``).
+
+    Returns
+    -------
+    Analysis
+
+    Raises
+    ------
+    ValueError
+        For an unknown measurement name or ``harmonics < 1``.
+    """
+    wanted = list(MEASUREMENT_NAMES if names is None else names)
+    unknown = [n for n in wanted if n not in MEASUREMENTS]
+    if unknown:
+        raise ValueError(f"unknown measurement(s) {', '.join(map(repr, unknown))}; known: {', '.join(MEASUREMENTS)}")
+    ctx = Context(capture, harmonics=harmonics)
+    results = {name: measure(name, capture, ctx) for name in wanted}
+    tone = ctx.tone
+    fundamental = tone.frequency if tone.ok else None
+    harm = levels_dbc(harmonic_analysis(ctx)) if tone.ok else ()
+    return Analysis(
+        warnings=ctx.warnings,
+        measurements=results,
+        steady_start=ctx.steady_start_time,
+        fundamental=fundamental,
+        harmonics=harm,
+        samples=capture.n,
+        sample_rate=capture.sample_rate,
+        duration=capture.duration,
+    )

@@ -1,0 +1,59 @@
+"""Frequency of the fundamental: interpolated windowed DFT, refined by the IEEE 1057 fit."""
+
+from __future__ import annotations
+
+import math
+
+from benchgate.analysis.capture import Capture
+from benchgate.analysis.context import Context, get_context
+from benchgate.analysis.measurement import Measurement
+from benchgate.analysis.uncertainty import clock_std, crlb_frequency_std, expand
+
+
+def frequency(capture: Capture, *, context: Context | None = None) -> Measurement:
+    """Frequency of the fundamental of the steady part of a record.
+
+    Parameters
+    ----------
+    capture : Capture
+        The record (V).
+    context : Context, optional
+        Shared intermediate results (from :func:`benchgate.analysis.analyze`).
+
+    Returns
+    -------
+    Measurement
+        ``frequency`` in Hz with expanded uncertainty U (k = 2). Invalid, with a reason, for a
+        flat or noise-only record, fewer than 3 cycles, a fundamental above 0.45·fs, or a fit
+        that did not converge.
+
+    Notes
+    -----
+    The start is the interpolated peak of a windowed DFT (Hann zero-padded for short
+    records, Blackman–Harris for long ones; a small grid of three-parameter fits for records
+    under 20 cycles), refined by the four-parameter least-squares fit on the steady part
+    (after start-up). The standard uncertainty combines the Cramér–Rao bound evaluated with
+    the fit's own residual noise and amplitude, and the sample-clock tolerance (rectangular).
+
+    References
+    ----------
+    IEEE Std 1057-2017, four-parameter sine fit. D. C. Rife and R. R. Boorstyn, IEEE Trans.
+    Inf. Theory 20(5), 1974 (Cramér–Rao bound). JCGM 100:2008 (GUM), k = 2.
+    """
+    ctx = get_context(capture, context)
+    tone = ctx.tone
+    if tone.fit is None:
+        return Measurement.invalid("frequency", "Hz", tone.reason or "no tone")
+    fit = tone.fit
+    fs = capture.sample_rate
+    u_fit = crlb_frequency_std(fit.snr, fit.n) * fs
+    u_clock = clock_std(tone.frequency, capture.clock_ppm)
+    details = {"method": "four-parameter sine fit", "samples_used": fit.n,
+               "steady_start_s": ctx.steady_start_time, "cycles": round(tone.cycles, 3),
+               "iterations": fit.iterations, "u_fit_hz": u_fit, "u_clock_hz": u_clock}
+    if not tone.ok:
+        return Measurement.invalid("frequency", "Hz", tone.reason, value=tone.frequency, **details)
+    if not math.isfinite(u_fit):
+        return Measurement.invalid("frequency", "Hz", "no noise estimate for the uncertainty",
+                                   value=tone.frequency, **details)
+    return Measurement("frequency", tone.frequency, "Hz", expand(u_fit, u_clock), details=details)

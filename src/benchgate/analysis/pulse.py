@@ -1,0 +1,98 @@
+"""Pulse timing: duty cycle by IEEE 181 state levels and 50 % reference-level crossings."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from benchgate.analysis._validate import state_levels
+from benchgate.analysis.capture import Capture
+from benchgate.analysis.context import Context, get_context
+from benchgate.analysis.measurement import Measurement
+from benchgate.analysis.uncertainty import expand
+
+
+def crossings(x: np.ndarray, low: float, high: float) -> tuple[np.ndarray, np.ndarray]:
+    """Rising and falling 50 % reference-level instants (fractional samples).
+
+    A transition counts once the waveform passes from below the 30 % level to above the
+    70 % level (or back), so noise near the middle gives no extra crossings; its instant is
+    the last 50 % crossing before that, by linear interpolation between samples.
+
+    References
+    ----------
+    IEEE Std 181-2011: reference levels, linear interpolation of crossing instants.
+    """
+    span = high - low
+    mid = low + 0.5 * span
+    state = np.full(x.size, -1, dtype=np.int8)
+    state[x >= low + 0.7 * span] = 1
+    state[x <= low + 0.3 * span] = 0
+    idx = np.where(state >= 0, np.arange(x.size), 0)
+    np.maximum.accumulate(idx, out=idx)
+    filled = state[idx]
+    change = np.flatnonzero(np.diff(filled) != 0) + 1
+    change = change[filled[change - 1] >= 0]
+    rising_at = change[filled[change] == 1]
+    falling_at = change[filled[change] == 0]
+    return _instants(x, rising_at, x < mid, mid), _instants(x, falling_at, x > mid, mid)
+
+
+def _instants(x: np.ndarray, at: np.ndarray, before: np.ndarray, mid: float) -> np.ndarray:
+    candidates = np.flatnonzero(before)
+    pos = np.searchsorted(candidates, at) - 1
+    ok = pos >= 0
+    i = candidates[pos[ok]]
+    i = i[i + 1 < x.size]
+    x0, x1 = x[i], x[i + 1]
+    frac = np.where(x1 != x0, (mid - x0) / np.where(x1 != x0, x1 - x0, 1.0), 0.0)
+    return i + np.clip(frac, 0.0, 1.0)
+
+
+def duty_cycle(capture: Capture, *, context: Context | None = None) -> Measurement:
+    """High-time duty cycle (%) of the steady part: pulse duration / period at the 50 % level.
+
+    Parameters
+    ----------
+    capture : Capture
+    context : Context, optional
+
+    Returns
+    -------
+    Measurement
+        Mean over the complete periods (rising edge to rising edge). U (k = 2) combines the
+        standard deviation of the mean over periods and a rectangular one-sample resolution
+        of each crossing. Invalid with fewer than 2 complete periods.
+
+    References
+    ----------
+    IEEE Std 181-2011: state levels (histogram), 50 % reference level, pulse duration and
+    period between 50 % crossings.
+    """
+    ctx = get_context(capture, context)
+    if ctx.fatal:
+        return Measurement.invalid("duty_cycle", "%", ctx.fatal)
+    y = ctx.y
+    low, high = state_levels(y)
+    if not high > low:
+        return Measurement.invalid("duty_cycle", "%", "flat line: no transitions")
+    rise, fall = crossings(y, low, high)
+    if rise.size < 3:
+        return Measurement.invalid("duty_cycle", "%", f"fewer than 2 complete periods ({max(rise.size - 1, 0)})")
+    nxt = np.searchsorted(fall, rise[:-1])
+    ok = nxt < fall.size
+    starts, ends = rise[:-1][ok], rise[1:][ok]
+    falls = fall[nxt[ok]]
+    inside = falls < ends
+    starts, ends, falls = starts[inside], ends[inside], falls[inside]
+    if starts.size < 2:
+        return Measurement.invalid("duty_cycle", "%", "fewer than 2 complete periods")
+    period = ends - starts
+    duty = 100.0 * (falls - starts) / period
+    k = duty.size
+    u_a = float(np.std(duty, ddof=1)) / math.sqrt(k)
+    u_res = 100.0 * math.sqrt(2.0) * (1.0 / math.sqrt(12.0)) / float(np.mean(period)) / math.sqrt(k)
+    details = {"periods": k, "low_state_v": low, "high_state_v": high,
+               "mean_period_s": float(np.mean(period)) / capture.sample_rate}
+    return Measurement("duty_cycle", float(np.mean(duty)), "%", expand(u_a, u_res), details=details)
