@@ -162,7 +162,7 @@ class FrameDecoder:
         self.mask = mask
         self._buf = np.empty(0, dtype=np.uint8)
         self._next = 0  # absolute index expected next
-        self._hi = 0  # wrap count of the 32-bit sequence number
+        self.end_total: int | None = None  # set once an END frame arrives
 
     @property
     def pending_bytes(self) -> int:
@@ -266,7 +266,7 @@ class FrameDecoder:
             out.gaps.append((int(absolute[i] - delta[i]), int(delta[i])))
         ends_here = np.flatnonzero(keep & is_end)
         if ends_here.size:
-            out.end_total = int(absolute[ends_here[-1]])
+            out.end_total = self.end_total = int(absolute[ends_here[-1]])
         data = keep & ~is_end
         if data.any():
             out.frame_seq = absolute[data]

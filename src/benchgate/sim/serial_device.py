@@ -23,7 +23,12 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from benchgate.clock import Clock, SystemClock
-from benchgate.instruments.framing import MAX_FRAME_SAMPLES, encode_end, encode_frame
+from benchgate.instruments.framing import (
+    MAX_FRAME_SAMPLES,
+    _positional_tables,
+    encode_end,
+    encode_frame,
+)
 from benchgate.sim.interfaces import SampleSource
 
 DEFAULT_IDENTITY = "Owl Hollow Kits,OH-ADC2,SIM-0001,1.0"
@@ -144,6 +149,7 @@ class PtyAdcDevice:
         self.stop()
 
     def start(self) -> None:
+        _positional_tables()  # build the encoder's CRC tables now, not in the first frame's time
         self._master, self._slave = os.openpty()
         tty.setraw(self._slave)
         flags = fcntl.fcntl(self._master, fcntl.F_GETFL)

@@ -1,0 +1,291 @@
+"""Serial ADC driver (pyserial), protocol v1: framed or plain lines (``docs/serial-protocol.md``).
+
+Port behaviour handled here: DTR/RTS held low at open when the station says so (many boards
+reset on DTR); the identify reply awaited against a deadline, then stale input flushed; short
+read timeouts inside an overall deadline; an unplugged adapter mapped to one
+InstrumentDisconnected carrying the partial capture; exclusive opening with a clear "busy"
+message; a single owner thread for all I/O on the port; the device's declared sample rate
+cross-checked against the rate samples actually arrive at (host clock, ±5 %); losses above
+``max_loss`` refused.
+"""
+
+from __future__ import annotations
+
+import threading
+from concurrent.futures import ThreadPoolExecutor
+
+import numpy as np
+
+from benchgate.analysis.capture import AdcInfo, Capture
+from benchgate.clock import Clock, SystemClock
+from benchgate.errors import InstrumentDisconnected, InstrumentError
+from benchgate.instruments._serial_port import SerialPort, arrival_rate
+from benchgate.instruments.framing import FrameDecoder
+from benchgate.instruments.serial_lines import LinesDecoder
+
+RATE_TOLERANCE = 0.05  # declared vs host-measured arrival rate
+MIN_CHECK_SPAN = 0.2  # s of clock time needed before the rate check means anything
+MIN_CHECK_POINTS = 8
+
+
+class SerialAdc:
+    """A serial ADC streamer (the ``serial-adc`` kind). Open with :meth:`open`."""
+
+    def __init__(self, config, port: SerialPort, clock: Clock):
+        self.config = config
+        self.name = config.role
+        self.address = port.path
+        self.clock = clock
+        opts = config.options
+        self.channels: tuple[str, ...] = tuple(opts.get("channels", ("ch0",)))
+        self.bits = int(opts.get("bits", 12))
+        self.vref = float(opts.get("vref", 3.3))
+        self.protocol = opts.get("protocol", "framed")
+        self.max_loss = float(opts.get("max_loss", 0.0) or 0.0)
+        self.calibration = config.calibration
+        self._port = port
+        self._identity: str | None = None
+        self._device_info: dict[str, str] = {}
+        self._fixture_on = False
+        self._closed = False
+        self._lock = threading.Lock()
+        # the one thread that touches the port
+        self._owner = ThreadPoolExecutor(max_workers=1, thread_name_prefix=f"serial-adc {port.path}")
+
+    # ------------------------------------------------------------------ life cycle
+    @classmethod
+    def open(cls, config, *, clock: Clock | None = None) -> SerialAdc:
+        clock = clock or SystemClock()
+        port = SerialPort.open(config, clock)
+        adc = cls(config, port, clock)
+        try:
+            adc._call(adc._identify)
+        except BaseException:
+            adc.close()
+            raise
+        return adc
+
+    def __enter__(self) -> SerialAdc:
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
+
+    def close(self) -> None:
+        with self._lock:
+            if self._closed:
+                return
+            self._closed = True
+        try:
+            if self._fixture_on and self._port.alive:
+                self._owner.submit(self._power_off_quietly).result(timeout=10)
+        finally:
+            self._owner.submit(self._port.close).result(timeout=10)
+            self._owner.shutdown(wait=True)
+
+    @property
+    def identity(self) -> str | None:
+        return self._identity
+
+    def _call(self, fn, *args, **kwargs):
+        if self._closed:
+            raise InstrumentError(self.name, f"adc on {self.address} is closed")
+        return self._owner.submit(fn, *args, **kwargs).result()
+
+    # ------------------------------------------------------------------ commands
+    def _identify(self) -> None:
+        port = self._port
+        timeout = float(self.config.options.get("identify_timeout", 2.0))
+        reply = port.identify(timeout)
+        ident, _, rest = reply[4:].partition(";")
+        info = dict(kv.split("=", 1) for kv in rest.split(";") if "=" in kv)
+        self._identity, self._device_info = ident.strip(), info
+        if info.get("proto") != "1":
+            raise InstrumentError(self.name, f"device on {self.address} speaks protocol "
+                                             f"{info.get('proto', '?')}; benchgate speaks version 1")
+        mode = info.get("mode", self.protocol)
+        if mode != self.protocol:
+            raise InstrumentError(self.name, f"device on {self.address} streams {mode!r} but the station "
+                                             f"says protocol {self.protocol!r}")
+        if "bits" in info and int(info["bits"]) != self.bits:
+            raise InstrumentError(self.name, f"device on {self.address} has {info['bits']} bits but the "
+                                             f"station says {self.bits}")
+        dev_channels = [c for c in info.get("channels", "").split(",") if c]
+        if dev_channels and len(dev_channels) < len(self.channels):
+            raise InstrumentError(self.name, f"device on {self.address} has {len(dev_channels)} channels, "
+                                             f"the station names {len(self.channels)}")
+
+    def fixture_power(self, on: bool) -> None:
+        word = "ON" if on else "OFF"
+        self._call(self._port.command, f"POWER {word}", f"OK POWER {word}")
+        self._fixture_on = bool(on)
+
+    def _power_off_quietly(self) -> None:
+        try:
+            self._port.command("POWER OFF", "OK POWER OFF")
+            self._fixture_on = False
+        except InstrumentError:
+            pass
+
+    # ------------------------------------------------------------------ capture
+    def capture(self, channel: str, *, duration: float, rate: float | None = None,
+                progress=None) -> Capture:
+        """Record ``duration`` s of ``channel`` in volts (calibration applied). See module doc."""
+        if channel not in self.channels:
+            raise InstrumentError(self.name, f"no channel {channel!r} on this ADC "
+                                             f"(channels: {', '.join(self.channels)})")
+        if not duration > 0:
+            raise InstrumentError(self.name, f"capture duration must be > 0 s, got {duration!r}")
+        return self._call(self._capture, channel, float(duration), rate, progress)
+
+    def _capture(self, channel: str, duration: float, rate: float | None, progress) -> Capture:
+        port = self._port
+        wanted = rate or self.config.options.get("rate")
+        reply = port.command(f"RATE {wanted:.6f}" if wanted else "RATE?", "OK RATE")
+        actual = float(reply.split()[2])
+        n = max(1, int(round(duration * actual)))
+        mask = 1 << self.channels.index(channel)
+        timestamps = bool(self.config.options.get("timestamps", False))
+        decoder = FrameDecoder(mask=mask) if self.protocol == "framed" else LinesDecoder(
+            self.bits, timestamps=timestamps)
+        state = _Progress(n)
+        t_start = self.clock.monotonic()
+        port.write_line(f"START {n} {mask}")
+        try:
+            self._receive(decoder, state, n, duration, progress)
+        except InstrumentDisconnected as exc:
+            elapsed = self.clock.monotonic() - t_start
+            partial = self._build(channel, state, actual, decoder, n, complete=False)
+            port.close()
+            raise InstrumentDisconnected(
+                self.name, f"adc on {self.address} disconnected after {elapsed:.1f} s of a "
+                           f"{duration:.1f} s capture ({exc.message})", partial=partial) from exc
+        except InstrumentError:
+            port.stop_stream()
+            raise
+        return self._build(channel, state, actual, decoder, n, complete=True)
+
+    def _receive(self, decoder, state: _Progress, n: int, duration: float, progress) -> None:
+        port, clock = self._port, self.clock
+        stall = max(float(self.config.timeout), 0.1)
+        start = clock.monotonic()
+        deadline = start + duration * (1 + 2 * RATE_TOLERANCE) + stall + 0.5
+        last_data = start
+        while True:
+            data = port.read_available()
+            now = clock.monotonic()
+            if data:
+                last_data = now
+                got = decoder.feed(data)
+                state.add(got, decoder, framed=self.protocol == "framed")
+                if state.index > state.last_point_index:
+                    state.points.append((now, state.index))
+                    state.last_point_index = state.index
+                if progress is not None:
+                    progress(min(1.0, state.index / n), f"{state.index} of {n} samples")
+            if decoder.next_index >= n or decoder.end_total is not None:
+                return
+            if now - last_data > stall:
+                if state.index and now - start >= duration:
+                    return  # the tail went missing: counted as lost below
+                raise InstrumentError(self.name, f"adc on {self.address} sent no data for {stall:g} s "
+                                                 f"({state.index} of {n} samples received)")
+            if now > deadline:
+                raise InstrumentError(self.name, f"adc on {self.address}: capture did not finish within "
+                                                 f"{deadline - start:.1f} s ({state.index} of {n} samples)")
+
+    def _build(self, channel, state: _Progress, actual: float, decoder, n: int, *,
+               complete: bool) -> Capture | None:
+        codes = state.codes()
+        if complete is False and codes.size == 0:
+            return None
+        if self.protocol == "framed":
+            periods = sorted(state.periods)
+            if len(periods) > 1 and complete:
+                raise InstrumentError(self.name, f"device on {self.address} changed its sample period "
+                                                 f"during the capture ({periods[0]} to {periods[-1]} ps)")
+            declared = 1e12 / periods[0] if periods else actual
+            gaps, lost = state.gaps, state.lost
+            rejected, garbage = state.rejected, state.garbage
+            end_total = state.end_total
+        else:
+            declared = decoder.timestamp_rate() or float(self.config.options.get("rate") or actual)
+            gaps, lost, rejected, garbage = list(decoder.gaps), decoder.lost, decoder.bad_lines, 0
+            end_total = decoder.end_total
+        received = int(codes.shape[0])
+        tail = max(0, n - received - lost) if complete else 0
+        if tail:
+            gaps = [*gaps, (received + lost, tail)]
+            lost += tail
+        measured = arrival_rate(state.points, declared)
+        span = state.points[-1][0] - state.points[0][0] if len(state.points) > 1 else 0.0
+        checkable = measured is not None and span >= MIN_CHECK_SPAN and len(state.points) >= MIN_CHECK_POINTS
+        warnings: list[str] = []
+        if checkable and complete and abs(measured / declared - 1) > RATE_TOLERANCE:
+            raise InstrumentError(self.name, f"adc on {self.address} declares {declared:.6g} Hz but samples "
+                                             f"arrived at {measured:.6g} Hz by the host clock "
+                                             f"({100 * (measured / declared - 1):+.1f} %, limit "
+                                             f"±{100 * RATE_TOLERANCE:.0f} %); capture refused")
+        fraction = lost / n
+        if complete and fraction > self.max_loss:
+            raise InstrumentError(self.name, f"adc on {self.address} lost {lost} of {n} samples "
+                                             f"({100 * fraction:.3g} %) in {len(gaps)} gap(s), more than "
+                                             f"max_loss {100 * self.max_loss:.3g} %; capture refused")
+        if lost:
+            warnings.append(f"{lost} samples lost in {len(gaps)} gap(s) were left out; the record is "
+                            f"joined at those points")
+        cal = self.calibration.for_channel(channel) if self.calibration else None
+        volts = codes[:, 0].astype(np.float64) * (self.vref / 2.0**self.bits)
+        if cal is not None:
+            volts = cal.gain * volts + cal.offset
+        meta = {
+            "source": "serial-adc",
+            "instrument": {"role": self.name, "kind": self.config.kind, "address": self.address,
+                           "identity": self._identity, "protocol": self.protocol},
+            "calibration": None if cal is None else cal.to_dict(),
+            "loss": {"lost_samples": int(lost), "requested_samples": int(n), "fraction": fraction,
+                     "gaps": [[int(a), int(b)] for a, b in gaps], "rejected_frames": int(rejected),
+                     "garbage_bytes": int(garbage), "max_loss": self.max_loss,
+                     "end_frame": end_total is not None},
+            "rate": {"declared": declared, "device_reply": actual, "host_measured": measured,
+                     "check": "ok" if checkable else "not checked (capture too short)"},
+            "warnings": warnings,
+        }
+        return Capture(samples=volts, sample_rate=declared, start_time=0.0, channel=channel,
+                       adc=AdcInfo(self.bits, self.vref), clock_ppm=self.config.options.get("clock_ppm"),
+                       metadata=meta)
+
+
+class _Progress:
+    """What has arrived so far in one capture."""
+
+    def __init__(self, n: int):
+        self.n = n
+        self.parts: list[np.ndarray] = []
+        self.count = 0
+        self.index = 0
+        self.points: list[tuple[float, int]] = []
+        self.last_point_index = 0
+        self.periods: set[int] = set()
+        self.gaps: list[tuple[int, int]] = []
+        self.lost = self.rejected = self.garbage = 0
+        self.end_total: int | None = None
+
+    def add(self, got, decoder, *, framed: bool) -> None:
+        if framed:
+            self.parts.append(got.samples)
+            self.count += got.samples.shape[0]
+            self.periods.update(got.periods_ps)
+            self.gaps.extend(got.gaps)
+            self.lost += got.lost
+            self.rejected += got.rejected
+            self.garbage += got.garbage_bytes
+            if got.end_total is not None:
+                self.end_total = got.end_total
+        else:
+            self.parts.append(got)
+            self.count += got.shape[0]
+        self.index = decoder.next_index
+
+    def codes(self) -> np.ndarray:
+        return np.concatenate(self.parts) if self.parts else np.empty((0, 1), dtype=np.uint16)
