@@ -104,12 +104,14 @@ def _socket_session(res: Any) -> Any:
 
 
 def _tune_socket_session(role: str, address: str, res: Any) -> None:
-    """Two fixes for pyvisa-py raw sockets; both do nothing with another backend.
+    """Three fixes for pyvisa-py raw sockets; they do nothing with another backend.
 
     pyvisa-py does not look at the outcome of its non-blocking connect, so a refused
-    connection only shows later as a timeout: check ``SO_ERROR`` now and say so. And it reads
-    4 KiB per recv(); let it take up to CHUNK_SIZE (a 4 MB waveform otherwise costs about a
-    thousand select/recv rounds).
+    connection only shows later as a timeout: check ``SO_ERROR`` now and say so. A command
+    and the ``SYST:ERR?`` right after it must not wait ~40 ms for a delayed ACK (Nagle): set
+    TCP_NODELAY on the socket (pyvisa-py 0.8's VI_ATTR_TCPIP_NODELAY setter is not wired up).
+    And it reads 4 KiB per recv(); let it take up to CHUNK_SIZE (a 4 MB waveform otherwise
+    costs about a thousand select/recv rounds).
     """
     backend_session = _socket_session(res)
     if backend_session is None:
@@ -119,6 +121,7 @@ def _tune_socket_session(role: str, address: str, res: Any) -> None:
         err = sock.getsockopt(socket.SOL_SOCKET, socket.SO_ERROR)
         if err:
             raise InstrumentError(role, f"cannot open {address}: {os.strerror(err)}")
+        sock.setsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY, 1)
     if isinstance(getattr(backend_session, "max_recv_size", None), int):
         backend_session.max_recv_size = max(backend_session.max_recv_size, CHUNK_SIZE)
 
