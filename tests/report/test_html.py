@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import importlib.util
 from html.parser import HTMLParser
 
 import pytest
@@ -12,6 +11,7 @@ from benchgate.judge.rules import Verdict
 from benchgate.report import plots, write_reports
 from benchgate.report.html import SAFETY, render_html
 from benchgate.report.layout import ReportLayout
+from benchgate.units.format import format_quantity
 
 
 class _Tags(HTMLParser):
@@ -108,14 +108,18 @@ def test_plots_are_present_and_drawn(written):
     assert "could not draw" not in html
 
 
-def test_plots_use_the_analysis_views_when_present():
-    views = plots._views()
-    if importlib.util.find_spec("benchgate.analysis.views") is not None:
-        import benchgate.analysis.views as real
+def test_figures_without_checks_take_fundamental_and_startup_from_the_analysis(capture):
+    from benchgate.analysis import analyze
 
-        assert views is real
-    else:
-        pytest.skip("benchgate.analysis.views not written yet; the report uses its stand-in")
+    figures, notes = plots.capture_figures(capture, [])
+    assert [f.kind for f in figures] == ["waveform", "envelope", "spectrum"]
+    spectrum = figures[2].svg
+    # the synthetic tone is 955 Hz (report_samples.F0): the f0 label names it
+    assert "f₀ 955.0 Hz" in spectrum
+    assert spectrum.count("<path d=") >= 2  # 2nd and 3rd harmonic markers at least
+    a = analyze(capture, ("startup_time",))
+    m = a.measurements["startup_time"]
+    assert m.valid and f"start-up {format_quantity(m.value, 's')}" in figures[1].svg
 
 
 def test_fail_and_reanalysis(tmp_path, capture):

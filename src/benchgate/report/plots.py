@@ -7,7 +7,6 @@ Plot data comes from ``benchgate.analysis.views`` (spectrum, envelope, cycles) a
 
 from __future__ import annotations
 
-import importlib.util
 import math
 from collections.abc import Iterable
 from dataclasses import dataclass
@@ -31,25 +30,7 @@ class Figure:
     svg: str
 
 
-def _have(module: str) -> bool:
-    return importlib.util.find_spec(module) is not None
-
-
-def _views():
-    if not _have("benchgate.analysis.views"):  # TEMPORARY until the analysis module lands
-        from benchgate.report import _fallback
-
-        return _fallback
-    from benchgate.analysis import views
-
-    return views
-
-
 def _analyse(capture: Capture):
-    if not _have("benchgate.analysis.core"):  # TEMPORARY until the analysis module lands
-        from benchgate.report._fallback import LiteAnalysis
-
-        return LiteAnalysis(capture, HARMONICS)
     from benchgate.analysis import analyze
 
     return analyze(capture, ("frequency", "startup_time"), harmonics=HARMONICS)
@@ -72,7 +53,8 @@ def capture_figures(capture: Capture, checks: Iterable[CheckRecord] = ()) -> tup
     by_name = {c.measurement: c for c in checks}
     notes: list[str] = []
     figures: list[Figure] = []
-    views = _views()
+    from benchgate.analysis import views
+
     try:
         analysis = _analyse(capture)
     except Exception as exc:  # the report must still be written: say what went wrong
@@ -98,11 +80,7 @@ def capture_figures(capture: Capture, checks: Iterable[CheckRecord] = ()) -> tup
             figures.append(Figure(kind, caption, svg.empty(caption, f"could not draw: {exc}")))
 
     def wave() -> str:
-        if fundamental:
-            t, v = views.cycles(capture, fundamental, n_cycles=CYCLES)
-        else:
-            part = capture.slice(max(0, capture.n - int(0.02 * capture.sample_rate)))
-            t, v = part.times(), part.samples
+        t, v = views.cycles(capture, fundamental, n_cycles=CYCLES)
         return svg.waveform(t, v, label=f"waveform, {label}")
 
     def env() -> str:
@@ -119,8 +97,8 @@ def capture_figures(capture: Capture, checks: Iterable[CheckRecord] = ()) -> tup
         return svg.spectrum(f, db, harmonics=harmonics, fundamental=fundamental, f_max=f_max,
                             label=f"spectrum, {label}")
 
-    n_text = f"{CYCLES} cycles" if fundamental else "last 20 ms (no fundamental found)"
-    draw("waveform", f"Waveform: {n_text} of the steady part", wave)
+    n_text = f"the last {CYCLES} cycles" if fundamental else "the end (no fundamental found)"
+    draw("waveform", f"Waveform: {n_text} of the record", wave)
     draw("envelope", "Envelope of the whole record (min/max), start-up instant marked", env)
     draw("spectrum", "Spectrum in dB relative to the fundamental (Blackman–Harris window), harmonics marked", spec)
     return figures, notes
