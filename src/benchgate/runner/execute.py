@@ -210,7 +210,7 @@ class Executor:
         instrument = self.bench[step.instrument]
         key = step.id if attempt == 1 else f"{step.id}-{attempt}"
         try:
-            capture = self._acquire(step, instrument)
+            capture = self._acquire(step, instrument, srec)
         except InstrumentDisconnected as exc:
             if exc.partial is not None and getattr(exc.partial, "n", 0) > 0:
                 self._keep(step, srec, key, exc.partial.with_metadata(partial=True), [])
@@ -230,38 +230,44 @@ class Executor:
         for check in step.checks:
             self._judge(step, srec, check, measurements.get(check.measurement))
 
-    def _acquire(self, step: Any, instrument: Any):
+    def _acquire(self, step: Any, instrument: Any, srec: StepRecord):
+        first: list[float] = []
+
         def progress(fraction: float, text: str = "") -> None:
-            started.set()
+            if not first:
+                first.append(self.clock.monotonic())
+                started.set()
             self.hooks.progress(fraction, f"capture {step.channel}", step.duration * (1 - fraction))
 
         started = threading.Event()
         kwargs = {"duration": step.duration, "rate": step.rate, "progress": progress}
         if not step.power_on:
             return instrument.capture(step.channel, **kwargs)
-        # Acquisition first, then the supply: the record must hold the start-up transient.
+        # Acquisition first, then the supply: the record must hold the start-up transient. The
+        # driver's first progress call means samples are arriving; only then is the supply
+        # switched on (never before, which could hide a slow start behind the record's start).
         result: dict[str, Any] = {}
-        start_hook = getattr(instrument, "on_acquisition_start", None)
 
         def work() -> None:
             try:
                 result["capture"] = instrument.capture(step.channel, **kwargs)
             except BaseException as exc:  # handed to the main thread below
                 result["error"] = exc
-            finally:
-                started.set()
 
-        if start_hook is not None:
-            start_hook(started.set)
         worker = threading.Thread(target=work, name=f"capture-{step.id}", daemon=True)
         worker.start()
-        started.wait(timeout=2.0)
-        if "error" not in result:
+        while not started.is_set() and worker.is_alive():
+            started.wait(timeout=0.02)
+        if started.is_set() and "error" not in result:
             self.bench["supply"].output(True)
+            lag = self.clock.monotonic() - first[0]
+            srec.notes.append(f"supply output switched on {lag * 1e3:.1f} ms after the first samples arrived")
         while worker.is_alive():
             worker.join(timeout=0.05)
         if "error" in result:
             raise result["error"]
+        if not started.is_set():
+            srec.notes.append("the recorder reported no progress; the supply was not switched on")
         return result["capture"]
 
     # ------------------------------------------------------------------ helpers
