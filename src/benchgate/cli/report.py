@@ -8,7 +8,6 @@ from __future__ import annotations
 
 import argparse
 import sys
-import tempfile
 from pathlib import Path
 
 
@@ -53,6 +52,8 @@ def _load_captures(record, folder: Path) -> tuple[dict, list[str]]:
 
 
 def run(args: argparse.Namespace) -> int:
+    import tempfile
+
     from benchgate.report import browser
     from benchgate.report.html import write_html
     from benchgate.report.json_report import read_json

@@ -154,6 +154,7 @@ def _step_view(step: StepRecord, captures: Mapping[str, Capture], folder: Path |
         "retried": step.attempts > 1, "answer": step.answer, "error": step.error,
         "notes": list(step.notes), "capture": cap, "figures": figures, "bars": bars,
         "plot_notes": notes, "reading_unit": unit,
+        "rate_text": _q(cap.sample_rate, "S/s") if cap is not None else "",
     }
 
 
