@@ -205,3 +205,9 @@ class TestCommandTemplates:
         with ScpiDmm.open(cfg) as dmm:
             dmm.session.check_errors("nothing")
         assert "SYSTem:ERRor:NEXT?" in bench.instruments["dmm"].received
+
+
+def test_unusable_visa_library_is_one_clear_error(bench):
+    with pytest.raises(InstrumentError) as info:
+        ScpiDmm.open(config_for(bench, "dmm", visa_library="@nonexistent"))
+    assert info.value.instrument == "dmm" and "@nonexistent" in info.value.message

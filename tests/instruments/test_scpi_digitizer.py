@@ -98,3 +98,16 @@ def test_steps_one_at_a_time(bench):
         dig.wait()
         samples = dig.fetch()
     np.testing.assert_array_equal(samples, expected_sine(1e5, 200))
+
+
+def test_late_block_drained_before_next_fetch(bench):
+    with ScpiDigitizer.open(config_for(bench, "digitizer", timeout=0.2)) as dig:
+        dig.setup("ch1", duration=0.01, rate=1e5)  # 1000 points
+        dig.arm()
+        dig.wait()
+        bench.faults.slow("digitizer", 0.6)
+        with pytest.raises(InstrumentError, match="no reply"):
+            dig.fetch()
+        samples = dig.fetch()  # the late block (binary, with 0x0A bytes) is discarded first
+    np.testing.assert_array_equal(samples, expected_sine(1e5, 1000))
+    assert dig.session.discarded_replies >= 1
