@@ -70,37 +70,71 @@ class PageCheck:
 class _WebSocket:
     """The client half of RFC 6455, enough for DevTools: text frames, ping/pong, close."""
 
-    _GUID = "258EAFA5-E914-47DA-95CA-C5AB0DC85B11"  # RFC 6455, 1.3
+    def __init__(self, sock: socket.socket, buffered: bytes = b""):
+        self.sock = sock
+        self._buf = buffered
 
-    def __init__(self, host: str, port: int, path: str, timeout: float):
-        self.sock = socket.create_connection((host, port), timeout=timeout)
+    @classmethod
+    def connect(cls, host: str, port: int, path: str, timeout: float) -> _WebSocket:
+        """Open a TCP connection and perform the opening handshake (RFC 6455, 4.1)."""
+        try:
+            sock = socket.create_connection((host, port), timeout=timeout)
+        except OSError as exc:
+            raise BrowserError(f"cannot connect to DevTools on port {port}: {exc}") from None
         key = base64.b64encode(os.urandom(16)).decode()
         request = (f"GET {path} HTTP/1.1\r\nHost: {host}:{port}\r\nUpgrade: websocket\r\n"
                    f"Connection: Upgrade\r\nSec-WebSocket-Key: {key}\r\nSec-WebSocket-Version: 13\r\n\r\n")
-        self.sock.sendall(request.encode())
-        head = b""
-        while b"\r\n\r\n" not in head:
-            chunk = self.sock.recv(4096)
-            if not chunk:
-                raise BrowserError("DevTools closed the connection during the WebSocket handshake")
-            head += chunk
-        head, self._buf = head.split(b"\r\n\r\n", 1)
+        try:
+            sock.sendall(request.encode())
+            head = b""
+            while b"\r\n\r\n" not in head:
+                chunk = sock.recv(4096)
+                if not chunk:
+                    raise BrowserError("DevTools closed the connection during the WebSocket handshake")
+                head += chunk
+        except OSError as exc:
+            sock.close()
+            raise BrowserError(f"WebSocket handshake with DevTools failed: {exc}") from None
+        head, rest = head.split(b"\r\n\r\n", 1)
         lines = head.decode("latin-1").split("\r\n")
-        if " 101 " not in lines[0] + " ":
-            raise BrowserError(f"DevTools refused the WebSocket upgrade: {lines[0]}")
         headers = {k.strip().lower(): v.strip() for k, _, v in (ln.partition(":") for ln in lines[1:])}
-        accept = base64.b64encode(hashlib.sha1((key + self._GUID).encode()).digest()).decode()
-        if headers.get("sec-websocket-accept") != accept:
-            raise BrowserError("DevTools answered the WebSocket handshake with a wrong accept key")
+        if " 101 " not in lines[0] + " " or headers.get("sec-websocket-accept") != accept_key(key):
+            sock.close()
+            raise BrowserError(f"DevTools refused the WebSocket upgrade: {lines[0]}")
+        return cls(sock, rest)
 
-    def _read(self, n: int) -> bytes:
+    def _fill(self, n: int) -> None:
+        """Buffer at least ``n`` bytes; a timeout leaves the buffer intact (nothing consumed)."""
         while len(self._buf) < n:
-            chunk = self.sock.recv(max(65536, n - len(self._buf)))
+            try:
+                chunk = self.sock.recv(max(65536, n - len(self._buf)))
+            except TimeoutError:
+                raise
+            except OSError as exc:
+                raise BrowserError(f"DevTools connection failed: {exc}") from None
             if not chunk:
                 raise BrowserError("DevTools connection closed")
             self._buf += chunk
-        out, self._buf = self._buf[:n], self._buf[n:]
-        return out
+
+    def _frame(self) -> tuple[int, bool, bytes]:
+        """Take one whole frame off the buffer: (opcode, fin, payload) (RFC 6455, 5.2)."""
+        self._fill(2)
+        b0, b1 = self._buf[0], self._buf[1]
+        n, at = b1 & 0x7F, 2
+        if n == 126:
+            self._fill(4)
+            n, at = struct.unpack("!H", self._buf[2:4])[0], 4
+        elif n == 127:
+            self._fill(10)
+            n, at = struct.unpack("!Q", self._buf[2:10])[0], 10
+        masked = bool(b1 & 0x80)
+        end = at + (4 if masked else 0) + n
+        self._fill(end)
+        payload = self._buf[end - n:end]
+        if masked:
+            payload = _mask(payload, self._buf[at:at + 4])
+        self._buf = self._buf[end:]
+        return b0 & 0x0F, bool(b0 & 0x80), payload
 
     def _send_frame(self, opcode: int, payload: bytes) -> None:
         head = bytes([0x80 | opcode])
@@ -122,18 +156,8 @@ class _WebSocket:
         """The next text message (control frames answered on the way)."""
         parts: list[bytes] = []
         while True:
-            b0, b1 = self._read(2)
-            opcode, fin = b0 & 0x0F, b0 & 0x80
-            n = b1 & 0x7F
-            if n == 126:
-                n = struct.unpack("!H", self._read(2))[0]
-            elif n == 127:
-                n = struct.unpack("!Q", self._read(8))[0]
-            mask = self._read(4) if b1 & 0x80 else None
-            payload = self._read(n)
-            if mask:
-                payload = _mask(payload, mask)
-            if opcode == 0x9:  # ping
+            opcode, fin, payload = self._frame()
+            if opcode == 0x9:  # ping -> pong with the same payload (RFC 6455, 5.5.2)
                 self._send_frame(0xA, payload)
                 continue
             if opcode == 0xA:
@@ -149,6 +173,12 @@ class _WebSocket:
             self._send_frame(0x8, struct.pack("!H", 1000))
         with contextlib.suppress(OSError):
             self.sock.close()
+
+
+def accept_key(key: str) -> str:
+    """The ``Sec-WebSocket-Accept`` value for a ``Sec-WebSocket-Key`` (RFC 6455, 1.3 and 4.2.2)."""
+    guid = "258EAFA5-E914-47DA-95CA-C5AB0DC85B11"
+    return base64.b64encode(hashlib.sha1((key + guid).encode()).digest()).decode()
 
 
 def _mask(payload: bytes, mask: bytes) -> bytes:
@@ -171,7 +201,7 @@ class _Page:
         self.ws.send(json.dumps({"id": ident, "method": method, "params": params}))
         deadline = time.monotonic() + self.timeout
         while time.monotonic() < deadline:
-            msg = json.loads(self.ws.recv())
+            msg = self._next_message(method)
             if msg.get("id") == ident:
                 if "error" in msg:
                     raise BrowserError(f"{method} failed: {msg['error'].get('message')}")
@@ -180,6 +210,12 @@ class _Page:
                 self.events.append(msg)
         raise BrowserError(f"{method}: no answer from Chromium within {self.timeout:g} s")
 
+    def _next_message(self, waiting_for: str) -> dict[str, Any]:
+        try:
+            return json.loads(self.ws.recv())
+        except TimeoutError:
+            raise BrowserError(f"{waiting_for}: no answer from Chromium within {self.timeout:g} s") from None
+
     def wait_for(self, method: str, seen: int = 0) -> dict[str, Any]:
         """Wait for event ``method`` (looking at events after index ``seen`` too)."""
         for ev in self.events[seen:]:
@@ -187,7 +223,7 @@ class _Page:
                 return ev
         deadline = time.monotonic() + self.timeout
         while time.monotonic() < deadline:
-            msg = json.loads(self.ws.recv())
+            msg = self._next_message(method)
             if "method" in msg:
                 self.events.append(msg)
                 if msg["method"] == method:
@@ -239,11 +275,11 @@ def _browser(timeout: float = 30.0, chromium: str | None = None) -> Iterator[_Pa
                 raise BrowserError(f"Chromium did not open its DevTools port within {timeout:g} s")
             time.sleep(0.05)
         port = int(port_file.read_text().splitlines()[0])
-        browser_ws = _WebSocket("127.0.0.1", port, port_file.read_text().splitlines()[1], timeout)
+        browser_ws = _WebSocket.connect("127.0.0.1", port, port_file.read_text().splitlines()[1], timeout)
         root = _Page(browser_ws, timeout)
         target = root.call("Target.createTarget", url="about:blank")["targetId"]
         browser_ws.close()
-        ws = _WebSocket("127.0.0.1", port, f"/devtools/page/{target}", timeout)
+        ws = _WebSocket.connect("127.0.0.1", port, f"/devtools/page/{target}", timeout)
         yield _Page(ws, timeout)
     finally:
         if ws is not None:
