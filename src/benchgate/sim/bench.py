@@ -1,0 +1,196 @@
+"""The virtual bench: a simulated unit on a real pseudo-terminal and loopback SCPI ports.
+
+:class:`VirtualBench` draws a unit of the chosen board, wires it to the virtual ADC (served by
+:class:`~benchgate.sim.serial_device.PtyAdcDevice` on ``/dev/pts/N``) and to the emulated supply,
+DMM, counter and digitizer (:class:`~benchgate.sim.scpi_server.ScpiBench` on 127.0.0.1), all on
+one :class:`~benchgate.clock.ScaledClock`, and writes a station file that points at itself.
+The runner must use :attr:`VirtualBench.clock` so its waits and the simulation agree.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import json
+import shutil
+import tempfile
+from pathlib import Path
+
+from benchgate.clock import ScaledClock
+from benchgate.sim.adc import VirtualAdc
+from benchgate.sim.backend import BenchState, BoardBackend
+from benchgate.sim.boards import Unit, draw_unit, get_board
+
+ADC_IDENTITY = "Owl Hollow Kits,OH-ADC2,VB-0001,1.0"
+
+
+class BenchFaults:
+    """Fault injection on both servers: ``.adc`` (serial device faults: garbage, dropped and
+    corrupted frames, disconnect, slow identify …) and ``.scpi`` (slow, missing or garbled
+    replies); :meth:`inject_error` queues a SCPI error on one instrument."""
+
+    def __init__(self, bench: VirtualBench):
+        from benchgate.sim.scpi_server import ScpiFaults
+        from benchgate.sim.serial_device import DeviceFaults
+
+        self._bench = bench
+        self.adc = DeviceFaults()
+        self.scpi = ScpiFaults()
+
+    def inject_error(self, role: str, code: int, text: str) -> None:
+        self._bench.server.inject_error(role, code, text)
+
+    def disconnect_adc(self) -> None:
+        """Pull the ADC's cable now."""
+        self._bench.device.disconnect()
+
+
+def _q(text: str) -> str:
+    return json.dumps(str(text))  # a JSON string is a valid YAML scalar
+
+
+class VirtualBench:
+    """A whole simulated bench. Use as a context manager (or call :meth:`close`).
+
+    Parameters
+    ----------
+    board : {"tb3", "wo1", "pf2"}
+    speed : float
+        Virtual seconds per wall-clock second (``ScaledClock(speed)``).
+    protocol : {"framed", "lines"}
+        What the serial ADC speaks.
+    workdir : path, optional
+        Where the station file goes (a temporary folder, removed on close, when not given).
+    serial, defect : str, optional
+        The first unit loaded (see :meth:`load_unit`).
+    """
+
+    def __init__(self, board: str = "tb3", *, speed: float = 1.0, protocol: str = "framed",
+                 workdir: str | Path | None = None, serial: str = "SIM-0001", defect: str | None = None):
+        from benchgate.sim.scpi_server import ScpiBench
+        from benchgate.sim.serial_device import PtyAdcDevice
+
+        if protocol not in ("framed", "lines"):
+            raise ValueError(f"protocol must be 'framed' or 'lines', got {protocol!r}")
+        self.board = get_board(board)
+        self.clock = ScaledClock(speed)
+        self.protocol = protocol
+        self.state = BenchState(self._draw(serial, defect), self.clock)
+        self.adc = VirtualAdc(self.state)
+        self.backend = BoardBackend(self.state)
+        self.faults = BenchFaults(self)
+        self._tmp = None
+        if workdir is None:
+            self._tmp = tempfile.mkdtemp(prefix="benchgate-vbench-")
+            workdir = self._tmp
+        self.workdir = Path(workdir)
+        self.workdir.mkdir(parents=True, exist_ok=True)
+        self.device = PtyAdcDevice(self.adc, protocol=protocol, clock=self.clock,
+                                   faults=self.faults.adc, identity=ADC_IDENTITY)
+        self.server = ScpiBench(self.backend, clock=self.clock, faults=self.faults.scpi)
+        self._closed = False
+        try:
+            self.device.start()
+            self.server.start()
+            self.station_path = self.write_station(self.workdir / "virtual-bench.yaml")
+        except BaseException:
+            self.close()
+            raise
+
+    # -- units ------------------------------------------------------------------------------
+    def _draw(self, serial: str, defect: str | None) -> Unit:
+        unit = draw_unit(self.board, serial, defect)
+        unit.node([0.5])  # integrate the start-up now, not inside the first capture
+        return unit
+
+    def load_unit(self, serial: str, defect: str | None = None) -> Unit:
+        """Put another unit on the fixture (parts drawn from its serial number); it is powered
+        from this instant only if the supply output or the fixture relay is on."""
+        unit = self._draw(serial, defect)
+        self.state.load_unit(unit)
+        return unit
+
+    @property
+    def unit(self) -> Unit:
+        return self.state.unit
+
+    # -- ports ------------------------------------------------------------------------------
+    @property
+    def serial_port(self) -> str:
+        return self.device.port
+
+    @property
+    def resources(self) -> dict[str, str]:
+        return dict(self.server.resources)
+
+    @property
+    def supply_output(self) -> bool:
+        return bool(self.server.supply_output)
+
+    def station_text(self) -> str:
+        today = dt.date.today()
+        due = today + dt.timedelta(days=365)
+        cal = f"date: {today.isoformat()}, due: {due.isoformat()}"
+        res = self.resources
+        lines = [
+            "# A virtual bench (benchgate sim): the serial ADC on a pseudo-terminal and the SCPI",
+            "# instruments on loopback ports of this machine. Valid while that process runs.",
+            "station: virtual-bench",
+            f"description: {_q(f'virtual bench with a simulated {self.board.name}')}",
+            "instruments:",
+            "  adc:",
+            "    kind: serial-adc",
+            f"    port: {_q(self.serial_port)}",
+            "    baudrate: 115200",
+            f"    protocol: {self.protocol}",
+            "    channels: [out, rail]",
+            "    bits: 12",
+            "    vref: 3.3 V",
+            "    clock_ppm: 50",
+            "    dtr_low: true",
+            "    identify_timeout: 2 s",
+            "    timeout: 1 s",
+            "    max_loss: 0.001",
+            "    calibration:",
+            f"      out: {{gain: 1.0, offset: 0 mV, {cal}}}",
+            f"      rail: {{gain: 4.0, offset: 0 mV, {cal}}}",
+        ]
+        extra = {
+            "supply": ["    accuracy: {gain: 0.05 %, offset: 2 mV}"],
+            "dmm": ["    accuracy: {gain: 0.02 %, offset: 0.5 mV}"],
+            "counter": ["    accuracy: {gain: 0.0002 %, offset: 0.01}"],
+            "digitizer": ["    channels: [out]", "    rate: 200 kHz", "    range: 5 V", "    clock_ppm: 20"],
+        }
+        for role in ("supply", "dmm", "counter", "digitizer"):
+            lines += [f"  {role}:", f"    kind: scpi-{role}", f"    resource: {_q(res[role])}",
+                      "    timeout: 2 s", "    reset: true", *extra[role], f"    calibration: {{{cal}}}"]
+        return "\n".join(lines) + "\n"
+
+    def write_station(self, path: str | Path) -> Path:
+        path = Path(path)
+        path.parent.mkdir(parents=True, exist_ok=True)
+        path.write_text(self.station_text(), encoding="utf-8")
+        return path
+
+    # -- life cycle -------------------------------------------------------------------------
+    def close(self) -> None:
+        if getattr(self, "_closed", True):
+            return
+        self._closed = True
+        try:
+            self.state.set_supply(0.0, self.state.current_limit, False)
+            self.state.set_relay(False)
+        finally:
+            try:
+                self.server.stop()
+            finally:
+                try:
+                    self.device.stop()
+                finally:
+                    if self._tmp is not None:
+                        shutil.rmtree(self._tmp, ignore_errors=True)
+
+    def __enter__(self) -> VirtualBench:
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
