@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from benchgate.instruments.scpi import ScpiInstrument
+from benchgate.instruments.scpi_instrument import ScpiInstrument
 
 
 class ScpiCounter(ScpiInstrument):

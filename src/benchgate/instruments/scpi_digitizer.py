@@ -16,7 +16,8 @@ import numpy as np
 
 from benchgate.analysis.capture import Capture
 from benchgate.errors import InstrumentError
-from benchgate.instruments.scpi import ScpiInstrument, station_error
+from benchgate.instruments.scpi import station_error
+from benchgate.instruments.scpi_instrument import ScpiInstrument
 
 
 class ScpiDigitizer(ScpiInstrument):

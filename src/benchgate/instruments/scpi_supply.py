@@ -7,7 +7,7 @@ first and checks that it is off.
 from __future__ import annotations
 
 from benchgate.errors import InstrumentError
-from benchgate.instruments.scpi import ScpiInstrument
+from benchgate.instruments.scpi_instrument import ScpiInstrument
 
 
 class ScpiSupply(ScpiInstrument):
