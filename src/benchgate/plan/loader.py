@@ -95,7 +95,7 @@ def build_plan(root: YNode, file: str) -> Plan:
                 if got is not None:
                     steps.append(got[0])
                     positions.append(got[1])
-            validate_steps(c, steps, positions, requires)
+            validate_steps(c, steps, positions, requires, complete=len(steps) == len(steps_node.value))
     if c.errors:
         raise PlanErrors(c.errors)
     return Plan(id=plan_id, version=version, product=product, description=description.strip(),
@@ -177,10 +177,10 @@ def _step(c: Collector, node: YNode, path: str,
     required = [k for k, f in fields.items() if f.metadata["required"]]
     if kind == "capture":
         required = [k for k in required if k != "duration"]
+    n_err = len(c.errors)
     m = c.mapping(node, path, [*fields, *extra], required=required)
     if m is None:
         return None
-    n_err = len(c.errors)
     sid = m.get("id").value if m.get("id") is not None and isinstance(m["id"].value, str) else path
     values: dict[str, Any] = {}
     for key, f in fields.items():

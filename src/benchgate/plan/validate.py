@@ -39,7 +39,10 @@ def _frequency_window(step: Step):
     return None
 
 
-def validate_steps(c: Collector, steps: list[Step], positions: list[Pos], requires: set[str]) -> None:
+def validate_steps(c: Collector, steps: list[Step], positions: list[Pos], requires: set[str],
+                   complete: bool = True) -> None:
+    """Cross-step checks; ``complete`` is False when some steps had errors of their own (then
+    the supply sequence is not judged, to avoid errors that only follow from those)."""
     seen: dict[str, tuple[int, int]] = {}
     plan_freq = [ch for s in steps for ch in s.checks if ch.measurement == "frequency"]
     supply_on: bool | None = False  # outputs start off: the runner switches them off first
@@ -62,7 +65,7 @@ def validate_steps(c: Collector, steps: list[Step], positions: list[Pos], requir
             if step.output is not None:
                 supply_on = step.output
         if isinstance(step, CaptureStep):
-            if step.power_on:
+            if step.power_on and complete:
                 if "supply" not in requires:
                     c.error(pos.get("power_on", pos[""]),
                             f"step {step.id!r}: power_on switches the supply on; add supply to requires")
@@ -120,10 +123,10 @@ def _capture_timing(c: Collector, step: CaptureStep, pos: Pos, plan_freq) -> Non
         need = 2 * step.harmonics * f_high
         if step.rate <= need:
             c.error(pos.get("rate", where),
-                    f"step {step.id!r}: rate {format_quantity(step.rate, 'Hz')} is too low for "
+                    f"step {step.id!r}: rate {format_quantity(step.rate, 'S/s')} is too low for "
                     f"{harmonic[0]} with {step.harmonics} harmonics up to {format_quantity(f_high, 'Hz')}: "
                     f"needs more than {format_quantity(need, 'Hz')} (or fewer harmonics)")
     elif step.rate <= 2 * f_high:
         c.error(pos.get("rate", where),
-                f"step {step.id!r}: rate {format_quantity(step.rate, 'Hz')} is below twice the "
+                f"step {step.id!r}: rate {format_quantity(step.rate, 'S/s')} is below twice the "
                 f"highest frequency the window allows ({format_quantity(f_high, 'Hz')})")
