@@ -236,3 +236,19 @@ def test_supply_output_property_reads_emulation(bench):
     assert bench.supply_output is False
     supply.output = True
     assert bench.supply_output is True
+
+
+def test_backend_failure_is_queued_not_fatal():
+    class Broken(ConstantBackend):
+        def counter_frequency(self) -> float:
+            raise RuntimeError("model diverged")
+
+    with ScpiBench(Broken()) as b:
+        c = Client(b.ports["counter"])
+        try:
+            c.send("MEAS:FREQ?")
+            # SCPI-99: -300 "Device-specific error" (from memory); the connection stays usable
+            assert c.query("SYST:ERR?").startswith('-300,"Device-specific error; RuntimeError')
+            assert c.query("*IDN?") == b.instruments["counter"].identity
+        finally:
+            c.close()

@@ -219,6 +219,9 @@ class EmulatedInstrument:
                 except ScpiCommandError as exc:
                     self.push_error(exc.code, exc.text)
                     continue
+                except Exception as exc:  # a backend fault shows in the queue, not as a dead port
+                    self.push_error(-300, f"Device-specific error; {type(exc).__name__}: {exc}")
+                    continue
                 if out is not None:
                     replies.append(out)
         if not replies:
