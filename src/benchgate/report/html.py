@@ -16,7 +16,7 @@ from pathlib import Path
 from typing import Any
 
 from benchgate.analysis.capture import Capture
-from benchgate.analysis.names import MEASUREMENT_TITLES, READING_UNITS
+from benchgate.analysis.names import MEASUREMENT_TITLES
 from benchgate.record import CheckRecord, StepRecord, UnitRecord
 from benchgate.report import plots
 from benchgate.report.svg import esc
@@ -84,7 +84,7 @@ def _check_row(c: CheckRecord, step: StepRecord) -> dict[str, Any]:
     if r is None:
         value, u = "not measured", "—"
     elif not r.valid:
-        value, u = f"not valid: {r.reason}", "—"
+        value, u = "not valid", "—"  # the reason column says why
     else:
         value = _q(r.value, r.unit)
         # GUM (JCGM 100:2008) 7.2.6: an uncertainty is stated with at most two significant digits
@@ -146,14 +146,13 @@ def _step_view(step: StepRecord, captures: Mapping[str, Capture], folder: Path |
             figures, more = plots.capture_figures(capture, step.checks)
             notes.extend(more)
     bars = [plots.check_figure(c) for c in step.checks]
-    unit = READING_UNITS.get(step.checks[0].measurement) if step.kind == "reading" and step.checks else None
     return {
         "id": step.id, "kind": step.kind, "title": step.title or step.id, "status": step.status,
         "started": step.started or "—", "ended": step.ended or "—",
         "duration": _duration(step.started, step.ended), "attempts": step.attempts,
         "retried": step.attempts > 1, "answer": step.answer, "error": step.error,
         "notes": list(step.notes), "capture": cap, "figures": figures, "bars": bars,
-        "plot_notes": notes, "reading_unit": unit,
+        "plot_notes": notes,
         "rate_text": _q(cap.sample_rate, "S/s") if cap is not None else "",
     }
 

@@ -46,8 +46,9 @@ def _valid_value(check: CheckRecord | None) -> float | None:
 def capture_figures(capture: Capture, checks: Iterable[CheckRecord] = ()) -> tuple[list[Figure], list[str]]:
     """Waveform, envelope and spectrum of one capture, plus notes on anything left out.
 
-    The start-up instant comes from the step's ``startup_time`` check when it has a valid one,
-    else from the analysis; the fundamental likewise from a ``frequency`` check.
+    The start-up instant comes from the step's ``startup_time`` check when it has a valid one
+    (the value that was judged), else from the analysis; the fundamental from the analysis of
+    the drawn record, else from a valid ``frequency`` check.
     """
     checks = list(checks)
     by_name = {c.measurement: c for c in checks}
@@ -62,9 +63,10 @@ def capture_figures(capture: Capture, checks: Iterable[CheckRecord] = ()) -> tup
         notes.append(f"analysis for the plots failed: {exc}")
     else:
         notes.extend(analysis.warnings)
-    fundamental = _valid_value(by_name.get("frequency"))
-    if fundamental is None and analysis is not None and analysis.fundamental:
-        fundamental = float(analysis.fundamental)
+    # the plotted record's own fundamental first, so the marks sit on the drawn peaks
+    fundamental = float(analysis.fundamental) if analysis is not None and analysis.fundamental else None
+    if fundamental is None:
+        fundamental = _valid_value(by_name.get("frequency"))
     steady = float(analysis.steady_start) if analysis is not None else 0.0
     startup = _valid_value(by_name.get("startup_time"))
     if startup is None and analysis is not None:
