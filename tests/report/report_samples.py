@@ -6,14 +6,13 @@ noise, on the 1.65 V mid-rail of a 12-bit 3.3 V converter — the TB-3 tone boar
 
 from __future__ import annotations
 
-import hashlib
-import json
 from pathlib import Path
 
 import numpy as np
 
 from benchgate.analysis.capture import AdcInfo, Capture
 from benchgate.analysis.measurement import Measurement
+from benchgate.capfile import save_capture
 from benchgate.judge.rules import combine, judge
 from benchgate.plan.limits import Window
 from benchgate.record import CaptureRecord, CheckRecord, InstrumentRecord, StepRecord, UnitRecord
@@ -38,14 +37,8 @@ def tone_capture(seconds: float = 0.25, f0: float = F0, amplitude: float = 1.0, 
 
 
 def save_npz(capture: Capture, path: Path) -> str:
-    """Write the agreed capture format (interfaces.md: samples, sample_rate, JSON meta); SHA-256."""
-    meta = {"start_time": capture.start_time, "channel": capture.channel,
-            "adc": capture.adc.to_dict() if capture.adc else None, "clock_ppm": capture.clock_ppm,
-            "metadata": dict(capture.metadata)}
-    with open(path, "wb") as f:
-        np.savez(f, samples=capture.samples, sample_rate=np.float64(capture.sample_rate),
-                 meta=np.array(json.dumps(meta)))
-    return hashlib.sha256(path.read_bytes()).hexdigest()
+    """Save as the runner does (``benchgate.capfile.save_capture``); returns the file's SHA-256."""
+    return save_capture(capture, path)
 
 
 def _check(step: str, m: Measurement, window: Window, rule: str = "simple") -> CheckRecord:

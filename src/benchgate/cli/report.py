@@ -28,12 +28,7 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
 
 
 def _load_captures(record, folder: Path) -> tuple[dict, list[str]]:
-    import importlib.util
-
-    if importlib.util.find_spec("benchgate.capfile") is not None:
-        from benchgate.capfile import load_capture
-    else:  # TEMPORARY until benchgate.capfile lands
-        from benchgate.report._fallback import load_capture
+    from benchgate.capfile import load_capture
     from benchgate.errors import CaptureError
 
     captures, problems = {}, []
