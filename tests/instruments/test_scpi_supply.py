@@ -104,3 +104,12 @@ def test_overload_reading_is_invalid(bench):
         bench.backend.voltage = 9.9e37  # SCPI-99 overload value (from memory)
         m = supply.measure_voltage()
     assert m.valid is False and "overload" in m.reason
+
+
+def test_close_after_the_supply_went_away_says_so(bench):
+    supply = ScpiSupply.open(config_for(bench, "supply"))
+    bench.stop()
+    with pytest.raises(InstrumentError) as info:
+        supply.close()
+    assert "could not switch the output off" in info.value.message
+    assert supply.session._closed

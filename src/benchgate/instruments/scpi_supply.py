@@ -48,9 +48,14 @@ class ScpiSupply(ScpiInstrument):
     def safe_state(self) -> None:
         """Output off, then confirm it is off (the queue is drained, its entries ignored)."""
         command = self.session.command("output", state=False)
-        self.session.write(command, check=False)
-        if self.output_state():
-            raise InstrumentError(self.name, f"output still ON after {command!r}")
+        try:
+            self.session.write(command, check=False)
+            still_on = self.output_state()
+        except InstrumentError as exc:
+            raise InstrumentError(self.name, f"could not switch the output off and confirm it "
+                                             f"({exc.message}); check the supply by hand") from exc
+        if still_on:
+            raise InstrumentError(self.name, f"output still ON after {command!r}; check the supply by hand")
         try:
             self.session.read_errors()
         except InstrumentError:
