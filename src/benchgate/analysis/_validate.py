@@ -58,6 +58,14 @@ def is_pulse_like(x: np.ndarray, low: float, high: float) -> bool:
     return bool(np.mean(near) >= 0.8)
 
 
+def _run_fraction(mask: np.ndarray) -> float:
+    """Fraction of samples inside runs of at least 3 consecutive True values."""
+    if mask.size < 3:
+        return 0.0
+    inner = mask[:-2] & mask[1:-1] & mask[2:]
+    return float(np.count_nonzero(inner)) / mask.size
+
+
 def check_capture(capture: Capture) -> Checked:
     """Check a capture's samples: count, finiteness, flat line, clipping or flat tops."""
     x = capture.samples
@@ -92,11 +100,9 @@ def check_capture(capture: Capture) -> Checked:
                 clipped = f"clipped at the ADC {where} rail ({at_low + at_high} samples)"
     elif not pulse:
         tol = 1e-9 * span
-        top = int(np.count_nonzero(x >= hi - tol))
-        bottom = int(np.count_nonzero(x <= lo + tol))
-        frac = max(top, bottom) / x.size
-        if frac >= 0.04 and max(top, bottom) >= 3:
-            clipped = f"flat tops: {100 * frac:.1f} % of samples sit at one extreme (clipping?)"
+        frac = max(_run_fraction(x >= hi - tol), _run_fraction(x <= lo + tol))
+        if frac >= 0.03:
+            clipped = f"flat tops: {100 * frac:.1f} % of samples sit in runs at one extreme (clipping?)"
     if clipped:
         warnings.append(clipped)
     return Checked(None, tuple(warnings), clipped, pulse, low, high)

@@ -141,9 +141,22 @@ class Context:
 
     @cached_property
     def spectrum(self) -> spectrum.Spectrum:
+        """Blackman–Harris spectrum of the steady part."""
         if self.start == 0 and self.capture.n > 65536:
             return self._full_spectrum
         return spectrum.power_spectrum(self.y, self.capture.sample_rate, "blackmanharris")
+
+    @cached_property
+    def residual_spectrum(self) -> spectrum.Spectrum | None:
+        """Blackman–Harris spectrum of the steady part with the fitted fundamental removed.
+
+        Removing the fundamental in the time domain keeps its window leakage out of the
+        noise and harmonic bins, so SINAD can be measured down to double-precision limits.
+        """
+        fit = self.tone.fit
+        if fit is None or fit.residual is None:
+            return None
+        return spectrum.power_spectrum(fit.residual, self.capture.sample_rate, "blackmanharris")
 
     def memo(self, key: str, compute):
         """Compute a shared intermediate result once (measurement modules keep theirs here)."""

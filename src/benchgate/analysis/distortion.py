@@ -1,8 +1,10 @@
 """Distortion and noise of the steady part: THD, THD+N, SINAD, SNR, SFDR and ENOB.
 
-All from one Blackman–Harris windowed spectrum of the steady part, with the fundamental at
-the fitted frequency. Tone powers are summed over each main lobe (±5 bins); noise is the
-mean power of the remaining bins, extrapolated over the whole band (DC excluded).
+The fundamental's power is its main-lobe power in the Blackman–Harris windowed spectrum of
+the steady part; the harmonics, spurs and noise come from the same windowed spectrum of the
+four-parameter fit residual (the fundamental removed in the time domain, so its window leakage does not
+masquerade as noise). Harmonic powers are summed over each main lobe (±5 bins); noise is
+the mean power of the remaining bins, extrapolated over the whole band (DC excluded).
 """
 
 from __future__ import annotations
@@ -50,7 +52,9 @@ def _compute(ctx: Context) -> Harmonics:
         return Harmonics(tone.reason)
     if ctx.checked.clipped:
         return Harmonics(ctx.checked.clipped)
-    spec = ctx.spectrum
+    spec = ctx.residual_spectrum
+    if spec is None:
+        return Harmonics("no sine fit residual")
     hw = spec.half_width + 1
     df = spec.bin_width
     if tone.frequency / df < 2 * hw + 2:
@@ -58,8 +62,7 @@ def _compute(ctx: Context) -> Harmonics:
     nb = spec.power.size
     used = np.zeros(nb, dtype=bool)
     used[: hw + 1] = True  # DC
-    p1_raw, sl1 = _spectrum.band_power(spec, tone.frequency, hw)
-    used[sl1] = True
+    p1_raw, _ = _spectrum.band_power(ctx.spectrum, tone.frequency, hw)
     orders, freqs, powers, slices = [], [], [], []
     for k in range(2, ctx.harmonics + 1):
         fk = k * tone.frequency
@@ -86,7 +89,7 @@ def _compute(ctx: Context) -> Harmonics:
     k_spur = int(np.argmax(rest))
     spur = max([float(np.sum(rest[max(0, k_spur - hw):k_spur + hw + 1]))] + powers)
     return Harmonics(None, p1, tuple(orders), tuple(freqs), tuple(powers), harm, max(noise, p1 * 1e-30),
-                     n_free, math.sqrt(spur / p1_raw) if p1_raw > 0 else math.nan, band_noise,
+                     n_free, math.sqrt(spur / p1) if p1 > 0 else math.nan, band_noise,
                      _spectrum.window_enbw(spec.window))
 
 

@@ -9,7 +9,7 @@ repeated large least-squares problems.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -31,6 +31,7 @@ class SineFit:
     n: int
     iterations: int
     converged: bool
+    residual: np.ndarray | None = field(default=None, repr=False, compare=False)
 
     @property
     def amplitude(self) -> float:
@@ -44,7 +45,7 @@ class SineFit:
     def phase(self) -> float:
         """Phase φ (rad) of A·cos(ω n + φ) with n = 0 at the first sample."""
         centre = (self.n - 1) / 2.0
-        return float(math.atan2(-self.b, self.a) - self.omega * centre)
+        return float(math.remainder(math.atan2(-self.b, self.a) - self.omega * centre, 2.0 * math.pi))
 
     @property
     def snr(self) -> float:
@@ -145,6 +146,14 @@ def _solve3(y: np.ndarray, w: Workspace) -> tuple[float, float, float, float]:
     return float(p[0]), float(p[1]), float(p[2]), dot(resid, resid)
 
 
+def _residual(y: np.ndarray, w: Workspace, a: float, b: float, c: float) -> np.ndarray:
+    resid = np.multiply(w.c, -a)
+    resid += y
+    resid -= b * w.s
+    resid -= c
+    return resid
+
+
 def _lstsq_small(g: np.ndarray, r: np.ndarray) -> np.ndarray:
     try:
         return np.linalg.solve(g, r)
@@ -219,16 +228,16 @@ def fit4(y: np.ndarray, omega0: float, *, max_iter: int = 12) -> SineFit:
             var_dw = math.inf
         if dw * dw <= 1e-4 * max(var_dw, 0.0) or abs(dw) < 1e-15 * omega:
             # the step is far below its own noise: keep this solution (and its residual)
-            converged = True
             omega = min(max(omega + dw, 1e-12), math.pi - 1e-12)
-            return SineFit(omega=omega, a=a, b=b, offset=c, residual_var=rss_lin / max(n - 4, 1),
-                           n=n, iterations=it, converged=True)
+            resid = _residual(y, w, a, b, c)
+            return SineFit(omega=omega, a=a, b=b, offset=c, residual_var=dot(resid, resid) / max(n - 4, 1),
+                           n=n, iterations=it, converged=True, residual=resid)
         dw = float(np.clip(dw, -max_step, max_step))
         omega = min(max(omega + dw, 1e-12), math.pi - 1e-12)
         w.set(omega)
     a, b, c, rss = _solve3(y, w)
     return SineFit(omega=omega, a=a, b=b, offset=c, residual_var=max(rss, 0.0) / max(n - 4, 1),
-                   n=n, iterations=it, converged=converged)
+                   n=n, iterations=it, converged=converged, residual=w.tmp.copy())
 
 
 def best_start(y: np.ndarray, omega0: float, *, span_bins: float = 1.0, points: int = 21) -> float:

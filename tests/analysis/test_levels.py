@@ -1,0 +1,93 @@
+"""Amplitude (against the Cramér–Rao bound), peak-to-peak, AC rms and DC offset."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+from _analysis_signals import quantise, tone
+from numpy.testing import assert_allclose
+
+from benchgate.analysis import AdcInfo, Capture
+from benchgate.analysis.levels import amplitude, dc_offset, rms, vpp
+
+
+class TestAmplitude:
+    @pytest.mark.parametrize("n, cycles, snr_db", [(64, 5.0, 20), (500, 37.3, 10), (2000, 200.7, 40)])
+    def test_reaches_crlb_and_covers(self, n, cycles, snr_db):
+        rng = np.random.default_rng(n)
+        err, inside = [], []
+        for _ in range(200):
+            cap, _, sigma = tone(n, cycles * (1 + rng.uniform(-0.02, 0.02)), snr_db=snr_db, rng=rng,
+                                 phase=rng.uniform(0, 6.3))
+            m = amplitude(cap)
+            err.append(m.value - 1.0)
+            inside.append(abs(m.value - 1.0) <= m.uncertainty)
+        # Rife & Boorstyn (1974): var(Â) ≥ 2σ²/N
+        ratio = math.sqrt(np.mean(np.square(err))) / math.sqrt(2 * sigma ** 2 / n)
+        assert 0.85 < ratio < 1.2
+        # JCGM 100:2008, k = 2 ≈ 95 %
+        assert 0.90 <= np.mean(inside) <= 0.99
+
+    def test_resolution_in_budget(self):
+        # GUM F.2.2.1: resolution Q gives u = Q/√12
+        adc = AdcInfo(8, 2.0)
+        cap, _, _ = tone(4000, 100.3, amplitude=0.7, offset=1.0)
+        capq = Capture(quantise(cap.samples, adc), cap.sample_rate, adc=adc)
+        m = amplitude(capq)
+        assert m.uncertainty >= 2 * adc.lsb / math.sqrt(12)
+        assert abs(m.value - 0.7) < m.uncertainty
+
+    def test_clipped_is_invalid(self):
+        adc = AdcInfo(12, 3.3)
+        cap, _, _ = tone(5000, 50.3, amplitude=2.0, offset=1.65)
+        capq = Capture(quantise(cap.samples, adc), cap.sample_rate, adc=adc)
+        m = amplitude(capq)
+        assert not m.valid and "clipped" in m.reason
+
+
+class TestVpp:
+    def test_sine(self):
+        cap, _, _ = tone(10_000, 100.0, amplitude=1.2, offset=0.5)
+        m = vpp(cap)
+        # a sampled sine's per-cycle peaks fall short of 2A by at most A(1−cos(π/P)) (derived)
+        assert_allclose(m.value, 2.4, rtol=1e-3)
+
+    def test_square(self):
+        x = np.tile(np.r_[np.zeros(10), np.full(10, 3.0)], 50)
+        m = vpp(Capture(x, 1000.0))
+        assert_allclose(m.value, 3.0, rtol=1e-12)
+
+
+class TestRms:
+    def test_sine_rms(self):
+        # handbook: rms of a sine = A/√2, DC removed
+        cap, _, _ = tone(10_000, 100.37, amplitude=1.0, offset=2.0)
+        m = rms(cap)
+        assert_allclose(m.value, 1 / math.sqrt(2), rtol=1e-4)
+
+    def test_covers_noisy(self):
+        rng = np.random.default_rng(2)
+        inside = []
+        for _ in range(100):
+            cap, _, sigma = tone(2000, 50.3, snr_db=20, rng=rng, phase=rng.uniform(0, 6.3))
+            truth = math.sqrt(0.5 + sigma ** 2)
+            m = rms(cap)
+            inside.append(abs(m.value - truth) <= m.uncertainty)
+        assert 0.88 <= np.mean(inside) <= 1.0  # JCGM 100:2008 k = 2; 100 trials
+
+
+class TestDcOffset:
+    def test_unipolar_square(self):
+        # PF-2 style 0..3 V pulse train at 53.4 % duty: mean = 3 V × duty (derived)
+        period = 500
+        high = int(round(0.534 * period))
+        x = np.tile(np.r_[np.full(high, 3.0), np.zeros(period - high)], 40)
+        m = dc_offset(Capture(x, 50_000.0))
+        assert m.valid
+        assert_allclose(m.value, 3.0 * high / period, rtol=1e-3)
+
+    def test_offset_sine(self):
+        cap, _, _ = tone(10_000, 77.7, offset=1.65)
+        assert_allclose(dc_offset(cap).value, 1.65, atol=1e-4)
