@@ -211,3 +211,13 @@ def test_unusable_visa_library_is_one_clear_error(bench):
     with pytest.raises(InstrumentError) as info:
         ScpiDmm.open(config_for(bench, "dmm", visa_library="@nonexistent"))
     assert info.value.instrument == "dmm" and "@nonexistent" in info.value.message
+
+
+def test_registry_names_these_drivers():
+    from benchgate.instruments.registry import Registry
+    from benchgate.instruments.scpi_counter import ScpiCounter
+    from benchgate.instruments.scpi_digitizer import ScpiDigitizer
+
+    reg = Registry()
+    assert reg.driver("scpi-supply") is ScpiSupply and reg.driver("scpi-dmm") is ScpiDmm
+    assert reg.driver("scpi-counter") is ScpiCounter and reg.driver("scpi-digitizer") is ScpiDigitizer
