@@ -58,20 +58,20 @@ def arrival_rate(points: list[tuple[float, int]], declared: float) -> float | No
     """Samples per second from (clock time, samples so far) pairs, as the host saw them arrive.
 
     Samples cannot arrive before the device has taken them, only late (buffering, a busy
-    host), so the estimate uses the least-late point of the first third and of the last third
-    of the capture (lateness judged against ``declared``) rather than a fit through bursts.
+    host), so each sixth of the capture is represented by its least-late point (lateness
+    judged against ``declared``); the rate is the median of the five segment-to-segment
+    rates. A stall of the host, and the catch-up after it, moves one or two of the five;
+    a device clock that disagrees with its declaration moves all of them.
     """
-    if len(points) < 3:
+    if len(points) < 12:
         return None
     arr = np.asarray(points, dtype=np.float64)
     t, c = arr[:, 0], arr[:, 1]
     late = t - c / declared
-    third = max(1, len(arr) // 3)
-    a = int(np.argmin(late[:third]))
-    b = len(arr) - third + int(np.argmin(late[-third:]))
-    if t[b] <= t[a]:
-        return None
-    return float((c[b] - c[a]) / (t[b] - t[a]))
+    segments = np.array_split(np.arange(len(arr)), 6)
+    best = [int(q[np.argmin(late[q])]) for q in segments]
+    rates = [(c[j] - c[i]) / (t[j] - t[i]) for i, j in zip(best[:-1], best[1:], strict=True) if t[j] > t[i]]
+    return float(np.median(rates)) if rates else None
 
 
 class SerialPort:

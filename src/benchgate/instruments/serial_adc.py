@@ -12,6 +12,7 @@ cross-checked against the rate samples actually arrive at (host clock, ±5 %); l
 from __future__ import annotations
 
 import threading
+import time
 from concurrent.futures import ThreadPoolExecutor
 
 import numpy as np
@@ -20,12 +21,13 @@ from benchgate.analysis.capture import AdcInfo, Capture
 from benchgate.clock import Clock, SystemClock
 from benchgate.errors import InstrumentDisconnected, InstrumentError
 from benchgate.instruments._serial_port import SerialPort, arrival_rate
-from benchgate.instruments.framing import FrameDecoder
+from benchgate.instruments.framing import FrameDecoder, encode_frame
 from benchgate.instruments.serial_lines import LinesDecoder
 
 RATE_TOLERANCE = 0.05  # declared vs host-measured arrival rate
-MIN_CHECK_SPAN = 0.2  # s of clock time needed before the rate check means anything
-MIN_CHECK_POINTS = 8
+MIN_CHECK_WALL = 0.3  # s of wall time a capture must span before the rate check means anything
+MIN_CHECK_POINTS = 12
+WALL_GRACE = 1.0  # s of wall time added to accelerated deadlines
 
 
 class SerialAdc:
@@ -56,6 +58,7 @@ class SerialAdc:
     @classmethod
     def open(cls, config, *, clock: Clock | None = None) -> SerialAdc:
         clock = clock or SystemClock()
+        _warm_up()
         port = SerialPort.open(config, clock)
         adc = cls(config, port, clock)
         try:
@@ -166,16 +169,23 @@ class SerialAdc:
         return self._build(channel, state, actual, decoder, n, complete=True)
 
     def _receive(self, decoder, state: _Progress, n: int, duration: float, progress) -> None:
+        """Read until the device has sent ``n`` samples (or END), within the deadlines.
+
+        Deadlines are in the clock's time, each with a floor of wall time as well (WALL_GRACE),
+        so a busy host running an accelerated virtual bench does not mistake its own delays
+        for a silent device.
+        """
         port, clock = self._port, self.clock
+        speed = getattr(clock, "speed", 1.0) or 1.0
         stall = max(float(self.config.timeout), 0.1)
-        start = clock.monotonic()
-        deadline = start + duration * (1 + 2 * RATE_TOLERANCE) + stall + 0.5
-        last_data = start
+        start, wall_start = clock.monotonic(), time.monotonic()
+        budget = duration * (1 + 2 * RATE_TOLERANCE) + stall + 0.5
+        last_data, wall_last = start, wall_start
         while True:
             data = port.read_available()
-            now = clock.monotonic()
+            now, wall = clock.monotonic(), time.monotonic()
             if data:
-                last_data = now
+                last_data, wall_last = now, wall
                 got = decoder.feed(data)
                 state.add(got, decoder, framed=self.protocol == "framed")
                 if state.index > state.last_point_index:
@@ -185,14 +195,14 @@ class SerialAdc:
                     progress(min(1.0, state.index / n), f"{state.index} of {n} samples")
             if decoder.next_index >= n or decoder.end_total is not None:
                 return
-            if now - last_data > stall:
+            if now - last_data > stall and wall - wall_last > min(stall, stall / speed + WALL_GRACE):
                 if state.index and now - start >= duration:
                     return  # the tail went missing: counted as lost below
                 raise InstrumentError(self.name, f"adc on {self.address} sent no data for {stall:g} s "
                                                  f"({state.index} of {n} samples received)")
-            if now > deadline:
+            if now - start > budget and wall - wall_start > min(budget, budget / speed + WALL_GRACE):
                 raise InstrumentError(self.name, f"adc on {self.address}: capture did not finish within "
-                                                 f"{deadline - start:.1f} s ({state.index} of {n} samples)")
+                                                 f"{budget:.1f} s ({state.index} of {n} samples)")
 
     def _build(self, channel, state: _Progress, actual: float, decoder, n: int, *,
                complete: bool) -> Capture | None:
@@ -219,7 +229,8 @@ class SerialAdc:
             lost += tail
         measured = arrival_rate(state.points, declared)
         span = state.points[-1][0] - state.points[0][0] if len(state.points) > 1 else 0.0
-        checkable = measured is not None and span >= MIN_CHECK_SPAN and len(state.points) >= MIN_CHECK_POINTS
+        wall = span / (getattr(self.clock, "speed", 1.0) or 1.0)
+        checkable = measured is not None and wall >= MIN_CHECK_WALL and len(state.points) >= MIN_CHECK_POINTS
         warnings: list[str] = []
         if checkable and complete and abs(measured / declared - 1) > RATE_TOLERANCE:
             raise InstrumentError(self.name, f"adc on {self.address} declares {declared:.6g} Hz but samples "
@@ -248,12 +259,25 @@ class SerialAdc:
                      "garbage_bytes": int(garbage), "max_loss": self.max_loss,
                      "end_frame": end_total is not None},
             "rate": {"declared": declared, "device_reply": actual, "host_measured": measured,
-                     "check": "ok" if checkable else "not checked (capture too short)"},
+                     "check": "ok" if checkable else f"not checked (needs {MIN_CHECK_WALL:g} s of wall time)"},
             "warnings": warnings,
         }
         return Capture(samples=volts, sample_rate=declared, start_time=0.0, channel=channel,
                        adc=AdcInfo(self.bits, self.vref), clock_ppm=self.config.options.get("clock_ppm"),
                        metadata=meta)
+
+
+_warm = False
+
+
+def _warm_up() -> None:
+    """Run the decoder once before any capture: numpy's first calls cost several ms, which
+    would otherwise fall into the first frames of a capture and skew the arrival-rate check."""
+    global _warm
+    if not _warm:
+        frame = encode_frame(0, 20_000_000, 1, np.zeros(4, dtype=np.uint16))
+        FrameDecoder(mask=1).feed(b"\x00" + frame + frame[:5])
+        _warm = True
 
 
 class _Progress:

@@ -46,7 +46,7 @@ class DeviceFaults:
     drop_frames: set[int] = field(default_factory=set)  # frame numbers (from 0 at START)
     corrupt_frames: set[int] = field(default_factory=set)
     disconnect_after: float | None = None  # clock seconds of streaming, then the cable is "pulled"
-    identify_delay: float = 0.0  # clock seconds before the identify reply
+    identify_delay: float = 0.0  # clock seconds after start the board is "booting": commands are ignored
     identify_missing: bool = False  # never answer IDN?
     rate_error: float = 0.0  # true sample rate = declared × (1 + rate_error)
     startup_bytes: bytes = b""  # sent as soon as the device starts (a boot banner, noise)
@@ -139,6 +139,7 @@ class PtyAdcDevice:
         self._rng = np.random.default_rng(self.faults.seed)
         self._stream: dict | None = None
         self._pending_idn: float | None = None
+        self._boot_until = 0.0
 
     # ----------------------------------------------------------------- life cycle
     def __enter__(self) -> PtyAdcDevice:
@@ -156,6 +157,7 @@ class PtyAdcDevice:
         fcntl.fcntl(self._master, fcntl.F_SETFL, flags | os.O_NONBLOCK)
         self.port = os.ttyname(self._slave)
         self._out += self.faults.startup_bytes
+        self._boot_until = self.clock.monotonic() + self.faults.identify_delay
         self._running.set()
         self._thread = threading.Thread(target=self._serve, name=f"pty-adc {self.port}", daemon=True)
         self._thread.start()
@@ -222,12 +224,12 @@ class PtyAdcDevice:
     def _command(self, cmd: str) -> None:
         self.commands.append(cmd)
         words = cmd.split()
-        if not words:
-            return
+        if not words or self.clock.monotonic() < self._boot_until:
+            return  # still booting: a resetting board hears nothing
         head, args = words[0].upper(), words[1:]
         if head == "IDN?":
             if not self.faults.identify_missing:
-                self._pending_idn = self.clock.monotonic() + self.faults.identify_delay
+                self._pending_idn = self.clock.monotonic()
         elif head == "RATE?":
             self._reply(f"OK RATE {self.rate:.6f}")
         elif head == "RATE" and len(args) == 1:

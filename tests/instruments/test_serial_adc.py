@@ -1,0 +1,249 @@
+"""Serial ADC driver over a real pseudo-terminal (the simulated device in benchgate.sim)."""
+
+from __future__ import annotations
+
+import datetime as dt
+import re
+from types import SimpleNamespace
+
+import numpy as np
+import pytest
+import serial
+
+from benchgate.clock import ScaledClock
+from benchgate.errors import InstrumentDisconnected, InstrumentError
+from benchgate.instruments import _serial_port
+from benchgate.instruments._station_load import _ADC_DEFAULTS
+from benchgate.instruments.serial_adc import SerialAdc
+from benchgate.instruments.station import Calibration, InstrumentConfig
+from benchgate.sim.serial_device import DeviceFaults, PtyAdcDevice, SineSource
+
+SPEED = 10.0
+
+
+def adc_config(port: str, calibration=None, **options) -> InstrumentConfig:
+    opts = dict(_ADC_DEFAULTS, channels=("out", "rail"), bits=12, vref=3.3, clock_ppm=50.0,
+                identify_timeout=2.0, max_loss=0.001)
+    opts.update(options)
+    if opts["rts_low"] is None:
+        opts["rts_low"] = opts["dtr_low"]
+    return InstrumentConfig("adc", "serial-adc", port, 1.0, opts, calibration)
+
+
+@pytest.fixture
+def clock():
+    return ScaledClock(SPEED)
+
+
+def peak_frequency(x: np.ndarray, rate: float) -> float:
+    """FFT peak with 16x zero padding and parabolic interpolation (numpy as reference)."""
+    x = x - x.mean()
+    n = 16 * x.size
+    spec = np.abs(np.fft.rfft(x * np.hanning(x.size), n))
+    k = int(np.argmax(spec))
+    a, b, c = np.log(spec[k - 1:k + 2])
+    return (k + 0.5 * (a - c) / (a - 2 * b + c)) * rate / n
+
+
+def test_capture_end_to_end(clock):
+    cal = Calibration(channels={"out": Calibration(date=dt.date(2026, 1, 1), due=dt.date(2027, 1, 1),
+                                                  gain=1.01, offset=0.01)})
+    source = SineSource(frequency=997.0, channels=("out", "rail"))
+    with PtyAdcDevice(source, clock=clock) as dev:
+        with SerialAdc.open(adc_config(dev.port, calibration=cal), clock=clock) as adc:
+            assert adc.identity == "Owl Hollow Kits,OH-ADC2,SIM-0001,1.0"
+            cap = adc.capture("out", duration=0.5, rate=20_000)
+    assert cap.n == 10_000 and cap.sample_rate == 20_000.0
+    # numpy FFT peak as the reference estimate; 0.5 Hz is a quarter of the 2 Hz bin spacing
+    assert abs(peak_frequency(cap.samples, cap.sample_rate) - 997.0) < 0.5
+    # codes -> volts: code * vref / 2**bits, then gain and offset (common practice, no source)
+    ref = SineSource(frequency=997.0)
+    ref.start(20_000.0, 1)
+    expect = 1.01 * ref.read(10_000)[:, 0] * (3.3 / 4096) + 0.01
+    np.testing.assert_allclose(cap.samples, expect, rtol=0, atol=1e-12)
+    meta = cap.metadata
+    assert meta["instrument"]["identity"].startswith("Owl Hollow Kits")
+    assert meta["calibration"]["due"] == "2027-01-01"
+    assert meta["loss"]["lost_samples"] == 0
+    assert cap.adc.bits == 12 and cap.adc.vref == 3.3 and cap.clock_ppm == 50.0
+
+
+def test_garbage_and_a_lost_frame_under_the_threshold(clock):
+    faults = DeviceFaults(garbage_probability=0.3, drop_frames={4}, corrupt_frames={7}, seed=2)
+    with PtyAdcDevice(SineSource(channels=("out", "rail")), clock=clock, faults=faults, frame_samples=256) as dev:
+        with SerialAdc.open(adc_config(dev.port, max_loss=0.1), clock=clock) as adc:
+            cap = adc.capture("out", duration=0.3, rate=20_000)
+    loss = cap.metadata["loss"]
+    assert loss["lost_samples"] == 512 and loss["gaps"] == [[1024, 256], [1792, 256]]
+    assert loss["garbage_bytes"] > 0 and cap.n == 6000 - 512
+    assert "joined" in cap.metadata["warnings"][0]
+
+
+def test_losses_above_max_loss_are_refused(clock):
+    with PtyAdcDevice(SineSource(channels=("out", "rail")), clock=clock, faults=DeviceFaults(drop_frames={3})) as dev:
+        with SerialAdc.open(adc_config(dev.port, max_loss=0.001), clock=clock) as adc:
+            with pytest.raises(InstrumentError, match=r"lost 256 of 6000 samples .* capture refused"):
+                adc.capture("out", duration=0.3, rate=20_000)
+            # the port is still usable after the refusal
+            dev.faults.drop_frames.clear()
+            assert adc.capture("out", duration=0.05, rate=20_000).n == 1000
+
+
+def test_disconnect_mid_capture_keeps_the_partial_record(clock):
+    with PtyAdcDevice(SineSource(channels=("out", "rail")), clock=clock, faults=DeviceFaults(disconnect_after=0.6)) as dev:
+        adc = SerialAdc.open(adc_config(dev.port), clock=clock)
+        with pytest.raises(InstrumentDisconnected) as info:
+            adc.capture("out", duration=1.0, rate=10_000)
+        adc.close()  # closing after the loss does not raise
+        port = dev.port
+    exc = info.value
+    assert exc.instrument == "adc"
+    found = re.match(rf"adc on {re.escape(port)} disconnected after (\d+\.\d) s of a 1\.0 s capture", exc.message)
+    assert found and float(found.group(1)) >= 0.5  # the device pulled the cable at 0.6 s
+    part = exc.partial
+    assert part is not None and 256 <= part.n < 10_000
+    ref = SineSource()
+    ref.start(10_000.0, 1)
+    np.testing.assert_allclose(part.samples, ref.read(part.n)[:, 0] * (3.3 / 4096), atol=1e-12)
+
+
+def test_busy_port_is_reported(clock):
+    with PtyAdcDevice(SineSource(channels=("out", "rail")), clock=clock) as dev:
+        with SerialAdc.open(adc_config(dev.port), clock=clock):
+            with pytest.raises(InstrumentError, match="busy: already open in this program"):
+                SerialAdc.open(adc_config(dev.port), clock=clock)
+        other = serial.Serial(dev.port, exclusive=True)  # another program holding the port
+        try:
+            with pytest.raises(InstrumentError, match="busy: another program has it open"):
+                SerialAdc.open(adc_config(dev.port), clock=clock)
+        finally:
+            other.close()
+        SerialAdc.open(adc_config(dev.port), clock=clock).close()  # free again
+
+
+def test_slow_identify_is_awaited_within_the_deadline(clock):
+    faults = DeviceFaults(identify_delay=1.2, startup_bytes=b"boot v0.9\r\n\x00\xff\xa5noise")
+    with PtyAdcDevice(SineSource(channels=("out", "rail")), clock=clock, faults=faults) as dev:
+        with SerialAdc.open(adc_config(dev.port, identify_timeout=3.0), clock=clock) as adc:
+            assert adc.identity is not None
+            cap = adc.capture("out", duration=0.1, rate=20_000)
+        assert dev.commands.count("IDN?") >= 2  # asked again while the board "booted"
+    assert cap.metadata["loss"]["garbage_bytes"] == 0  # the banner was flushed after identify
+
+
+def test_missing_identify_fails_at_the_deadline(clock):
+    with PtyAdcDevice(SineSource(channels=("out", "rail")), clock=clock, faults=DeviceFaults(identify_missing=True)) as dev:
+        with pytest.raises(InstrumentError, match=r"did not identify within 0\.8 s"):
+            SerialAdc.open(adc_config(dev.port, identify_timeout=0.8), clock=clock)
+        assert dev.port not in _serial_port._open_ports  # released after the failure
+
+
+def test_rate_mismatch_is_refused():
+    clock = ScaledClock(2.0)  # the check needs 0.3 s of wall time
+    with PtyAdcDevice(SineSource(channels=("out", "rail")), clock=clock, faults=DeviceFaults(rate_error=0.2)) as dev:
+        with SerialAdc.open(adc_config(dev.port), clock=clock) as adc:
+            with pytest.raises(InstrumentError, match=r"declares 20000 Hz but samples arrived at .* capture refused"):
+                adc.capture("out", duration=1.0, rate=20_000)
+
+
+def test_declared_rate_agrees_with_arrival_rate():
+    clock = ScaledClock(2.0)
+    with PtyAdcDevice(SineSource(channels=("out", "rail")), clock=clock, faults=DeviceFaults(rate_error=0.01)) as dev:
+        with SerialAdc.open(adc_config(dev.port), clock=clock) as adc:
+            cap = adc.capture("out", duration=1.0, rate=20_000)
+    assert cap.metadata["rate"]["check"] == "ok"  # 1 % off is inside the ±5 % cross-check
+
+
+def test_dtr_and_rts_are_low_at_open(clock, monkeypatch):
+    seen = {}
+
+    class SpySerial(serial.Serial):
+        def open(self):
+            seen["dtr"], seen["rts"], seen["exclusive"] = self.dtr, self.rts, self.exclusive
+            super().open()
+
+    def make(address):
+        s = SpySerial()
+        s.port = address
+        return s
+
+    monkeypatch.setattr(_serial_port, "make_serial", make)
+    with PtyAdcDevice(SineSource(channels=("out", "rail")), clock=clock) as dev:
+        SerialAdc.open(adc_config(dev.port, dtr_low=True), clock=clock).close()
+        assert seen == {"dtr": False, "rts": False, "exclusive": True}
+        SerialAdc.open(adc_config(dev.port), clock=clock).close()
+        assert seen["dtr"] is True and seen["rts"] is True
+
+
+def test_one_thread_owns_the_port(clock, monkeypatch):
+    threads = set()
+
+    class SpySerial(serial.Serial):
+        def read(self, size=1):
+            import threading
+
+            threads.add(threading.current_thread().name)
+            return super().read(size)
+
+        def write(self, data):
+            import threading
+
+            threads.add(threading.current_thread().name)
+            return super().write(data)
+
+    def make(address):
+        s = SpySerial()
+        s.port = address
+        return s
+
+    monkeypatch.setattr(_serial_port, "make_serial", make)
+    with PtyAdcDevice(SineSource(channels=("out", "rail")), clock=clock) as dev:
+        with SerialAdc.open(adc_config(dev.port), clock=clock) as adc:
+            adc.capture("out", duration=0.05)
+            adc.fixture_power(True)
+    assert len(threads) == 1 and next(iter(threads)).startswith("serial-adc")
+
+
+def test_fixture_power_is_switched_off_on_close(clock):
+    source = SineSource(channels=("out", "rail"))
+    with PtyAdcDevice(source, clock=clock) as dev:
+        with SerialAdc.open(adc_config(dev.port), clock=clock) as adc:
+            adc.fixture_power(True)
+            assert source.power is True
+        assert source.power is False and dev.commands[-1] == "POWER OFF"
+
+
+def test_lines_mode_rate_from_timestamps(clock):
+    with PtyAdcDevice(SineSource(frequency=50.0, channels=("out", "rail")), protocol="lines", lines_timestamps=True, clock=clock) as dev:
+        cfg = adc_config(dev.port, protocol="lines", timestamps=True)
+        with SerialAdc.open(cfg, clock=clock) as adc:
+            cap = adc.capture("out", duration=0.5, rate=2000)
+    assert cap.n == 1000
+    assert cap.sample_rate == pytest.approx(2000.0, rel=1e-9)  # 500 µs steps, exactly
+    assert abs(peak_frequency(cap.samples, cap.sample_rate) - 50.0) < 0.2
+
+
+def test_unknown_channel_and_protocol_mismatch(clock):
+    with PtyAdcDevice(SineSource(channels=("out", "rail")), clock=clock) as dev:
+        with SerialAdc.open(adc_config(dev.port), clock=clock) as adc:
+            with pytest.raises(InstrumentError, match="no channel 'vout'"):
+                adc.capture("vout", duration=0.1)
+        with pytest.raises(InstrumentError, match="streams 'framed' but the station says protocol 'lines'"):
+            SerialAdc.open(adc_config(dev.port, protocol="lines"), clock=clock)
+
+
+def test_usb_address_resolved_through_list_ports(monkeypatch):
+    ports = [SimpleNamespace(device="/dev/ttyACM0", vid=0x2341, pid=0x0043, serial_number="A1"),
+             SimpleNamespace(device="/dev/ttyACM1", vid=0x2341, pid=0x0043, serial_number="B2"),
+             SimpleNamespace(device="/dev/ttyUSB0", vid=0x0403, pid=0x6001, serial_number="X")]
+    monkeypatch.setattr("serial.tools.list_ports.comports", lambda: ports)
+    assert _serial_port.resolve_usb("adc", "usb:2341:0043:B2") == "/dev/ttyACM1"
+    with pytest.raises(InstrumentError, match="2 ports match USB 2341:0043"):
+        _serial_port.resolve_usb("adc", "usb:2341:0043")
+    with pytest.raises(InstrumentError, match=r"no serial port matches USB 1234:5678 \(ports: /dev/ttyACM0"):
+        _serial_port.resolve_usb("adc", "usb:1234:5678")
+
+
+def test_missing_port_is_one_clear_error(clock):
+    with pytest.raises(InstrumentError, match="no such serial port /dev/does-not-exist"):
+        SerialAdc.open(adc_config("/dev/does-not-exist"), clock=clock)
