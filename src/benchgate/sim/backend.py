@@ -122,8 +122,11 @@ class BenchState:
         with self._lock:
             if not self.powered:
                 return 0.0
-            scale = self.supply_scale()
-            return min(self._raw_current(scale), self.current_limit) if self.output else self._raw_current(scale)
+            if self.output and self.voltage > 0:
+                if self.unit.mean_draw() * self.voltage / self.unit.board.supply > self.current_limit:
+                    return self.current_limit  # constant-current mode
+                return min(self._raw_current(self.voltage / self.unit.board.supply), self.current_limit)
+            return self._raw_current(1.0)
 
     def rail_voltage(self) -> float:
         with self._lock:
