@@ -24,7 +24,7 @@ def _nodal_transfer(w: float, R, C, form: str, source: float, load: float) -> co
     yp = [1.0 / R[i] if form == "highpass" else 1j * w * C[i] for i in range(n)]
     size = n + 1
     Y = np.zeros((size, size), complex)
-    I = np.zeros(size, complex)
+    inj = np.zeros(size, complex)
     for i in range(n):
         a, b = i, i + 1
         Y[a, a] += ys[i]
@@ -36,8 +36,8 @@ def _nodal_transfer(w: float, R, C, form: str, source: float, load: float) -> co
         Y[n, n] += 1.0 / load
     if source > 0:
         Y[0, 0] += 1.0 / source
-        I[0] = 1.0 / source  # 1 V emf behind the source resistance
-        v = np.linalg.solve(Y, I)
+        inj[0] = 1.0 / source  # 1 V emf behind the source resistance
+        v = np.linalg.solve(Y, inj)
         return v[n]
     # ideal source: node 0 held at 1 V, solve the rest
     rhs = -Y[1:, 0] * 1.0

@@ -93,6 +93,11 @@ def _capture_timing(c: Collector, step: CaptureStep, pos: Pos, plan_freq) -> Non
         c.error((fcheck.line, fcheck.column),
                 f"step {step.id!r}: a frequency window needs a lower limit above 0 Hz to size the capture")
         return
+    harmonic = sorted(names & set(HARMONIC_CHECKS))
+    if harmonic and not any(w.window.high is not None for w in windows):
+        c.error(where, f"step {step.id!r}: {harmonic[0]} needs a frequency window with an upper "
+                       "limit (in this step or the plan) to check the sample rate")
+        return
     if not windows or not names & set(CYCLE_CHECKS):
         return
     lows = [w.window.low for w in windows if w.window.low is not None and w.window.low > 0]
@@ -101,17 +106,13 @@ def _capture_timing(c: Collector, step: CaptureStep, pos: Pos, plan_freq) -> Non
         f_low = min(lows)
         wait = startup.window.high if startup is not None and startup.window.high is not None else 0.0
         need = wait + MIN_CYCLES / f_low
-        if step.duration < need:
+        if step.duration < need * (1 - 1e-9):  # not failed by rounding at the boundary
             extra = f" after a start-up of up to {format_quantity(wait, 's')}" if wait else ""
             c.error(pos.get("duration", pos.get("samples", pos[""])),
                     f"step {step.id!r}: duration {format_quantity(step.duration, 's')} is too short: "
                     f"{MIN_CYCLES} cycles at {format_quantity(f_low, 'Hz')} (the window's lowest "
                     f"frequency){extra} need at least {format_quantity(need, 's')}")
-    harmonic = sorted(names & set(HARMONIC_CHECKS))
     if not (highs and (harmonic or fcheck is not None)):
-        if harmonic and not highs:
-            c.error(where, f"step {step.id!r}: {harmonic[0]} needs a frequency window with an upper "
-                           "limit (in this step or the plan) to check the sample rate")
         return
     f_high = max(highs)
     if step.rate is None:
