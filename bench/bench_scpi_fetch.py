@@ -5,7 +5,7 @@ IEEE 488.2 block of 4 000 000 bytes of float32; the raw path reads it with plain
 ``socket.recv_into`` and ``numpy.frombuffer``. Target: ratio ≤ 2. Prints the medians and the
 ratio; asserts nothing.
 
-Run: ``.venv/bin/python bench/bench_scpi_fetch.py [--points 1000000] [--repeats 15]``
+Run: ``.venv/bin/python bench/bench_scpi_fetch.py [--points 1000000] [--repeats 41]``
 """
 
 from __future__ import annotations
@@ -46,7 +46,7 @@ def raw_fetch(sock: socket.socket, points: int) -> np.ndarray:
 def main() -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--points", type=int, default=1_000_000)
-    parser.add_argument("--repeats", type=int, default=15)
+    parser.add_argument("--repeats", type=int, default=41)
     args = parser.parse_args()
 
     rate = 1e6

@@ -335,6 +335,7 @@ class EmulatedDigitizer(EmulatedInstrument):
         self.rate, self.points, self.channel, self.range = 100e3, 1000, "CH1", 10.0
         self.little_endian = False  # SCPI default byte order is NORMal (big-endian)
         self._record: np.ndarray | None = None
+        self._block: tuple[str, bytes] | None = None
         self._done_at = 0.0
 
     def _set_rate(self, arg: str | None) -> None:
@@ -371,6 +372,7 @@ class EmulatedDigitizer(EmulatedInstrument):
     def _arm(self) -> None:
         record = np.asarray(self.backend.digitizer_record(self.rate, self.points), dtype=np.float64)
         self._record = np.clip(record, -self.range, self.range)
+        self._block = None
         self._done_at = self.clock.monotonic() + self.points / self.rate
 
     def _wait_done(self) -> None:
@@ -387,8 +389,10 @@ class EmulatedDigitizer(EmulatedInstrument):
         if self._record is None:
             raise ScpiCommandError(-230, "no acquisition since the last reset")
         self._wait_done()
-        data = self._record.astype("<f4" if self.little_endian else ">f4").tobytes()
-        return definite_block(data)
+        order = "<f4" if self.little_endian else ">f4"
+        if self._block is None or self._block[0] != order:  # encode once per record and order
+            self._block = (order, definite_block(self._record.astype(order).tobytes()))
+        return self._block[1]
 
 
 def definite_block(data: bytes) -> bytes:
