@@ -1,0 +1,155 @@
+"""Instrument registry and the open bench (safe state on exit)."""
+
+from __future__ import annotations
+
+import datetime as dt
+
+import pytest
+
+from benchgate.errors import InstrumentError
+from benchgate.instruments import Bench, open_station
+from benchgate.instruments.registry import DEFAULT_DRIVERS, Registry
+from benchgate.instruments.station import Calibration, InstrumentConfig, Station
+
+
+class Log(list):
+    pass
+
+
+def fake_driver(kind_log: Log, *, fail_open=False, fail_close=False, fail_output=False):
+    class Fake:
+        def __init__(self, config):
+            self.name = config.role
+            self.address = config.address
+            self.identity = f"fake {config.role}"
+            self.on = None
+
+        @classmethod
+        def open(cls, config, *, clock):
+            kind_log.append(("open", config.role))
+            if fail_open:
+                raise InstrumentError(config.role, "cannot reach it")
+            return cls(config)
+
+        def output(self, on):
+            kind_log.append(("output", self.name, on))
+            if fail_output:
+                raise InstrumentError(self.name, "output command failed")
+            self.on = on
+
+        def close(self):
+            kind_log.append(("close", self.name))
+            if fail_close:
+                raise InstrumentError(self.name, "close failed")
+
+    return Fake
+
+
+def station(**cal) -> Station:
+    mk = lambda role, kind: InstrumentConfig(role, kind, f"addr-{role}", 1.0, {}, cal.get(role))  # noqa: E731
+    return Station("bench-x", "x.yaml", {"adc": mk("adc", "serial-adc"), "supply": mk("supply", "scpi-supply"),
+                                          "dmm": mk("dmm", "scpi-dmm")})
+
+
+def registry(log: Log, **fail) -> Registry:
+    return Registry({
+        "serial-adc": fake_driver(log, **fail.get("adc", {})),
+        "scpi-supply": fake_driver(log, **fail.get("supply", {})),
+        "scpi-dmm": fake_driver(log, **fail.get("dmm", {})),
+    })
+
+
+def test_open_all_supply_first_and_switched_off():
+    log = Log()
+    with open_station(station(), registry=registry(log)) as bench:
+        assert isinstance(bench, Bench)
+        assert bench["adc"].identity == "fake adc" and bench.get("counter") is None
+        assert bench.supply is bench["supply"]
+    assert log[:2] == [("open", "supply"), ("output", "supply", False)]
+    closes = [e for e in log if e[0] == "close"]
+    assert len(closes) == 3
+    # on exit the supply output goes off before anything is closed
+    last_off = max(i for i, e in enumerate(log) if e == ("output", "supply", False))
+    assert last_off < log.index(closes[0])
+
+
+def test_exception_in_block_still_switches_off_and_closes_even_if_a_close_fails():
+    log = Log()
+    with pytest.raises(RuntimeError, match="operator pulled the plug"):
+        with open_station(station(), registry=registry(log, adc={"fail_close": True})):
+            log.clear()
+            raise RuntimeError("operator pulled the plug")
+    assert log[0] == ("output", "supply", False)
+    assert {e[1] for e in log if e[0] == "close"} == {"adc", "supply", "dmm"}
+
+
+def test_close_failure_without_exception_is_raised_after_cleanup():
+    log = Log()
+    bench = open_station(station(), registry=registry(log, dmm={"fail_close": True}))
+    with pytest.raises(InstrumentError, match="close failed"):
+        with bench:
+            pass
+    assert {e[1] for e in log if e[0] == "close"} == {"adc", "supply", "dmm"}
+
+
+def test_supply_output_failure_does_not_stop_other_closes():
+    log = Log()
+    bench = open_station(station(), registry=registry(log), roles=["adc", "supply"])
+
+    def broken_output(on):
+        raise InstrumentError("supply", "lost")
+
+    bench["supply"].output = broken_output
+    with pytest.raises(InstrumentError, match="lost"):
+        bench.close()
+    assert {e[1] for e in log if e[0] == "close"} == {"adc", "supply"}
+
+
+def test_open_failure_leaves_what_opened_safe_and_closed():
+    log = Log()
+    with pytest.raises(InstrumentError, match="cannot reach it"):
+        open_station(station(), registry=registry(log, dmm={"fail_open": True}))
+    assert ("output", "supply", False) in log
+    assert {e[1] for e in log if e[0] == "close"} == {"supply", "adc"}
+
+
+def test_roles_subset_and_unknown_role():
+    log = Log()
+    with open_station(station(), registry=registry(log), roles=["adc"]) as bench:
+        assert bench.roles == ("adc",)
+        with pytest.raises(InstrumentError, match="no open 'supply'"):
+            bench["supply"]
+    with pytest.raises(InstrumentError, match="has no 'digitizer'"):
+        open_station(station(), registry=registry(log), roles=["digitizer"])
+
+
+def test_records_carry_identity_and_calibration_status():
+    cal = Calibration(date=dt.date(2025, 1, 1), due=dt.date(2026, 1, 1))
+    with open_station(station(supply=cal), registry=registry(Log())) as bench:
+        recs = {r.role: r for r in bench.records(today=dt.date(2026, 6, 1))}
+    assert recs["supply"].identity == "fake supply"
+    assert recs["supply"].calibration == {"date": "2025-01-01", "due": "2026-01-01", "status": "expired",
+                                          "gain": 1.0, "offset": 0.0}
+    assert recs["adc"].calibration is None
+
+
+class TestRegistry:
+    def test_unknown_kind(self):
+        with pytest.raises(InstrumentError, match="unknown instrument kind 'scpi-scope'"):
+            Registry().driver("scpi-scope", "scope")
+
+    def test_string_entries_import_at_call_time(self):
+        reg = Registry({"x": "benchgate.instruments.serial_adc:SerialAdc", "y": "benchgate.nope:Thing"})
+        from benchgate.instruments.serial_adc import SerialAdc
+
+        assert reg.driver("x") is SerialAdc
+        with pytest.raises(InstrumentError, match="driver for kind 'y' is not available"):
+            reg.driver("y", "adc")
+
+    def test_default_table_names_every_kind(self):
+        assert set(DEFAULT_DRIVERS) == {"serial-adc", "scpi-supply", "scpi-dmm", "scpi-counter", "scpi-digitizer"}
+
+    def test_instances_do_not_share_registrations(self):
+        a, b = Registry(), Registry()
+        a.register("fake", object)
+        assert "fake" in a.kinds() and "fake" not in b.kinds()
