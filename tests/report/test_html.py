@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import re
 from html.parser import HTMLParser
 
 import pytest
@@ -156,3 +157,21 @@ def test_hostile_channel_name_is_escaped_inside_svg(capture):
     evil = capture.__class__(capture.samples, capture.sample_rate, channel='"><svg onload=x>', adc=capture.adc)
     html = render_html(rec, {"capture-tone": evil})
     assert "onload=x>" not in html and "&quot;&gt;&lt;svg onload=x&gt;" in html
+
+
+def test_limit_derivations_listed_once_below_the_table():
+    html = render_html(make_record(), {})
+    assert "How the limits were derived" in html
+    assert html.count("gain_needed") == 1 and "details: derivation 1 below" in html
+    assert "rc_ladder highpass 3 sections: worst case" in html
+
+
+def test_flat_record_is_drawn_flat(capture):
+    flat = tone_capture(amplitude=0.0)
+    figures, _ = plots.capture_figures(flat, [])
+    wave = figures[0].svg
+    ticks = [float(t.replace("−", "-")) for t in
+             re.findall(r'text-anchor="end">([−0-9.]+)</text>', wave)]
+    # the voltage axis spans at least a tenth of the 3.3 V converter range, not one LSB of noise
+    assert max(ticks) - min(ticks) >= 0.2
+    assert "no fundamental found" in figures[2].caption or "largest bin" in figures[2].svg

@@ -70,11 +70,18 @@ def limits_text(check: CheckRecord) -> str:
     return f"≤ {_q(w.high, w.unit)}"
 
 
-def _short(value: Any, limit: int = 90) -> str:
+def _plain(value: Any) -> str:
     if isinstance(value, float):
-        text = f"{value:.6g}"
-    else:
-        text = str(value)
+        return f"{value:.6g}"
+    if isinstance(value, dict):
+        return "; ".join(f"{k} {_plain(v)}" for k, v in value.items())
+    if isinstance(value, (list, tuple)):
+        return "[" + ", ".join(_plain(v) for v in value) + "]"
+    return str(value)
+
+
+def _short(value: Any, limit: int = 800) -> str:
+    text = _plain(value)
     return text if len(text) <= limit else text[: limit - 1] + "…"
 
 
@@ -89,7 +96,7 @@ def _check_row(c: CheckRecord, step: StepRecord) -> dict[str, Any]:
         value = _q(r.value, r.unit)
         # GUM (JCGM 100:2008) 7.2.6: an uncertainty is stated with at most two significant digits
         u = "not stated" if r.uncertainty is None else _q(r.uncertainty, r.unit, 2)
-    details = [(str(k), _short(v)) for k, v in list(c.window.details.items())[:8]]
+    details = [(str(k), _short(v)) for k, v in list(c.window.details.items())[:16]]
     return {
         "step": step.title or step.id,
         "step_id": step.id,
@@ -144,7 +151,7 @@ def _step_view(step: StepRecord, captures: Mapping[str, Capture], folder: Path |
             notes.append("capture not available: plots not drawn")
         else:
             figures, more = plots.capture_figures(capture, step.checks)
-            notes.extend(more)
+            notes.extend(n for n in more if n not in cap.warnings and n not in notes)
     bars = [plots.check_figure(c) for c in step.checks]
     return {
         "id": step.id, "kind": step.kind, "title": step.title or step.id, "status": step.status,
@@ -167,6 +174,8 @@ def context(record: UnitRecord, captures: Mapping[str, Capture], folder: Path | 
         s["figures"] = [{"caption": f.caption, "svg": Markup(f.svg), "kind": f.kind} for f in s["figures"]]
         s["bars"] = [{"caption": f.caption, "svg": Markup(f.svg)} for f in s["bars"]]
     rows = [_check_row(c, s) for s in record.steps for c in s.checks]
+    for i, row in enumerate(rows, 1):
+        row["index"] = i
     counts = {v: sum(1 for r in rows if r["verdict"] == v) for v in ("pass", "fail", "inconclusive", "error")}
     flags = {str(k): v for k, v in record.flags.items()}
     cal_problems = [i.role for i in record.instruments

@@ -74,6 +74,8 @@ def capture_figures(capture: Capture, checks: Iterable[CheckRecord] = ()) -> tup
         if m is not None and m.valid:
             startup = m.value
     label = f"channel {capture.channel}"
+    # least voltage span drawn: a tenth of the converter's range, else 50 mV (common practice)
+    min_span = capture.adc.full_scale / 10 if capture.adc is not None else 0.05
 
     def draw(kind: str, caption: str, make) -> None:
         try:
@@ -83,26 +85,29 @@ def capture_figures(capture: Capture, checks: Iterable[CheckRecord] = ()) -> tup
 
     def wave() -> str:
         t, v = views.cycles(capture, fundamental, n_cycles=CYCLES)
-        return svg.waveform(t, v, label=f"waveform, {label}")
+        return svg.waveform(t, v, label=f"waveform, {label}", min_span=min_span)
 
     def env() -> str:
         # each min/max bucket must span a couple of cycles, or the band shows the waveform
         points = 600 if not fundamental else int(min(600, max(40, capture.duration * fundamental / 2)))
         t, lo, hi = views.envelope(capture, points=points)
         return svg.envelope([x - capture.start_time for x in t], lo, hi, startup=startup,
-                            steady_start=steady, label=f"envelope, {label}")
+                            steady_start=steady, min_span=min_span, label=f"envelope, {label}")
 
     def spec() -> str:
         f, db = views.spectrum_db(capture, steady_start=steady, max_points=2048)
         f_max = min(capture.sample_rate / 2, (HARMONICS + 1) * fundamental) if fundamental else None
         harmonics = analysis.harmonics if analysis is not None else ()
-        return svg.spectrum(f, db, harmonics=harmonics, fundamental=fundamental, f_max=f_max,
-                            label=f"spectrum, {label}")
+        return svg.spectrum(f, db, harmonics=harmonics if fundamental else (), fundamental=fundamental,
+                            f_max=f_max, label=f"spectrum, {label}",
+                            y_label="level re fundamental" if fundamental else "level re largest bin")
 
     n_text = f"the last {CYCLES} cycles" if fundamental else "the end (no fundamental found)"
     draw("waveform", f"Waveform: {n_text} of the record", wave)
-    draw("envelope", "Envelope of the whole record (min/max), start-up instant marked", env)
-    draw("spectrum", "Spectrum in dB relative to the fundamental (Blackman–Harris window), harmonics marked", spec)
+    draw("envelope", "Envelope of the whole record (min/max), start-up instant marked" if startup is not None
+         else "Envelope of the whole record (min/max); no start-up instant was measured", env)
+    draw("spectrum", "Spectrum in dB relative to the fundamental (Blackman–Harris window), harmonics marked"
+         if fundamental else "Spectrum in dB relative to its largest bin (no fundamental found)", spec)
     return figures, notes
 
 

@@ -161,7 +161,10 @@ def _finite(a: Sequence[float]) -> np.ndarray:
     return arr[np.isfinite(arr)]
 
 
-def _padded(lo: float, hi: float, frac: float = 0.06) -> tuple[float, float]:
+def _padded(lo: float, hi: float, frac: float = 0.06, min_span: float = 0.0) -> tuple[float, float]:
+    if hi - lo < min_span:  # a flat record must look flat, not like a signal of one LSB
+        mid = (hi + lo) / 2
+        lo, hi = mid - min_span / 2, mid + min_span / 2
     span = hi - lo
     pad = span * frac if span > 0 else (abs(lo) * 0.1 or 1.0)
     return lo - pad, hi + pad
@@ -177,15 +180,18 @@ def empty(label: str, message: str, width: int = 640, height: int = 70) -> str:
 
 
 def waveform(t: Sequence[float], v: Sequence[float], *, label: str = "waveform", unit: str = "V",
-             width: int = 640, height: int = 220) -> str:
-    """A few cycles of the signal: time (s, from the first point shown) against voltage."""
+             min_span: float = 0.0, width: int = 640, height: int = 220) -> str:
+    """A few cycles of the signal: time (s, from the first point shown) against voltage.
+
+    ``min_span`` is the least voltage range the axis shows (so noise on a flat line stays small).
+    """
     t = np.asarray(t, dtype=float)
     v = np.asarray(v, dtype=float)
     fv = _finite(v)
     if t.size < 2 or fv.size < 2:
         return empty(label, "too few samples to draw")
     t = t - t[0]
-    ax = Axes(width, height, (0.0, float(t[-1])), _padded(float(fv.min()), float(fv.max())))
+    ax = Axes(width, height, (0.0, float(t[-1])), _padded(float(fv.min()), float(fv.max()), min_span=min_span))
     ax.frame("time", "voltage", "s", unit)
     ax.polyline(t, v)
     return ax.svg(label)
@@ -193,7 +199,7 @@ def waveform(t: Sequence[float], v: Sequence[float], *, label: str = "waveform",
 
 def envelope(t: Sequence[float], low: Sequence[float], high: Sequence[float], *, startup: float | None = None,
              steady_start: float | None = None, label: str = "envelope", unit: str = "V",
-             width: int = 640, height: int = 220) -> str:
+             min_span: float = 0.0, width: int = 640, height: int = 220) -> str:
     """The whole record as a min/max band, with the start-up instant and the steady part marked.
 
     ``t`` is time from the record start (s); ``startup`` and ``steady_start`` are in the same time.
@@ -205,7 +211,8 @@ def envelope(t: Sequence[float], low: Sequence[float], high: Sequence[float], *,
     if ok.sum() < 2:
         return empty(label, "too few samples to draw")
     t, lo, hi = t[ok], lo[ok], hi[ok]
-    ax = Axes(width, height, (0.0, max(float(t[-1]), 1e-12)), _padded(float(lo.min()), float(hi.max())))
+    ax = Axes(width, height, (0.0, max(float(t[-1]), 1e-12)), _padded(float(lo.min()), float(hi.max()),
+                                                                         min_span=min_span))
     ax.frame("time from record start", "voltage", "s", unit)
     if steady_start is not None and math.isfinite(steady_start) and 0 <= steady_start < t[-1]:
         x = ax.px(steady_start)
@@ -223,7 +230,7 @@ def envelope(t: Sequence[float], low: Sequence[float], high: Sequence[float], *,
 
 def spectrum(f: Sequence[float], level_db: Sequence[float], *, harmonics: Sequence[tuple] = (),
              fundamental: float | None = None, f_max: float | None = None, label: str = "spectrum",
-             width: int = 640, height: int = 240) -> str:
+             y_label: str = "level re fundamental", width: int = 640, height: int = 240) -> str:
     """Spectrum in dB relative to the fundamental, with the fundamental and harmonics marked.
 
     ``harmonics`` holds ``(k, freq_hz, level_dbc)`` tuples (k ≥ 2), as ``Analysis.harmonics``.
@@ -239,7 +246,7 @@ def spectrum(f: Sequence[float], level_db: Sequence[float], *, harmonics: Sequen
     floor = max(float(np.percentile(db, 1)), -160.0)
     bottom = math.floor(floor / 20.0) * 20.0
     ax = Axes(width, height, (0.0, float(f[-1])), (bottom, 10.0))
-    ax.frame("frequency", "level re fundamental", "Hz", "dB")
+    ax.frame("frequency", y_label, "Hz", "dB")
     ax.polyline(f, np.maximum(db, bottom), width=1.0)
     if fundamental is not None and math.isfinite(fundamental) and fundamental <= f[-1]:
         x, y = ax.px(fundamental), ax.py(0.0)
