@@ -1,0 +1,82 @@
+"""``benchgate sim`` as a separate process: prints where it is, stops cleanly on SIGINT."""
+
+from __future__ import annotations
+
+import json
+import os
+import selectors
+import signal
+import subprocess
+import sys
+import time
+
+import pytest
+
+from benchgate.instruments.station import load_station
+
+
+def start(*args: str) -> subprocess.Popen:
+    return subprocess.Popen([sys.executable, "-m", "benchgate", "sim", *args], stdout=subprocess.PIPE,
+                            stderr=subprocess.PIPE, text=True)
+
+
+def first_line(proc: subprocess.Popen, limit: float = 60.0) -> str:
+    sel = selectors.DefaultSelector()
+    sel.register(proc.stdout, selectors.EVENT_READ)
+    deadline = time.monotonic() + limit  # a generous ceiling, not a timing assertion
+    while time.monotonic() < deadline:
+        if sel.select(timeout=0.5):
+            return proc.stdout.readline()
+        if proc.poll() is not None:
+            break
+    proc.kill()
+    raise AssertionError(f"no output from benchgate sim; stderr: {proc.stderr.read()}")
+
+
+def test_json_then_clean_stop_on_sigint(tmp_path):
+    station = tmp_path / "bench.yaml"
+    proc = start("--json", "--board", "wo1", "--speed", "5", "--write-station", str(station))
+    try:
+        info = json.loads(first_line(proc))
+        assert os.path.exists(info["serial_port"])
+        assert info["scpi_resource"] == info["scpi_resources"]["supply"]
+        assert set(info["scpi_resources"]) == {"supply", "dmm", "counter", "digitizer"}
+        assert info["station_file"] == str(station.resolve())
+        st = load_station(info["station_file"])
+        assert st.instruments["adc"].address == info["serial_port"]
+        assert st.instruments["counter"].address == info["scpi_resources"]["counter"]
+    finally:
+        proc.send_signal(signal.SIGINT)
+        out, err = proc.communicate(timeout=30)
+    assert proc.returncode == 0, err
+    assert "Traceback" not in err
+
+
+def test_text_output_and_sigterm():
+    proc = start("--serial", "OH-77")
+    try:
+        lines = [first_line(proc)]
+        while not lines[-1].startswith("Ctrl-C stops"):
+            lines.append(first_line(proc))
+        text = "".join(lines)
+        assert "TB-3" in lines[0] and "OH-77" in lines[0]
+        assert "/dev/pts/" in text and text.count("TCPIP0::127.0.0.1::") == 4
+    finally:
+        proc.send_signal(signal.SIGTERM)
+        out, err = proc.communicate(timeout=30)
+    assert proc.returncode == 0, err
+    assert "stopped" in out
+
+
+@pytest.mark.parametrize("args, message", [
+    (["--board", "pf2", "--defect", "open_section"], "open_section' means nothing for the PF-2"),
+    (["--board", "zz"], "unknown board 'zz'"),
+    (["--defect", "smoke"], "unknown defect 'smoke'"),
+    (["--speed", "0"], "--speed must be a positive number"),
+])
+def test_bad_requests_are_one_line_errors(args, message):
+    proc = subprocess.run([sys.executable, "-m", "benchgate", "sim", *args], capture_output=True,
+                          text=True, timeout=60)
+    assert proc.returncode == 2
+    lines = proc.stderr.strip().splitlines()
+    assert len(lines) == 1 and message in lines[0] and lines[0].startswith("benchgate: ")
