@@ -1,0 +1,168 @@
+"""Station files: loading, units, addresses, calibration, and errors with positions."""
+
+from __future__ import annotations
+
+import datetime as dt
+import textwrap
+
+import pytest
+
+from benchgate.errors import PlanErrors
+from benchgate.instruments import load_station
+from benchgate.instruments.station import Calibration
+
+GOOD = """\
+station: owl-bench-1
+instruments:
+  adc:
+    kind: serial-adc
+    port: /dev/pts/5
+    baudrate: 115200
+    protocol: framed
+    channels: [out, rail]
+    bits: 12
+    vref: 3.3 V
+    clock_ppm: 50
+    dtr_low: true
+    identify_timeout: 2 s
+    timeout: 1 s
+    max_loss: 0.1 %
+    calibration:
+      out: {gain: 1.002, offset: -3 mV, date: 2026-06-01, due: 2027-06-01}
+  supply:
+    kind: scpi-supply
+    resource: "TCPIP0::127.0.0.1::5025::SOCKET"
+    timeout: 2 s
+    reset: true
+    accuracy: {gain: 0.05 %, offset: 2 mV}
+    commands: {set_voltage: "SOUR:VOLT {value}"}
+    calibration: {date: 2026-06-01, due: 2027-06-01}
+"""
+
+
+def write(tmp_path, text: str, name: str = "station.yaml") -> str:
+    path = tmp_path / name
+    path.write_text(textwrap.dedent(text))
+    return str(path)
+
+
+def errors_of(tmp_path, text: str) -> list[str]:
+    with pytest.raises(PlanErrors) as info:
+        load_station(write(tmp_path, text))
+    return [e.one_line() for e in info.value.errors]
+
+
+def test_good_station(tmp_path):
+    path = write(tmp_path, GOOD)
+    st = load_station(path)
+    assert st.id == "owl-bench-1" and st.path == path
+    assert st.capabilities == frozenset({"adc", "supply"})
+    adc = st.instruments["adc"]
+    assert (adc.kind, adc.address, adc.timeout) == ("serial-adc", "/dev/pts/5", 1.0)
+    o = adc.options
+    assert o["channels"] == ("out", "rail") and o["bits"] == 12 and o["vref"] == 3.3
+    assert o["dtr_low"] is True and o["rts_low"] is True  # rts follows dtr unless given
+    assert o["identify_timeout"] == 2.0 and o["clock_ppm"] == 50.0
+    assert o["max_loss"] == pytest.approx(0.001)  # 0.1 % as a fraction
+    out = adc.calibration.for_channel("out")
+    assert out.gain == 1.002 and out.offset == pytest.approx(-0.003)
+    assert adc.calibration.for_channel("rail") == Calibration()
+    sup = st.instruments["supply"]
+    assert sup.address == "TCPIP0::127.0.0.1::5025::SOCKET" and sup.timeout == 2.0
+    assert sup.options["accuracy"] == {"gain": pytest.approx(0.0005), "offset": pytest.approx(0.002)}
+    assert sup.options["commands"] == {"set_voltage": "SOUR:VOLT {value}"}
+    assert sup.options["reset"] is True
+    assert sup.calibration.due == dt.date(2027, 6, 1)
+
+
+def test_usb_and_url_addresses(tmp_path):
+    st = load_station(write(tmp_path, """\
+        station: b
+        instruments:
+          adc: {kind: serial-adc, usb: {vid: 0x2341, pid: "0043", serial: A1}}
+        """))
+    assert st.instruments["adc"].address == "usb:2341:0043:A1"
+    st = load_station(write(tmp_path, """\
+        station: b
+        instruments:
+          adc: {kind: serial-adc, url: "socket://127.0.0.1:7000"}
+        """))
+    assert st.instruments["adc"].address == "socket://127.0.0.1:7000"
+
+
+def test_errors_carry_file_line_column(tmp_path):
+    text = """\
+        station: b
+        instruments:
+          adc:
+            kind: serial-adc
+            port: /dev/ttyACM0
+            vref: 3.3 s
+            baudrat: 9600
+          scope:
+            kind: scpi-scope
+        """
+    lines = errors_of(tmp_path, text)
+    path = str(tmp_path / "station.yaml")
+    assert lines[0] == f"{path}:6:11: expected a voltage in V, got a time ('3.3 s')"
+    assert lines[1].startswith(f"{path}:7:14: unknown key 'baudrat' for a serial-adc")
+    assert lines[2].startswith(f"{path}:8:3: unknown instrument role 'scope'")
+
+
+@pytest.mark.parametrize("body, message", [
+    ("  adc: {port: /dev/x}", "instrument 'adc' has no 'kind'"),
+    ("  adc: {kind: scpi-dmm, resource: x}", "kind 'scpi-dmm' cannot serve as 'adc'"),
+    ("  adc: {kind: serial-adc, port: /dev/x, url: 'loop://'}", "needs exactly one address"),
+    ("  adc: {kind: serial-adc}", "needs exactly one address (port / url / usb), got none"),
+    ("  dmm: {kind: scpi-dmm, port: /dev/x}", "a scpi-dmm is addressed by resource, not 'port'"),
+    ("  adc: {kind: serial-adc, port: /dev/x, bits: 40}", "'bits' must be a whole number from 1 to 16"),
+    ("  adc: {kind: serial-adc, port: /dev/x, protocol: binary}", "'protocol' must be 'framed' or 'lines'"),
+    ("  adc: {kind: serial-adc, port: /dev/x, channels: [a, a]}", "distinct channel names"),
+    ("  adc: {kind: serial-adc, port: /dev/x, max_loss: 2}", "'max_loss' must be a fraction"),
+    ("  adc: {kind: serial-adc, port: /dev/x, usb: {vid: 1}}", "needs exactly one address"),
+    ("  adc: {kind: serial-adc, usb: {vid: 0x12345, pid: 1}}", "'vid' must be a 16-bit USB id"),
+    ("  adc: {kind: serial-adc, port: /dev/x, timeout: 0 s}", "must be greater than zero"),
+    ("  adc: {kind: serial-adc, port: /dev/x, channels: [out], calibration: {rail: {gain: 1}}}",
+     "calibration for unknown channel 'rail'"),
+    ("  dmm: {kind: scpi-dmm, resource: x, calibration: {date: 2026-13-01}}", "expected a date like"),
+    ("  dmm: {kind: scpi-dmm, resource: x, calibration: {date: 2026-06-01, due: 2025-06-01}}",
+     "due date is before its date"),
+])
+def test_bad_entries(tmp_path, body, message):
+    lines = errors_of(tmp_path, f"station: b\ninstruments:\n{body}\n")
+    assert any(message in line for line in lines), lines
+    assert all(line.startswith(str(tmp_path / "station.yaml") + ":3:") for line in lines), lines
+
+
+def test_top_level_problems(tmp_path):
+    lines = errors_of(tmp_path, "stations: b\ninstruments: []\n")
+    assert any(":1:1: unknown key 'stations'" in x for x in lines)
+    assert any("missing 'station'" in x for x in lines)
+    assert any(":2:14: 'instruments' must be a mapping" in x for x in lines)
+
+
+def test_duplicate_key_is_an_error(tmp_path):
+    lines = errors_of(tmp_path, "station: b\nstation: c\ninstruments: {}\n")
+    assert lines[0].endswith(":2:1: duplicate key 'station' (first given at line 1, column 1)")
+
+
+def test_missing_file(tmp_path):
+    with pytest.raises(PlanErrors, match="no such file"):
+        load_station(str(tmp_path / "nope.yaml"))
+
+
+class TestCalibrationStatus:
+    today = dt.date(2026, 12, 1)
+
+    def test_valid_expired_none(self):
+        assert Calibration(due=dt.date(2027, 1, 1)).status(self.today) == "valid"
+        assert Calibration(due=dt.date(2026, 11, 30)).status(self.today) == "expired"
+        assert Calibration(due=dt.date(2026, 12, 1)).status(self.today) == "valid"  # due today: still valid
+        assert Calibration(date=dt.date(2026, 1, 1)).status(self.today) == "none"
+
+    def test_worst_channel_decides(self):
+        cal = Calibration(channels={"out": Calibration(due=dt.date(2027, 1, 1)),
+                                    "rail": Calibration(due=dt.date(2026, 1, 1))})
+        assert cal.status(self.today) == "expired"
+        d = cal.to_dict(self.today)
+        assert d["due"] == "2026-01-01" and d["channels"]["rail"]["status"] == "expired"
