@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import json
 import os
-import selectors
+import select
 import signal
 import subprocess
 import sys
@@ -16,21 +16,30 @@ from benchgate.instruments.station import load_station
 
 
 def start(*args: str) -> subprocess.Popen:
-    return subprocess.Popen([sys.executable, "-m", "benchgate", "sim", *args], stdout=subprocess.PIPE,
-                            stderr=subprocess.PIPE, text=True)
+    proc = subprocess.Popen([sys.executable, "-m", "benchgate", "sim", *args], stdout=subprocess.PIPE,
+                            stderr=subprocess.PIPE, bufsize=0)
+    proc.pending = b""
+    return proc
 
 
 def first_line(proc: subprocess.Popen, limit: float = 60.0) -> str:
-    sel = selectors.DefaultSelector()
-    sel.register(proc.stdout, selectors.EVENT_READ)
+    """The next line the process prints (read straight from the pipe, unbuffered)."""
     deadline = time.monotonic() + limit  # a generous ceiling, not a timing assertion
-    while time.monotonic() < deadline:
-        if sel.select(timeout=0.5):
-            return proc.stdout.readline()
-        if proc.poll() is not None:
+    fd = proc.stdout.fileno()
+    while b"\n" not in proc.pending:
+        ready, _, _ = select.select([fd], [], [], 0.5)
+        if ready:
+            chunk = os.read(fd, 4096)
+            if not chunk:
+                break
+            proc.pending += chunk
+        elif proc.poll() is not None or time.monotonic() > deadline:
             break
-    proc.kill()
-    raise AssertionError(f"no output from benchgate sim; stderr: {proc.stderr.read()}")
+    if b"\n" not in proc.pending:
+        proc.kill()
+        raise AssertionError(f"no output from benchgate sim; stderr: {proc.stderr.read()!r}")
+    line, _, proc.pending = proc.pending.partition(b"\n")
+    return line.decode() + "\n"
 
 
 def test_json_then_clean_stop_on_sigint(tmp_path):
@@ -49,7 +58,7 @@ def test_json_then_clean_stop_on_sigint(tmp_path):
         proc.send_signal(signal.SIGINT)
         out, err = proc.communicate(timeout=30)
     assert proc.returncode == 0, err
-    assert "Traceback" not in err
+    assert b"Traceback" not in err
 
 
 def test_text_output_and_sigterm():
@@ -65,7 +74,7 @@ def test_text_output_and_sigterm():
         proc.send_signal(signal.SIGTERM)
         out, err = proc.communicate(timeout=30)
     assert proc.returncode == 0, err
-    assert "stopped" in out
+    assert b"stopped" in out
 
 
 @pytest.mark.parametrize("args, message", [
