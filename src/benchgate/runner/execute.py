@@ -33,6 +33,9 @@ READING_METHODS = {
     "supply_current": "measure_current",
 }
 
+#: how long (clock seconds) a unit is left unpowered before a repeated start-up capture
+POWER_CYCLE_OFF_S = 0.5
+
 _YES = ("y", "yes")
 _NO = ("n", "no")
 
@@ -246,6 +249,7 @@ class Executor:
         # Acquisition first, then the supply: the record must hold the start-up transient. The
         # driver's first progress call means samples are arriving; only then is the supply
         # switched on (never before, which could hide a slow start behind the record's start).
+        self._power_down_first(srec)
         result: dict[str, Any] = {}
 
         def work() -> None:
@@ -269,6 +273,19 @@ class Executor:
         if not started.is_set():
             srec.notes.append("the recorder reported no progress; the supply was not switched on")
         return result["capture"]
+
+    def _power_down_first(self, srec: StepRecord) -> None:
+        """A start-up capture needs an unpowered unit (a retry finds the supply on): power cycle."""
+        supply = self.bench["supply"]
+        try:
+            on = bool(supply.output_state())
+        except Exception:  # cannot tell: switch off to be sure
+            on = True
+        if on:
+            supply.output(False)
+            srec.notes.append(f"supply output switched off for {POWER_CYCLE_OFF_S:g} s before the "
+                              "start-up capture (the unit must start from unpowered)")
+            self.sleep(POWER_CYCLE_OFF_S, "power off before the start-up capture")
 
     # ------------------------------------------------------------------ helpers
     def _keep(self, step: Any, srec: StepRecord, key: str, capture: Any, warnings: list[str]) -> None:
