@@ -1,0 +1,11 @@
+"""Report tests share hand-built records (``report_samples``); make them importable in any
+pytest import mode."""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+
+_HERE = str(Path(__file__).resolve().parent)
+if _HERE not in sys.path:
+    sys.path.insert(0, _HERE)
