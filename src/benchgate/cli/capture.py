@@ -1,0 +1,82 @@
+"""``benchgate capture STATION --instrument NAME --duration 1s --out FILE.npz``: one record."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+
+
+def _quantity(unit: str):
+    def parse(text: str) -> float:
+        from benchgate.units import UnitError, parse_value
+
+        try:
+            value = parse_value(text, unit)
+        except UnitError as exc:
+            raise argparse.ArgumentTypeError(str(exc)) from None
+        if not value > 0:
+            raise argparse.ArgumentTypeError(f"must be greater than zero, got {text!r}")
+        return value
+
+    parse.__name__ = {"s": "duration", "Hz": "rate"}.get(unit, unit)
+    return parse
+
+
+def add_parser(subparsers) -> argparse.ArgumentParser:
+    parser = subparsers.add_parser(
+        "capture",
+        help="record one capture through a station's instrument into a .npz file",
+        description="Record one capture through an instrument of a station (the serial ADC or "
+        "the digitizer) into the .npz capture format, with the instrument's identity, "
+        "calibration and loss counts in its metadata. `benchgate analyze FILE.npz` measures it.",
+        epilog="Exit codes: 0 written, 2 bad station file or arguments, 3 instrument error "
+        "(a disconnect still writes what arrived, marked partial).",
+    )
+    parser.add_argument("station", metavar="STATION", help="station file (YAML)")
+    parser.add_argument("--instrument", default="adc", metavar="NAME",
+                        help="instrument role to record with: adc or digitizer (default adc)")
+    parser.add_argument("--duration", required=True, type=_quantity("s"), metavar="TIME",
+                        help="record length, e.g. 1s, 250ms")
+    parser.add_argument("--rate", type=_quantity("Hz"), metavar="RATE",
+                        help="sample rate, e.g. 50k or 50 kHz (default: the station's or the device's)")
+    parser.add_argument("--channel", metavar="NAME",
+                        help="channel to record (default: the instrument's first channel)")
+    parser.add_argument("--out", required=True, metavar="FILE.npz", help="where to write the capture")
+    parser.set_defaults(func=run)
+    return parser
+
+
+def run(args) -> int:
+    from benchgate.capfile import save_capture
+    from benchgate.errors import InstrumentDisconnected
+    from benchgate.instruments import load_station, open_station
+    from benchgate.units import format_quantity
+
+    station = load_station(args.station)
+    role = args.instrument
+    with open_station(station, roles=[role]) as bench:
+        inst = bench[role]
+        channel = args.channel or _default_channel(station.instruments[role])
+        try:
+            capture = inst.capture(channel, duration=args.duration, rate=args.rate)
+        except InstrumentDisconnected as exc:
+            if exc.partial is not None:
+                save_capture(exc.partial.with_metadata(partial=True), args.out)
+                print(f"benchgate: {role}: partial record ({exc.partial.n} samples) written to {args.out}",
+                      file=sys.stderr)
+            raise
+    digest = save_capture(capture, args.out)
+    loss = capture.metadata.get("loss", {}) if isinstance(capture.metadata.get("loss"), dict) else {}
+    lost = loss.get("lost_samples", 0)
+    print(f"{args.out}: {capture.n} samples of {channel!r} at {format_quantity(capture.sample_rate, 'Hz')} "
+          f"({format_quantity(capture.duration, 's')}), {lost} lost, sha256 {digest[:16]}")
+    for warning in capture.metadata.get("warnings", []) or []:
+        print(f"warning: {warning}")
+    return 0
+
+
+def _default_channel(config) -> str:
+    channels = config.options.get("channels")
+    if channels:
+        return list(channels)[0]
+    return str(config.options.get("channel", "ch1"))
