@@ -37,22 +37,30 @@ class Steady:
 
 
 def envelope(x: np.ndarray, period_samples: float, stride: int | None = None) -> Envelope:
-    """Sliding one-period amplitude envelope of ``x``."""
+    """Sliding one-period amplitude envelope of ``x``.
+
+    The window spans exactly one period (a fractional number of samples): the cumulative
+    sums are interpolated at the window's fractional end, which removes the ripple a whole
+    number of samples would leave (it would bias the start-up crossing on slow envelopes).
+    """
     n = x.size
-    m = int(min(max(4, round(period_samples)), n))
+    p = float(min(max(4.0, period_samples), n - 1.0))
+    m = int(math.floor(p))
+    frac = p - m
     xc = x - x.mean()
     c1 = np.empty(n + 1)
     c2 = np.empty(n + 1)
     c1[0] = c2[0] = 0.0
     np.cumsum(xc, out=c1[1:])
-    np.multiply(xc, xc, out=xc)
-    np.cumsum(xc, out=c2[1:])
+    sq = xc * xc
+    np.cumsum(sq, out=c2[1:])
     stride = max(1, m // 8) if stride is None else stride
-    starts = np.arange(0, n - m + 1, stride)
-    s1 = (c1[starts + m] - c1[starts]) / m
-    s2 = (c2[starts + m] - c2[starts]) / m
+    starts = np.arange(0, n - m, stride)
+    ends = starts + m
+    s1 = (c1[ends] - c1[starts] + frac * xc[ends]) / p
+    s2 = (c2[ends] - c2[starts] + frac * sq[ends]) / p
     var = np.maximum(s2 - s1 * s1, 0.0)
-    return Envelope(centre=starts + (m - 1) / 2.0, level=np.sqrt(2.0 * var), window=m)
+    return Envelope(centre=starts + (p - 1.0) / 2.0, level=np.sqrt(2.0 * var), window=int(round(p)))
 
 
 def find_steady(env: Envelope, n: int, cycles: float, noise_var: float) -> Steady:
@@ -76,7 +84,7 @@ def find_steady(env: Envelope, n: int, cycles: float, noise_var: float) -> Stead
     s_mean = 0.5 * level * level
     sd_var = math.sqrt(max(4.0 * noise_var * s_mean + 2.0 * noise_var * noise_var, 0.0) / m)
     sd_env = sd_var / level if level > 0 else math.inf
-    tol = max(0.01 * level, 5.5 * sd_env) + level * 0.5 / m
+    tol = max(0.01 * level, 5.5 * sd_env) + level * 0.1 / m
     half = tail.size // 2
     growing = bool(half >= 2 and abs(float(np.median(tail[half:])) - float(np.median(tail[:half]))) > tol)
     if level <= 0:

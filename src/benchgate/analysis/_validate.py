@@ -15,6 +15,8 @@ from benchgate.analysis.capture import Capture
 
 #: fewest samples any measurement is attempted on.
 MIN_SAMPLES = 16
+#: largest magnitude accepted as a voltage (beyond it the arithmetic would overflow).
+MAX_ABS = 1e100
 
 
 @dataclass(frozen=True)
@@ -78,6 +80,9 @@ def check_capture(capture: Capture) -> Checked:
         reason = f"{bad} NaN or infinite sample(s) in the record"
         return Checked(reason, (reason,), None, False, np.nan, np.nan)
     lo, hi = float(np.min(x)), float(np.max(x))
+    if max(abs(lo), abs(hi)) > MAX_ABS:
+        reason = f"samples out of range (beyond ±{MAX_ABS:g} V): not a voltage record"
+        return Checked(reason, (reason,), None, False, lo, hi)
     span = hi - lo
     scale = max(abs(lo), abs(hi), 1e-300)
     flat_limit = 2.0 * capture.adc.lsb if capture.adc is not None else 1e-9 * scale

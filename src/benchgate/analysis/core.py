@@ -44,8 +44,19 @@ class Analysis:
                 "warnings": list(self.warnings),
                 "steady_start": self.steady_start,
             },
-            "measurements": {name: m.to_dict() for name, m in self.measurements.items()},
+            "measurements": {name: _finite(m.to_dict()) for name, m in self.measurements.items()},
         }
+
+
+def _finite(obj: Any) -> Any:
+    """JSON-safe copy: NaN and infinities (e.g. inside details) become None."""
+    if isinstance(obj, dict):
+        return {k: _finite(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [_finite(v) for v in obj]
+    if isinstance(obj, float) and not math.isfinite(obj):
+        return None
+    return obj
 
 
 def analyze(capture: Capture, names: Iterable[str] | None = None, *, harmonics: int = 10) -> Analysis:

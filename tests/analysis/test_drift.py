@@ -1,0 +1,46 @@
+"""Frequency drift on linear chirps, and its coverage with no drift."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from numpy.testing import assert_allclose
+
+from benchgate.analysis import Capture
+from benchgate.analysis.drift import frequency_drift
+
+FS = 20_000.0
+
+
+def chirp(f0, slope, duration, noise=0.0, rng=None):
+    t = np.arange(int(FS * duration)) / FS
+    # instantaneous frequency f0 + slope·t: phase 2π(f0 t + slope t²/2)
+    x = np.sin(2 * np.pi * (f0 * t + 0.5 * slope * t * t) + 0.2)
+    if noise:
+        x = x + rng.normal(0, noise, t.size)
+    return Capture(x, FS)
+
+
+class TestFrequencyDrift:
+    def test_linear_chirp(self):
+        m = frequency_drift(chirp(1000.0, 0.5, 2.0))
+        assert m.valid
+        assert_allclose(m.value, 0.5, rtol=0.01)  # the chirp's defining slope (derived)
+
+    def test_negative_chirp_in_noise(self):
+        rng = np.random.default_rng(1)
+        m = frequency_drift(chirp(955.0, -5.0, 1.0, noise=0.05, rng=rng))
+        assert abs(m.value + 5.0) <= m.uncertainty
+
+    def test_no_drift_coverage(self):
+        rng = np.random.default_rng(2)
+        inside = [abs((m := frequency_drift(chirp(1000.0, 0.0, 0.2, noise=0.1, rng=rng))).value) <= m.uncertainty
+                  for _ in range(60)]
+        assert np.mean(inside) >= 0.88  # JCGM 100:2008 k = 2 (≈ 95 %), 60 trials
+
+    def test_too_few_cycles(self):
+        t = np.arange(500) / FS
+        m = frequency_drift(Capture(np.sin(2 * np.pi * 200 * t), FS))
+        assert not m.valid and "cycles" in m.reason
+        assert math.isnan(m.value)

@@ -1,0 +1,59 @@
+"""Start-up time on closed-form envelopes."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from numpy.testing import assert_allclose
+
+from benchgate.analysis import Capture
+from benchgate.analysis.transient import startup_time
+
+FS, F = 50_000.0, 955.0
+
+
+def grown(envelope, duration=0.5, noise=0.0, seed=0):
+    t = np.arange(int(FS * duration)) / FS
+    x = envelope(t) * np.sin(2 * np.pi * F * t + 0.3)
+    if noise:
+        x = x + np.random.default_rng(seed).normal(0, noise, t.size)
+    return Capture(1.65 + x, FS)
+
+
+class TestStartupTime:
+    def test_exponential_approach(self):
+        # closed form: A(1 − e^(−t/τ)) reaches 90 % at t = τ·ln 10 (derived)
+        tau = 0.02
+        m = startup_time(grown(lambda t: 1.0 - np.exp(-t / tau)))
+        assert m.valid
+        assert_allclose(m.value, tau * math.log(10), atol=0.5 / F)  # within half a period
+        assert abs(m.value - tau * math.log(10)) <= m.uncertainty
+
+    def test_logistic_growth_in_noise(self):
+        # closed form: A / (1 + e^(−(t−t0)/τ)) reaches 90 % at t0 + τ·ln 9 (derived)
+        t0, tau = 0.06, 0.008
+        m = startup_time(grown(lambda t: 1.0 / (1.0 + np.exp(-(t - t0) / tau)), noise=0.01))
+        assert_allclose(m.value, t0 + tau * math.log(9), atol=0.5 / F)
+
+    def test_already_running(self):
+        m = startup_time(grown(lambda t: np.ones_like(t)))
+        assert m.valid and m.value == 0.0
+
+    def test_still_growing_is_invalid(self):
+        m = startup_time(grown(lambda t: t / 0.5))
+        assert not m.valid and "still changing" in m.reason
+
+    def test_never_starts_is_invalid(self):
+        m = startup_time(Capture(1.65 + np.random.default_rng(1).normal(0, 0.01, 20_000), FS))
+        assert not m.valid and m.reason
+
+    def test_steady_part_after_startup(self):
+        from benchgate.analysis import analyze
+
+        tau = 0.02
+        a = analyze(grown(lambda t: 1.0 - np.exp(-t / tau), duration=0.6))
+        # the steady part starts once the envelope stays within about 1.5 % of its final value,
+        # t ≥ τ·ln(1/0.015) for this envelope (derived)
+        assert a.steady_start >= tau * math.log(1 / 0.015)
+        assert_allclose(a.measurements["amplitude"].value, 1.0, rtol=2e-3)
