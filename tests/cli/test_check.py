@@ -98,3 +98,13 @@ def test_subprocess_entry_point():
                        capture_output=True, text=True, timeout=60)
     assert r.returncode == 0, r.stderr
     assert json.loads(r.stdout)["plan"] == "pf2-final"
+
+
+def test_rich_table_on_a_terminal(capsys, monkeypatch):
+    monkeypatch.setattr(sys.stdout, "isatty", lambda: True)
+    monkeypatch.setenv("COLUMNS", "160")
+    assert main(["check", str(PLANS / "tb3.yaml")]) == 0
+    out = capsys.readouterr().out
+    for text in ("[capture]", "955.5 Hz", "785.9 Hz", "1.173 kHz", "64 tolerance corners",
+                 "gain needed 29.00", "plan is valid"):
+        assert text in out, text

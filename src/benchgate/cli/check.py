@@ -192,26 +192,36 @@ def plain_lines(data: dict[str, Any]) -> list[str]:
 
 def _print_rich(data: dict[str, Any]) -> None:
     from rich.console import Console
+    from rich.markup import escape as e
     from rich.table import Table
 
     con = Console()
-    con.print(f"[bold]{data['plan']}[/bold] {data['version']} — {data['product']}")
+    con.print(f"[bold]{e(data['plan'])}[/bold] {e(data['version'])} — {e(data['product'])}", highlight=False)
     con.print(f"hash {data['hash']}  decision [bold]{data['decision']}[/bold]  requires "
               f"{', '.join(data['requires']) or 'nothing'}", highlight=False)
     for c in data["cautions"]:
-        con.print(f"[yellow]caution[/yellow] {c}", highlight=False)
+        con.print(f"[yellow]caution[/yellow] {e(c)}", highlight=False)
     for h in data["hazards"]:
-        con.print(f"[red bold]hazard {h['name']}[/red bold] {h['text']}", highlight=False)
-    t = Table(show_lines=False)
-    for col in ("#", "step", "kind", "what", "check", "nominal", "low", "high", "derived from"):
-        t.add_column(col, overflow="fold")
+        con.print(f"[red bold]hazard {e(h['name'])}[/red bold] {e(h['text'])}", highlight=False)
     for i, s in enumerate(data["steps"], start=1):
-        t.add_row(str(i), s["id"], s["kind"], _settings_text(s), "", "", "", "", "")
+        flags = f"on_fail {s['on_fail']}" + (f", retries {s['retries']}" if s["retries"] else "")
+        con.print(f"[bold]{i}. {e(s['id'])}[/bold] {e('[' + s['kind'] + ']')} {e(s['title'])} ({flags})",
+                  highlight=False)
+        con.print(f"   {e(_settings_text(s))}", highlight=False)
+        if not s["checks"]:
+            continue
+        t = Table(box=None, padding=(0, 1), show_edge=False)
+        for col, just in (("check", "left"), ("unit", "left"), ("nominal", "right"), ("low", "right"),
+                          ("high", "right"), ("derived from", "left")):
+            t.add_column(col, justify=just, overflow="fold")
         for ch in s["checks"]:
             u = ch["unit"]
-            t.add_row("", "", "", "", ch["measurement"], _q(ch["nominal"], u), _q(ch["low"], u),
-                      _q(ch["high"], u), "\n".join([ch["derived_from"], *derivation_lines(ch)]))
-    con.print(t)
+            t.add_row(ch["measurement"], u, _q(ch["nominal"], u), _q(ch["low"], u), _q(ch["high"], u),
+                      e(ch["derived_from"]))
+        con.print(t)
+        for ch in s["checks"]:
+            for line in derivation_lines(ch):
+                con.print(f"   [dim]{ch['measurement']}:[/dim] {e(line)}", highlight=False)
     for n in data["notes"]:
-        con.print(f"[cyan]{n}[/cyan]", highlight=False)
+        con.print(f"[cyan]{e(n)}[/cyan]", highlight=False)
     con.print("[green]plan is valid[/green]")
