@@ -17,6 +17,7 @@ from benchgate.cli import main
 
 REPO = Path(__file__).resolve().parents[2]
 TB3 = REPO / "testplans" / "tb3.yaml"
+SPEED = 5.0
 
 DEAD_STATION = """\
 station: dead-bench
@@ -81,3 +82,152 @@ def test_unreachable_instrument_is_error_with_report_and_row(tmp_path, capsys):
     report = json.loads(Path(row[4]).read_text())
     assert report["verdict"] == "error" and report["reason"] == row[3]
     assert (tmp_path / "j.xml").exists()
+
+
+# ---------------------------------------------------------------- on the virtual bench
+
+
+@pytest.fixture
+def vbench(tmp_path):
+    from benchgate.sim.bench import VirtualBench
+
+    with VirtualBench("tb3", speed=SPEED, workdir=tmp_path / "vb") as vb:
+        yield vb
+
+
+def bg(*args, env=None, **kw):
+    """``benchgate`` as a separate process (the way an operator or a CI job starts it)."""
+    full_env = {k: v for k, v in os.environ.items() if k != "CI"}
+    full_env.update(env or {})
+    return subprocess.Popen([sys.executable, "-m", "benchgate", *map(str, args)], env=full_env,
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, **kw)
+
+
+def wait_for_event(path, event, step, proc, timeout=60.0):
+    deadline = time.monotonic() + timeout
+    while time.monotonic() < deadline:
+        if path.exists():
+            for line in path.read_text().splitlines():
+                e = json.loads(line)
+                if e["event"] == event and e.get("step") == step:
+                    return e
+        if proc.poll() is not None:
+            raise AssertionError(f"benchgate ended early: {proc.communicate()}")
+        time.sleep(0.01)
+    raise AssertionError(f"no {event} for {step} within {timeout} s")
+
+
+def test_good_unit_in_process_with_junit_and_events(vbench, tmp_path, capsys):
+    vbench.load_unit("OH-CLI-1")
+    junit, events = tmp_path / "ci" / "junit.xml", tmp_path / "ev.jsonl"
+    code = main(["run", str(TB3), "--station", str(vbench.station_path), "--serial", "OH-CLI-1",
+                 "--unattended", "--reports", str(tmp_path / "r"), "--clock-speed", str(SPEED),
+                 "--junit", str(junit), "--events", str(events), "--operator", "Wren", "--lot", "L7"])
+    out = capsys.readouterr().out
+    assert code == 0, out
+    assert "[3/7] power-on" in out and "PASS" in out and "\x1b[" not in out  # plain: not a terminal
+    assert vbench.supply_output is False
+    import xml.etree.ElementTree as ET
+
+    suite = ET.parse(junit).getroot().find("testsuite")
+    assert suite.get("tests") == "7" and suite.get("failures") == "0" and suite.get("errors") == "0"
+    names = [(c.get("classname"), c.get("name")) for c in suite.findall("testcase")]
+    assert ("tb3-final.steady", "thd") in names
+    kinds = [json.loads(line)["event"] for line in events.read_text().splitlines()]
+    assert kinds[0] == "run_started" and kinds[-1] == "run_finished" and kinds.count("check") == 7
+    (row,) = rows(tmp_path / "r" / "results.sqlite")
+    assert row[:3] == ("OH-CLI-1", 1, "pass")
+    report = json.loads(Path(row[4]).read_text())
+    assert report["operator"] == "Wren" and report["lot"] == "L7" and report["flags"]["unattended"] is True
+
+
+def test_ci_true_without_terminal_implies_unattended(vbench, tmp_path):
+    vbench.load_unit("OH-CI-1")
+    proc = bg("run", TB3, "--station", vbench.station_path, "--serial", "OH-CI-1", "--reports",
+              tmp_path / "r", "--clock-speed", SPEED, env={"CI": "true"}, stdin=subprocess.DEVNULL)
+    out, err = proc.communicate(timeout=120)
+    assert proc.returncode == 0, (out, err)
+    (row,) = rows(tmp_path / "r" / "results.sqlite")
+    report = json.loads(Path(row[4]).read_text())
+    assert report["flags"]["unattended"] is True
+    assert report["steps"][1]["answer"] == "yes"  # the plan's unattended_answer
+
+
+def test_unattended_prompt_without_scripted_answer_is_error(vbench, tmp_path):
+    text = TB3.read_text()
+    assert "    unattended_answer: yes\n" in text
+    plan = tmp_path / "tb3-no-script.yaml"
+    plan.write_text(text.replace("    unattended_answer: yes\n", ""))
+    vbench.load_unit("OH-NS-1")
+    proc = bg("run", plan, "--station", vbench.station_path, "--serial", "OH-NS-1", "--unattended",
+              "--reports", tmp_path / "r", "--clock-speed", SPEED, stdin=subprocess.DEVNULL)
+    out, err = proc.communicate(timeout=120)
+    assert proc.returncode == 3, (out, err)
+    assert vbench.supply_output is False
+    (row,) = rows(tmp_path / "r" / "results.sqlite")
+    assert row[1:3] == (1, "error")
+    assert "unattended_answer" in row[3] and "connect" in row[3]
+    assert "Traceback" not in err
+
+
+def test_batch_reads_serials_until_empty_line(vbench, tmp_path):
+    proc = bg("run", TB3, "--station", vbench.station_path, "--batch", "--unattended", "--reports",
+              tmp_path / "r", "--clock-speed", SPEED, stdin=subprocess.PIPE)
+    out, err = proc.communicate("OH-B-1\r\nOH-B-2\n\nOH-B-never\n", timeout=120)
+    assert proc.returncode == 0, (out, err)
+    assert "tally: 2 units — 2 pass" in out
+    assert sorted(r[0] for r in rows(tmp_path / "r" / "results.sqlite")) == ["OH-B-1", "OH-B-2"]
+
+
+def test_sigint_aborts_with_report_supply_off_and_complete_row(vbench, tmp_path):
+    vbench.load_unit("OH-INT-1")
+    events = tmp_path / "ev.jsonl"
+    # the run's own clock is real time here, so the 2 s warm-up leaves room to interrupt it
+    proc = bg("run", TB3, "--station", vbench.station_path, "--serial", "OH-INT-1", "--unattended",
+              "--reports", tmp_path / "r", "--events", events, stdin=subprocess.DEVNULL)
+    wait_for_event(events, "step_started", "warm-up", proc)
+    assert vbench.supply_output is True  # the unit is powered while it warms up
+    proc.send_signal(signal.SIGINT)
+    out, err = proc.communicate(timeout=60)
+    assert proc.returncode == 130, (out, err)
+    assert vbench.supply_output is False
+    (row,) = rows(tmp_path / "r" / "results.sqlite")
+    assert row[:3] == ("OH-INT-1", 1, "aborted")
+    report = json.loads(Path(row[4]).read_text())
+    assert report["verdict"] == "aborted" and "Ctrl-C" in report["reason"]
+    assert [s["status"] for s in report["steps"]][4:] == ["aborted", "skipped", "skipped"]
+    assert Path(row[4]).with_suffix(".html").exists()
+    assert "Traceback" not in err
+
+
+def test_second_sigint_during_cleanup_still_leaves_supply_off(vbench, tmp_path):
+    vbench.load_unit("OH-INT-2")
+    events = tmp_path / "ev.jsonl"
+    proc = bg("run", TB3, "--station", vbench.station_path, "--serial", "OH-INT-2", "--unattended",
+              "--reports", tmp_path / "r", "--events", events, stdin=subprocess.DEVNULL)
+    wait_for_event(events, "step_started", "warm-up", proc)
+    proc.send_signal(signal.SIGINT)
+    for _ in range(5):  # an impatient operator
+        time.sleep(0.005)
+        if proc.poll() is None:
+            proc.send_signal(signal.SIGINT)
+    out, err = proc.communicate(timeout=60)
+    assert proc.returncode == 130, (out, err)
+    assert vbench.supply_output is False
+    (row,) = rows(tmp_path / "r" / "results.sqlite")
+    assert row[1:3] == (1, "aborted")
+
+
+def test_kill_9_leaves_an_incomplete_row(vbench, tmp_path, capsys):
+    vbench.load_unit("OH-KILL-1")
+    events = tmp_path / "ev.jsonl"
+    proc = bg("run", TB3, "--station", vbench.station_path, "--serial", "OH-KILL-1", "--unattended",
+              "--reports", tmp_path / "r", "--events", events, stdin=subprocess.DEVNULL)
+    wait_for_event(events, "step_started", "warm-up", proc)
+    proc.kill()
+    proc.communicate(timeout=30)
+    (row,) = rows(tmp_path / "r" / "results.sqlite")
+    assert row[:3] == ("OH-KILL-1", 0, None)  # begun, never finished: visible, not missing
+    code = main(["history", "OH-KILL-1", "--db", str(tmp_path / "r" / "results.sqlite")])
+    out = capsys.readouterr().out
+    assert code == 0 and "OH-KILL-1" in out and "incomplete" in out.lower()
