@@ -67,8 +67,8 @@ BOARDS: dict[str, Board] = {
         "wo1", "WO-1 Wien-bridge oscillator", 12.0,
         _parts(R1=(16e3, 0.01, "Ω"), R2=(16e3, 0.01, "Ω"), C1=(10e-9, 0.05, "F"),
                C2=(10e-9, 0.05, "F"), Rf=(21e3, 0.01, "Ω"), Rg=(10e3, 0.01, "Ω"),
-               Rd=(33e3, 0.05, "Ω")),
-        DEFECTS, "ac", 0.75, 6.0),
+               Rd=(15e3, 0.05, "Ω")),
+        DEFECTS, "ac", 1.0, 6.0),
     "pf2": Board(
         "pf2", "PF-2 pulse board", 9.0,
         _parts(R1=(1e3, 0.05, "Ω"), R2=(6.8e3, 0.05, "Ω"), C=(100e-9, 0.10, "F")),
@@ -225,7 +225,7 @@ def _apply_defect(board: Board, values: dict[str, float], defect: str, rng: np.r
         if m == "tb3":
             values["gain"] *= 5.0
         else:
-            values["Rf"] *= 1.15  # gain 3.4: the diodes compress hard
+            values["Rf"] *= 1.12  # gain 3.35: the diodes compress hard
     elif defect == "open_section":
         if m == "tb3":
             values[f"C{int(rng.integers(1, 4))}"] = OPEN_CAPACITOR

@@ -4,9 +4,10 @@ A non-inverting op-amp stage of gain ``1 + rf/rg`` (a little above the 3 the bri
 drives the bridge: series ``r1``–``c1`` from the output to the non-inverting input, ``r2`` ∥
 ``c2`` from there to the (AC) ground of the mid-rail bias. Two anti-parallel diodes in series
 with ``rd`` across ``rf`` conduct more as the swing grows (modelled as a soft conductance: the
-feedback element's voltage is ``rp·i + (rf - rp)·i_k·tanh(i/i_k)``, with ``rp = rf ∥ rd`` and
-the knee current ``i_k`` putting the knee at the diode voltage), so the gain falls back to 3
-at a steady amplitude. The op-amp output saturates softly ``headroom`` volts from each rail.
+feedback element's voltage is ``rp·i + (rf - rp)·i_k·s(i/i_k)`` with the smooth limiter
+``s(x) = x / (1 + |x|^p)^(1/p)``, ``rp = rf ∥ rd``, and the knee current ``i_k`` putting the knee
+at the diode voltage; ``p`` sets how sharp the knee is), so the gain falls back to 3 at a
+steady amplitude. The op-amp output saturates softly ``headroom`` volts from each rail.
 
 Handbook check (REFERENCES.md): equal R and C give f = 1/(2πRC) and feedback 1/3; in general
 f = 1/(2π√(R1R2C1C2)).
@@ -30,15 +31,16 @@ class WienParams:
     c2: float = 10e-9
     rf: float = 21e3
     rg: float = 10e3
-    rd: float = 33e3
+    rd: float = 15e3
     diode_drop: float = 0.55
+    knee: float = 3.0  # sharpness p of the diodes' knee
     supply: float = 12.0
     headroom: float = 1.2
     quiescent_current: float = 5.6e-3  # op-amp and bias divider
     load_resistance: float = 8e3  # what the output drives (feedback + bridge), for the current draw
 
     def __post_init__(self) -> None:
-        values = (self.r1, self.r2, self.c1, self.c2, self.rf, self.rg, self.rd, self.diode_drop)
+        values = (self.r1, self.r2, self.c1, self.c2, self.rf, self.rg, self.rd, self.diode_drop, self.knee)
         if any(not v > 0 for v in values):
             raise ValueError("Wien-bridge component values must be positive")
 
@@ -72,12 +74,14 @@ def amplifier(p: WienParams) -> Amplifier:
     i_k = p.diode_drop / (p.rf - rp)
     swing = p.supply / 2.0 - p.headroom
     span = p.rf - rp
+    pw = float(p.knee)
 
     def fd(y: float) -> tuple[float, float]:
         i = y / p.rg
-        t = math.tanh(i / i_k)
-        lin = y + rp * i + span * i_k * t
-        dlin = 1.0 + (rp + span * (1.0 - t * t)) / p.rg
+        x = i / i_k
+        q = 1.0 + abs(x) ** pw
+        lin = y + rp * i + span * i_k * x / q ** (1.0 / pw)
+        dlin = 1.0 + (rp + span * q ** (-1.0 / pw - 1.0)) / p.rg
         s = math.tanh(lin / swing)
         return swing * s, (1.0 - s * s) * dlin
 
