@@ -50,6 +50,14 @@ def frames_of(codes: np.ndarray, per_frame: int, mask: int = 1) -> list[bytes]:
     return [encode_frame(i, PERIOD, mask, codes[i:i + per_frame]) for i in range(0, len(codes), per_frame)]
 
 
+def test_layout_matches_the_documented_example():
+    # docs/serial-protocol.md, "Frame layout" example; CRC from the bitwise definition above
+    frame = encode_frame(512, PERIOD, 1, np.array([0x0800, 0x0801], dtype=np.uint16))
+    body = bytes.fromhex("01 00020000 002D310100000000 01 0200 0008 0108")
+    assert frame == b"\xa5\x5a" + body + crc16_bitwise(body).to_bytes(2, "little")
+    assert frame[-2:] == bytes.fromhex("5B96")
+
+
 class TestRoundTrip:
     def test_single_channel(self):
         codes = np.arange(1000, dtype=np.uint16).reshape(-1, 1) % 4096
