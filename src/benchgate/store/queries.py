@@ -1,0 +1,373 @@
+"""Questions asked of the results database: a unit's history and a lot summary.
+
+The summary is aggregated by SQLite (``GROUP BY`` over covering indexes) and finished with
+numpy on the few grouped rows, so it stays fast on 10⁵ stored runs: no Python loop ever walks
+the run or check rows themselves.
+
+Definitions used by :func:`summary`:
+
+- a *unit* is a (plan id, serial) pair among the selected runs; its attempts are its runs in
+  order of start time. Every run counts as an attempt, including incomplete ones (a run that
+  crashed, or is still going on: it has not passed yet).
+- first-pass yield = units whose first attempt passed / units tested; final yield = units
+  whose latest attempt passed / units tested (common practice, no published source).
+- retests = attempts after the first, summed over units.
+- per numeric check (one window of one step of one plan): mean, sample standard deviation
+  (n − 1), min, max and Cpk = min(USL − μ, μ − LSL) / 3σ, one-sided when the window has one
+  limit (ISO 22514-2), over the valid values of completed runs.
+"""
+
+from __future__ import annotations
+
+import math
+import sqlite3
+from dataclasses import asdict, dataclass, field
+from datetime import UTC, datetime
+from typing import Any
+
+import numpy as np
+
+#: histogram bins per numeric check.
+HISTOGRAM_BINS = 30
+#: Pareto lists keep this many entries; the rest are summed into "other".
+PARETO_TOP = 15
+
+
+# --------------------------------------------------------------------------- history
+
+@dataclass(frozen=True)
+class HistoryCheck:
+    step: str
+    measurement: str
+    value: float | None
+    uncertainty: float | None
+    low: float | None
+    high: float | None
+    unit: str
+    valid: bool
+    verdict: str
+    reason: str
+
+
+@dataclass(frozen=True)
+class HistoryRun:
+    """One run of a unit as stored. ``verdict`` is None while the run is incomplete."""
+
+    run_id: str
+    serial: str
+    plan_id: str
+    plan_version: str
+    station_id: str | None
+    operator: str | None
+    lot: str | None
+    started: str
+    ended: str | None
+    complete: bool
+    verdict: str | None
+    reason: str | None
+    report_path: str | None
+    flags: dict[str, bool]
+    checks: tuple[HistoryCheck, ...] = ()
+
+    @property
+    def status(self) -> str:
+        """The verdict, or ``incomplete`` for a run that never finished."""
+        return self.verdict if self.complete and self.verdict else "incomplete"
+
+    def to_dict(self) -> dict[str, Any]:
+        d = asdict(self)
+        d["status"] = self.status
+        d["checks"] = [asdict(c) for c in self.checks]
+        return d
+
+
+def history(conn: sqlite3.Connection, serial: str) -> list[HistoryRun]:
+    """Every run of ``serial`` (exact match), newest first."""
+    runs = conn.execute(
+        "SELECT id, run_id, serial, plan_id, plan_version, station_id, operator, lot, started,"
+        " ended, complete, verdict, reason, report_path, accept_hazards,"
+        " allow_expired_calibration, unattended FROM runs WHERE serial = ?"
+        " ORDER BY started_epoch DESC, id DESC", (serial,)).fetchall()
+    checks: dict[int, list[HistoryCheck]] = {}
+    if runs:
+        rows = conn.execute(
+            "SELECT c.run, d.step, d.measurement, c.value, c.uncertainty, d.low, d.high, d.unit,"
+            " c.valid, c.verdict, c.reason FROM checks c JOIN check_defs d ON d.id = c.def"
+            " JOIN runs r ON r.id = c.run WHERE r.serial = ? ORDER BY c.run, c.seq", (serial,))
+        for run, *rest in rows:
+            rest[7] = bool(rest[7])
+            checks.setdefault(run, []).append(HistoryCheck(*rest))
+    out = []
+    for r in runs:
+        out.append(HistoryRun(
+            run_id=r[1], serial=r[2], plan_id=r[3], plan_version=r[4], station_id=r[5],
+            operator=r[6], lot=r[7], started=r[8], ended=r[9], complete=bool(r[10]),
+            verdict=r[11], reason=r[12], report_path=r[13],
+            flags={"accept_hazards": bool(r[14]), "allow_expired_calibration": bool(r[15]),
+                   "unattended": bool(r[16])},
+            checks=tuple(checks.get(r[0], ()))))
+    return out
+
+
+# --------------------------------------------------------------------------- summary
+
+@dataclass(frozen=True)
+class Histogram:
+    edges: tuple[float, ...]  # HISTOGRAM_BINS + 1 bin edges
+    counts: tuple[int, ...]
+
+
+@dataclass(frozen=True)
+class CheckStats:
+    """Statistics of one numeric check (one window of one step of one plan)."""
+
+    plan_id: str
+    step: str
+    measurement: str
+    unit: str
+    low: float | None
+    high: float | None
+    n: int
+    mean: float
+    std: float | None  # sample standard deviation; None below two values
+    min: float
+    max: float
+    cpk: float | None  # None when σ is zero or unknown
+    histogram: Histogram
+
+
+@dataclass(frozen=True)
+class ParetoCheck:
+    plan_id: str
+    step: str
+    measurement: str
+    fail: int
+    error: int
+    inconclusive: int
+
+    @property
+    def total(self) -> int:
+        return self.fail + self.error + self.inconclusive
+
+
+@dataclass(frozen=True)
+class ParetoReason:
+    reason: str
+    count: int
+
+
+@dataclass(frozen=True)
+class Summary:
+    plan: str | None
+    lot: str | None
+    since: str | None
+    runs: int
+    incomplete: int
+    units_tested: int
+    first_pass: int
+    final_pass: int
+    retests: int
+    units_retested: int
+    verdicts: dict[str, int]
+    pareto_checks: tuple[ParetoCheck, ...] = ()
+    pareto_reasons: tuple[ParetoReason, ...] = ()
+    checks: tuple[CheckStats, ...] = field(default=())
+
+    @property
+    def first_pass_yield(self) -> float | None:
+        return self.first_pass / self.units_tested if self.units_tested else None
+
+    @property
+    def final_yield(self) -> float | None:
+        return self.final_pass / self.units_tested if self.units_tested else None
+
+    def to_dict(self) -> dict[str, Any]:
+        d = asdict(self)
+        d["first_pass_yield"] = self.first_pass_yield
+        d["final_yield"] = self.final_yield
+        d["pareto_checks"] = [dict(asdict(p), total=p.total) for p in self.pareto_checks]
+        for c in d["checks"]:
+            h = c.pop("histogram")
+            c["histogram"] = {"edges": list(h["edges"]), "counts": list(h["counts"])}
+        return d
+
+
+def cpk(mean: float, std: float | None, low: float | None, high: float | None) -> float | None:
+    """Process capability index Cpk = min(USL − μ, μ − LSL) / 3σ (ISO 22514-2).
+
+    One-sided when only one limit is given; None when σ is unknown or zero.
+    """
+    if std is None or not std > 0 or (low is None and high is None):
+        return None
+    sides = []
+    if high is not None:
+        sides.append(high - mean)
+    if low is not None:
+        sides.append(mean - low)
+    return min(sides) / (3.0 * std)
+
+
+def parse_since(since: str) -> float:
+    """Seconds since the epoch for ``--since`` (a date, or an ISO time; UTC unless stated)."""
+    from benchgate.store.db import StoreError
+
+    try:
+        t = datetime.fromisoformat(since.strip().replace("Z", "+00:00"))
+    except ValueError:
+        raise StoreError(f"--since: not a date or ISO 8601 time: {since!r} "
+                         "(expected e.g. 2026-12-01 or 2026-12-01T08:00Z)") from None
+    if t.tzinfo is None:
+        t = t.replace(tzinfo=UTC)
+    return t.timestamp()
+
+
+def _filters(plan: str | None, lot: str | None, since: str | None
+             ) -> tuple[str, str, list[Any]]:
+    """WHERE fragments over ``runs r`` and over ``checks c`` (same parameters), built from
+    fixed text only; the values go in as parameters."""
+    runs, checks, params = [], [], []
+    if plan is not None:
+        runs.append("r.plan_id = ?")
+        checks.append("c.def IN (SELECT id FROM check_defs WHERE plan_id = ?)")
+        params.append(plan)
+    if lot is not None:
+        runs.append("r.lot = ?")
+        checks.append("c.lot = ?")
+        params.append(lot)
+    if since is not None:
+        runs.append("r.started_epoch >= ?")
+        checks.append("c.started_epoch >= ?")
+        params.append(parse_since(since))
+    return "".join(f" AND {x}" for x in runs), "".join(f" AND {x}" for x in checks), params
+
+
+def summary(conn: sqlite3.Connection, *, plan: str | None = None, lot: str | None = None,
+            since: str | None = None) -> Summary:
+    """The lot summary over the runs selected by plan id, lot and start time (all when None)."""
+    rf, cf, params = _filters(plan, lot, since)
+    # one group per unit, read from the covering index runs_units; with a single MIN() or
+    # MAX() aggregate SQLite takes the bare column (verdict) from that row
+    units, n_runs, first, retested = conn.execute(
+        "SELECT COUNT(*), COALESCE(SUM(n), 0), COALESCE(SUM(v = 'pass'), 0), COALESCE(SUM(n > 1), 0)"
+        " FROM (SELECT COUNT(*) AS n, MIN(started_epoch), verdict AS v FROM runs r"
+        f" INDEXED BY runs_units WHERE 1{rf} GROUP BY plan_id, serial)", params).fetchone()
+    (final,) = conn.execute(
+        "SELECT COALESCE(SUM(v = 'pass'), 0) FROM (SELECT MAX(started_epoch), verdict AS v"
+        f" FROM runs r INDEXED BY runs_units WHERE 1{rf} GROUP BY plan_id, serial)",
+        params).fetchone()
+    verdicts = {str(v): int(k) for v, k in conn.execute(
+        "SELECT CASE WHEN complete = 1 THEN verdict ELSE 'incomplete' END, COUNT(*)"
+        f" FROM runs r INDEXED BY runs_units WHERE 1{rf} GROUP BY 1 ORDER BY 2 DESC, 1", params)}
+
+    defs = {row[0]: row[1:] for row in conn.execute(
+        "SELECT id, plan_id, step, measurement, unit, low, high FROM check_defs")}
+    return Summary(
+        plan=plan, lot=lot, since=since, runs=n_runs, incomplete=verdicts.get("incomplete", 0),
+        units_tested=units, first_pass=first, final_pass=final, retests=n_runs - units,
+        units_retested=retested, verdicts=verdicts,
+        pareto_checks=_pareto_checks(conn, defs, cf, params),
+        pareto_reasons=_pareto_reasons(conn, rf, cf, params),
+        checks=_check_stats(conn, defs, cf, params),
+    )
+
+
+def _pareto_checks(conn, defs, cf, params) -> tuple[ParetoCheck, ...]:
+    merged: dict[tuple[str, str, str], list[int]] = {}
+    for d, fail, err, inc in conn.execute(
+            "SELECT c.def, SUM(c.verdict = 'fail'), SUM(c.verdict IN ('error', 'aborted')),"
+            " SUM(c.verdict = 'inconclusive') FROM checks c"
+            f" WHERE c.verdict <> 'pass'{cf} GROUP BY c.def", params):
+        acc = merged.setdefault(tuple(defs[d][:3]), [0, 0, 0])
+        acc[0] += fail
+        acc[1] += err
+        acc[2] += inc
+    items = [ParetoCheck(*k, *v) for k, v in merged.items()]
+    items.sort(key=lambda p: (-p.fail, -p.total, p.plan_id, p.step, p.measurement))
+    return tuple(items)
+
+
+def _pareto_reasons(conn, rf, cf, params) -> tuple[ParetoReason, ...]:
+    counts: dict[str, int] = {}
+    for meas, verdict, side, reason, n in conn.execute(
+            "SELECT d.measurement, c.verdict,"
+            " CASE WHEN c.verdict = 'fail' AND d.high IS NOT NULL AND c.value > d.high THEN 'above'"
+            "      WHEN c.verdict = 'fail' THEN 'below' END,"
+            " CASE WHEN c.verdict NOT IN ('fail', 'inconclusive') THEN c.reason END,"
+            " COUNT(*) FROM checks c JOIN check_defs d ON d.id = c.def"
+            f" WHERE c.verdict <> 'pass'{cf} GROUP BY 1, 2, 3, 4", params):
+        if verdict == "fail":
+            text = f"{meas} {side} the {'high' if side == 'above' else 'low'} limit"
+        elif verdict == "inconclusive":
+            text = f"{meas} inconclusive (within U of a limit)"
+        else:
+            text = reason
+        counts[text] = counts.get(text, 0) + n
+    # runs that did not pass without any check saying why (lost instrument, abort, crash)
+    for complete, reason, n in conn.execute(
+            "SELECT complete, reason, COUNT(*) FROM runs r"
+            f" WHERE (complete = 0 OR verdict <> 'pass'){rf} AND NOT EXISTS"
+            " (SELECT 1 FROM checks c WHERE c.run = r.id AND c.verdict <> 'pass')"
+            " GROUP BY 1, 2", params):
+        text = "incomplete: run did not finish" if not complete else (reason or "no reason given")
+        counts[text] = counts.get(text, 0) + n
+    items = sorted(counts.items(), key=lambda kv: (-kv[1], kv[0]))
+    if len(items) > PARETO_TOP:
+        rest = sum(n for _, n in items[PARETO_TOP - 1:])
+        items = items[:PARETO_TOP - 1] + [("other", rest)]
+    return tuple(ParetoReason(r, n) for r, n in items)
+
+
+def _check_stats(conn, defs, cf, params) -> tuple[CheckStats, ...]:
+    valid = "c.valid = 1 AND c.value IS NOT NULL"
+    rows = conn.execute(
+        "SELECT c.def, COUNT(*), AVG(c.value), MIN(c.value), MAX(c.value) FROM checks c"
+        f" WHERE {valid}{cf} GROUP BY c.def", params).fetchall()
+    if not rows:
+        return ()
+    ids = np.array([r[0] for r in rows], dtype=np.int64)
+    n = np.array([r[1] for r in rows], dtype=np.int64)
+    mean = np.array([r[2] for r in rows], dtype=float)
+    vmin = np.array([r[3] for r in rows], dtype=float)
+    vmax = np.array([r[4] for r in rows], dtype=float)
+    # histogram range: the data and the limits, so that both show
+    lows = np.array([np.nan if defs[i][4] is None else defs[i][4] for i in ids], dtype=float)
+    highs = np.array([np.nan if defs[i][5] is None else defs[i][5] for i in ids], dtype=float)
+    lo = np.fmin(vmin, lows)
+    hi = np.fmax(vmax, highs)
+    span = hi - lo
+    pad = np.where(span > 0, 0.04 * span, np.maximum(np.abs(lo) * 1e-3, 1e-12))
+    lo, hi = lo - pad, hi + pad
+    width = (hi - lo) / HISTOGRAM_BINS
+
+    # second pass, one query per check (a handful): bin counts and squared deviations
+    # about the mean from the first pass (two-pass variance, no cancellation)
+    counts = np.zeros((len(rows), HISTOGRAM_BINS), dtype=np.int64)
+    ssd = np.zeros(len(rows))
+    sql = (f"SELECT MIN(MAX(CAST((c.value - ?) / ? AS INTEGER), 0), {HISTOGRAM_BINS - 1}) AS b,"
+           " COUNT(*), SUM((c.value - ?) * (c.value - ?)) FROM checks c"
+           f" WHERE c.def = ? AND {valid}{cf} GROUP BY b")
+    for k in range(len(rows)):
+        mu = float(mean[k])
+        for b, cnt, s in conn.execute(sql, [float(lo[k]), float(width[k]), mu, mu, int(ids[k])]
+                                      + params):
+            counts[k, b] = cnt
+            ssd[k] += s
+    std = np.sqrt(ssd / np.maximum(n - 1, 1))
+
+    out = []
+    for k, d in enumerate(ids):
+        plan_id, step, meas, unit, low, high = defs[int(d)]
+        s = None if n[k] < 2 else float(std[k])
+        edges = tuple(float(x) for x in np.linspace(lo[k], hi[k], HISTOGRAM_BINS + 1))
+        out.append(CheckStats(
+            plan_id=plan_id, step=step, measurement=meas, unit=unit, low=low, high=high,
+            n=int(n[k]), mean=float(mean[k]), std=s, min=float(vmin[k]), max=float(vmax[k]),
+            cpk=cpk(float(mean[k]), s, low, high),
+            histogram=Histogram(edges, tuple(int(x) for x in counts[k]))))
+    out.sort(key=lambda c: (c.plan_id, c.step, c.measurement, c.low is None, c.low or 0.0))
+    return tuple(out)
+
+
+def fmt_ratio(x: float | None) -> str:
+    """A yield as a percentage for printing."""
+    return "—" if x is None or not math.isfinite(x) else f"{100.0 * x:.1f} %"
