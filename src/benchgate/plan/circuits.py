@@ -14,7 +14,7 @@ import math
 import numpy as np
 
 _ROOT_STEPS = 24  # regula falsi steps; converged to rounding well before that
-_GRID = np.logspace(-2.5, 2.5, 41)  # search grid, relative to the circuit's own time scale
+_GRID = np.logspace(-4, 4, 65)  # search grid, relative to the circuit's own time scale
 _CHUNK = 2048  # draws evaluated at once on the grid (memory bound)
 
 
