@@ -144,3 +144,29 @@ class TestWindow:
         w2 = derive.derived_window(circ, d, margin=parse_tolerance("±10 Hz", "Hz"))
         assert_allclose([w2.low, w2.high], [d.low - 10, d.high + 10])
         assert w.details["gain_needed"]["nominal"] == pytest.approx(29.0)
+
+
+@pytest.mark.parametrize("form", ["highpass", "lowpass"])
+def test_ladder_frequency_falls_with_every_part(form):
+    # the corner enumeration is exact if f is monotonic in each part; checked here by
+    # perturbing each part of random ladders (with source and load) by +1 % (common practice)
+    from benchgate.plan.circuits import rc_ladder
+
+    rng = np.random.default_rng(42)
+    m, n = 300, 4
+    R, C = rng.uniform(1e3, 100e3, (m, n)), rng.uniform(1e-9, 100e-9, (m, n))
+    src, load = rng.uniform(0, 20e3, m), rng.uniform(5e3, 1e6, m)
+    f0 = rc_ladder(R, C, form=form, source=src, load=load)["frequency"]
+    assert np.all(np.isfinite(f0))
+    for j in range(2 * n + 2):
+        R2, C2, s2, l2 = R.copy(), C.copy(), src.copy(), load.copy()
+        if j < n:
+            R2[:, j] *= 1.01
+        elif j < 2 * n:
+            C2[:, j - n] *= 1.01
+        elif j == 2 * n:
+            s2 = src * 1.01 + 1.0
+        else:
+            l2 = load * 1.01
+        f1 = rc_ladder(R2, C2, form=form, source=s2, load=l2)["frequency"]
+        assert np.all(f1 <= f0 * (1 + 1e-12)), j

@@ -4,10 +4,12 @@ A circuit is a topology, its options and its toleranced parts (one entry per phy
 a ladder with a shared ``R`` still has N independent resistors). The worst-case window is the
 range of the output over every corner of the tolerance box, enumerated exactly (2^k corners for
 k toleranced parts, evaluated in one vectorised call). Corners give the true extremes when the
-output is monotonic in each part, which holds for all topologies here (frequency falls as any
-R, C or L grows; the timer's duty rises with R1 and falls with R2); the Monte Carlo run is also
-checked against the corner window, and the window is widened (and says so) if a draw fell
-outside it.
+output is monotonic in each part. That holds for all topologies here: for the Wien bridge, the
+timer and the LC tanks it follows from the closed forms (frequency falls as any R, C or L grows;
+the timer's duty (R1+R2)/(R1+2R2) rises with R1 and falls with R2); for the RC ladder, with
+source and load, frequency falls as any part grows, which the tests check by perturbing every
+part of random ladders. As a safeguard the Monte Carlo draws are also compared with the corner
+window, and the window is widened to them (and says so) if one fell outside.
 """
 
 from __future__ import annotations
