@@ -13,8 +13,8 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
         "each defect), write every unit report and the lot summary, and print the results.")
     p.add_argument("--units", type=int, default=14, metavar="N",
                    help="units in the lot (at least one per defect plus one good; default 14)")
-    p.add_argument("--speed", type=float, default=20.0, metavar="X",
-                   help="how much faster than real time the virtual bench runs (default 20)")
+    p.add_argument("--speed", type=float, default=4.0, metavar="X",
+                   help="how much faster than real time the virtual bench runs (default 4)")
     p.add_argument("--reports", default="reports", metavar="DIR", help="report folder (default: reports)")
     p.add_argument("--json", action="store_true", help="print the lot as JSON instead of a table")
     p.set_defaults(func=run)

@@ -1,0 +1,73 @@
+"""``benchgate demo``: a simulated lot on the virtual bench, reports, summary, table or JSON."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import pytest
+
+from benchgate.cli import main
+from benchgate.runner.demo import KNOWN_DEFECTS, DemoResult, DemoUnit, find_plan, make_lot
+
+REPO = Path(__file__).resolve().parents[2]
+
+
+def test_shipped_plan_copy_matches_testplans():
+    shipped = REPO / "src" / "benchgate" / "demo" / "tb3.yaml"
+    assert shipped.read_bytes() == (REPO / "testplans" / "tb3.yaml").read_bytes()
+    assert find_plan() == REPO / "testplans" / "tb3.yaml"  # a checkout uses the original
+
+
+def test_lot_has_every_defect_once_and_starts_good():
+    lot = make_lot(12, "L", KNOWN_DEFECTS)
+    assert len(lot) == 12 and lot[0].defect is None
+    assert sorted(u.defect for u in lot if u.defect) == sorted(KNOWN_DEFECTS)
+    assert len({u.serial for u in lot}) == 12
+    assert len(make_lot(3, "L", KNOWN_DEFECTS)) == len(KNOWN_DEFECTS) + 1  # never too small
+    assert [u.defect for u in make_lot(12, "L", KNOWN_DEFECTS)] == [u.defect for u in lot]  # fixed order
+
+
+@pytest.fixture(scope="module")
+def demo_json(tmp_path_factory):
+    import contextlib
+    import io
+
+    reports = tmp_path_factory.mktemp("demo")
+    out = io.StringIO()
+    with contextlib.redirect_stdout(out):
+        code = main(["demo", "--units", "12", "--json", "--reports", str(reports)])
+    return code, json.loads(out.getvalue()), reports
+
+
+def test_demo_json_lot(demo_json):
+    code, data, reports = demo_json
+    assert code == 0
+    assert set(data) >= {"lot", "units", "summary"}
+    units = data["units"]
+    assert len(units) == 12
+    assert sorted(u["defect"] for u in units if u["defect"]) == sorted(KNOWN_DEFECTS)
+    for u in units:
+        assert set(u) >= {"serial", "verdict", "report"}
+        assert Path(u["report"]).exists() and Path(u["report"]).with_suffix(".html").exists()
+        assert json.loads(Path(u["report"]).read_text())["serial"] == u["serial"]
+    good = [u for u in units if u["defect"] is None]
+    assert all(u["verdict"] == "pass" for u in good), [(u["serial"], u["reason"]) for u in good]
+    for defect in ("low_gain", "high_gain", "open_section", "wrong_capacitor"):
+        (unit,) = [u for u in units if u["defect"] == defect]
+        assert unit["verdict"] in ("fail", "error"), unit
+    assert Path(data["summary"]["html"]).exists()
+    assert (reports / "results.sqlite").exists()
+
+
+def test_demo_table_lists_every_unit(capsys):
+    result = DemoResult(lot="L1", units=[DemoUnit("L1-001", None, "pass", "all 7 checks passed"),
+                                         DemoUnit("L1-002", "high_gain", "fail", "steady: thd 8 % above 5 %")],
+                        summary={}, summary_html=Path("s.html"), reports_dir=Path("r"), seconds=1.0)
+    from benchgate.cli.demo import _table
+
+    _table(result)
+    out = capsys.readouterr().out.splitlines()
+    assert out[1].split() == ["serial", "defect", "injected", "verdict", "reason"]
+    assert out[2].split()[:3] == ["L1-001", "—", "pass"]
+    assert out[3].split()[:3] == ["L1-002", "high_gain", "fail"]
