@@ -18,7 +18,6 @@ everything up to the settled cycle, start-up included, is integrated).
 from __future__ import annotations
 
 import math
-import operator
 from collections.abc import Callable
 from dataclasses import dataclass
 
@@ -96,6 +95,7 @@ class LoopStepper:
         self.x = list(map(float, x0))
         self.e = self._solve(sum(c * xi for c, xi in zip(map(float, c_in), self.x, strict=False)), float(system.d_in), 0.0)
         self._e_prev = self.e
+        self._kernel = None
 
     def _solve(self, ystar: float, dd: float, guess: float) -> float:
         amp = self.system.amp
@@ -103,39 +103,67 @@ class LoopStepper:
 
     def run(self, n: int) -> np.ndarray:
         """Advance ``n`` steps; return the output voltage after each step."""
-        out = np.empty(int(n))
-        phi, g0, g1, cy, cg, dd = self._phi, self._g0, self._g1, self._cy, self._cg, self._dd
-        c_out, d_out, bias = self._c_out, self._d_out, self.system.bias
-        fd = self.system.amp.fd
-        lo0, hi0 = self.system.amp.low, self.system.amp.high
-        mul = operator.mul
-        rows = tuple(zip(phi, g0, g1, strict=False))
-        x, e, e_prev = self.x, self.e, self._e_prev
-        for k in range(int(n)):
-            ystar = cg * e + sum(map(mul, cy, x))
-            # e1 = f(ystar + dd*e1): Newton inside a bracket, bisection as the fallback,
-            # starting from the linear extrapolation of the last two values
-            lo, hi = lo0, hi0
-            e1 = min(max(2.0 * e - e_prev, lo), hi)
-            for _ in range(60):
-                fy, dfy = fd(ystar + dd * e1)
-                g = e1 - fy
-                if g > 0.0:
-                    hi = e1
-                else:
-                    lo = e1
-                new = e1 - g / (1.0 - dfy * dd)
-                if not lo < new < hi:
-                    new = 0.5 * (lo + hi)
-                if abs(new - e1) <= 1e-10:
-                    e1 = new
-                    break
+        if self._kernel is None:
+            self._kernel = _build_kernel(self._phi, self._g0, self._g1, self._cy, self._cg, self._dd,
+                                         self._c_out, self._d_out, self.system.bias)
+        amp = self.system.amp
+        out, self.x, self.e, self._e_prev = self._kernel(
+            int(n), self.x, self.e, self._e_prev, amp.fd, amp.low, amp.high)
+        return np.asarray(out, dtype=np.float64)
+
+
+_KERNEL = """
+def kernel(n, x, e, e_prev, fd, lo0, hi0):
+    {unpack} = x
+    out = []
+    push = out.append
+    for _ in range(n):
+        ystar = {ystar}
+        # e1 = f(ystar + dd*e1): Newton inside a bracket, bisection as the fallback,
+        # starting from the linear extrapolation of the last two values
+        lo, hi = lo0, hi0
+        e1 = min(max(2.0 * e - e_prev, lo), hi)
+        for _ in range(60):
+            fy, dfy = fd(ystar + {dd} * e1)
+            g = e1 - fy
+            if g > 0.0:
+                hi = e1
+            else:
+                lo = e1
+            new = e1 - g / (1.0 - dfy * {dd})
+            if not lo < new < hi:
+                new = 0.5 * (lo + hi)
+            if abs(new - e1) <= 1e-10:
                 e1 = new
-            x = [sum(map(mul, row, x)) + a0 * e + a1 * e1 for row, a0, a1 in rows]
-            e_prev, e = e, e1
-            out[k] = bias + d_out * e + sum(map(mul, c_out, x))
-        self.x, self.e, self._e_prev = x, e, e_prev
-        return out
+                break
+            e1 = new
+        {update}
+        e_prev, e = e, e1
+        push({output})
+    return out, [{unpack}], e, e_prev
+"""
+
+
+def _build_kernel(phi, g0, g1, cy, cg, dd, c_out, d_out, bias):
+    """The stepping loop with the matrices written out as constants (unrolled: several times
+    faster in CPython than looping over rows)."""
+    n = len(g0)
+    names = [f"x{i}" for i in range(n)]
+
+    def dot(coefs, terms):
+        return " + ".join(f"{float(c)!r} * {t}" for c, t in zip(coefs, terms, strict=True))
+
+    rows = [dot([*phi[i], g0[i], g1[i]], [*names, "e", "e1"]) for i in range(n)]
+    src = _KERNEL.format(
+        unpack=", ".join(names) + ("," if n == 1 else ""),
+        ystar=dot([cg, *cy], ["e", *names]),
+        dd=repr(float(dd)),
+        update=", ".join(names) + " = " + ", ".join(f"({r})" for r in rows),
+        output=f"{float(bias)!r} + " + dot([d_out, *c_out], ["e", *names]),
+    )
+    scope: dict = {}
+    exec(compile(src, "<loop-kernel>", "exec"), scope)  # noqa: S102 - our own generated code
+    return scope["kernel"]
 
 
 def soft_limit(gain: float, high: float, low: float) -> Amplifier:

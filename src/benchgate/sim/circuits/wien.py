@@ -75,13 +75,17 @@ def amplifier(p: WienParams) -> Amplifier:
     swing = p.supply / 2.0 - p.headroom
     span = p.rf - rp
     pw = float(p.knee)
+    cubic = pw == 3.0
+    inv = -1.0 / pw
 
     def fd(y: float) -> tuple[float, float]:
         i = y / p.rg
         x = i / i_k
-        q = 1.0 + abs(x) ** pw
-        lin = y + rp * i + span * i_k * x / q ** (1.0 / pw)
-        dlin = 1.0 + (rp + span * q ** (-1.0 / pw - 1.0)) / p.rg
+        u = abs(x)
+        q = 1.0 + (u * u * u if cubic else u**pw)
+        r = q**inv  # (1 + |x|^p)^(-1/p)
+        lin = y + rp * i + span * i_k * x * r
+        dlin = 1.0 + (rp + span * r / q) / p.rg
         s = math.tanh(lin / swing)
         return swing * s, (1.0 - s * s) * dlin
 
