@@ -5,6 +5,8 @@ from __future__ import annotations
 import re
 
 import pytest
+from hypothesis import given
+from hypothesis import strategies as st
 
 from benchgate.report.layout import MAX_NAME, ReportLayout, safe_name, utc_stamp
 
@@ -91,3 +93,13 @@ def test_utc_stamp_converts_offsets_and_rejects_garbage():
     assert utc_stamp("2026-12-01T22:37:22") == "20261201T223722.000Z"
     with pytest.raises(ValueError, match="ISO 8601"):
         utc_stamp("yesterday")
+
+
+@given(st.text(max_size=80), st.text(max_size=80))
+def test_any_text_gives_a_safe_name_and_distinct_texts_distinct_names(a, b):
+    for s in (a, b):
+        name = safe_name(s)
+        assert _PORTABLE.fullmatch(name) and not name.startswith((".", "-"))
+        assert len(name) <= MAX_NAME + 11
+    if a != b:
+        assert safe_name(a) != safe_name(b)
