@@ -282,7 +282,7 @@ def _pareto_checks(conn, defs, cf, params) -> tuple[ParetoCheck, ...]:
         acc[1] += err
         acc[2] += inc
     items = [ParetoCheck(*k, *v) for k, v in merged.items()]
-    items.sort(key=lambda p: (-p.fail, -p.total, p.plan_id, p.step, p.measurement))
+    items.sort(key=lambda p: (-p.total, -p.fail, p.plan_id, p.step, p.measurement))
     return tuple(items)
 
 
