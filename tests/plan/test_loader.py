@@ -229,3 +229,23 @@ class TestValidation:
         assert "did you mean 'hot_surfaces'" in errs[0]
         p = plan_of(SUPPLY, head.replace("hot_surface,", "hot_surfaces,"))
         assert p.hazards[0].name == "hot_surfaces" and p.hazards[0].text == "The regulator gets hot."
+
+
+class TestOddValues:
+    def test_zero_nominal_relative_tolerance(self):
+        errs = errors_of(capture("      frequency: {min: 900 Hz, max: 1.1 kHz}\n      dc_offset: {nominal: 0 V, tolerance: ±5 %}\n"))
+        assert "zero nominal" in errs[0]
+
+    def test_absolute_tolerance_on_zero_nominal(self):
+        p = plan_of(capture("      frequency: {min: 900 Hz, max: 1.1 kHz}\n      dc_offset: {nominal: 0 V, tolerance: ±50 mV}\n"))
+        w = p.steps[1].checks[1].window
+        assert (w.low, w.high) == (-0.05, 0.05)
+
+    @pytest.mark.parametrize("value", ["1e300", "1e-300", "0"])
+    def test_unreal_part_values(self, value):
+        errs = errors_of(capture(f"      frequency:\n        from_circuit: {{topology: timer_astable, R1: 1k, R2: 10k, C: {value}}}\n"))
+        assert "outside the range of real parts" in errs[0] or "must be positive" in errs[0]
+
+    def test_container_values_are_not_dumped(self):
+        errs = errors_of(SUPPLY.replace("voltage: 9 V", "voltage: {a: [1, 2]}"))
+        assert "YNode" not in errs[0] and "steps[0].voltage" in errs[0]

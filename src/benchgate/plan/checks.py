@@ -16,6 +16,8 @@ from benchgate.units.tolerance import Part, Tolerance, parse_part, parse_toleran
 
 LIMIT_KEYS = ("min", "max", "nominal", "tolerance", "from_circuit", "margin", "decision")
 MC_KEYS = ("draws", "seed", "distribution")
+#: plausible part values; outside them a value is a typo, and the numbers would overflow
+PART_RANGES = {"Ω": (1e-3, 1e12), "F": (1e-15, 10.0), "H": (1e-12, 1e3)}
 SERIES_ORDER = ("E6", "E12", "E24", "E48", "E96")
 _CACHE: dict[Any, derive.Derivation] = {}
 _CACHE_MAX = 256
@@ -50,6 +52,10 @@ def parse_limit(c: Collector, node: YNode, path: str, measurement: str, unit: st
         return None
     given: Window | None = None
     if tol is not None and nominal is not None:
+        if tol.relative and nominal == 0:
+            c.error(m["tolerance"], f"{path}: a tolerance in % of a zero nominal is an empty window; "
+                                    "give it in the unit or use min/max")
+            return None
         lo, hi = tol.bounds(nominal)
         given = Window(unit=unit, low=lo, high=hi, nominal=nominal,
                        derived_from=f"nominal {format_quantity(nominal, unit)} {tol}", decision=decision)
@@ -84,7 +90,7 @@ def parse_limit(c: Collector, node: YNode, path: str, measurement: str, unit: st
 
 def _tolerance(c: Collector, node: YNode, path: str, unit: str) -> Tolerance | None:
     try:
-        return parse_tolerance(node.value, unit, field=path)
+        return parse_tolerance(node.plain(), unit, field=path)
     except UnitError as exc:
         c.error(node, str(exc))
         return None
@@ -204,9 +210,14 @@ def _ladder_parts(c: Collector, node: YNode, path: str, key: str, n: int, parts:
 
 def _part(c: Collector, node: YNode, path: str, unit: str, *, note: bool = True) -> Part | None:
     try:
-        p = parse_part(node.value, unit, field=path)
+        p = parse_part(node.plain(), unit, field=path)
     except UnitError as exc:
         c.error(node, str(exc))
+        return None
+    lo_ok, hi_ok = PART_RANGES[unit]
+    if not lo_ok <= p.nominal <= hi_ok:
+        c.error(node, f"{path}: {format_quantity(p.nominal, unit)} is outside the range of real parts "
+                      f"({format_quantity(lo_ok, unit)} … {format_quantity(hi_ok, unit)})")
         return None
     t = p.tolerance
     if note and t.relative and t.minus == t.plus and t.plus > 0:

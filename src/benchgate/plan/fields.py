@@ -21,6 +21,14 @@ def type_name(value: Any) -> str:
     return _TYPE_NAMES.get(type(value), type(value).__name__)
 
 
+def described(value: Any) -> str:
+    """``a whole number (3)``; containers and null without a repr."""
+    if isinstance(value, (dict, list)) or value is None:
+        return type_name(value)
+    text = repr(value)
+    return f"{type_name(value)} ({text if len(text) <= 60 else text[:57] + '...'})"
+
+
 class Collector:
     """Errors and notes found while reading one file."""
 
@@ -74,7 +82,7 @@ class Collector:
             return v
         if allow_numbers and isinstance(v, (int, float)) and not isinstance(v, bool):
             return str(v)
-        self.error(node, f"{path}: expected text, got {type_name(v)} ({v!r})")
+        self.error(node, f"{path}: expected text, got {described(v)}")
         return None
 
     def ident(self, node: YNode | None, path: str) -> str | None:
@@ -90,7 +98,7 @@ class Collector:
             return None
         if isinstance(node.value, bool):
             return node.value
-        self.error(node, f"{path}: expected true or false (on/off, yes/no), got {node.value!r}")
+        self.error(node, f"{path}: expected true or false (on/off, yes/no), got {described(node.value)}")
         return None
 
     def integer(self, node: YNode | None, path: str, lo: int | None = None, hi: int | None = None) -> int | None:
@@ -98,7 +106,7 @@ class Collector:
             return None
         v = node.value
         if isinstance(v, bool) or not isinstance(v, int):
-            self.error(node, f"{path}: expected a whole number, got {type_name(v)} ({v!r})")
+            self.error(node, f"{path}: expected a whole number, got {described(v)}")
             return None
         if (lo is not None and v < lo) or (hi is not None and v > hi):
             self.error(node, f"{path}: {v} is outside {lo} … {hi}")
@@ -113,7 +121,7 @@ class Collector:
         if isinstance(v, bool) and set(choices) >= {"yes", "no"}:
             return "yes" if v else "no"
         if not isinstance(v, str):
-            self.error(node, f"{path}: expected one of {', '.join(choices)}, got {type_name(v)} ({v!r})")
+            self.error(node, f"{path}: expected one of {', '.join(choices)}, got {described(v)}")
             return None
         if v not in choices:
             hint = difflib.get_close_matches(v, choices, n=1, cutoff=0.6)
@@ -127,7 +135,7 @@ class Collector:
         if node is None:
             return None
         try:
-            q = parse_quantity(node.value, unit, field=path)
+            q = parse_quantity(node.plain(), unit, field=path)
         except UnitError as exc:
             self.error(node, str(exc))
             return None

@@ -14,7 +14,7 @@ from benchgate.analysis.names import CAPABILITIES, MEASUREMENT_UNITS, READING_SO
 from benchgate.errors import PlanErrors
 from benchgate.plan import derive
 from benchgate.plan.checks import parse_limit, parse_monte_carlo
-from benchgate.plan.fields import Collector
+from benchgate.plan.fields import Collector, described
 from benchgate.plan.hashing import content_hash
 from benchgate.plan.model import (
     CAPTURE_DEFAULT_KEYS,
@@ -75,7 +75,7 @@ def build_plan(root: YNode, file: str) -> Plan:
     if "requires" in m:
         node = m["requires"]
         if not node.is_list:
-            c.error(node, f"requires: expected a list such as [adc, supply], got {node.value!r}")
+            c.error(node, f"requires: expected a list such as [adc, supply], got {described(node.value)}")
         else:
             for i, item in enumerate(node.value):
                 v = c.choice(item, f"requires[{i}]", CAPABILITIES)
@@ -107,7 +107,7 @@ def _hazards(c: Collector, node: YNode | None) -> tuple[Hazard, ...]:
     if node is None:
         return ()
     if not node.is_list:
-        c.error(node, f"hazards: expected a list of {{name, text}} entries, got {node.value!r}")
+        c.error(node, f"hazards: expected a list of {{name, text}} entries, got {described(node.value)}")
         return ()
     out = []
     for i, item in enumerate(node.value):
@@ -162,7 +162,7 @@ def _field(c: Collector, f: dataclasses.Field, node: YNode, path: str) -> Any:
 def _step(c: Collector, node: YNode, path: str,
           defaults: dict[str, Any]) -> tuple[Step, dict[str, tuple[int, int]]] | None:
     if not node.is_map:
-        c.error(node, f"{path}: expected a step (a mapping with id, title, kind …), got {node.value!r}")
+        c.error(node, f"{path}: expected a step (a mapping with id, title, kind …), got {described(node.value)}")
         return None
     kind_node = node.value.get("kind")
     if kind_node is None:

@@ -23,9 +23,11 @@ def format_quantity(value: float | None, unit: str, digits: int = 4) -> str:
         return "—"
     if not math.isfinite(value):
         return f"{value} {unit}".strip()
+    mag = abs(value)
+    if value != 0 and (mag >= 1e15 or mag < 1e-15 or (unit in _NO_PREFIX and not 1e-6 <= mag < 1e9)):
+        return f"{value:.{max(digits - 1, 0)}e} {unit}".strip()  # beyond the prefixes: scientific
     if unit in _NO_PREFIX or value == 0:
         return f"{_sig(value, digits)} {unit}".strip()
-    mag = abs(value)
     for scale, prefix in _PREFIXES:
         if mag >= scale * 0.9995:
             return f"{_sig(value / scale, digits)} {prefix}{unit}"
