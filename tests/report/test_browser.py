@@ -80,6 +80,16 @@ def test_the_check_sees_requests_and_errors_when_there_are_some(tmp_path):
 
 
 @needs_chromium
+def test_the_page_itself_is_not_counted_as_a_request_whatever_its_path(tmp_path):
+    folder = tmp_path / "Ünïcode dir ~ #1"
+    folder.mkdir()
+    page = folder / "r.html"
+    page.write_text("<!DOCTYPE html><html><body><p>ok</p></body></html>", encoding="utf-8")
+    got = browser.check_page(page)
+    assert got.requests == [] and got.console_errors == [] and got.text.strip() == "ok"
+
+
+@needs_chromium
 def test_screenshot_png(report, tmp_path_factory):
     png = tmp_path_factory.mktemp("shots") / "unit-report.png"
     browser.screenshot(report, png, width=1000)

@@ -28,6 +28,7 @@ from collections.abc import Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
+from urllib.parse import unquote
 
 from benchgate.errors import BenchgateError
 
@@ -339,7 +340,7 @@ def check_page(html_path: str | Path, *, timeout: float = 30.0) -> PageCheck:
             method, p = ev["method"], ev.get("params", {})
             if method == "Network.requestWillBeSent":
                 req = p.get("request", {}).get("url", "")
-                if req != url and not req.startswith("data:"):
+                if unquote(req.split("#")[0]) != unquote(url) and not req.startswith("data:"):
                     result.requests.append(req)
             elif method == "Runtime.consoleAPICalled" and p.get("type") in ("error", "assert"):
                 args = " ".join(str(a.get("value", a.get("description", ""))) for a in p.get("args", []))
