@@ -79,3 +79,22 @@ def test_binary_never_crashes(tmp_path_factory, blob):
         load_plan(str(p))
     except PlanErrors as exc:
         assert all(e.line is not None for e in exc.errors)
+
+
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(text=mutated())
+def test_cli_check_never_tracebacks(tmp_path_factory, text):
+    import contextlib
+    import io
+
+    from benchgate.cli import main
+
+    p = tmp_path_factory.mktemp("cli") / "plan.yaml"
+    p.write_text(text, encoding="utf-8", errors="surrogatepass")
+    out, err = io.StringIO(), io.StringIO()
+    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
+        code = main(["check", str(p), "--json"])
+    assert code in (0, 2)
+    if code == 2:
+        lines = err.getvalue().splitlines()
+        assert lines and all(ln.startswith(f"benchgate: {p}:") for ln in lines)
