@@ -223,6 +223,24 @@ def test_lines_mode_rate_from_timestamps(clock):
     assert abs(peak_frequency(cap.samples, cap.sample_rate) - 50.0) < 0.2
 
 
+def test_free_running_lines_device_without_commands(clock):
+    # the simplest firmware: one integer per line from power-up, rate only in the station
+    with PtyAdcDevice(SineSource(frequency=100.0), protocol="lines", free_running=True,
+                      default_rate=4000.0, clock=clock) as dev:
+        cfg = adc_config(dev.port, protocol="lines", handshake=False, rate=4000.0, channels=("out",))
+        with SerialAdc.open(cfg, clock=clock) as adc:
+            assert adc.identity is None
+            cap = adc.capture("out", duration=0.5)
+            with pytest.raises(InstrumentError, match="cannot be set to 8000 Hz"):
+                adc.capture("out", duration=0.5, rate=8000)
+            with pytest.raises(InstrumentError, match="no fixture-power command"):
+                adc.fixture_power(True)
+        assert dev.commands == []  # the host never sent it anything
+    assert cap.n == 2000 and cap.sample_rate == 4000.0
+    assert abs(peak_frequency(cap.samples, cap.sample_rate) - 100.0) < 0.3
+    assert cap.samples.min() > 0.5 and cap.samples.max() < 2.8  # no cut first line misread
+
+
 def test_unknown_channel_and_protocol_mismatch(clock):
     with PtyAdcDevice(SineSource(channels=("out", "rail")), clock=clock) as dev:
         with SerialAdc.open(adc_config(dev.port), clock=clock) as adc:

@@ -125,6 +125,8 @@ def test_errors_carry_file_line_column(tmp_path):
     ("  adc: {kind: serial-adc, port: /dev/x, channels: [out], calibration: {rail: {gain: 1}}}",
      "calibration for unknown channel 'rail'"),
     ("  dmm: {kind: scpi-dmm, resource: x, calibration: {date: 2026-13-01}}", "expected a date like"),
+    ("  adc: {kind: serial-adc, port: /dev/x, handshake: false}", "needs 'protocol: lines'"),
+    ("  adc: {kind: serial-adc, port: /dev/x, protocol: lines, handshake: false}", "needs its sample 'rate'"),
     ("  dmm: {kind: scpi-dmm, resource: x, calibration: {date: 2026-06-01, due: 2025-06-01}}",
      "due date is before its date"),
 ])

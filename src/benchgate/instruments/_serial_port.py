@@ -191,6 +191,17 @@ class SerialPort:
                 self.flush_input()  # boot banners, a second reply: nothing stale survives
                 return line
 
+    def wait_for_line(self, timeout: float) -> None:
+        """A device without commands: wait until it has sent a whole line, then flush."""
+        start = self.clock.monotonic()
+        deadline, backstop = start + timeout, self._backstop(timeout)
+        first = self.read_line(deadline, backstop)
+        second = self.read_line(deadline, backstop) if first is not None else None
+        if second is None:
+            raise InstrumentError(self.role, f"adc on {self.path} sent no lines within {timeout:g} s "
+                                             f"(a free-running lines device streams from power-up)")
+        self.flush_input()
+
     def command(self, text: str, expect: str) -> str:
         """Send one command; return the reply line starting with ``expect``; ``ERR ...`` raises."""
         timeout = max(float(self.config.timeout), 0.1)

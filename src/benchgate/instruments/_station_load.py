@@ -21,7 +21,7 @@ _CAL_KEYS = {"date", "due", "gain", "offset"}
 _ADC_DEFAULTS: dict[str, Any] = {
     "baudrate": 115200, "protocol": "framed", "channels": ("ch0",), "bits": 12, "vref": 3.3,
     "clock_ppm": None, "dtr_low": False, "rts_low": None, "identify_timeout": 2.0,
-    "max_loss": 0.0, "rate": None, "timestamps": False, "exclusive": True,
+    "max_loss": 0.0, "rate": None, "timestamps": False, "exclusive": True, "handshake": True,
 }
 
 
@@ -178,7 +178,7 @@ class StationReader:
                     self.err(f"at most 8 channels (the frame's channel mask is 8 bits), got {len(names)}", v)
                 else:
                     opts[key] = tuple(names)
-            elif key in ("dtr_low", "rts_low", "timestamps", "exclusive"):
+            elif key in ("dtr_low", "rts_low", "timestamps", "exclusive", "handshake"):
                 if not isinstance(v.value, bool):
                     self.err(f"'{key}' must be true or false, got {v.value!r}", v)
                 else:
@@ -201,6 +201,14 @@ class StationReader:
                 opts[key] = loss if loss is not None else 0.0
         if opts["rts_low"] is None:
             opts["rts_low"] = opts["dtr_low"]
+        if not opts["handshake"]:
+            where = entry["handshake"]
+            if opts["protocol"] != "lines":
+                self.err("'handshake: false' (a device without commands) needs 'protocol: lines'", where)
+            elif opts["rate"] is None:
+                self.err("a device without commands needs its sample 'rate' in the station", where)
+            elif len(opts["channels"]) != 1:
+                self.err("a device without commands streams one channel: give exactly one in 'channels'", where)
         return opts
 
     def calibration(self, node: YNode | None, *, channels: tuple[str, ...] | None) -> Calibration | None:

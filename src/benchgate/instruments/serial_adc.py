@@ -96,9 +96,17 @@ class SerialAdc:
         return self._owner.submit(fn, *args, **kwargs).result()
 
     # ------------------------------------------------------------------ commands
+    @property
+    def free_running(self) -> bool:
+        """A lines device without commands: it streams from power-up at the station's rate."""
+        return not self.config.options.get("handshake", True)
+
     def _identify(self) -> None:
         port = self._port
         timeout = float(self.config.options.get("identify_timeout", 2.0))
+        if self.free_running:
+            port.wait_for_line(timeout)  # proof of life instead of an identify reply
+            return
         reply = port.identify(timeout)
         ident, _, rest = reply[4:].partition(";")
         info = dict(kv.split("=", 1) for kv in rest.split(";") if "=" in kv)
@@ -119,6 +127,9 @@ class SerialAdc:
                                              f"the station names {len(self.channels)}")
 
     def fixture_power(self, on: bool) -> None:
+        if self.free_running:
+            raise InstrumentError(self.name, f"adc on {self.address} is a free-running lines device "
+                                             f"(handshake: false); it has no fixture-power command")
         word = "ON" if on else "OFF"
         self._call(self._port.command, f"POWER {word}", f"OK POWER {word}")
         self._fixture_on = bool(on)
@@ -144,16 +155,25 @@ class SerialAdc:
     def _capture(self, channel: str, duration: float, rate: float | None, progress) -> Capture:
         port = self._port
         wanted = rate or self.config.options.get("rate")
-        reply = port.command(f"RATE {wanted:.6f}" if wanted else "RATE?", "OK RATE")
-        actual = float(reply.split()[2])
+        timestamps = bool(self.config.options.get("timestamps", False))
+        if self.free_running:
+            actual = float(self.config.options["rate"])
+            if rate and abs(rate / actual - 1) > 1e-9:
+                raise InstrumentError(self.name, f"adc on {self.address} runs free at the station's "
+                                                 f"{actual:g} Hz; it cannot be set to {rate:g} Hz")
+        else:
+            reply = port.command(f"RATE {wanted:.6f}" if wanted else "RATE?", "OK RATE")
+            actual = float(reply.split()[2])
         n = max(1, int(round(duration * actual)))
         mask = 1 << self.channels.index(channel)
-        timestamps = bool(self.config.options.get("timestamps", False))
         decoder = FrameDecoder(mask=mask) if self.protocol == "framed" else LinesDecoder(
-            self.bits, timestamps=timestamps)
+            self.bits, timestamps=timestamps, skip_first=self.free_running)
         state = _Progress(n)
         t_start = self.clock.monotonic()
-        port.write_line(f"START {n} {mask}")
+        if self.free_running:
+            port.flush_input()  # start at the next line boundary, with nothing stale
+        else:
+            port.write_line(f"START {n} {mask}")
         try:
             self._receive(decoder, state, n, duration, progress)
         except InstrumentDisconnected as exc:
@@ -164,7 +184,8 @@ class SerialAdc:
                 self.name, f"adc on {self.address} disconnected after {elapsed:.1f} s of a "
                            f"{duration:.1f} s capture ({exc.message})", partial=partial) from exc
         except InstrumentError:
-            port.stop_stream()
+            if not self.free_running:
+                port.stop_stream()
             raise
         return self._build(channel, state, actual, decoder, n, complete=True)
 
@@ -222,6 +243,9 @@ class SerialAdc:
             declared = decoder.timestamp_rate() or float(self.config.options.get("rate") or actual)
             gaps, lost, rejected, garbage = list(decoder.gaps), decoder.lost, decoder.bad_lines, 0
             end_total = decoder.end_total
+        gaps = [(a, min(b, n - a)) for a, b in gaps if a < n]  # a free-running stream goes on past n
+        lost = sum(b for _a, b in gaps)
+        codes = codes[:max(0, n - lost)]
         received = int(codes.shape[0])
         tail = max(0, n - received - lost) if complete else 0
         if tail:

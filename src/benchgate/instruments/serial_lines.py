@@ -16,9 +16,10 @@ import numpy as np
 class LinesDecoder:
     """Streaming parser for lines mode; ``feed`` returns the codes of the complete lines."""
 
-    def __init__(self, bits: int, *, timestamps: bool = False):
+    def __init__(self, bits: int, *, timestamps: bool = False, skip_first: bool = False):
         self.bits = int(bits)
         self.timestamps = timestamps
+        self._skip = skip_first  # joining a running stream: the first line may be cut
         self._tail = b""
         self.bad_lines = 0
         self.end_total: int | None = None
@@ -33,6 +34,12 @@ class LinesDecoder:
 
     def feed(self, data: bytes) -> np.ndarray:
         text = self._tail + data
+        if self._skip:
+            nl = text.find(b"\n")
+            if nl < 0:
+                self._tail = b""
+                return np.empty((0, 1), dtype=np.uint16)
+            text, self._skip = text[nl + 1:], False
         lines = text.split(b"\n")
         self._tail = lines.pop()
         codes: list[int] = []

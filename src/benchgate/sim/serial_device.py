@@ -112,14 +112,24 @@ class PtyAdcDevice:
         Sample sets per DATA frame.
     default_rate : float
         Sample rate before any ``RATE`` command, Hz.
+    lines_timestamps : bool
+        Lines mode: send ``microseconds,code`` instead of ``code``.
+    vref : float
+        Reference voltage the identify reply states, V.
+    free_running : bool
+        Lines mode only: the simplest firmware, with no command parser; it streams channel 0
+        at ``default_rate`` from the moment it starts and ignores everything the host sends.
     """
 
     def __init__(self, source: SampleSource, *, protocol: str = "framed", clock: Clock | None = None,
                  faults: DeviceFaults | None = None, identity: str = DEFAULT_IDENTITY,
                  frame_samples: int = 256, default_rate: float = 50_000.0,
-                 lines_timestamps: bool = False, vref: float = 3.3):
+                 lines_timestamps: bool = False, vref: float = 3.3, free_running: bool = False):
         if protocol not in ("framed", "lines"):
             raise ValueError(f"protocol must be 'framed' or 'lines', got {protocol!r}")
+        if free_running and protocol != "lines":
+            raise ValueError("only a lines-mode device runs free (without commands)")
+        self.free_running = free_running
         self.source = source
         self.protocol = protocol
         self.clock = clock or SystemClock()
@@ -158,6 +168,8 @@ class PtyAdcDevice:
         self.port = os.ttyname(self._slave)
         self._out += self.faults.startup_bytes
         self._boot_until = self.clock.monotonic() + self.faults.identify_delay
+        if self.free_running:  # the simplest firmware: streams channel 0 from power-up, forever
+            self._start(["0", "1"])
         self._running.set()
         self._thread = threading.Thread(target=self._serve, name=f"pty-adc {self.port}", daemon=True)
         self._thread.start()
@@ -224,8 +236,8 @@ class PtyAdcDevice:
     def _command(self, cmd: str) -> None:
         self.commands.append(cmd)
         words = cmd.split()
-        if not words or self.clock.monotonic() < self._boot_until:
-            return  # still booting: a resetting board hears nothing
+        if not words or self.free_running or self.clock.monotonic() < self._boot_until:
+            return  # still booting (a resetting board hears nothing), or no command parser at all
         head, args = words[0].upper(), words[1:]
         if head == "IDN?":
             if not self.faults.identify_missing:
