@@ -41,10 +41,12 @@ def test_tb3_numbers(capsys):
     data = json.loads(capsys.readouterr().out)
     steady = next(s for s in data["steps"] if s["id"] == "steady")
     f = steady["checks"][0]
-    # handbook formula (REFERENCES.md): 1/(2πRC√6), R = 6k8, C = 10n
-    assert f["nominal"] == pytest.approx(1 / (2 * math.pi * 6800 * 10e-9 * math.sqrt(6)))
-    assert f["gain_needed"]["nominal"] == pytest.approx(29.0)  # 1/29 attenuation (REFERENCES.md)
-    assert f["low_corner"] == {k: "+" for k in ("R1", "R2", "R3", "C1", "C2", "C3")}
+    # handbook formula (REFERENCES.md): 1/(2πRC√6) = 955.5 Hz for R = 6k8, C = 10n; the
+    # amplifier's source and load resistance pull the design value a little below it
+    ideal = 1 / (2 * math.pi * 6800 * 10e-9 * math.sqrt(6))
+    assert 0.95 * ideal < f["nominal"] < ideal
+    assert f["gain_needed"]["nominal"] > 29.0  # the loaded ladder attenuates more than 1/29
+    assert f["low_corner"] == {k: "+" for k in ("R1", "R2", "R3", "C1", "C2", "C3", "source", "load")}
     cur = next(s for s in data["steps"] if s["id"] == "supply-current")["checks"][0]
     assert (cur["unit"], cur["low"], cur["high"]) == ("A", 0.002, 0.008)
 
@@ -53,8 +55,8 @@ def test_text_output(capsys):
     code = main(["check", str(PLANS / "tb3.yaml")])
     out = capsys.readouterr().out
     assert code == 0
-    for text in ("tb3-final", "cautions:", "supply-current", "955.5 Hz", "64 tolerance corners",
-                 "gain needed 29.00", "Monte Carlo 20000 draws", "plan is valid"):
+    for text in ("tb3-final", "cautions:", "supply-current", "940.7 Hz", "256 tolerance corners",
+                 "gain needed 34.11", "Monte Carlo 20000 draws", "plan is valid"):
         assert text in out
 
 
@@ -105,6 +107,6 @@ def test_rich_table_on_a_terminal(capsys, monkeypatch):
     monkeypatch.setenv("COLUMNS", "160")
     assert main(["check", str(PLANS / "tb3.yaml")]) == 0
     out = capsys.readouterr().out
-    for text in ("[capture]", "955.5 Hz", "785.9 Hz", "1.173 kHz", "64 tolerance corners",
-                 "gain needed 29.00", "plan is valid"):
+    for text in ("[capture]", "940.7 Hz", "789.0 Hz", "1.135 kHz", "256 tolerance corners",
+                 "gain needed 34.11", "plan is valid"):
         assert text in out, text
