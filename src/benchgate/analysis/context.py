@@ -13,7 +13,7 @@ from functools import cached_property
 import numpy as np
 
 from benchgate.analysis import _steady, sinefit, spectrum
-from benchgate.analysis._validate import Checked, check_capture
+from benchgate.analysis._validate import Checked, check_capture, state_levels
 from benchgate.analysis.capture import Capture
 
 #: fewest cycles in the analysed part for frequency, amplitude and timing.
@@ -124,7 +124,9 @@ class Context:
         w0 = 2.0 * math.pi * f0 / fs
         if f0 * n / fs < 20 and n <= 65536:
             w0 = sinefit.best_start(y, w0)
-        fit = sinefit.fit4(y, w0)
+        work = sinefit.Workspace(n)
+        fit = sinefit.fit4(y, w0, work=work)
+        self.__dict__["_fit_work"] = work
         freq = fit.omega * fs / (2.0 * math.pi)
         cycles = freq * n / fs
         detection = n * fit.amplitude ** 2 / (4.0 * fit.residual_var) if fit.residual_var > 0 else math.inf
@@ -154,9 +156,22 @@ class Context:
         noise and harmonic bins, so SINAD can be measured down to double-precision limits.
         """
         fit = self.tone.fit
-        if fit is None or fit.residual is None:
+        if fit is None:
             return None
-        return spectrum.power_spectrum(fit.residual, self.capture.sample_rate, "blackmanharris")
+        return spectrum.power_spectrum(sinefit.residual(self.y, fit), self.capture.sample_rate,
+                                       "blackmanharris")
+
+    @cached_property
+    def steady_levels(self) -> tuple[float, float]:
+        """IEEE 181 state levels (low, high) of the steady part."""
+        if self.start == 0:
+            return self.checked.low_state, self.checked.high_state
+        return state_levels(self.y)
+
+    def fit_workspace(self) -> sinefit.Workspace | None:
+        """cos/sin of the steady part at the fitted frequency (left by the fit), if any."""
+        _ = self.tone
+        return self.__dict__.get("_fit_work")
 
     def memo(self, key: str, compute):
         """Compute a shared intermediate result once (measurement modules keep theirs here)."""

@@ -1,9 +1,10 @@
 """Distortion and noise of the steady part: THD, THD+N, SINAD, SNR, SFDR and ENOB.
 
 The fundamental's power is its main-lobe power in the Blackman–Harris windowed spectrum of
-the steady part; the harmonics, spurs and noise come from the same windowed spectrum of the
-four-parameter fit residual (the fundamental removed in the time domain, so its window leakage does not
-masquerade as noise). Harmonic powers are summed over each main lobe (±5 bins); noise is
+the steady part; the harmonics, spurs and noise come from the same spectrum or, when the
+noise and distortion lie more than 65 dB below the fundamental, from the spectrum of the
+four-parameter fit residual (the fundamental removed in the time domain, so its window
+leakage does not masquerade as noise). Harmonic powers are summed over each main lobe (±5 bins); noise is
 the mean power of the remaining bins, extrapolated over the whole band (DC excluded).
 """
 
@@ -20,6 +21,10 @@ from benchgate.analysis.context import Context, get_context
 from benchgate.analysis.measurement import Measurement
 
 _TINY = 1e-300
+#: above this fundamental-to-NAD ratio (65 dB) the Blackman–Harris window's far leakage
+#: (about −88 dBc summed over the band) would bias the noise, so the noise and harmonics
+#: are measured on the spectrum of the sine-fit residual instead (one more transform).
+LEAKAGE_LIMIT = 10 ** 6.5
 
 
 @dataclass(frozen=True)
@@ -37,6 +42,7 @@ class Harmonics:
     spur_ratio: float = math.nan  # √(largest spur band power / fundamental band power)
     band_noise: float = math.nan  # expected noise power inside one tone band
     enbw: float = 2.0
+    p1_raw: float = math.nan  # fundamental band power before removing the expected noise
 
 
 def harmonic_analysis(ctx: Context) -> Harmonics:
@@ -52,9 +58,15 @@ def _compute(ctx: Context) -> Harmonics:
         return Harmonics(tone.reason)
     if ctx.checked.clipped:
         return Harmonics(ctx.checked.clipped)
-    spec = ctx.residual_spectrum
-    if spec is None:
-        return Harmonics("no sine fit residual")
+    first = _from_spectrum(ctx, tone, ctx.spectrum, subtract_fundamental=False)
+    if first.reason or first.p1 < LEAKAGE_LIMIT * (first.noise + first.harmonic_power):
+        return first
+    # NAD within ~20 dB of the window's far leakage: measure it on the fit residual instead
+    return _from_spectrum(ctx, tone, ctx.residual_spectrum, subtract_fundamental=True, p1_raw=first.p1_raw)
+
+
+def _from_spectrum(ctx: Context, tone, spec, *, subtract_fundamental: bool,
+                   p1_raw: float | None = None) -> Harmonics:
     hw = spec.half_width + 1
     df = spec.bin_width
     if tone.frequency / df < 2 * hw + 2:
@@ -62,7 +74,10 @@ def _compute(ctx: Context) -> Harmonics:
     nb = spec.power.size
     used = np.zeros(nb, dtype=bool)
     used[: hw + 1] = True  # DC
-    p1_raw, _ = _spectrum.band_power(ctx.spectrum, tone.frequency, hw)
+    fund_raw, fund_slice = _spectrum.band_power(ctx.spectrum, tone.frequency, hw)
+    p1_raw = fund_raw if p1_raw is None else p1_raw
+    if not subtract_fundamental:
+        used[fund_slice] = True
     orders, freqs, powers, slices = [], [], [], []
     for k in range(2, ctx.harmonics + 1):
         fk = k * tone.frequency
@@ -82,7 +97,7 @@ def _compute(ctx: Context) -> Harmonics:
     density = float(np.sum(spec.power[free])) / n_free
     band_bins = 2 * hw + 1
     band_noise = density * band_bins
-    noise = density * (nb - (hw + 1) - sum(s.stop - s.start for s in slices))
+    noise = density * (nb - (hw + 1))  # every bin but DC, the tone bands at the mean density
     p1 = max(p1_raw - band_noise, _TINY)
     harm = float(sum(max(p - band_noise, 0.0) for p in powers))
     rest = np.where(free, spec.power, 0.0)
@@ -90,7 +105,7 @@ def _compute(ctx: Context) -> Harmonics:
     spur = max([float(np.sum(rest[max(0, k_spur - hw):k_spur + hw + 1]))] + powers)
     return Harmonics(None, p1, tuple(orders), tuple(freqs), tuple(powers), harm, max(noise, p1 * 1e-30),
                      n_free, math.sqrt(spur / p1) if p1 > 0 else math.nan, band_noise,
-                     _spectrum.window_enbw(spec.window))
+                     _spectrum.window_enbw(spec.window), p1_raw)
 
 
 def _details(h: Harmonics) -> dict:

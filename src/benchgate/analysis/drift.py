@@ -17,15 +17,17 @@ MAX_WINDOWS = 16
 MIN_WINDOWS = 4
 
 
-def window_phases(y: np.ndarray, omega: float, windows: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def window_phases(y: np.ndarray, omega: float, windows: int,
+                  work: Workspace | None = None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Phase (rad, unwrapped), amplitude and centre (samples) of a fixed-ω three-parameter fit per window.
 
-    The cosine and sine are computed once for the whole record; the per-window 3×3 normal
-    equations come from segment sums (``numpy.add.reduceat``).
+    The cosine and sine are computed once for the whole record (or taken from ``work``, set
+    at ω); the per-window 3×3 normal equations come from segment sums (``numpy.add.reduceat``).
     """
     n = y.size
-    work = Workspace(n)
-    work.set(omega)
+    if work is None or work.n != n:
+        work = Workspace(n)
+        work.set(omega)
     c, s = work.c, work.s
     bounds = np.linspace(0, n, windows + 1).round().astype(np.int64)
     starts = bounds[:-1]
@@ -84,7 +86,7 @@ def frequency_drift(capture: Capture, *, context: Context | None = None) -> Meas
                                    f"fewer than {2 * MIN_WINDOWS} cycles in the steady part")
     fs = capture.sample_rate
     y = ctx.y
-    phase, amp, centre = window_phases(y, tone.fit.omega, windows)
+    phase, amp, centre = window_phases(y, tone.fit.omega, windows, ctx.fit_workspace())
     t = (centre - (y.size - 1) / 2.0) / fs
     v = np.stack([np.ones_like(t), t, t * t], axis=1)
     coef, *_ = np.linalg.lstsq(v, phase, rcond=None)

@@ -6,7 +6,6 @@ import math
 
 import numpy as np
 
-from benchgate.analysis._validate import state_levels
 from benchgate.analysis.capture import Capture
 from benchgate.analysis.context import Context, get_context
 from benchgate.analysis.measurement import Measurement
@@ -26,16 +25,15 @@ def crossings(x: np.ndarray, low: float, high: float) -> tuple[np.ndarray, np.nd
     """
     span = high - low
     mid = low + 0.5 * span
-    state = np.full(x.size, -1, dtype=np.int8)
-    state[x >= low + 0.7 * span] = 1
-    state[x <= low + 0.3 * span] = 0
-    idx = np.where(state >= 0, np.arange(x.size), 0)
-    np.maximum.accumulate(idx, out=idx)
-    filled = state[idx]
-    change = np.flatnonzero(np.diff(filled) != 0) + 1
-    change = change[filled[change - 1] >= 0]
-    rising_at = change[filled[change] == 1]
-    falling_at = change[filled[change] == 0]
+    band = np.zeros(x.size, dtype=np.int8)
+    band[x >= low + 0.7 * span] = 1
+    band[x <= low + 0.3 * span] = -1
+    where = np.flatnonzero(band)  # samples inside the upper or lower band
+    state = band[where]
+    turn = np.flatnonzero(state[1:] != state[:-1]) + 1
+    at = where[turn]  # first sample in the new band
+    rising_at = at[state[turn] == 1]
+    falling_at = at[state[turn] == -1]
     return _instants(x, rising_at, x < mid, mid), _instants(x, falling_at, x > mid, mid)
 
 
@@ -74,7 +72,7 @@ def duty_cycle(capture: Capture, *, context: Context | None = None) -> Measureme
     if ctx.fatal:
         return Measurement.invalid("duty_cycle", "%", ctx.fatal)
     y = ctx.y
-    low, high = state_levels(y)
+    low, high = ctx.steady_levels
     if not high > low:
         return Measurement.invalid("duty_cycle", "%", "flat line: no transitions")
     rise, fall = crossings(y, low, high)

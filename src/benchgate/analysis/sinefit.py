@@ -9,7 +9,7 @@ repeated large least-squares problems.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -31,7 +31,6 @@ class SineFit:
     n: int
     iterations: int
     converged: bool
-    residual: np.ndarray | None = field(default=None, repr=False, compare=False)
 
     @property
     def amplitude(self) -> float:
@@ -146,11 +145,15 @@ def _solve3(y: np.ndarray, w: Workspace) -> tuple[float, float, float, float]:
     return float(p[0]), float(p[1]), float(p[2]), dot(resid, resid)
 
 
-def _residual(y: np.ndarray, w: Workspace, a: float, b: float, c: float) -> np.ndarray:
-    resid = np.multiply(w.c, -a)
+def residual(y: np.ndarray, fit: SineFit) -> np.ndarray:
+    """y minus the fitted sine (same centred time origin as the fit)."""
+    y = np.asarray(y, dtype=float)
+    w = Workspace(y.size)
+    w.set(fit.omega)
+    resid = np.multiply(w.c, -fit.a)
     resid += y
-    resid -= b * w.s
-    resid -= c
+    resid -= fit.b * w.s
+    resid -= fit.offset
     return resid
 
 
@@ -161,7 +164,7 @@ def _lstsq_small(g: np.ndarray, r: np.ndarray) -> np.ndarray:
         return np.linalg.lstsq(g, r, rcond=None)[0]
 
 
-def fit4(y: np.ndarray, omega0: float, *, max_iter: int = 12) -> SineFit:
+def fit4(y: np.ndarray, omega0: float, *, max_iter: int = 12, work: Workspace | None = None) -> SineFit:
     """Four-parameter sine fit (Gauss–Newton on [A, B, C, Δω]) from a starting frequency.
 
     Parameters
@@ -173,6 +176,9 @@ def fit4(y: np.ndarray, omega0: float, *, max_iter: int = 12) -> SineFit:
         (2π/N) of the answer (the interpolated DFT peak is good enough).
     max_iter : int
         Iteration cap.
+    work : Workspace, optional
+        Buffers to use; afterwards they hold cos/sin at (within a step below the noise of)
+        the fitted frequency, for callers that need them again.
 
     Returns
     -------
@@ -194,7 +200,7 @@ def fit4(y: np.ndarray, omega0: float, *, max_iter: int = 12) -> SineFit:
     """
     y = np.asarray(y, dtype=float)
     n = y.size
-    w = Workspace(n)
+    w = Workspace(n) if work is None or work.n != n else work
     t = np.arange(n) - w.centre
     omega = float(omega0)
     max_step = 0.25 * 2.0 * math.pi / n
@@ -228,16 +234,17 @@ def fit4(y: np.ndarray, omega0: float, *, max_iter: int = 12) -> SineFit:
             var_dw = math.inf
         if dw * dw <= 1e-4 * max(var_dw, 0.0) or abs(dw) < 1e-15 * omega:
             # the step is far below its own noise: keep this solution (and its residual)
+            # the step is far below its own noise: keep this solution; its residual sum of
+            # squares follows from the normal equations without another pass over the data
             omega = min(max(omega + dw, 1e-12), math.pi - 1e-12)
-            resid = _residual(y, w, a, b, c)
-            return SineFit(omega=omega, a=a, b=b, offset=c, residual_var=dot(resid, resid) / max(n - 4, 1),
-                           n=n, iterations=it, converged=True, residual=resid)
+            return SineFit(omega=omega, a=a, b=b, offset=c, residual_var=rss_lin / max(n - 4, 1),
+                           n=n, iterations=it, converged=True)
         dw = float(np.clip(dw, -max_step, max_step))
         omega = min(max(omega + dw, 1e-12), math.pi - 1e-12)
         w.set(omega)
     a, b, c, rss = _solve3(y, w)
     return SineFit(omega=omega, a=a, b=b, offset=c, residual_var=max(rss, 0.0) / max(n - 4, 1),
-                   n=n, iterations=it, converged=converged, residual=w.tmp.copy())
+                   n=n, iterations=it, converged=converged)
 
 
 def best_start(y: np.ndarray, omega0: float, *, span_bins: float = 1.0, points: int = 21) -> float:
