@@ -101,7 +101,16 @@ def crc16(data: bytes | np.ndarray) -> int:
 
 
 def crc16_rows(rows: np.ndarray) -> np.ndarray:
-    """CRC of each row of a 2-D uint8 array with an even number of columns (vectorised)."""
+    """CRC of each row of a 2-D uint8 array with an even number of columns (vectorised).
+
+    Many rows: one pass per column pair through the two-byte table. Few rows (a live read of
+    a few frames): per-position tables, one gather and one reduction for all of them.
+    """
+    nrows, ncols = rows.shape
+    if nrows < 64 and ncols <= MAX_CRC_REGION:
+        tp, z = _positional_tables()
+        contrib = tp[np.arange(ncols - 1, -1, -1)[None, :], rows]
+        return np.bitwise_xor.reduce(contrib, axis=1) ^ z[ncols]
     words = np.ascontiguousarray(rows).view(">u2").astype(np.uint16).T.copy()
     crc = np.full(rows.shape[0], 0xFFFF, dtype=np.uint16)
     for col in words:
