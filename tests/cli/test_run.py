@@ -129,12 +129,15 @@ def test_good_unit_in_process_with_junit_and_events(vbench, tmp_path, capsys):
     assert vbench.supply_output is False
     import xml.etree.ElementTree as ET
 
+    from benchgate.plan import load_plan
+
+    n_checks = sum(len(getattr(s, "checks", ())) for s in load_plan(TB3).steps)
     suite = ET.parse(junit).getroot().find("testsuite")
-    assert suite.get("tests") == "7" and suite.get("failures") == "0" and suite.get("errors") == "0"
+    assert suite.get("tests") == str(n_checks) and suite.get("failures") == "0" and suite.get("errors") == "0"
     names = [(c.get("classname"), c.get("name")) for c in suite.findall("testcase")]
     assert ("tb3-final.steady", "thd") in names
     kinds = [json.loads(line)["event"] for line in events.read_text().splitlines()]
-    assert kinds[0] == "run_started" and kinds[-1] == "run_finished" and kinds.count("check") == 7
+    assert kinds[0] == "run_started" and kinds[-1] == "run_finished" and kinds.count("check") == n_checks
     (row,) = rows(tmp_path / "r" / "results.sqlite")
     assert row[:3] == ("OH-CLI-1", 1, "pass")
     report = json.loads(Path(row[4]).read_text())

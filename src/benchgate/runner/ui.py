@@ -91,8 +91,9 @@ class PlainDisplay(QuietDisplay):
         self._line(f"    {quarter * 25}% {text}{left}")
 
     def check(self, check: Any) -> None:
+        reason = "" if check.verdict.value == "pass" else f" — {check.reason}"
         self._line(f"    {_MARK[check.verdict.value]:<9} {check.measurement} {describe_value(check)} "
-                   f"{describe_window(check.window)} — {check.reason}")
+                   f"{describe_window(check.window)}{reason}")
 
     def step_finished(self, step: Any) -> None:
         extra = f": {step.error}" if step.error else ""
@@ -123,57 +124,62 @@ class RichDisplay(PlainDisplay):
             self._progress.stop()
             self._progress = None
 
-    def _print(self, *args: Any, **kw: Any) -> None:
-        (self._progress.console if self._progress else self.console).print(*args, **kw)
+    def _print(self, *parts: Any) -> None:
+        """One line made of (text, style) parts, printed in one go."""
+        from rich.text import Text
+
+        self._stop_bar()
+        self.console.print(Text.assemble(*parts))
 
     def info(self, text: str) -> None:
-        style = "bold yellow" if text.startswith(("CAUTION", "HAZARD", "WARNING")) else None
-        self._print(text, style=style, markup=False)
+        style = "bold yellow" if text.startswith(("CAUTION", "HAZARD", "WARNING")) else ""
+        self._print((text, style))
 
     def run_started(self, record: Any, total_steps: int) -> None:
         from rich.rule import Rule
 
+        self._stop_bar()
         self.console.print(Rule(f"benchgate · {record.plan_id} v{record.plan_version} · unit {record.serial}",
                                 style="cyan"), markup=False)
 
     def step_started(self, index: int, total: int, step: Any) -> None:
-        self._stop_bar()
-        self._print(f"[bold cyan]▶ {index}/{total}[/] ", end="")
-        self._print(f"{step.id}: {step.title}", markup=False)
+        self._print((f"▶ {index}/{total} ", "bold cyan"), (f"{step.id}: {step.title}", ""))
         if step.kind in ("wait", "capture"):
-            from rich.progress import BarColumn, Progress, TextColumn, TimeRemainingColumn
+            from rich.progress import BarColumn, Progress, TaskProgressColumn, TextColumn
 
-            self._progress = Progress(TextColumn("   {task.description}"), BarColumn(),
-                                      TextColumn("{task.percentage:>3.0f}%"), TimeRemainingColumn(),
-                                      console=self.console, transient=True)
-            self._task = self._progress.add_task(step.kind, total=1.0)
+            self._progress = Progress(TextColumn("   {task.description}"), BarColumn(), TaskProgressColumn(),
+                                      TextColumn("{task.fields[left]}"), console=self.console, transient=True)
+            self._task = self._progress.add_task(step.kind, total=1.0, left="")
             self._progress.start()
 
     def progress(self, fraction: float, text: str, time_left: float | None) -> None:
         if self._progress is not None:
-            self._progress.update(self._task, completed=max(0.0, min(1.0, fraction)), description=text)
+            left = "" if time_left is None else f"{time_left:.1f} s left"
+            self._progress.update(self._task, completed=max(0.0, min(1.0, fraction)), description=text,
+                                  left=left)
 
     def check(self, check: Any) -> None:
         v = check.verdict.value
-        self._print(f"   [{_STYLE[v]}]{_MARK[v]:<9}[/] ", end="")
-        self._print(f"{check.measurement} {describe_value(check)} {describe_window(check.window)}",
-                    markup=False)
-        self._print(f"             {check.reason}", style="dim", markup=False)
+        self._print((f"   {_MARK[v]:<9} ", _STYLE[v]),
+                    (f"{check.measurement} {describe_value(check)} {describe_window(check.window)}", ""))
+        if v != "pass":  # a pass's reason only repeats the value and the window
+            self._print((f"             {check.reason}", "dim"))
 
     def step_finished(self, step: Any) -> None:
         self._stop_bar()
-        if step.status not in ("done",):
+        if step.status != "done":
             extra = f": {step.error}" if step.error else ""
-            self._print(f"   step {step.status}{extra}", style="yellow", markup=False)
+            self._print((f"   step {step.status}{extra}", "yellow"))
+        for note in step.notes:
+            if note.startswith(("attempt", "retry", "on_fail")):
+                self._print((f"   {note}", "dim"))
 
     def run_finished(self, record: Any, paths: dict) -> None:
-        self._stop_bar()
         v = record.verdict.value
-        self._print(f"[{_STYLE[v]} reverse] {_MARK[v]} [/] ", end="")
-        self._print(f"unit {record.serial}: {record.reason}", markup=False)
+        self._print((f" {_MARK[v]} ", f"{_STYLE[v]} reverse"), (f" unit {record.serial}: {record.reason}", ""))
         report = paths.get("html") or paths.get("json")
         if report:
-            self._print(f"report: {report}", style="dim", markup=False)
+            self._print((f"report: {report}", "dim"))
 
     def pause(self) -> None:
         self._stop_bar()
