@@ -252,3 +252,31 @@ def test_plain_display_shows_each_check(tmp_path, capsys):
     out = capsys.readouterr().out
     assert "[3/4] tone" in out and "frequency" in out and "PASS" in out
     assert "\x1b[" not in out  # no colour codes in plain mode
+
+
+def test_junit_lists_every_unit_of_the_session(tmp_path):
+    import xml.etree.ElementTree as ET
+
+    svc, _ = services(make_bench())
+    junit = tmp_path / "junit.xml"
+    options = RunOptions(reports_dir=tmp_path, ui="quiet", clock=ManualClock(), junit=junit)
+    with Runner(standard_plan(), Station(), options, services=svc) as runner:
+        first = runner.run("J1")
+        assert first.paths["junit"] == junit
+        runner.run("J2")
+    suites = ET.parse(junit).getroot().findall("testsuite")
+    assert [s.get("name") for s in suites] == ["fake J1", "fake J2"]
+    assert all(s.get("tests") == "2" and s.get("failures") == "0" for s in suites)
+
+
+def test_unexpected_exception_still_leaves_evidence(tmp_path):
+    bench = make_bench()
+
+    def broken(*a, **k):
+        raise ZeroDivisionError("bug in a driver")
+
+    bench.supply.measure_current = broken
+    outcome, db = run(standard_plan(), bench, tmp_path)
+    assert outcome.record.verdict == Verdict.ERROR
+    assert outcome.record.reason.startswith("internal error: ZeroDivisionError")
+    assert bench.supply.on is False and db.rows[outcome.record.run_id]["complete"]
