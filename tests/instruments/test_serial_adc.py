@@ -94,6 +94,8 @@ def test_disconnect_mid_capture_keeps_the_partial_record(clock):
         adc = SerialAdc.open(adc_config(dev.port), clock=clock)
         with pytest.raises(InstrumentDisconnected) as info:
             adc.capture("out", duration=1.0, rate=10_000)
+        with pytest.raises(InstrumentDisconnected, match="was disconnected; reconnect it"):
+            adc.capture("out", duration=0.1)
         adc.close()  # closing after the loss does not raise
         port = dev.port
     exc = info.value

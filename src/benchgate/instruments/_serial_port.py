@@ -119,7 +119,10 @@ class SerialPort:
     # ------------------------------------------------------------------ low level
     def _fail(self, exc: Exception) -> InstrumentDisconnected:
         self.alive = False
-        return InstrumentDisconnected(self.role, f"{type(exc).__name__}: {exc}")
+        detail = f"{type(exc).__name__}: {exc}"
+        err = InstrumentDisconnected(self.role, f"adc on {self.path} disconnected ({detail})")
+        err.detail = detail
+        return err
 
     def read_available(self) -> bytes:
         """Whatever is there (waits at most POLL_S wall seconds for the first byte)."""

@@ -150,6 +150,9 @@ class SerialAdc:
                                              f"(channels: {', '.join(self.channels)})")
         if not duration > 0:
             raise InstrumentError(self.name, f"capture duration must be > 0 s, got {duration!r}")
+        if not self._port.alive:
+            raise InstrumentDisconnected(self.name, f"adc on {self.address} was disconnected; "
+                                                    f"reconnect it and open the station again")
         return self._call(self._capture, channel, float(duration), rate, progress)
 
     def _capture(self, channel: str, duration: float, rate: float | None, progress) -> Capture:
@@ -182,7 +185,7 @@ class SerialAdc:
             port.close()
             raise InstrumentDisconnected(
                 self.name, f"adc on {self.address} disconnected after {elapsed:.1f} s of a "
-                           f"{duration:.1f} s capture ({exc.message})", partial=partial) from exc
+                           f"{duration:.1f} s capture ({getattr(exc, 'detail', exc.message)})", partial=partial) from exc
         except InstrumentError:
             if not self.free_running:
                 port.stop_stream()
