@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 import serial
 
-from benchgate.clock import ScaledClock
+from benchgate.clock import ScaledClock, SystemClock
 from benchgate.errors import InstrumentDisconnected, InstrumentError
 from benchgate.instruments import _serial_port
 from benchgate.instruments._station_load import _ADC_DEFAULTS
@@ -107,6 +107,19 @@ def test_disconnect_mid_capture_keeps_the_partial_record(clock):
     ref = SineSource()
     ref.start(10_000.0, 1)
     np.testing.assert_allclose(part.samples, ref.read(part.n)[:, 0] * (3.3 / 4096), atol=1e-12)
+
+
+def test_silent_device_hits_the_timeout_not_a_hang():
+    # the device keeps the port open but stops sending after three frames (real time: the
+    # accelerated clock's wall-time floor would let the whole duration pass first)
+    clock = SystemClock()
+    faults = DeviceFaults(drop_frames=set(range(3, 100_000)))
+    with PtyAdcDevice(SineSource(channels=("out", "rail")), clock=clock, faults=faults) as dev:
+        cfg = adc_config(dev.port)
+        cfg = type(cfg)(cfg.role, cfg.kind, cfg.address, 0.2, cfg.options, None)  # timeout: 0.2 s
+        with SerialAdc.open(cfg, clock=clock) as adc:
+            with pytest.raises(InstrumentError, match=r"sent no data for 0\.2 s \(768 of 20000 samples received\)"):
+                adc.capture("out", duration=1.0, rate=20_000)
 
 
 def test_busy_port_is_reported(clock):
