@@ -13,6 +13,7 @@ import numpy as np
 import pytest
 
 from benchgate.analysis import analyze
+from benchgate.instruments import open_station
 from benchgate.instruments.station import load_station
 from benchgate.sim import VirtualBench
 from benchgate.sim.boards import BOARDS, Unit
@@ -22,26 +23,9 @@ SPEED = 4.0
 
 @contextlib.contextmanager
 def instruments(vb: VirtualBench):
-    """The station's instruments opened by their drivers (open_station when it exists)."""
-    station = load_station(vb.station_path)
-    try:
-        from benchgate.instruments import open_station
-    except ImportError:
-        open_station = None
-    if open_station is not None:
-        with open_station(station, clock=vb.clock) as bench:
-            yield bench
-        return
-    from benchgate.instruments.registry import Registry
-
-    reg = Registry()
-    with contextlib.ExitStack() as stack:
-        opened = {role: stack.enter_context(reg.open(cfg, clock=vb.clock))
-                  for role, cfg in station.instruments.items()}
-        try:
-            yield opened
-        finally:
-            opened["supply"].output(False)
+    """The station's instruments opened by their drivers, as the runner opens them."""
+    with open_station(load_station(vb.station_path), clock=vb.clock) as bench:
+        yield bench
 
 
 def power_up(bench, vb, *, settle=0.3):
