@@ -82,6 +82,7 @@ def test_text_output_and_sigterm():
     (["--board", "zz"], "unknown board 'zz'"),
     (["--defect", "smoke"], "unknown defect 'smoke'"),
     (["--speed", "0"], "--speed must be a positive number"),
+    (["--write-station", "/proc/no/such/dir/bench.yaml"], "cannot write the station file"),
 ])
 def test_bad_requests_are_one_line_errors(args, message):
     proc = subprocess.run([sys.executable, "-m", "benchgate", "sim", *args], capture_output=True,

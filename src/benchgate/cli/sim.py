@@ -54,7 +54,11 @@ def run(args) -> int:
                           serial=args.serial, defect=args.defect) as vb:
             station = vb.station_path
             if args.write_station:
-                station = vb.write_station(args.write_station).resolve()
+                try:
+                    station = vb.write_station(args.write_station).resolve()
+                except OSError as exc:
+                    raise SimError(f"cannot write the station file {args.write_station}: "
+                                   f"{exc.strerror or exc}") from None
             resources = vb.resources
             if args.json:
                 print(json.dumps({

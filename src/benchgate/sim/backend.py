@@ -10,6 +10,8 @@ the supply delivers the unit's draw up to its current limit (in limit the voltag
 60 % of the board's supply the unit stops oscillating), the DMM reads the rail (DC), the test
 point (AC rms) and the draw (DC current), the counter counts the test point's cycles over a
 0.1 s gate (0 Hz when it does not oscillate) and the digitizer records the test point in volts.
+The circuits are simulated at the board's nominal supply; another supply voltage scales the
+unit's output and current in proportion (a first-order model of a resistive, linear board).
 """
 
 from __future__ import annotations
