@@ -99,7 +99,7 @@ class VirtualBench:
     # -- units ------------------------------------------------------------------------------
     def _draw(self, serial: str, defect: str | None) -> Unit:
         unit = draw_unit(self.board, serial, defect)
-        unit.node([0.5])  # integrate the start-up now, not inside the first capture
+        unit.steady_frequency()  # integrate up to the settled cycle now, not inside a capture
         return unit
 
     def load_unit(self, serial: str, defect: str | None = None) -> Unit:
