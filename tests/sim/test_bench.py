@@ -90,7 +90,7 @@ class TestEndToEnd:
             th = threading.Thread(target=lambda: (tb3.clock.sleep(0.05), supply.output(True)))
             th.start()
             try:
-                cap = bench["adc"].capture("out", duration=0.5, rate=50_000)
+                cap = bench["adc"].capture("out", duration=0.8, rate=50_000)
             finally:
                 th.join()
         v = cap.samples
