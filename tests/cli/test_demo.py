@@ -8,7 +8,7 @@ from pathlib import Path
 import pytest
 
 from benchgate.cli import main
-from benchgate.runner.demo import KNOWN_DEFECTS, DemoResult, DemoUnit, find_plan, make_lot
+from benchgate.runner.demo import KNOWN_DEFECTS, DemoResult, DemoUnit, defects, find_plan, make_lot
 
 REPO = Path(__file__).resolve().parents[2]
 
@@ -71,3 +71,10 @@ def test_demo_table_lists_every_unit(capsys):
     assert out[1].split() == ["serial", "defect", "injected", "verdict", "reason"]
     assert out[2].split()[:3] == ["L1-001", "—", "pass"]
     assert out[3].split()[:3] == ["L1-002", "high_gain", "fail"]
+
+
+def test_demo_uses_the_simulators_own_defect_list():
+    from benchgate.sim.boards import get_board
+
+    assert defects("tb3") == tuple(get_board("tb3").defects)
+    assert set(KNOWN_DEFECTS) == set(defects("tb3"))  # interfaces.md lists the same six

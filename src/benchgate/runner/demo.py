@@ -34,15 +34,13 @@ def find_plan(name: str = PLAN_NAME) -> Path:
     raise PreflightError(f"demo plan {name} not found (looked in testplans/ and the package)")
 
 
-def defects(bench_module: Any = None) -> tuple[str, ...]:
-    if bench_module is not None:
-        for attr in ("DEFECTS", "TB3_DEFECTS"):
-            found = getattr(bench_module, attr, None)
-            if found:
-                if isinstance(found, dict):
-                    found = found.get("tb3", found)
-                return tuple(found)
-    return KNOWN_DEFECTS
+def defects(board: str = "tb3") -> tuple[str, ...]:
+    """The defects the simulator has for ``board`` (its own list, when it publishes one)."""
+    try:
+        from benchgate.sim.boards import get_board
+    except ImportError:
+        return KNOWN_DEFECTS
+    return tuple(get_board(board).defects) or KNOWN_DEFECTS
 
 
 @dataclass
@@ -89,26 +87,11 @@ class DemoResult:
 
 def write_lot_summary(db: Any, lot: str, path: Path) -> dict:
     """Write the lot summary HTML from the database; returns the summary as a dict."""
-    summary = db.summary(lot=lot)
-    data = summary.to_dict() if hasattr(summary, "to_dict") else dict(summary)
-    try:
-        from benchgate.report import summary_html as module
-    except ImportError:
-        module = None
-    writer = None if module is None else (getattr(module, "write_summary_html", None)
-                                          or getattr(module, "write_summary", None))
-    if writer is not None:
-        writer(summary, path)
-    elif module is not None and hasattr(module, "render_summary_html"):
-        path.write_text(module.render_summary_html(summary), encoding="utf-8")
-    else:  # the lot summary page is not built yet: a plain, escaped table of the numbers
-        import html
-        import json
+    from benchgate.report.summary_html import write_summary_html
 
-        body = html.escape(json.dumps(data, indent=2, ensure_ascii=False, default=str))
-        path.write_text(f"<!doctype html><meta charset=utf-8><title>lot {html.escape(lot)}</title>"
-                        f"<h1>lot {html.escape(lot)}</h1><pre>{body}</pre>\n", encoding="utf-8")
-    return data
+    summary = db.summary(lot=lot)
+    write_summary_html(summary, path)
+    return summary.to_dict()
 
 
 def run_demo(*, units: int = 14, speed: float = 4.0, reports_dir: Path | None = None,
@@ -125,7 +108,7 @@ def run_demo(*, units: int = 14, speed: float = 4.0, reports_dir: Path | None = 
     plan = load_plan(find_plan())
     reports_dir = Path(reports_dir) if reports_dir is not None else Path("reports")
     reports_dir.mkdir(parents=True, exist_ok=True)
-    lot_units = make_lot(units, lot, defects(bench_module))
+    lot_units = make_lot(units, lot, defects("tb3"))
     workdir = tempfile.mkdtemp(prefix="benchgate-demo-")
     with bench_module.VirtualBench("tb3", speed=speed, workdir=workdir) as vb:
         station = load_station(vb.station_path)
