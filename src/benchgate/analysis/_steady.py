@@ -67,8 +67,9 @@ def find_steady(env: Envelope, n: int, cycles: float, noise_var: float) -> Stead
     """Reference amplitude from the last part of the record, start-up crossing, steady start.
 
     The steady part begins one window after the last envelope point outside the steady
-    band: ±(max(1 % of the level, 5.5 standard deviations of the envelope noise) + the
-    ripple of a window that is not exactly one period). The envelope noise follows from the
+    band: ±(max(1 % of the level, 5.5 standard deviations of the envelope noise, 1.5 times
+    the largest deviation seen in the tail itself — ripple of a coarsely sampled period or of
+    harmonics) + a small allowance for the window). The envelope noise follows from the
     record's noise variance ``noise_var`` (σ², from a sine fit to the tail): the variance
     over M samples of sine plus noise has variance (4σ²S + 2σ⁴)/M, S = A²/2 (derived), so
     noise alone practically never trims a steady record. Records shorter than 8 cycles are
@@ -84,9 +85,11 @@ def find_steady(env: Envelope, n: int, cycles: float, noise_var: float) -> Stead
     s_mean = 0.5 * level * level
     sd_var = math.sqrt(max(4.0 * noise_var * s_mean + 2.0 * noise_var * noise_var, 0.0) / m)
     sd_env = sd_var / level if level > 0 else math.inf
-    tol = max(0.01 * level, 5.5 * sd_env) + level * 0.1 / m
+    base_tol = max(0.01 * level, 5.5 * sd_env) + level * 0.1 / m
+    ripple = float(np.max(np.abs(tail - level))) if tail.size else 0.0
+    tol = max(base_tol, 1.5 * ripple)
     half = tail.size // 2
-    growing = bool(half >= 2 and abs(float(np.median(tail[half:])) - float(np.median(tail[:half]))) > tol)
+    growing = bool(half >= 2 and abs(float(np.median(tail[half:])) - float(np.median(tail[:half]))) > base_tol)
     if level <= 0:
         return Steady(0, level, tol, None, False, None)
     above = np.flatnonzero(level_all >= 0.9 * level)
