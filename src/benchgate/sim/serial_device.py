@@ -183,8 +183,8 @@ class PtyAdcDevice:
 
     def disconnect(self) -> None:
         """Pull the cable now: close the master side (the host's reads fail)."""
+        self.disconnected.set()  # first, so whoever sees the failure also sees the flag
         self._close_fds()
-        self.disconnected.set()
 
     def _close_fds(self) -> None:
         for name in ("_master", "_slave"):
