@@ -203,6 +203,31 @@ def test_sigint_aborts_with_report_supply_off_and_complete_row(vbench, tmp_path)
     assert "Traceback" not in err
 
 
+def test_sigint_during_a_capture_switches_off_and_aborts(tmp_path):
+    from benchgate.sim.bench import VirtualBench
+
+    # a slow bench: the 0.4 s start-up capture takes 0.8 s of wall time
+    with VirtualBench("tb3", speed=0.5, workdir=tmp_path / "vb") as vb:
+        vb.load_unit("OH-INT-3")
+        events = tmp_path / "ev.jsonl"
+        proc = bg("run", TB3, "--station", vb.station_path, "--serial", "OH-INT-3", "--unattended",
+                  "--reports", tmp_path / "r", "--events", events, "--clock-speed", 0.5,
+                  stdin=subprocess.DEVNULL)
+        wait_for_event(events, "step_started", "power-on", proc)
+        deadline = time.monotonic() + 5
+        while not vb.supply_output and time.monotonic() < deadline:
+            time.sleep(0.005)
+        assert vb.supply_output is True  # switched on once the acquisition was running
+        proc.send_signal(signal.SIGINT)
+        out, err = proc.communicate(timeout=60)
+        assert proc.returncode == 130, (out, err)
+        assert vb.supply_output is False
+    (row,) = rows(tmp_path / "r" / "results.sqlite")
+    assert row[1:3] == (1, "aborted")
+    report = json.loads(Path(row[4]).read_text())
+    assert report["steps"][2]["status"] == "aborted" and "power-on" in report["reason"]
+
+
 def test_second_sigint_during_cleanup_still_leaves_supply_off(vbench, tmp_path):
     vbench.load_unit("OH-INT-2")
     events = tmp_path / "ev.jsonl"

@@ -48,10 +48,7 @@ class Services:
 
         open_bench = options.open_bench
         if open_bench is None:
-            try:
-                from benchgate.instruments import open_station as open_bench
-            except ImportError:  # not there yet: the runner's own minimal one
-                from benchgate.runner._bench_fallback import open_station as open_bench
+            from benchgate.instruments import open_station as open_bench
         return cls(open_bench=open_bench, save_capture=save_capture, analyze=analyze,
                    write_reports=write_reports, layout=ReportLayout, open_db=ResultsDB.open)
 
