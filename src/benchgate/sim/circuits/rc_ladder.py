@@ -30,12 +30,12 @@ class LadderParams:
     c: tuple[float, ...]  # per section
     kind: str = "high-pass"  # "high-pass" (series C, shunt R) or "low-pass" (series R, shunt C)
     gain: float = 40.0  # small-signal voltage gain magnitude (inverting)
-    r_out: float = 1500.0  # amplifier output resistance (collector resistor)
-    r_in: float = 27e3  # amplifier input resistance
+    r_out: float = 1000.0  # amplifier output resistance (collector resistor)
+    r_in: float = 47e3  # amplifier input resistance
     supply: float = 9.0
-    bias: float = 4.5  # quiescent collector voltage
+    bias: float = 4.6  # quiescent collector voltage
     headroom: float = 0.35  # how close to each rail the output saturates
-    bias_current: float = 0.55e-3  # base divider and emitter branch, drawn from the supply
+    bias_current: float = 0.2e-3  # base divider and emitter branch, drawn from the supply
 
     def __post_init__(self) -> None:
         if len(self.r) != len(self.c) or len(self.r) < 1:
