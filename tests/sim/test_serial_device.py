@@ -120,3 +120,13 @@ def test_power_command_reaches_the_source():
         assert read_reply(port) == "OK POWER ON"
         port.close()
     assert source.power is True
+
+
+def test_disconnect_from_another_thread():
+    with PtyAdcDevice(SineSource(), clock=ScaledClock(SPEED)) as dev:
+        port = open_port(dev)
+        dev.disconnect()  # e.g. the virtual bench's fault handle, called by a test
+        with pytest.raises((serial.SerialException, OSError)):
+            port.read(10)
+            port.read(10)
+        port.close()

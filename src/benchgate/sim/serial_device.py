@@ -141,6 +141,8 @@ class PtyAdcDevice:
         self.rate = self._achievable(default_rate)
         self.port: str | None = None
         self.disconnected = threading.Event()
+        self._pull = threading.Event()
+        self._pulled = threading.Event()
         self.commands: list[str] = []  # every command line received, for tests
         self._master = self._slave = -1
         self._thread: threading.Thread | None = None
@@ -184,6 +186,11 @@ class PtyAdcDevice:
     def disconnect(self) -> None:
         """Pull the cable now: close the master side (the host's reads fail)."""
         self.disconnected.set()  # first, so whoever sees the failure also sees the flag
+        thread = self._thread
+        if thread is not None and thread.is_alive() and threading.current_thread() is not thread:
+            self._pull.set()  # the serving thread closes its own descriptors (no fd reuse race)
+            if self._pulled.wait(timeout=2.0):
+                return
         self._close_fds()
 
     def _close_fds(self) -> None:
@@ -200,6 +207,10 @@ class PtyAdcDevice:
     def _serve(self) -> None:
         line = bytearray()
         while self._running.is_set() and self._master >= 0:
+            if self._pull.is_set():
+                self._close_fds()
+                self._pulled.set()
+                break
             try:
                 wants_write = bool(self._out)
                 r, w, _ = select.select([self._master], [self._master] if wants_write else [], [], 0.002)
