@@ -99,3 +99,17 @@ class TestCounterAndDigitizer:
         early = state.test_point(np.linspace(t, t + 0.005, 500), noise=False)
         late = state.test_point(np.linspace(t + 0.4, t + 0.405, 500), noise=False)
         assert np.ptp(early) < 0.1 * np.ptp(late)  # starting up again
+
+
+class TestSupplyVoltage:
+    def test_lower_supply_scales_the_output_and_brown_out_stops_it(self):
+        clock, state, be = make()
+        be.supply_changed(9.0, 0.05, True)
+        clock.advance(0.4)
+        t = clock.monotonic() + np.arange(2000) / 50e3
+        full = np.ptp(state.test_point(t, noise=False))
+        be.supply_changed(6.0, 0.05, True)
+        assert np.ptp(state.test_point(t, noise=False)) == pytest.approx(full * 6 / 9, rel=1e-9)
+        be.supply_changed(4.0, 0.05, True)  # below 60 % of 9 V
+        assert np.ptp(state.test_point(t, noise=False)) == 0.0
+        assert be.counter_frequency() == 0.0

@@ -183,3 +183,19 @@ class TestAstable:
         assert vc.max() == pytest.approx(2 * p.supply / 3, rel=1e-3)
         # first charge from empty: ln 3·(R1+R2)·C (derived from the RC charging law)
         assert astable.capacitor(p, np.array([p.t_first]))[0] == pytest.approx(2 * p.supply / 3)
+
+
+class TestTrace:
+    def test_periodic_continuation_matches_direct_integration(self):
+        from benchgate.sim.circuits.trace import LoopTrace
+
+        p = rc_ladder.LadderParams(r=(6.8e3,) * 3, c=(10e-9,) * 3)
+        trace = LoopTrace(rc_ladder.stepper(p, RATE, seed=5), 1000.0)
+        assert trace.steady_frequency is not None
+        assert trace.state == "periodic" and trace.simulated < 0.5
+        direct = rc_ladder.simulate(p, 0.8, RATE, seed=5)
+        k = np.arange(int(0.75 * RATE), int(0.8 * RATE))
+        cont = trace.values((k + 1) / RATE)  # sample k is the state after step k + 1
+        # the continued cycle stays on the integrated one (0.3 s past the settled point)
+        assert np.max(np.abs(cont - direct[k])) < 0.01 * np.ptp(direct[k])
+        assert trace.steady_frequency == pytest.approx(zero_crossing_frequency(direct[k], RATE), rel=1e-4)
