@@ -45,6 +45,11 @@ def test_reanalysis_under_a_tighter_plan(stored, tmp_path, capsys):
     assert code == 1 and out["verdict"] == "fail"
     assert "thd" in out["reason"] and "above 0.1000 %" in out["reason"]
     new = json.loads(Path(out["report"]["json"]).read_text())
+    import jsonschema
+
+    from benchgate.report.json_report import load_schema
+
+    jsonschema.Draft202012Validator(load_schema()).validate(new)
     original = json.loads(report.read_text())
     assert new["reanalysis_of"]["run_id"] == original["run_id"]
     assert new["reanalysis_of"]["plan_version"] == "1.0" and new["plan"]["version"] == "1.1"

@@ -39,6 +39,17 @@ instruments:
 """
 
 
+def valid_report(path):
+    """The unit report at ``path``, checked against the repository's JSON Schema."""
+    import jsonschema
+
+    from benchgate.report.json_report import load_schema
+
+    data = json.loads(Path(path).read_text())
+    jsonschema.Draft202012Validator(load_schema()).validate(data)
+    return data
+
+
 def rows(db):
     conn = sqlite3.connect(db)
     try:
@@ -79,7 +90,7 @@ def test_unreachable_instrument_is_error_with_report_and_row(tmp_path, capsys):
     assert code == 3
     (row,) = rows(tmp_path / "r" / "results.sqlite")
     assert row[:3] == ("DEAD-1", 1, "error")
-    report = json.loads(Path(row[4]).read_text())
+    report = valid_report(row[4])
     assert report["verdict"] == "error" and report["reason"] == row[3]
     assert (tmp_path / "j.xml").exists()
 
@@ -140,7 +151,7 @@ def test_good_unit_in_process_with_junit_and_events(vbench, tmp_path, capsys):
     assert kinds[0] == "run_started" and kinds[-1] == "run_finished" and kinds.count("check") == n_checks
     (row,) = rows(tmp_path / "r" / "results.sqlite")
     assert row[:3] == ("OH-CLI-1", 1, "pass")
-    report = json.loads(Path(row[4]).read_text())
+    report = valid_report(row[4])
     assert report["operator"] == "Wren" and report["lot"] == "L7" and report["flags"]["unattended"] is True
 
 
@@ -196,7 +207,7 @@ def test_sigint_aborts_with_report_supply_off_and_complete_row(vbench, tmp_path)
     assert vbench.supply_output is False
     (row,) = rows(tmp_path / "r" / "results.sqlite")
     assert row[:3] == ("OH-INT-1", 1, "aborted")
-    report = json.loads(Path(row[4]).read_text())
+    report = valid_report(row[4])
     assert report["verdict"] == "aborted" and "Ctrl-C" in report["reason"]
     assert [s["status"] for s in report["steps"]][4:] == ["aborted", "skipped", "skipped"]
     assert Path(row[4]).with_suffix(".html").exists()
