@@ -2,12 +2,16 @@
 
 from __future__ import annotations
 
+import sys
+
 import numpy as np
 import pytest
 
 from benchgate.capfile import load_capture
 from benchgate.cli import main
 from benchgate.sim.serial_device import DeviceFaults, PtyAdcDevice, SineSource
+
+pytestmark = pytest.mark.skipif(sys.platform == "win32", reason="needs POSIX pseudo-terminals")
 
 
 def station_file(tmp_path, port: str) -> str:

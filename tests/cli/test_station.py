@@ -2,8 +2,14 @@
 
 from __future__ import annotations
 
+import sys
+
+import pytest
+
 from benchgate.cli import main
 from benchgate.sim.serial_device import PtyAdcDevice, SineSource
+
+pytestmark = pytest.mark.skipif(sys.platform == "win32", reason="needs POSIX pseudo-terminals")
 
 
 def write(tmp_path, port: str, due: str) -> str:
@@ -49,3 +55,9 @@ def test_bad_station_file_gives_its_position(tmp_path, capsys):
     path.write_text("station: x\ninstruments:\n  adc: {kind: serial-adc, port: /dev/x, bits: many}\n")
     assert main(["station", str(path)]) == 2
     assert f"benchgate: {path}:3:" in capsys.readouterr().err
+
+
+def test_no_open_only_reads_the_file(tmp_path, capsys):
+    assert main(["station", "--no-open", write(tmp_path, "/dev/no-such-adc", "2021-01-01")]) == 0
+    out = capsys.readouterr().out
+    assert "/dev/no-such-adc" in out and "calibration EXPIRED (due 2021-01-01)" in out

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import datetime as dt
 import re
+import sys
 from types import SimpleNamespace
 
 import numpy as np
@@ -17,6 +18,8 @@ from benchgate.instruments._station_load import _ADC_DEFAULTS
 from benchgate.instruments.serial_adc import SerialAdc
 from benchgate.instruments.station import Calibration, InstrumentConfig
 from benchgate.sim.serial_device import DeviceFaults, PtyAdcDevice, SineSource
+
+pytestmark = pytest.mark.skipif(sys.platform == "win32", reason="needs POSIX pseudo-terminals")
 
 SPEED = 10.0
 

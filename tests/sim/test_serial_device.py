@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import sys
 import time
 
 import numpy as np
@@ -11,6 +12,8 @@ import serial
 from benchgate.clock import ScaledClock
 from benchgate.instruments.framing import FrameDecoder
 from benchgate.sim.serial_device import DeviceFaults, PtyAdcDevice, SineSource
+
+pytestmark = pytest.mark.skipif(sys.platform == "win32", reason="needs POSIX pseudo-terminals")
 
 SPEED = 20.0
 
