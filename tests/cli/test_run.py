@@ -270,3 +270,51 @@ def test_kill_9_leaves_an_incomplete_row(vbench, tmp_path, capsys):
     code = main(["history", "OH-KILL-1", "--db", str(tmp_path / "r" / "results.sqlite")])
     out = capsys.readouterr().out
     assert code == 0 and "OH-KILL-1" in out and "incomplete" in out.lower()
+
+
+def test_hazards_need_accept_flag_when_unattended_and_are_recorded(vbench, tmp_path, capsys):
+    text = TB3.read_text()
+    assert "hazards: []" in text
+    plan = tmp_path / "tb3-hot.yaml"
+    plan.write_text(text.replace("hazards: []", "hazards:\n  - name: hot_surfaces\n"
+                                 "    text: The regulator <U1> reaches 70 °C; let it cool before handling."))
+    base = ["run", str(plan), "--station", str(vbench.station_path), "--serial", "OH-HOT-1", "--unattended",
+            "--reports", str(tmp_path / "r"), "--clock-speed", str(SPEED), "--display", "quiet"]
+    assert main(base) == 2
+    assert "--accept-hazards" in capsys.readouterr().err
+    assert not (tmp_path / "r" / "results.sqlite").exists()
+    vbench.load_unit("OH-HOT-1")
+    assert main(base + ["--accept-hazards"]) == 0
+    (row,) = rows(tmp_path / "r" / "results.sqlite")
+    report = valid_report(row[4])
+    assert report["hazards_acknowledged"] == "--accept-hazards"
+    assert report["hazards"] == ["hot_surfaces: The regulator <U1> reaches 70 °C; let it cool before handling."]
+    conn = sqlite3.connect(tmp_path / "r" / "results.sqlite")
+    assert conn.execute("SELECT accept_hazards FROM runs").fetchone() == (1,)
+    conn.close()
+
+
+def test_expired_calibration_stops_the_run_unless_allowed(vbench, tmp_path, capsys):
+    import re
+
+    text = vbench.station_path.read_text()
+    text, n = re.subn(r"(out: \{gain: 1\.0, offset: 0 mV, )date: [0-9-]+, due: [0-9-]+",
+                      r"\1date: 2020-01-01, due: 2021-01-01", text)
+    assert n == 1
+    station = tmp_path / "expired.yaml"
+    station.write_text(text)
+    base = ["run", str(TB3), "--station", str(station), "--serial", "OH-CAL-1", "--unattended",
+            "--reports", str(tmp_path / "r"), "--clock-speed", str(SPEED), "--display", "quiet"]
+    assert main(base) == 2
+    err = capsys.readouterr().err
+    assert "adc (channel out) calibration was due 2021-01-01" in err and str(station) in err
+    assert vbench.supply_output is False and not (tmp_path / "r" / "results.sqlite").exists()
+    vbench.load_unit("OH-CAL-1")
+    assert main(base + ["--allow-expired-calibration"]) == 0
+    (row,) = rows(tmp_path / "r" / "results.sqlite")
+    report = valid_report(row[4])
+    assert report["flags"]["allow_expired_calibration"] is True
+    assert report["flags"]["expired_calibration"] == ["adc (channel out) calibration was due 2021-01-01"]
+    conn = sqlite3.connect(tmp_path / "r" / "results.sqlite")
+    assert conn.execute("SELECT allow_expired_calibration FROM runs").fetchone() == (1,)
+    conn.close()
