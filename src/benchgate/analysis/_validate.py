@@ -31,6 +31,12 @@ class Checked:
     high_state: float
 
 
+def _histogram(x: np.ndarray, lo: float, hi: float, bins: int) -> np.ndarray:
+    idx = ((x - lo) * (bins / (hi - lo))).astype(np.int64)
+    np.minimum(idx, bins - 1, out=idx)
+    return np.bincount(idx, minlength=bins)
+
+
 def state_levels(x: np.ndarray, bins: int = 256) -> tuple[float, float]:
     """Low and high state levels: modes of the lower and upper halves of the histogram.
 
@@ -38,17 +44,19 @@ def state_levels(x: np.ndarray, bins: int = 256) -> tuple[float, float]:
     ----------
     IEEE Std 181-2011, state levels by the histogram method.
     """
+    return _levels_and_counts(x, bins)[:2]
+
+
+def _levels_and_counts(x: np.ndarray, bins: int = 256) -> tuple[float, float, np.ndarray | None]:
     lo, hi = float(np.min(x)), float(np.max(x))
     if hi <= lo:
-        return lo, hi
-    idx = ((x - lo) * (bins / (hi - lo))).astype(np.int64)
-    np.minimum(idx, bins - 1, out=idx)
-    counts = np.bincount(idx, minlength=bins)
-    centres = lo + (np.arange(bins) + 0.5) * ((hi - lo) / bins)
+        return lo, hi, None
+    counts = _histogram(x, lo, hi, bins)
+    width = (hi - lo) / bins
     half = bins // 2
-    low = centres[int(np.argmax(counts[:half]))]
-    high = centres[half + int(np.argmax(counts[half:]))]
-    return float(low), float(high)
+    low = lo + (int(np.argmax(counts[:half])) + 0.5) * width
+    high = lo + (half + int(np.argmax(counts[half:])) + 0.5) * width
+    return float(low), float(high), counts
 
 
 def is_pulse_like(x: np.ndarray, low: float, high: float) -> bool:
@@ -58,6 +66,17 @@ def is_pulse_like(x: np.ndarray, low: float, high: float) -> bool:
         return False
     near = (np.abs(x - low) < 0.1 * span) | (np.abs(x - high) < 0.1 * span)
     return bool(np.mean(near) >= 0.8)
+
+
+def _pulse_like_from_counts(counts: np.ndarray, lo: float, hi: float, low: float, high: float) -> bool:
+    """:func:`is_pulse_like` from the state-level histogram (to one bin of resolution)."""
+    span = high - low
+    if span <= 0:
+        return False
+    bins = counts.size
+    centres = lo + (np.arange(bins) + 0.5) * ((hi - lo) / bins)
+    near = (np.abs(centres - low) < 0.1 * span) | (np.abs(centres - high) < 0.1 * span)
+    return bool(counts[near].sum() >= 0.8 * counts.sum())
 
 
 def _run_fraction(mask: np.ndarray) -> float:
@@ -89,8 +108,8 @@ def check_capture(capture: Capture) -> Checked:
     if span <= flat_limit:
         reason = "flat line: no oscillation in the record"
         return Checked(reason, (reason,), None, False, lo, hi)
-    low, high = state_levels(x)
-    pulse = is_pulse_like(x, low, high)
+    low, high, counts = _levels_and_counts(x)
+    pulse = counts is not None and _pulse_like_from_counts(counts, lo, hi, low, high)
     clipped = None
     if capture.adc is not None:
         adc = capture.adc

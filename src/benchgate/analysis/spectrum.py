@@ -113,10 +113,14 @@ class Spectrum:
 
     freqs: np.ndarray
     power: np.ndarray
-    magnitude: np.ndarray  # |X_k| of the windowed DFT (for peak interpolation)
     n: int
     sample_rate: float
     window: str
+
+    @property
+    def magnitude(self) -> np.ndarray:
+        """Magnitudes proportional to |X_k| (for peak interpolation)."""
+        return np.sqrt(self.power)
 
     @property
     def bin_width(self) -> float:
@@ -157,15 +161,17 @@ def power_spectrum(x: np.ndarray, sample_rate: float, window_name: str = "blackm
     if detrend:
         x = x - x.mean()
     w = window(window_name, n)
-    xf = np.fft.rfft(x * w)
-    mag2 = xf.real * xf.real + xf.imag * xf.imag
-    power = mag2 * (2.0 / (n * np.sum(w * w)))
+    xw = x * w
+    xf = np.fft.rfft(xw)
+    del xw
+    power = np.abs(xf)
+    power *= power
+    power *= 2.0 / (n * float(np.einsum("i,i->", w, w)))
     power[0] *= 0.5
     if n % 2 == 0:
         power[-1] *= 0.5
     freqs = np.arange(power.size) * (sample_rate / n)
-    return Spectrum(freqs=freqs, power=power, magnitude=np.sqrt(mag2), n=n,
-                    sample_rate=float(sample_rate), window=window_name)
+    return Spectrum(freqs=freqs, power=power, n=n, sample_rate=float(sample_rate), window=window_name)
 
 
 def interpolated_peak(mag: np.ndarray, k: int) -> float:
@@ -230,11 +236,11 @@ def coarse_frequency(x: np.ndarray, sample_rate: float) -> float:
 
 def peak_frequency(spec: Spectrum) -> float:
     """Interpolated frequency (Hz) of the largest peak above one cycle per record, 0.0 if none."""
-    mag = spec.magnitude
-    if mag.size < 4 or not np.any(mag[1:] > 0):
+    p = spec.power
+    if p.size < 4 or not np.any(p[1:] > 0):
         return 0.0
-    k = 1 + int(np.argmax(mag[1:]))
-    return interpolated_peak(mag, k) * spec.bin_width
+    k = 1 + int(np.argmax(p[1:]))
+    return (k - 1 + interpolated_peak(np.sqrt(p[k - 1:k + 2]), 1)) * spec.bin_width
 
 
 def band_power(spec: Spectrum, freq: float, half_width: int | None = None) -> tuple[float, slice]:
