@@ -283,3 +283,52 @@ def test_usb_address_resolved_through_list_ports(monkeypatch):
 def test_missing_port_is_one_clear_error(clock):
     with pytest.raises(InstrumentError, match="no such serial port /dev/does-not-exist"):
         SerialAdc.open(adc_config("/dev/does-not-exist"), clock=clock)
+
+
+class ScriptedPort:
+    """A stand-in serial port that answers each written line from a script (raw bytes)."""
+
+    def __init__(self, script):
+        self.script, self.pending = dict(script), b""
+        self.baudrate = self.timeout = self.write_timeout = None
+
+    def open(self):
+        pass
+
+    @property
+    def in_waiting(self):
+        return len(self.pending)
+
+    def read(self, size=1):
+        data, self.pending = self.pending[:size], self.pending[size:]
+        return data
+
+    def write(self, data):
+        self.pending += self.script.get(data.strip().decode(), b"")
+        return len(data)
+
+    def flush(self):
+        pass
+
+    def reset_input_buffer(self):
+        self.pending = b""
+
+    def close(self):
+        pass
+
+
+def test_reply_found_behind_stale_binary_bytes(clock, monkeypatch):
+    script = {
+        "IDN?": b"IDN Owl Hollow Kits,X,1,1;proto=1;bits=12;channels=out,rail;mode=framed\n",
+        # the late tail of an END frame (with a 0x0A in it), then the reply glued to more binary
+        "RATE 1000.000000": b"\x02\x0a\x00\xa5\x5aOK RATE 1000.000000\n",
+        "POWER ON": b"\x9c\x01ERR relay fault\n",
+    }
+    monkeypatch.setattr(_serial_port, "make_serial", lambda address: ScriptedPort(script))
+    adc = SerialAdc.open(adc_config("/dev/scripted"), clock=clock)
+    try:
+        assert adc._call(adc._port.command, "RATE 1000.000000", "OK RATE") == "OK RATE 1000.000000"
+        with pytest.raises(InstrumentError, match="adc refused 'POWER ON': relay fault"):
+            adc.fixture_power(True)
+    finally:
+        adc.close()

@@ -206,8 +206,13 @@ class SerialPort:
         self.flush_input()
 
     def command(self, text: str, expect: str) -> str:
-        """Send one command; return the reply line starting with ``expect``; ``ERR ...`` raises."""
+        """Send one command; return its reply (from ``expect`` on); an ``ERR ...`` reply raises.
+
+        Whatever is waiting before the command is stale and dropped; a reply that arrives glued
+        to late binary bytes (the tail of a frame) is still found by its prefix.
+        """
         timeout = max(float(self.config.timeout), 0.1)
+        self.flush_input()
         self.write_line(text)
         deadline, backstop = self.clock.monotonic() + timeout, self._backstop(timeout)
         while True:
@@ -215,10 +220,12 @@ class SerialPort:
             if line is None:
                 raise InstrumentError(self.role, f"adc on {self.path} did not answer {text!r} "
                                                  f"within {timeout:g} s")
-            if line.startswith(expect):
-                return line
-            if line.startswith("ERR"):
-                raise InstrumentError(self.role, f"adc refused {text!r}: {line[3:].strip()}")
+            at = line.find(expect)
+            if at >= 0:
+                return line[at:]
+            at = line.find("ERR ")
+            if at >= 0:
+                raise InstrumentError(self.role, f"adc refused {text!r}: {line[at + 4:].strip()}")
             # anything else is stale (a late IDN reply, a banner): skip it
 
     def stop_stream(self) -> None:
