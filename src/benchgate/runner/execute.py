@@ -243,7 +243,9 @@ class Executor:
             self.hooks.progress(fraction, f"capture {step.channel}", step.duration * (1 - fraction))
 
         started = threading.Event()
-        kwargs = {"duration": step.duration, "rate": step.rate, "progress": progress}
+        kwargs: dict[str, Any] = {"duration": step.duration, "rate": step.rate, "progress": progress}
+        if getattr(step, "range", None) is not None and step.instrument == "digitizer":
+            kwargs["range"] = step.range  # an ADC's range is fixed by its reference
         if not step.power_on:
             return instrument.capture(step.channel, **kwargs)
         # Acquisition first, then the supply: the record must hold the start-up transient. The
