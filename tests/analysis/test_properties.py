@@ -67,7 +67,7 @@ class TestProperties:
     @given(noise())
     def test_noise_is_never_a_valid_frequency(self, cap):
         result = analyze(cap)
-        for name in ("frequency", "amplitude", "startup_time", "frequency_drift", "thd"):
+        for name in ("frequency", "amplitude", "startup_time", "frequency_drift", "thd", "duty_cycle"):
             assert not result.measurements[name].valid, name
         _check_reasons(result)
 

@@ -61,7 +61,8 @@ def duty_cycle(capture: Capture, *, context: Context | None = None) -> Measureme
     Measurement
         Mean over the complete periods (rising edge to rising edge). U (k = 2) combines the
         standard deviation of the mean over periods and a rectangular one-sample resolution
-        of each crossing. Invalid with fewer than 2 complete periods.
+        of each crossing. Invalid with fewer than 2 complete periods, or when no periodic
+        waveform was found (noise alone).
 
     References
     ----------
@@ -71,6 +72,9 @@ def duty_cycle(capture: Capture, *, context: Context | None = None) -> Measureme
     ctx = get_context(capture, context)
     if ctx.fatal:
         return Measurement.invalid("duty_cycle", "%", ctx.fatal)
+    if ctx.tone.fit is None or (ctx.tone.reason and "cycles" not in ctx.tone.reason):
+        # noise has no periods to time; a record of few cycles is judged by its edges below
+        return Measurement.invalid("duty_cycle", "%", ctx.tone.reason or "no periodic waveform")
     y = ctx.y
     low, high = ctx.steady_levels
     if not high > low:
