@@ -166,6 +166,9 @@ def test_pareto_ordering(db):
         ("frequency below the low limit", 1),
         ("thd above the high limit", 1),
     ]
+    kinds = {r.reason: r.kind for r in s.pareto_reasons}
+    assert kinds["no steady tone found"] == "error" and kinds["adc: no data for 1 s"] == "error"
+    assert kinds["frequency above the high limit"] == "fail"
     counts = [r.count for r in s.pareto_reasons]
     assert counts == sorted(counts, reverse=True)
 

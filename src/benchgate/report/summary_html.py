@@ -84,11 +84,15 @@ def histogram_svg(stats: Any, *, width: int = 360, height: int = 120) -> Markup:
                      f'{escape(text)}</text>')
     xm = x(stats.mean)
     parts.append(f'<line class="mean" x1="{_num(xm)}" y1="{mt}" x2="{_num(xm)}" y2="{mt + ph}"/>')
-    parts.append(f'<text class="axis" x="{ml}" y="{height - 6}">{escape(_q(lo, stats.unit))}</text>')
+    lo_text, hi_text = _q(lo, stats.unit), _q(hi, stats.unit)
+    mean_text = f"μ {_q(stats.mean, stats.unit)}"
+    parts.append(f'<text class="axis" x="{ml}" y="{height - 6}">{escape(lo_text)}</text>')
     parts.append(f'<text class="axis" x="{width - mr}" y="{height - 6}" text-anchor="end">'
-                 f'{escape(_q(hi, stats.unit))}</text>')
-    parts.append(f'<text class="axis" x="{_num(xm)}" y="{height - 6}" text-anchor="middle">'
-                 f'μ {escape(_q(stats.mean, stats.unit))}</text>')
+                 f'{escape(hi_text)}</text>')
+    half = 2.8 * len(mean_text)  # half the rough width of 10 px text
+    if xm - half > ml + 5.6 * len(lo_text) + 4 and xm + half < width - mr - 5.6 * len(hi_text) - 4:
+        parts.append(f'<text class="axis" x="{_num(xm)}" y="{height - 6}" text-anchor="middle">'
+                     f'{escape(mean_text)}</text>')
     parts.append("</svg>")
     return Markup("".join(parts))
 
@@ -159,7 +163,9 @@ def render_summary_html(summary: Any, *, title: str | None = None,
         "pareto_checks": [{"p": p, "fail_bar": bar_svg(p.fail, top_check),
                            "other_bar": bar_svg(p.error + p.inconclusive, top_check, kind="error")}
                           for p in summary.pareto_checks],
-        "pareto_reasons": [{"r": r, "bar": bar_svg(r.count, top_reason)} for r in summary.pareto_reasons],
+        "pareto_reasons": [{"r": r, "bar": bar_svg(r.count, top_reason,
+                                                    kind="fail" if r.kind == "fail" else "error")}
+                           for r in summary.pareto_reasons],
         "checks": checks,
         "generated": generated.astimezone(UTC).strftime("%Y-%m-%d %H:%M UTC"),
         "version": __version__,

@@ -154,6 +154,7 @@ class ParetoCheck:
 class ParetoReason:
     reason: str
     count: int
+    kind: str = "fail"  # the verdict behind it: fail, error, inconclusive, aborted, incomplete, other
 
 
 @dataclass(frozen=True)
@@ -287,7 +288,12 @@ def _pareto_checks(conn, defs, cf, params) -> tuple[ParetoCheck, ...]:
 
 
 def _pareto_reasons(conn, rf, cf, params) -> tuple[ParetoReason, ...]:
-    counts: dict[str, int] = {}
+    counts: dict[str, list] = {}
+
+    def add(text: str, n: int, kind: str) -> None:
+        acc = counts.setdefault(text, [0, kind])
+        acc[0] += n
+
     for meas, verdict, side, reason, n in conn.execute(
             "SELECT d.measurement, c.verdict,"
             " CASE WHEN c.verdict = 'fail' AND d.high IS NOT NULL AND c.value > d.high THEN 'above'"
@@ -296,25 +302,26 @@ def _pareto_reasons(conn, rf, cf, params) -> tuple[ParetoReason, ...]:
             " COUNT(*) FROM checks c JOIN check_defs d ON d.id = c.def"
             f" WHERE c.verdict <> 'pass'{cf} GROUP BY 1, 2, 3, 4", params):
         if verdict == "fail":
-            text = f"{meas} {side} the {'high' if side == 'above' else 'low'} limit"
+            add(f"{meas} {side} the {'high' if side == 'above' else 'low'} limit", n, "fail")
         elif verdict == "inconclusive":
-            text = f"{meas} inconclusive (within U of a limit)"
+            add(f"{meas} inconclusive (within U of a limit)", n, "inconclusive")
         else:
-            text = reason
-        counts[text] = counts.get(text, 0) + n
+            add(reason, n, verdict)
     # runs that did not pass without any check saying why (lost instrument, abort, crash)
-    for complete, reason, n in conn.execute(
-            "SELECT complete, reason, COUNT(*) FROM runs r"
+    for complete, verdict, reason, n in conn.execute(
+            "SELECT complete, verdict, reason, COUNT(*) FROM runs r"
             f" WHERE (complete = 0 OR verdict <> 'pass'){rf} AND NOT EXISTS"
             " (SELECT 1 FROM checks c WHERE c.run = r.id AND c.verdict <> 'pass')"
-            " GROUP BY 1, 2", params):
-        text = "incomplete: run did not finish" if not complete else (reason or "no reason given")
-        counts[text] = counts.get(text, 0) + n
-    items = sorted(counts.items(), key=lambda kv: (-kv[1], kv[0]))
+            " GROUP BY 1, 2, 3", params):
+        if not complete:
+            add("incomplete: run did not finish", n, "incomplete")
+        else:
+            add(reason or "no reason given", n, verdict or "error")
+    items = sorted(counts.items(), key=lambda kv: (-kv[1][0], kv[0]))
     if len(items) > PARETO_TOP:
-        rest = sum(n for _, n in items[PARETO_TOP - 1:])
-        items = items[:PARETO_TOP - 1] + [("other", rest)]
-    return tuple(ParetoReason(r, n) for r, n in items)
+        rest = sum(v[0] for _, v in items[PARETO_TOP - 1:])
+        items = items[:PARETO_TOP - 1] + [("other", [rest, "other"])]
+    return tuple(ParetoReason(r, n, kind) for r, (n, kind) in items)
 
 
 def _check_stats(conn, defs, cf, params) -> tuple[CheckStats, ...]:
