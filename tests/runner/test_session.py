@@ -5,6 +5,7 @@ from __future__ import annotations
 import json
 from dataclasses import replace
 
+import pytest
 from runner_fakes import (
     Check,
     Station,
@@ -280,3 +281,15 @@ def test_unexpected_exception_still_leaves_evidence(tmp_path):
     assert outcome.record.verdict == Verdict.ERROR
     assert outcome.record.reason.startswith("internal error: ZeroDivisionError")
     assert bench.supply.on is False and db.rows[outcome.record.run_id]["complete"]
+
+
+def test_unwritable_events_file_is_one_clear_error(tmp_path):
+    from benchgate.runner.options import PreflightError
+
+    blocker = tmp_path / "file"
+    blocker.write_text("x")
+    svc, db = services(make_bench())
+    options = RunOptions(reports_dir=tmp_path / "r", ui="quiet", events=blocker / "events.jsonl")
+    with pytest.raises(PreflightError) as err:
+        Runner(standard_plan(), Station(), options, services=svc)
+    assert "events" in err.value.one_line() and db.rows == {}

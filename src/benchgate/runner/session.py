@@ -19,7 +19,13 @@ from benchgate.judge.rules import Verdict, combine
 from benchgate.record import UnitRecord
 from benchgate.runner.events import EventLog, Hooks
 from benchgate.runner.execute import Executor, error_reason, utc_now
-from benchgate.runner.options import EXIT_ABORTED, RunOptions, RunOutcome, exit_code_for
+from benchgate.runner.options import (
+    EXIT_ABORTED,
+    PreflightError,
+    RunOptions,
+    RunOutcome,
+    exit_code_for,
+)
 from benchgate.runner.preflight import preflight
 from benchgate.runner.safety import DeferInterrupts, make_safe
 from benchgate.runner.ui import make_display
@@ -77,9 +83,16 @@ class Runner:
             from benchgate.clock import SystemClock
 
             options.clock = SystemClock()
-        options.reports_dir.mkdir(parents=True, exist_ok=True)
+        try:
+            options.reports_dir.mkdir(parents=True, exist_ok=True)
+        except OSError as exc:
+            raise PreflightError(f"cannot create the report folder: {exc.strerror}",
+                                 where=str(options.reports_dir)) from exc
+        try:
+            self.events = EventLog(options.events)
+        except OSError as exc:
+            raise PreflightError(f"cannot write the events file: {exc.strerror}", where=str(options.events)) from exc
         self.db = self.services.open_db(options.database)
-        self.events = EventLog(options.events)
         self.hooks = Hooks(self.display, self.events)
         self.done: list[RunOutcome] = []  # kept only for --junit
         self.count = 0
@@ -176,8 +189,11 @@ class Runner:
             self.done.append(outcome)
             from benchgate.report.junit import write_junit
 
-            write_junit([(o.record, o.paths) for o in self.done], self.options.junit)
-            paths["junit"] = Path(self.options.junit)
+            try:
+                write_junit([(o.record, o.paths) for o in self.done], self.options.junit)
+                paths["junit"] = Path(self.options.junit)
+            except OSError as exc:
+                self.display.info(f"benchgate: {self.options.junit}: cannot write JUnit XML: {exc.strerror}")
         self.hooks.run_finished(record, paths)
         return outcome
 
