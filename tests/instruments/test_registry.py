@@ -153,3 +153,21 @@ class TestRegistry:
         a, b = Registry(), Registry()
         a.register("fake", object)
         assert "fake" in a.kinds() and "fake" not in b.kinds()
+
+
+def test_virtual_bench_supply_is_off_after_an_exception(tmp_path):
+    # whole path: station file from the virtual bench, real drivers over the pty and loopback
+    from benchgate.instruments import load_station
+    from benchgate.sim.bench import VirtualBench
+
+    with VirtualBench("tb3", speed=5.0, workdir=tmp_path) as vb:
+        st = load_station(vb.station_path)
+        with pytest.raises(RuntimeError, match="abort"):
+            with open_station(st, clock=vb.clock) as bench:
+                assert set(bench.roles) == set(st.instruments)
+                bench.supply.set_voltage(9.0)
+                bench.supply.output(True)
+                assert vb.supply_output is True
+                assert bench["adc"].identity
+                raise RuntimeError("abort")
+        assert vb.supply_output is False
