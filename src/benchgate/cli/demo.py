@@ -61,9 +61,15 @@ def run(args) -> int:
 
     def progress(index, total, unit):
         if not args.json:
-            print(f"[{index:>2}/{total}] {unit.serial}  {unit.verdict}", file=sys.stderr, flush=True)
+            defect = f" ({unit.defect} injected)" if unit.defect else ""
+            print(f"[{index:>2}/{total}] {unit.serial}{defect}: {unit.verdict}", file=sys.stderr, flush=True)
 
-    result = run_demo(units=args.units, speed=args.speed, reports_dir=Path(args.reports), on_unit=progress)
+    def started(text):
+        if not args.json:
+            print(text, file=sys.stderr, flush=True)
+
+    result = run_demo(units=args.units, speed=args.speed, reports_dir=Path(args.reports), on_unit=progress,
+                      on_start=started)
     if args.json:
         print(json.dumps(result.to_dict(), ensure_ascii=False, default=str))
         return 0

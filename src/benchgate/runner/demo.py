@@ -95,8 +95,9 @@ def write_lot_summary(db: Any, lot: str, path: Path) -> dict:
 
 
 def run_demo(*, units: int = 14, speed: float = 4.0, reports_dir: Path | None = None,
-             lot: str = "TB3-2612", on_unit: Any = None) -> DemoResult:
-    """Run the demo lot; ``on_unit(index, total, unit)`` is called as each unit finishes."""
+             lot: str = "TB3-2612", on_unit: Any = None, on_start: Any = None) -> DemoResult:
+    """Run the demo lot; ``on_start(text)`` is called once the bench is up, ``on_unit(index,
+    total, unit)`` as each unit finishes."""
     import time
 
     from benchgate.instruments.station import load_station
@@ -112,6 +113,10 @@ def run_demo(*, units: int = 14, speed: float = 4.0, reports_dir: Path | None = 
     workdir = tempfile.mkdtemp(prefix="benchgate-demo-")
     with bench_module.VirtualBench("tb3", speed=speed, workdir=workdir) as vb:
         station = load_station(vb.station_path)
+        if on_start is not None:
+            on_start(f"virtual bench up: ADC on {vb.serial_port}, supply at {vb.resources['supply']}; "
+                     f"plan {plan.id} v{plan.version}; lot {lot}, {len(lot_units)} units; "
+                     f"time runs x{speed:g}")
         options = RunOptions(operator="demo", lot=lot, reports_dir=reports_dir, unattended=True,
                              accept_hazards=True, clock=vb.clock, ui="quiet",
                              extra_flags={"demo": True, "clock_speed": speed})
