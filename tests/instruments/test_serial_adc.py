@@ -332,3 +332,24 @@ def test_reply_found_behind_stale_binary_bytes(clock, monkeypatch):
             adc.fixture_power(True)
     finally:
         adc.close()
+
+
+def test_close_during_a_capture_stops_it(clock):
+    import threading
+
+    with PtyAdcDevice(SineSource(channels=("out", "rail")), clock=clock) as dev:
+        adc = SerialAdc.open(adc_config(dev.port), clock=clock)
+        started, result = threading.Event(), {}
+
+        def work():
+            try:
+                adc.capture("out", duration=100.0, rate=1000, progress=lambda f, t: started.set())
+            except InstrumentError as exc:
+                result["error"] = exc
+
+        worker = threading.Thread(target=work)
+        worker.start()
+        assert started.wait(10)
+        adc.close()  # e.g. the operator aborted the run: the bench closes under the capture
+        worker.join(10)
+        assert "capture aborted" in result["error"].message

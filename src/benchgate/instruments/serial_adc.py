@@ -14,6 +14,7 @@ from __future__ import annotations
 import threading
 import time
 from concurrent.futures import ThreadPoolExecutor
+from concurrent.futures import TimeoutError as FutureTimeout
 
 import numpy as np
 
@@ -50,6 +51,7 @@ class SerialAdc:
         self._device_info: dict[str, str] = {}
         self._fixture_on = False
         self._closed = False
+        self._abort = threading.Event()  # set by close(): a capture in progress stops at once
         self._lock = threading.Lock()
         # the one thread that touches the port
         self._owner = ThreadPoolExecutor(max_workers=1, thread_name_prefix=f"serial-adc {port.path}")
@@ -79,12 +81,18 @@ class SerialAdc:
             if self._closed:
                 return
             self._closed = True
+        self._abort.set()
         try:
             if self._fixture_on and self._port.alive:
                 self._owner.submit(self._power_off_quietly).result(timeout=10)
+        except FutureTimeout:
+            pass
         finally:
-            self._owner.submit(self._port.close).result(timeout=10)
-            self._owner.shutdown(wait=True)
+            try:
+                self._owner.submit(self._port.close).result(timeout=10)
+            except FutureTimeout:  # the owner thread is stuck: close from here as a last resort
+                self._port.close()
+            self._owner.shutdown(wait=False)
 
     @property
     def identity(self) -> str | None:
@@ -206,6 +214,9 @@ class SerialAdc:
         budget = duration * (1 + 2 * RATE_TOLERANCE) + stall + 0.5
         last_data, wall_last = start, wall_start
         while True:
+            if self._abort.is_set():
+                raise InstrumentError(self.name, f"adc on {self.address}: capture aborted, the "
+                                                 f"instrument is being closed")
             data = port.read_available()
             now, wall = clock.monotonic(), time.monotonic()
             if data:
