@@ -186,3 +186,24 @@ def test_scpi_error_during_setup_reports_the_code(plan, tmp_path):
     assert "-222" in rec.reason and "Data out of range" in rec.reason
     assert rec.steps[0].status == "error" and rec.reason.startswith("supply")
     assert outcome.paths["json"].exists()
+
+
+def test_supply_stops_answering_mid_run(plan, tmp_path):
+    from benchgate.instruments.station import load_station
+    from benchgate.runner.ui import QuietDisplay
+
+    with _fresh_bench(tmp_path) as vb:
+        class DropOnReading(QuietDisplay):
+            def step_started(self, index, total, step):
+                if step.id == "supply-current":
+                    vb.faults.scpi.drop("supply")  # the next reply never comes
+
+        options = RunOptions(reports_dir=tmp_path / "r", unattended=True, clock=vb.clock)
+        vb.load_unit("OH-LOST-1")
+        with Runner(plan, load_station(vb.station_path), options, display=DropOnReading()) as runner:
+            outcome = runner.run("OH-LOST-1")
+        assert vb.supply_output is False  # the off command after the timeout got through
+    rec = outcome.record
+    assert rec.verdict == Verdict.ERROR and rec.reason.startswith("supply")
+    step = next(s for s in rec.steps if s.id == "supply-current")
+    assert step.status == "error" and outcome.paths["json"].exists()
