@@ -102,3 +102,11 @@ class TestFrequency:
     def test_bad_records(self, x, word):
         m = frequency(Capture(x, 1000.0))
         assert not m.valid and word in m.reason
+
+    def test_small_tone_on_large_offset(self):
+        # 1 mV on 1 kV: sums of squares must not cancel (centred fit; common practice)
+        rng = np.random.default_rng(8)
+        cap, f, _ = tone(5000, 61.5, amplitude=1e-3, offset=1000.0)
+        noisy = Capture(cap.samples + rng.normal(0, 1e-5, cap.n), cap.sample_rate)
+        m = frequency(noisy)
+        assert m.valid and abs(m.value - f) <= m.uncertainty

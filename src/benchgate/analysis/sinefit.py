@@ -121,13 +121,20 @@ def fit3(y: np.ndarray, omega: float) -> SineFit:
     ----------
     IEEE Std 1057-2017, three-parameter least-squares sine fit; IEEE Std 1241-2010.
     """
-    y = np.asarray(y, dtype=float)
+    y, mean = _centred(y)
     n = y.size
     w = Workspace(n)
     w.set(omega)
     a, b, c, rss = _solve3(y, w)
-    return SineFit(omega=float(omega), a=a, b=b, offset=c, residual_var=max(rss, 0.0) / max(n - 3, 1),
+    return SineFit(omega=float(omega), a=a, b=b, offset=c + mean, residual_var=max(rss, 0.0) / max(n - 3, 1),
                    n=n, iterations=0, converged=True)
+
+
+def _centred(y: np.ndarray) -> tuple[np.ndarray, float]:
+    """y minus its mean (so sums of squares do not cancel under a large DC offset), and the mean."""
+    y = np.asarray(y, dtype=float)
+    mean = float(y.mean()) if y.size else 0.0
+    return y - mean, mean
 
 
 def _solve3(y: np.ndarray, w: Workspace) -> tuple[float, float, float, float]:
@@ -198,7 +205,7 @@ def fit4(y: np.ndarray, omega0: float, *, max_iter: int = 12, work: Workspace | 
     IEEE Std 1057-2017, four-parameter sine fit; P. Händel, "Properties of the IEEE-STD-1057
     four-parameter sine wave fit algorithm", IEEE Trans. Instrum. Meas. 49(6), 2000.
     """
-    y = np.asarray(y, dtype=float)
+    y, mean = _centred(y)
     n = y.size
     w = Workspace(n) if work is None or work.n != n else work
     t = np.arange(n) - w.centre
@@ -237,13 +244,13 @@ def fit4(y: np.ndarray, omega0: float, *, max_iter: int = 12, work: Workspace | 
             # the step is far below its own noise: keep this solution; its residual sum of
             # squares follows from the normal equations without another pass over the data
             omega = min(max(omega + dw, 1e-12), math.pi - 1e-12)
-            return SineFit(omega=omega, a=a, b=b, offset=c, residual_var=rss_lin / max(n - 4, 1),
+            return SineFit(omega=omega, a=a, b=b, offset=c + mean, residual_var=rss_lin / max(n - 4, 1),
                            n=n, iterations=it, converged=True)
         dw = float(np.clip(dw, -max_step, max_step))
         omega = min(max(omega + dw, 1e-12), math.pi - 1e-12)
         w.set(omega)
     a, b, c, rss = _solve3(y, w)
-    return SineFit(omega=omega, a=a, b=b, offset=c, residual_var=max(rss, 0.0) / max(n - 4, 1),
+    return SineFit(omega=omega, a=a, b=b, offset=c + mean, residual_var=max(rss, 0.0) / max(n - 4, 1),
                    n=n, iterations=it, converged=converged)
 
 
@@ -253,6 +260,7 @@ def best_start(y: np.ndarray, omega0: float, *, span_bins: float = 1.0, points: 
     For short records, where the negative-frequency image biases the DFT peak, this puts the
     four-parameter fit inside its region of convergence. Cost: ``points`` three-parameter fits.
     """
+    y, _ = _centred(y)
     n = y.size
     bins = 2.0 * math.pi / n
     grid = omega0 + np.linspace(-span_bins, span_bins, points) * bins
