@@ -136,9 +136,12 @@ def migrate(conn: sqlite3.Connection, target: int = SCHEMA_VERSION) -> int:
 
     Returns the version reached. Raises :class:`StoreError` for a file newer than this program.
     """
+    current = schema_version(conn)
+    if current == min(target, SCHEMA_VERSION):
+        return current  # up to date: no write lock taken (read-only users, many stations)
     conn.execute("BEGIN IMMEDIATE")  # one migrator at a time; others wait on the busy timeout
     try:
-        current = schema_version(conn)
+        current = schema_version(conn)  # again, under the lock: another process may have migrated
         if current > SCHEMA_VERSION:
             raise StoreError(f"database schema version {current} is newer than this benchgate "
                              f"understands ({SCHEMA_VERSION}); upgrade benchgate")
