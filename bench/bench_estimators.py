@@ -41,7 +41,7 @@ def zero_crossing(x: np.ndarray) -> tuple[float, float]:
 
 
 def trials_for(n: int, quick: bool) -> int:
-    base = 300 if n <= 2000 else 100 if n <= 60_000 else 64
+    base = 300 if n <= 2000 else 100 if n <= 60_000 else 100
     return max(8, base // 4) if quick else base
 
 
