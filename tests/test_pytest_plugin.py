@@ -85,6 +85,13 @@ def test_serial_is_required(plan_dir, pytester):
     assert "--bench-serial SN is required" in result.stderr.str()
 
 
+def test_clock_speed_must_be_positive(plan_dir, pytester):
+    result = pytester.runpytest("--bench-station", "station.yaml", "--bench-serial", "SN-1",
+                                "--bench-clock-speed", "0", "tb3.yaml")
+    assert result.ret == pytest.ExitCode.USAGE_ERROR
+    assert "--bench-clock-speed must be > 0" in result.stderr.str()
+
+
 def test_bad_plan_is_a_collection_error_with_position(plan_dir, pytester):
     (plan_dir / "bad.yaml").write_text("plan: x\nversion: '1'\nsteps:\n  - id: a\n    kind: teleport\n",
                                        encoding="utf-8")
@@ -149,6 +156,7 @@ def test_outcomes_map_to_pytest(plan_dir, pytester, fake_runner, plan):
     junit = plan_dir / "out.xml"
     result = pytester.runpytest("--bench-station", "station.yaml", "--bench-serial", "SN-7",
                                 "--bench-reports", "rep", "--bench-accept-hazards",
+                                "--bench-db", "db/r.sqlite", "--bench-lot", "L9",
                                 f"--junitxml={junit}", "tb3.yaml")
     n = len(_expected_ids(plan))
     # fail -> failure; inconclusive, error, and the check of a step that errored -> pytest errors
@@ -165,6 +173,7 @@ def test_outcomes_map_to_pytest(plan_dir, pytester, fake_runner, plan):
     assert call.serial == "SN-7" and call.plan.id == plan.id
     o = call.options
     assert (o.unattended, o.ui, o.accept_hazards, o.reports_dir) == (True, "quiet", True, Path("rep"))
+    assert (o.db_path, o.lot, o.clock) == (Path("db/r.sqlite"), "L9", None)
     suite, cases = _junit(junit)
     assert suite.get("failures") == "1" and suite.get("errors") == "3"
     freq = cases[("steady", "frequency")]
