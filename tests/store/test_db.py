@@ -117,6 +117,11 @@ def test_finish_completes_the_row(db):
         "capture-tone", "frequency", 955.0, 0.4, 860.0, 1050.0, "Hz", "pass")
     assert (t.measurement, t.low, t.high, t.verdict) == ("thd", None, 5.0, "fail")
     assert "above" in t.reason
+    # the flat view: one row per check with everything needed to read it alone
+    view = db.connection.execute("SELECT serial, step, measurement, value, uncertainty, low, high, unit,"
+                                 " verdict FROM check_results ORDER BY seq").fetchall()
+    assert view == [("TB3-0001", "capture-tone", "frequency", 955.0, 0.4, 860.0, 1050.0, "Hz", "pass"),
+                    ("TB3-0001", "capture-tone", "thd", 7.5, 0.1, None, 5.0, "%", "fail")]
 
 
 def test_finish_twice_replaces_checks_and_finish_without_begin(db):
