@@ -54,7 +54,42 @@ def is_unattended(args) -> bool:
     return os.environ.get("CI", "").strip().lower() == "true" and not tty
 
 
+class _StopOnce:
+    """SIGINT handler for the command: the first Ctrl-C stops, later ones are ignored (the
+    runner has already made the bench safe and is writing the evidence, or has finished)."""
+
+    def __init__(self) -> None:
+        self.seen = False
+
+    def __call__(self, signum, frame) -> None:
+        if self.seen:
+            return
+        self.seen = True
+        raise KeyboardInterrupt
+
+
 def run(args) -> int:
+    import signal
+    import threading
+
+    if threading.current_thread() is not threading.main_thread():
+        return _run(args, None)
+    stop = _StopOnce()
+    previous = signal.signal(signal.SIGINT, stop)
+    try:
+        code = _run(args, stop)
+    except KeyboardInterrupt:
+        stop.seen = True
+        raise
+    finally:
+        if stop.seen:  # interrupted: everything is saved; ignore Ctrl-C while the process ends
+            signal.signal(signal.SIGINT, signal.SIG_IGN)
+        else:
+            signal.signal(signal.SIGINT, previous)
+    return code
+
+
+def _run(args, stop) -> int:
     from benchgate.instruments.station import load_station
     from benchgate.plan import load_plan
     from benchgate.runner.batch import read_serial, run_batch
@@ -85,6 +120,8 @@ def run(args) -> int:
     with Runner(plan, station, options) as runner:
         if args.batch:
             outcomes = run_batch(runner, runner.ask_operator, runner.display.info)
+            if stop is not None and outcomes and outcomes[-1].exit_code == 130:
+                stop.seen = True
             if not outcomes:
                 runner.display.info("no units tested")
                 return 0
@@ -95,4 +132,7 @@ def run(args) -> int:
             if serial is None:
                 print("benchgate: no serial number given", file=sys.stderr)
                 return EXIT_USAGE
-        return runner.run(serial).exit_code
+        code = runner.run(serial).exit_code
+        if stop is not None and code == 130:
+            stop.seen = True  # from now on Ctrl-C is ignored: the unit is saved, the process ends
+        return code

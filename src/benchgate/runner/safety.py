@@ -1,8 +1,7 @@
 """Leaving the bench safe: supply output off, whatever happened, even on a second Ctrl-C.
 
-:class:`DeferInterrupts` holds Ctrl-C back while the safe-state sequence and the evidence
-(reports, database row) are written; an interrupt that arrives meanwhile is counted and reported,
-never allowed to cut the sequence short. :func:`make_safe` switches the supply off (retrying)
+:class:`InterruptGuard` lets the first Ctrl-C stop a run and holds every later one back while
+the safe-state sequence and the evidence (reports, database row) are written. :func:`make_safe` switches the supply off (retrying)
 and closes the bench through its own context manager.
 """
 
@@ -13,18 +12,34 @@ import threading
 from typing import Any
 
 
-class DeferInterrupts:
-    """Context manager: SIGINT is counted, not raised, inside the block (main thread only)."""
+class InterruptGuard:
+    """SIGINT handling for one unit's run (main thread only; elsewhere it does nothing).
+
+    The first Ctrl-C raises :class:`KeyboardInterrupt` as usual, so the run stops where it is.
+    Every later one — and any Ctrl-C once :attr:`shielded` is set for the safe-state sequence and
+    the evidence — is only counted: it can never cut the supply-off command or the reports short.
+    """
 
     def __init__(self) -> None:
         self.count = 0
+        self.raised = False
+        self.shielded = False
         self._previous: Any = None
         self._active = False
 
     def _handler(self, signum: int, frame: Any) -> None:
         self.count += 1
+        if self.shielded or self.raised:
+            return
+        self.raised = True
+        raise KeyboardInterrupt
 
-    def __enter__(self) -> DeferInterrupts:
+    @property
+    def deferred(self) -> int:
+        """Interrupts that were held back (all but the one that was raised)."""
+        return self.count - (1 if self.raised else 0)
+
+    def __enter__(self) -> InterruptGuard:
         if threading.current_thread() is threading.main_thread():
             self._previous = signal.signal(signal.SIGINT, self._handler)
             self._active = True

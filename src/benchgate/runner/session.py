@@ -27,7 +27,7 @@ from benchgate.runner.options import (
     exit_code_for,
 )
 from benchgate.runner.preflight import preflight
-from benchgate.runner.safety import DeferInterrupts, make_safe
+from benchgate.runner.safety import InterruptGuard, make_safe
 from benchgate.runner.ui import make_display
 
 _STEP_VERDICT = {"failed": Verdict.FAIL, "error": Verdict.ERROR, "aborted": Verdict.ABORTED}
@@ -136,25 +136,31 @@ class Runner:
         executor = Executor(self.plan, None, record, layout, hooks=self.hooks, clock=o.clock,
                             ask=self.ask_operator, unattended=o.unattended,
                             save_capture=s.save_capture, analyze=s.analyze)
-        self.db.begin_run(record)
-        self.hooks.run_started(record, len(self.plan.steps))
         bench_cm = bench = None
         caught: BaseException | None = None
-        try:
-            bench_cm = s.open_bench(self.station, clock=o.clock, roles=self.pre.roles)
-            bench = bench_cm.__enter__()
-            executor.bench = bench
-            record.instruments = list(bench.records())
-            executor.run()
-        except BaseException as exc:  # noqa: B036 - every way out is recorded below, then handled
-            caught = exc
-        with DeferInterrupts() as deferred:
+        with InterruptGuard() as guard:
+            try:
+                try:
+                    self.db.begin_run(record)
+                    self.hooks.run_started(record, len(self.plan.steps))
+                    bench_cm = s.open_bench(self.station, clock=o.clock, roles=self.pre.roles)
+                    bench = bench_cm.__enter__()
+                    executor.bench = bench
+                    record.instruments = list(bench.records())
+                    executor.run()
+                except BaseException as exc:  # noqa: B036 - every way out is recorded, then handled
+                    caught = exc
+                guard.shielded = True
+            except KeyboardInterrupt as exc:  # the first Ctrl-C, just after the steps ended
+                caught = caught or exc
+                guard.shielded = True
+            # from here on no Ctrl-C is raised: the bench is made safe and the evidence written
             notes = make_safe(bench_cm, bench, caught)
             if bench_cm is not None and not record.instruments:
                 record.instruments = _records_or_empty(bench)
             outcome = self._finish(record, layout, executor, caught, notes)
-        self.late_interrupts += deferred.count
-        if deferred.count:
+        self.late_interrupts += guard.deferred
+        if guard.deferred:
             outcome.exit_code = EXIT_ABORTED
         if isinstance(caught, (SystemExit, GeneratorExit)):
             raise caught
