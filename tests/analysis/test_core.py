@@ -54,11 +54,24 @@ class TestAnalyze:
             assert {"value", "unit", "uncertainty", "valid", "reason"} <= set(m)
         json.dumps(d, allow_nan=False)
 
-    def test_invalid_capture_all_invalid(self):
-        a = analyze(Capture(np.zeros(100), 1000.0))
+    def test_flat_line(self):
+        a = analyze(Capture(np.full(100, 1.65), 1000.0))
         assert a.fundamental is None and a.harmonics == ()
-        assert all(not m.valid for m in a.measurements.values())
         assert a.warnings and "flat line" in a.warnings[0]
+        levels = {"amplitude", "vpp", "rms", "dc_offset"}
+        for name, m in a.measurements.items():
+            if name in levels:  # a dead output still has levels: 0 V swing at 1.65 V
+                assert m.valid
+            else:
+                assert not m.valid and "flat line" in m.reason
+        assert a.measurements["amplitude"].value == 0.0
+        assert a.measurements["dc_offset"].value == pytest.approx(1.65)
+
+    def test_unusable_capture_all_invalid(self):
+        x = np.zeros(100)
+        x[3] = np.nan
+        a = analyze(Capture(x, 1000.0))
+        assert all(not m.valid for m in a.measurements.values())
         assert all(v["value"] is None for v in a.to_dict()["measurements"].values())
 
     def test_registry_matches_names(self):

@@ -47,6 +47,25 @@ class TestAmplitude:
         assert not m.valid and "clipped" in m.reason
 
 
+    def test_dead_unit_is_a_bound(self):
+        # a unit that never starts: mid-rail DC and noise; the amplitude is a valid bound
+        # that covers the (zero) truth and lies far below a 0.6 V lower limit
+        rng = np.random.default_rng(5)
+        x = 1.65 + rng.normal(0, 0.002, 20_000)
+        m = amplitude(Capture(x, 50_000.0))
+        assert m.valid and m.details["no_oscillation"]
+        assert m.value - m.uncertainty <= 0.0 and m.value + m.uncertainty < 0.01
+
+    def test_undetectable_tone_inside_bound(self):
+        # a tone below the detection threshold still lies inside the stated bound
+        rng = np.random.default_rng(6)
+        cap, _, _ = tone(2000, 50.3, amplitude=0.02)
+        x = cap.samples + rng.normal(0, 1.0, cap.n)
+        m = amplitude(Capture(x, cap.sample_rate))
+        assert m.valid and m.details["no_oscillation"]
+        assert abs(m.value - 0.02) <= m.uncertainty
+
+
 class TestVpp:
     def test_sine(self):
         cap, _, _ = tone(10_000, 100.0, amplitude=1.2, offset=0.5)

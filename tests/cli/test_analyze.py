@@ -116,7 +116,10 @@ class TestJson:
         d = json.loads(out)
         jsonschema.validate(d, SCHEMA)
         assert "flat line: no oscillation in the record" in d["capture"]["warnings"]
-        assert all(not m["valid"] and m["reason"] for m in d["measurements"].values())
+        m = d["measurements"]
+        assert not m["frequency"]["valid"] and "flat line" in m["frequency"]["reason"]
+        assert not m["thd"]["valid"] and not m["startup_time"]["valid"]
+        assert m["amplitude"]["valid"] and m["amplitude"]["details"]["no_oscillation"]
 
 
 class TestBadInput:

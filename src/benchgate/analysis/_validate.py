@@ -29,6 +29,7 @@ class Checked:
     pulse_like: bool
     low_state: float
     high_state: float
+    flat: bool = False  # a flat line: levels can still be stated, nothing periodic can
 
 
 def _histogram(x: np.ndarray, lo: float, hi: float, bins: int) -> np.ndarray:
@@ -107,7 +108,7 @@ def check_capture(capture: Capture) -> Checked:
     flat_limit = 2.0 * capture.adc.lsb if capture.adc is not None else 1e-9 * scale
     if span <= flat_limit:
         reason = "flat line: no oscillation in the record"
-        return Checked(reason, (reason,), None, False, lo, hi)
+        return Checked(reason, (reason,), None, False, lo, hi, flat=True)
     low, high, counts = _levels_and_counts(x)
     pulse = counts is not None and _pulse_like_from_counts(counts, lo, hi, low, high)
     clipped = None

@@ -24,6 +24,15 @@ MAX_FRACTION_OF_RATE = 0.45
 DETECTION_MARGIN = 25.0
 
 
+NO_TONE = "no tone detected above the noise (no oscillation?)"
+
+
+def detection_threshold(n: int) -> float:
+    """Smallest N·A²/(4σ²) counted as a tone: the largest periodogram value of white noise
+    exceeds ln(N) + m with probability about e^(−m); m = 25."""
+    return math.log(max(n, 2)) + DETECTION_MARGIN
+
+
 @dataclass(frozen=True)
 class Tone:
     """The fitted fundamental of the steady part, or why there is none to trust."""
@@ -131,8 +140,8 @@ class Context:
         cycles = freq * n / fs
         detection = n * fit.amplitude ** 2 / (4.0 * fit.residual_var) if fit.residual_var > 0 else math.inf
         reason = None
-        if detection < math.log(n) + DETECTION_MARGIN:
-            reason = "no tone detected above the noise (no oscillation?)"
+        if detection < detection_threshold(n):
+            reason = NO_TONE
         elif freq > MAX_FRACTION_OF_RATE * fs:
             reason = f"fundamental near Nyquist (above {MAX_FRACTION_OF_RATE:g} of the sample rate)"
         elif cycles < MIN_CYCLES:

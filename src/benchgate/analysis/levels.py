@@ -7,17 +7,42 @@ import math
 import numpy as np
 
 from benchgate.analysis.capture import Capture
-from benchgate.analysis.context import Context, get_context
+from benchgate.analysis.context import NO_TONE, Context, detection_threshold, get_context
 from benchgate.analysis.measurement import Measurement
 from benchgate.analysis.uncertainty import crlb_amplitude_std, expand, quantisation_std
 
 
 def _refuse(ctx: Context, name: str) -> str | None:
-    if ctx.fatal:
+    """Why a level cannot be stated; a flat line still has levels (it is simply not moving)."""
+    if ctx.fatal and not ctx.checked.flat:
         return ctx.fatal
     if ctx.checked.clipped:
         return ctx.checked.clipped
     return None
+
+
+def _no_oscillation_amplitude(ctx: Context, capture: Capture) -> Measurement | None:
+    """A valid upper bound for the amplitude of a record with no oscillation, or None.
+
+    A flat line bounds the amplitude by half its span. A record whose fit did not pass the
+    detection test (noise only) bounds it by twice the amplitude that test would have
+    detected, √(4σ²T/N) with T its threshold: a dead unit then fails an amplitude window
+    instead of being left undecided.
+    """
+    q = quantisation_std(capture.adc)
+    if ctx.checked.flat:
+        half = 0.5 * float(np.ptp(capture.samples))
+        return Measurement("amplitude", half, "V", half + expand(q),
+                           details={"method": "bound: flat line", "no_oscillation": True})
+    tone = ctx.tone
+    if tone.fit is None or tone.reason != NO_TONE:
+        return None
+    fit = tone.fit
+    detectable = math.sqrt(4.0 * fit.residual_var * detection_threshold(fit.n) / fit.n)
+    u = max(fit.amplitude, 2.0 * detectable) + expand(q)
+    return Measurement("amplitude", fit.amplitude, "V", u,
+                       details={"method": "bound: no tone above the noise", "no_oscillation": True,
+                                "detectable_v": detectable})
 
 
 def _whole_cycles(ctx: Context) -> np.ndarray:
@@ -40,7 +65,10 @@ def amplitude(capture: Capture, *, context: Context | None = None) -> Measuremen
     Measurement
         √(A² + B²) of the fit on the steady part. U combines the Cramér–Rao term √(2σ²/N)
         (σ² from the fit residual) and the ADC resolution Q/√12 when the ADC is known.
-        Invalid when there is no trusted tone or the waveform is clipped.
+        With no oscillation at all (a flat line, or noise that fails the detection test) it
+        is a valid bound, ``details["no_oscillation"]`` set, so a dead unit fails an amplitude
+        window. Invalid when the waveform is clipped or the tone cannot be trusted for another
+        reason (fewer than 3 cycles, near Nyquist, no convergence).
 
     References
     ----------
@@ -48,6 +76,10 @@ def amplitude(capture: Capture, *, context: Context | None = None) -> Measuremen
     """
     ctx = get_context(capture, context)
     refused = _refuse(ctx, "amplitude")
+    if not refused:
+        bound = _no_oscillation_amplitude(ctx, capture)
+        if bound is not None:
+            return bound
     tone = ctx.tone
     if refused or tone.fit is None:
         return Measurement.invalid("amplitude", "V", refused or tone.reason or "no tone")
