@@ -110,3 +110,33 @@ class TestDcOffset:
     def test_offset_sine(self):
         cap, _, _ = tone(10_000, 77.7, offset=1.65)
         assert_allclose(dc_offset(cap).value, 1.65, atol=1e-4)
+
+
+class TestUnsteadyAndDead:
+    FS = 50_000.0
+
+    def _t(self, seconds=0.5):
+        return np.arange(int(self.FS * seconds)) / self.FS
+
+    def test_dropouts_make_amplitude_invalid(self):
+        # a connector that loses contact for 10 ms every 60 ms: no steady amplitude to state
+        t = self._t()
+        gate = np.where(np.mod(t, 0.06) < 0.01, 0.0, 1.0)
+        x = 1.65 + gate * np.sin(2 * np.pi * 955 * t) + np.random.default_rng(1).normal(0, 0.002, t.size)
+        m = amplitude(Capture(x, self.FS))
+        assert not m.valid and "not steady" in m.reason
+
+    def test_oscillation_that_dies_is_zero(self):
+        # rings at power-on, then decays to a flat mid-rail: amplitude 0 ± half the tail's span
+        adc = AdcInfo(12, 3.3)
+        t = self._t()
+        x = quantise(1.65 + 0.3 * np.exp(-t / 0.01) * np.sin(2 * np.pi * 700 * t), adc)
+        m = amplitude(Capture(x, self.FS, adc=adc))
+        assert m.valid and m.details["no_oscillation"] and m.value == 0.0
+        assert m.uncertainty < 0.01
+
+    def test_good_noisy_tone_stays_valid(self):
+        rng = np.random.default_rng(3)
+        t = self._t()
+        x = 1.65 + np.sin(2 * np.pi * 955 * t) + rng.normal(0, 0.05, t.size)
+        assert amplitude(Capture(x, self.FS)).valid

@@ -11,6 +11,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
+NOT_STEADY = "amplitude not steady in the last part of the record (dropouts?)"
+STILL_CHANGING = "amplitude still changing at the end of the record"
+
 #: fraction of the record at its end taken as "steady" for the reference amplitude.
 TAIL_FRACTION = 0.25
 
@@ -67,9 +70,9 @@ def find_steady(env: Envelope, n: int, cycles: float, noise_var: float) -> Stead
     """Reference amplitude from the last part of the record, start-up crossing, steady start.
 
     The steady part begins one window after the last envelope point outside the steady
-    band: ±(max(1 % of the level, 5.5 standard deviations of the envelope noise, 1.5 times
-    the largest deviation seen in the tail itself — ripple of a coarsely sampled period or of
-    harmonics) + a small allowance for the window). The envelope noise follows from the
+    band: ±(max(1 % of the level, 5.5 standard deviations of the envelope noise, twice the
+    75th percentile of the tail's own deviations — ripple of a coarsely sampled period or of
+    harmonics, but not brief dropouts) + a small allowance for the window). The envelope noise follows from the
     record's noise variance ``noise_var`` (σ², from a sine fit to the tail): the variance
     over M samples of sine plus noise has variance (4σ²S + 2σ⁴)/M, S = A²/2 (derived), so
     noise alone practically never trims a steady record. Records shorter than 8 cycles are
@@ -86,12 +89,16 @@ def find_steady(env: Envelope, n: int, cycles: float, noise_var: float) -> Stead
     sd_var = math.sqrt(max(4.0 * noise_var * s_mean + 2.0 * noise_var * noise_var, 0.0) / m)
     sd_env = sd_var / level if level > 0 else math.inf
     base_tol = max(0.01 * level, 5.5 * sd_env) + level * 0.1 / m
-    ripple = float(np.max(np.abs(tail - level))) if tail.size else 0.0
-    tol = max(base_tol, 1.5 * ripple)
+    ripple = 2.0 * float(np.percentile(np.abs(tail - level), 75)) if tail.size else 0.0
+    tol = max(base_tol, ripple)
     half = tail.size // 2
     growing = bool(half >= 2 and abs(float(np.median(tail[half:])) - float(np.median(tail[:half]))) > base_tol)
     if level <= 0:
-        return Steady(0, level, tol, None, False, None)
+        # the oscillation (if any) died out: the steady part is the dead tail
+        alive = np.flatnonzero(level_all > 0)
+        start = int(math.ceil(env.centre[alive[-1]] + env.window)) if alive.size else 0
+        warning = "no oscillation at the end of the record" if alive.size else None
+        return Steady(min(start, n), level, 0.0, None, False, warning)
     above = np.flatnonzero(level_all >= 0.9 * level)
     startup = None
     if above.size:
@@ -112,7 +119,7 @@ def find_steady(env: Envelope, n: int, cycles: float, noise_var: float) -> Stead
         limit = int(n * (1.0 - TAIL_FRACTION))
         if start > limit:
             start = limit
-            warning = "amplitude not steady in the last part of the record"
+            warning = NOT_STEADY
     if growing:
-        warning = "amplitude still changing at the end of the record"
+        warning = STILL_CHANGING
     return Steady(min(start, n), level, tol, startup, growing, warning)

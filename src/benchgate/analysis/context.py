@@ -25,6 +25,10 @@ DETECTION_MARGIN = 25.0
 
 
 NO_TONE = "no tone detected above the noise (no oscillation?)"
+NO_OSCILLATION_FLAT = "no oscillation: the steady part is a flat line"
+NO_OSCILLATION_SLOW = "no oscillation: nothing faster than one cycle per record"
+#: tone reasons meaning "nothing oscillates" (levels can then state a bound on the amplitude)
+NO_OSCILLATION = (NO_TONE, NO_OSCILLATION_FLAT, NO_OSCILLATION_SLOW)
 
 
 def detection_threshold(n: int) -> float:
@@ -127,9 +131,13 @@ class Context:
         n = y.size
         if n < 16:
             return Tone(None, math.nan, 0.0, "steady part too short to fit a sine")
+        adc = self.capture.adc
+        flat_limit = 2.0 * adc.lsb if adc is not None else 1e-9 * max(float(np.max(np.abs(y))), 1e-300)
+        if float(np.ptp(y)) <= flat_limit:
+            return Tone(None, math.nan, 0.0, NO_OSCILLATION_FLAT)
         f0 = self.coarse if self.start == 0 else spectrum.coarse_frequency(y, fs)
         if not f0 > 0:
-            return Tone(None, math.nan, 0.0, "no spectral peak: no oscillation found")
+            return Tone(None, math.nan, 0.0, NO_OSCILLATION_SLOW)
         w0 = 2.0 * math.pi * f0 / fs
         if f0 * n / fs < 20 and n <= 65536:
             w0 = sinefit.best_start(y, w0)
@@ -142,6 +150,8 @@ class Context:
         reason = None
         if detection < detection_threshold(n):
             reason = NO_TONE
+        elif cycles < 1.0:
+            reason = NO_OSCILLATION_SLOW
         elif freq > MAX_FRACTION_OF_RATE * fs:
             reason = f"fundamental near Nyquist (above {MAX_FRACTION_OF_RATE:g} of the sample rate)"
         elif cycles < MIN_CYCLES:

@@ -6,8 +6,9 @@ import math
 
 import numpy as np
 
+from benchgate.analysis._steady import NOT_STEADY, STILL_CHANGING
 from benchgate.analysis.capture import Capture
-from benchgate.analysis.context import NO_TONE, Context, detection_threshold, get_context
+from benchgate.analysis.context import NO_OSCILLATION, NO_TONE, Context, detection_threshold, get_context
 from benchgate.analysis.measurement import Measurement
 from benchgate.analysis.uncertainty import crlb_amplitude_std, expand, quantisation_std
 
@@ -18,16 +19,19 @@ def _refuse(ctx: Context, name: str) -> str | None:
         return ctx.fatal
     if ctx.checked.clipped:
         return ctx.checked.clipped
+    if name in ("amplitude", "vpp", "rms") and ctx.steady.warning in (NOT_STEADY, STILL_CHANGING):
+        return ctx.steady.warning
     return None
 
 
 def _no_oscillation_amplitude(ctx: Context, capture: Capture) -> Measurement | None:
     """A valid upper bound for the amplitude of a record with no oscillation, or None.
 
-    A flat line bounds the amplitude by half its span. A record whose fit did not pass the
-    detection test (noise only) bounds it by twice the amplitude that test would have
-    detected, √(4σ²T/N) with T its threshold: a dead unit then fails an amplitude window
-    instead of being left undecided.
+    A flat line, or a steady part that is flat or only drifts (nothing faster than one cycle
+    per record, e.g. an oscillation that died out), bounds the amplitude by half the span.
+    A record whose fit did not pass the detection test (noise only) bounds it by twice the
+    amplitude that test would have detected, √(4σ²T/N) with T its threshold. A dead unit
+    then fails an amplitude window instead of being left undecided.
     """
     q = quantisation_std(capture.adc)
     if ctx.checked.flat:
@@ -35,9 +39,14 @@ def _no_oscillation_amplitude(ctx: Context, capture: Capture) -> Measurement | N
         return Measurement("amplitude", half, "V", half + expand(q),
                            details={"method": "bound: flat line", "no_oscillation": True})
     tone = ctx.tone
-    if tone.fit is None or tone.reason != NO_TONE:
+    if tone.reason not in NO_OSCILLATION:
         return None
     fit = tone.fit
+    if tone.reason != NO_TONE or fit is None:
+        half = 0.5 * float(np.ptp(ctx.y))
+        return Measurement("amplitude", 0.0, "V", half + expand(q),
+                           details={"method": "bound: half the span of the steady part",
+                                    "no_oscillation": True})
     detectable = math.sqrt(4.0 * fit.residual_var * detection_threshold(fit.n) / fit.n)
     u = max(fit.amplitude, 2.0 * detectable) + expand(q)
     return Measurement("amplitude", fit.amplitude, "V", u,
