@@ -8,7 +8,13 @@ import numpy as np
 
 from benchgate.analysis._steady import NOT_STEADY, STILL_CHANGING
 from benchgate.analysis.capture import Capture
-from benchgate.analysis.context import NO_OSCILLATION, NO_TONE, Context, detection_threshold, get_context
+from benchgate.analysis.context import (
+    NO_OSCILLATION,
+    NO_TONE,
+    Context,
+    detection_threshold,
+    get_context,
+)
 from benchgate.analysis.measurement import Measurement
 from benchgate.analysis.uncertainty import crlb_amplitude_std, expand, quantisation_std
 
