@@ -234,11 +234,11 @@ class Executor:
             self._judge(step, srec, check, measurements.get(check.measurement))
 
     def _acquire(self, step: Any, instrument: Any, srec: StepRecord):
-        first: list[float] = []
+        first: list[float] = []  # clock time and fraction done at the first progress report
 
         def progress(fraction: float, text: str = "") -> None:
             if not first:
-                first.append(self.clock.monotonic())
+                first.extend((self.clock.monotonic(), float(fraction)))
                 started.set()
             self.hooks.progress(fraction, f"capture {step.channel}", step.duration * (1 - fraction))
 
@@ -266,8 +266,10 @@ class Executor:
             started.wait(timeout=0.02)
         if started.is_set() and "error" not in result:
             self.bench["supply"].output(True)
-            lag = self.clock.monotonic() - first[0]
-            srec.notes.append(f"supply output switched on {lag * 1e3:.1f} ms after the first samples arrived")
+            now = self.clock.monotonic()
+            into = now - (first[0] - first[1] * step.duration)  # record start estimated from the first report
+            srec.notes.append(f"supply output switched on {(now - first[0]) * 1e3:.1f} ms after the first "
+                              f"samples arrived, about {into * 1e3:.1f} ms into the record")
         while worker.is_alive():
             worker.join(timeout=0.05)
         if "error" in result:
