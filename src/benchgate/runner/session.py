@@ -79,10 +79,11 @@ class Runner:
         self.display = display or make_display(options.ui, unattended=options.unattended)
         self.pre = preflight(plan, station, options, self.ask_operator, self.display.info)
         self.services = services or Services.default(options)
-        if options.clock is None:
+        self.clock = options.clock
+        if self.clock is None:
             from benchgate.clock import SystemClock
 
-            options.clock = SystemClock()
+            self.clock = SystemClock()
         try:
             options.reports_dir.mkdir(parents=True, exist_ok=True)
         except OSError as exc:
@@ -133,7 +134,7 @@ class Runner:
         s, o = self.services, self.options
         record = self.new_record(serial)
         layout = s.layout(o.reports_dir, self.plan.id, serial, record.started)
-        executor = Executor(self.plan, None, record, layout, hooks=self.hooks, clock=o.clock,
+        executor = Executor(self.plan, None, record, layout, hooks=self.hooks, clock=self.clock,
                             ask=self.ask_operator, unattended=o.unattended,
                             save_capture=s.save_capture, analyze=s.analyze)
         bench_cm = bench = None
@@ -143,7 +144,7 @@ class Runner:
                 try:
                     self.db.begin_run(record)
                     self.hooks.run_started(record, len(self.plan.steps))
-                    bench_cm = s.open_bench(self.station, clock=o.clock, roles=self.pre.roles)
+                    bench_cm = s.open_bench(self.station, clock=self.clock, roles=self.pre.roles)
                     bench = bench_cm.__enter__()
                     executor.bench = bench
                     record.instruments = list(bench.records())
