@@ -4,7 +4,7 @@ Overhead = wall time per unit minus the wall time the plan itself asks for (capt
 waits and settle times, divided by the bench's speed-up), reports and database included. Runs a
 few good TB-3 units and prints seconds and the ratio to the target, measured in this one run.
 
-    .venv/bin/python bench/bench_overhead.py [--units 6] [--speed 20]
+    .venv/bin/python bench/bench_overhead.py [--units 6] [--speed 4]
 """
 
 from __future__ import annotations
@@ -33,7 +33,7 @@ def requested_seconds(plan) -> float:
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--units", type=int, default=6)
-    ap.add_argument("--speed", type=float, default=20.0)
+    ap.add_argument("--speed", type=float, default=4.0)
     args = ap.parse_args()
 
     from benchgate.instruments.station import load_station
