@@ -96,3 +96,15 @@ class TestInterpolatedPeak:
 
     def test_constant(self):
         assert coarse_frequency(np.ones(100), 1.0) == 0.0
+
+
+class TestDetrend:
+    @pytest.mark.parametrize("n", [5, 16, 17, 1000])
+    @pytest.mark.parametrize("name", ["rect", "hann", "blackmanharris"])
+    def test_mean_removed_like_periodogram(self, n, name):
+        # scipy.signal.periodogram(detrend="constant") as the reference
+        rng = np.random.default_rng(n)
+        x = 5.0 + rng.normal(size=n)
+        scipy_name = "boxcar" if name == "rect" else name
+        _, p_ref = scipy.signal.periodogram(x, 1.0, window=scipy_name, scaling="density")
+        assert_allclose(power_spectrum(x, 1.0, name).power, p_ref / n, rtol=1e-8, atol=1e-14)

@@ -137,13 +137,17 @@ def _centred(y: np.ndarray) -> tuple[np.ndarray, float]:
     return y - mean, mean
 
 
-def _solve3(y: np.ndarray, w: Workspace) -> tuple[float, float, float, float]:
+def _solve3(y: np.ndarray, w: Workspace, *, exact_rss: bool = True) -> tuple[float, float, float, float]:
+    """Three-parameter least squares; with ``exact_rss=False`` the residual sum of squares comes
+    from the normal equations (y·y − p·r; fine for a centred record) or is skipped (NaN)."""
     c, s = w.c, w.s
     sc, ss = float(c.sum()), float(s.sum())
     cs = dot(c, s)
     g = np.array([[dot(c, c), cs, sc], [cs, dot(s, s), ss], [sc, ss, float(y.size)]])
     r = np.array([dot(y, c), dot(y, s), float(y.sum())])
     p = _lstsq_small(g, r)
+    if not exact_rss:
+        return float(p[0]), float(p[1]), float(p[2]), max(dot(y, y) - float(p @ r), 0.0)
     resid = w.tmp
     np.multiply(c, -p[0], out=resid)
     resid += y
@@ -212,7 +216,7 @@ def fit4(y: np.ndarray, omega0: float, *, max_iter: int = 12, work: Workspace | 
     omega = float(omega0)
     max_step = 0.25 * 2.0 * math.pi / n
     w.set(omega)
-    a, b, c, _ = _solve3(y, w)
+    a, b, c, _ = _solve3(y, w, exact_rss=False)
     converged = False
     it = 0
     yy = dot(y, y)

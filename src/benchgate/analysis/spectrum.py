@@ -111,11 +111,15 @@ class Spectrum:
     sums to σ² over all bins and a tone's main lobe sums to its power.
     """
 
-    freqs: np.ndarray
     power: np.ndarray
     n: int
     sample_rate: float
     window: str
+
+    @property
+    def freqs(self) -> np.ndarray:
+        """Bin frequencies (Hz)."""
+        return np.arange(self.power.size) * (self.sample_rate / self.n)
 
     @property
     def magnitude(self) -> np.ndarray:
@@ -158,20 +162,26 @@ def power_spectrum(x: np.ndarray, sample_rate: float, window_name: str = "blackm
     """
     x = np.asarray(x, dtype=float)
     n = x.size
-    if detrend:
-        x = x - x.mean()
     w = window(window_name, n)
+    if detrend and n < 16:  # too short for the bin-wise correction below (bins would wrap)
+        x = x - x.mean()
+        detrend = False
     xw = x * w
     xf = np.fft.rfft(xw)
     del xw
-    power = np.abs(xf)
-    power *= power
+    if detrend:
+        # removing the mean before windowing = subtracting mean·DFT(w), which for a periodic
+        # cosine-sum window is non-zero only in bins 0 … 3: no second pass over the record
+        mean = float(x.mean())
+        for k, a in enumerate(_coefficients(window_name)):
+            xf[k] -= mean * n * (a if k == 0 else (-1) ** k * a / 2.0)
+    power = xf.real * xf.real
+    power += xf.imag * xf.imag
     power *= 2.0 / (n * float(np.einsum("i,i->", w, w)))
     power[0] *= 0.5
     if n % 2 == 0:
         power[-1] *= 0.5
-    freqs = np.arange(power.size) * (sample_rate / n)
-    return Spectrum(freqs=freqs, power=power, n=n, sample_rate=float(sample_rate), window=window_name)
+    return Spectrum(power=power, n=n, sample_rate=float(sample_rate), window=window_name)
 
 
 def interpolated_peak(mag: np.ndarray, k: int) -> float:
