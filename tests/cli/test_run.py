@@ -321,3 +321,22 @@ def test_expired_calibration_stops_the_run_unless_allowed(vbench, tmp_path, caps
     conn = sqlite3.connect(tmp_path / "r" / "results.sqlite")
     assert conn.execute("SELECT allow_expired_calibration FROM runs").fetchone() == (1,)
     conn.close()
+
+
+def test_attended_run_asks_serial_and_prompt_and_hazard(vbench, tmp_path):
+    text = TB3.read_text().replace("hazards: []", "hazards:\n  - name: hot_surfaces\n"
+                                   "    text: The regulator gets hot.")
+    plan = tmp_path / "tb3-attended.yaml"
+    plan.write_text(text)
+    vbench.load_unit("OH-ATT-1")
+    proc = bg("run", plan, "--station", vbench.station_path, "--reports", tmp_path / "r",
+              "--clock-speed", SPEED, stdin=subprocess.PIPE)
+    # the hazard's name (acknowledged before anything), the serial as a scanner types it, then
+    # "y" to the connect question
+    out, err = proc.communicate("hot_surfaces\nOH-ATT-1\r\ny\n", timeout=120)
+    assert proc.returncode == 0, (out, err)
+    assert "HAZARD hot_surfaces: The regulator gets hot." in out and "[y/n]" in out
+    (row,) = rows(tmp_path / "r" / "results.sqlite")
+    report = valid_report(row[4])
+    assert report["serial"] == "OH-ATT-1" and report["hazards_acknowledged"] == "typed by operator"
+    assert report["steps"][1]["answer"] == "yes" and report["flags"]["unattended"] is False
