@@ -75,6 +75,7 @@ class Workspace:
         self._c = np.empty(size)
         self._s = np.empty(size)
         self._tmp = np.empty(size)
+        self._z = np.empty(size, dtype=complex)
         self.c = self._c[:n]
         self.s = self._s[:n]
         self.tmp = self._tmp[:n]
@@ -82,16 +83,12 @@ class Workspace:
 
     def set(self, omega: float) -> None:
         shape = (self.nblocks, self.block)
-        ao = omega * (np.arange(self.nblocks) * self.block - self.centre)
-        ai = omega * np.arange(self.block)
-        co, so, ci, si = np.cos(ao), np.sin(ao), np.cos(ai), np.sin(ai)
-        c2, s2, t2 = self._c.reshape(shape), self._s.reshape(shape), self._tmp.reshape(shape)
-        np.multiply.outer(co, ci, out=c2)
-        np.multiply.outer(so, si, out=t2)
-        c2 -= t2
-        np.multiply.outer(so, ci, out=s2)
-        np.multiply.outer(co, si, out=t2)
-        s2 += t2
+        zo = np.exp(1j * omega * (np.arange(self.nblocks) * self.block - self.centre))
+        zi = np.exp(1j * omega * np.arange(self.block))
+        z2 = self._z.reshape(shape)
+        np.multiply.outer(zo, zi, out=z2)
+        np.copyto(self._c, self._z.real)
+        np.copyto(self._s, self._z.imag)
 
 
 def phasor(omega: float, n: int) -> np.ndarray:
