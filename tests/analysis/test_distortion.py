@@ -122,3 +122,23 @@ class TestSfdr:
     def test_harmonic_is_the_spur(self):
         cap = harmonic_series(N, CYCLES, {1: 1.0, 3: 0.01, 4: 0.001})
         assert_allclose(sfdr(cap).value, 40.0, atol=0.05)
+
+
+class TestUncertaintyCoverage:
+    def test_snr_and_thd_cover(self):
+        # JCGM 100:2008: U (k = 2) should cover ≈ 95 %; 120 seeded noisy records
+        rng = np.random.default_rng(21)
+        n, snr_db, h3 = 2048, 40.0, 0.02
+        sigma = math.sqrt(0.5 / 10 ** (snr_db / 10))
+        snr_in, thd_in = [], []
+        for _ in range(120):
+            f = (51.3 + rng.uniform(-5, 5)) / n
+            k = np.arange(n)
+            x = np.sin(2 * np.pi * f * k + rng.uniform(0, 6.3)) + h3 * np.sin(6 * np.pi * f * k) \
+                + rng.normal(0, sigma, n)
+            cap = Capture(x, 1.0)
+            s, t = snr(cap), thd(cap)
+            snr_in.append(abs(s.value - snr_db) <= s.uncertainty)
+            thd_in.append(abs(t.value - 100 * h3) <= t.uncertainty)
+        assert 0.88 <= np.mean(snr_in) <= 1.0
+        assert np.mean(thd_in) >= 0.9

@@ -108,3 +108,14 @@ class TestDetrend:
         scipy_name = "boxcar" if name == "rect" else name
         _, p_ref = scipy.signal.periodogram(x, 1.0, window=scipy_name, scaling="density")
         assert_allclose(power_spectrum(x, 1.0, name).power, p_ref / n, rtol=1e-8, atol=1e-14)
+
+
+class TestVarianceFactor:
+    def test_known_windows(self):
+        from benchgate.analysis.spectrum import variance_factor
+
+        # rectangular: periodogram bins of white noise are uncorrelated (common practice)
+        assert_allclose(variance_factor("rect"), 1.0)
+        # Hann: w² has DFT terms 3/8, −1/4, 1/16 (×N): Σρ = 1 + 2(4/9 + 1/36) (derived)
+        assert_allclose(variance_factor("hann"), 1 + 2 * (4 / 9 + 1 / 36), rtol=1e-12)
+        assert 2.7 < variance_factor("blackmanharris") < 2.8

@@ -41,7 +41,7 @@ class Harmonics:
     noise_bins: int = 0
     spur_ratio: float = math.nan  # √(largest spur band power / fundamental band power)
     band_noise: float = math.nan  # expected noise power inside one tone band
-    enbw: float = 2.0
+    var_factor: float = 2.76  # Σρ of the window (spectrum.variance_factor)
     p1_raw: float = math.nan  # fundamental band power before removing the expected noise
 
 
@@ -105,7 +105,7 @@ def _from_spectrum(ctx: Context, tone, spec, *, subtract_fundamental: bool,
     spur = max([float(np.sum(rest[max(0, k_spur - hw):k_spur + hw + 1]))] + powers)
     return Harmonics(None, p1, tuple(orders), tuple(freqs), tuple(powers), harm, max(noise, p1 * 1e-30),
                      n_free, math.sqrt(spur / p1) if p1 > 0 else math.nan, band_noise,
-                     _spectrum.window_enbw(spec.window), p1_raw)
+                     _spectrum.variance_factor(spec.window), p1_raw)
 
 
 def _details(h: Harmonics) -> dict:
@@ -113,9 +113,23 @@ def _details(h: Harmonics) -> dict:
             "noise_bins": h.noise_bins}
 
 
+def _harmonic_power_std(h: Harmonics) -> float:
+    """Standard uncertainty (V²) of the summed harmonic power, from the noise in their bands:
+    each band power P carries the band's noise Pn and a cross term of order 2√(P·Pn)."""
+    return math.sqrt(sum((h.band_noise + 2.0 * math.sqrt(max(p, 0.0) * h.band_noise)) ** 2 for p in h.powers))
+
+
+def _nad_rel_std(h: Harmonics) -> float:
+    """Relative standard uncertainty of the noise-and-distortion power."""
+    nad = h.noise + h.harmonic_power
+    return math.hypot(_noise_rel_std(h) * h.noise, _harmonic_power_std(h)) / nad
+
+
 def _noise_rel_std(h: Harmonics) -> float:
-    """Relative standard deviation of the noise power estimate (bins correlated by the window)."""
-    return math.sqrt(h.enbw / max(h.noise_bins, 1))
+    """Relative standard deviation of the noise power estimate: the mean of M periodogram bins
+    (each exponentially distributed) whose correlation by the window inflates the variance by
+    Σρ (:func:`benchgate.analysis.spectrum.variance_factor`)."""
+    return math.sqrt(h.var_factor / max(h.noise_bins, 1))
 
 
 def thd(capture: Capture, *, harmonics: int = 10, context: Context | None = None) -> Measurement:
@@ -143,8 +157,7 @@ def thd(capture: Capture, *, harmonics: int = 10, context: Context | None = None
     if h.reason:
         return Measurement.invalid("thd", "%", h.reason)
     ratio = math.sqrt(h.harmonic_power / h.p1)
-    u_s = math.sqrt(sum((h.band_noise + 2.0 * math.sqrt(max(p, 0.0) * h.band_noise)) ** 2 for p in h.powers))
-    u = math.sqrt(ratio * ratio + u_s / h.p1) - ratio
+    u = math.sqrt(ratio * ratio + _harmonic_power_std(h) / h.p1) - ratio
     return Measurement("thd", 100.0 * ratio, "%", 200.0 * u, details=_details(h))
 
 
@@ -161,7 +174,7 @@ def sinad(capture: Capture, *, context: Context | None = None) -> Measurement:
         return Measurement.invalid("sinad", "dB", h.reason)
     nad = h.noise + h.harmonic_power
     value = 10.0 * math.log10(h.p1 / nad)
-    u = 10.0 / math.log(10.0) * _noise_rel_std(h) * h.noise / nad
+    u = 10.0 / math.log(10.0) * _nad_rel_std(h)
     return Measurement("sinad", value, "dB", 2.0 * u, details=_details(h))
 
 
@@ -178,7 +191,7 @@ def thd_n(capture: Capture, *, context: Context | None = None) -> Measurement:
         return Measurement.invalid("thd_n", "%", h.reason)
     nad = h.noise + h.harmonic_power
     value = 100.0 * math.sqrt(nad / h.p1)
-    u = 0.5 * value * _noise_rel_std(h) * h.noise / nad
+    u = 0.5 * value * _nad_rel_std(h)
     return Measurement("thd_n", value, "%", 2.0 * u, details=_details(h))
 
 
@@ -233,7 +246,7 @@ def enob(capture: Capture, *, context: Context | None = None) -> Measurement:
     if h.reason:
         return Measurement.invalid("enob", "bits", h.reason)
     nad = h.noise + h.harmonic_power
-    u_db = 10.0 / math.log(10.0) * _noise_rel_std(h) * h.noise / nad
+    u_db = 10.0 / math.log(10.0) * _nad_rel_std(h)
     details = _details(h)
     if capture.adc is not None:
         value = math.log2(capture.adc.full_scale / (math.sqrt(nad) * math.sqrt(12.0)))

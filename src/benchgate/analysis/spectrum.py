@@ -92,6 +92,18 @@ def window_enbw(name: str) -> float:
     return (a[0] ** 2 + 0.5 * sum(x * x for x in a[1:])) / a[0] ** 2
 
 
+def variance_factor(name: str) -> float:
+    """Σ_L ρ_L: how much the correlation between neighbouring bins of a windowed periodogram
+    of white noise inflates the variance of a sum of bins (1 for the rectangular window).
+
+    ρ_L = |DFT(w²)[L]|² / |DFT(w²)[0]|² is the correlation of bins L apart (a cosine-sum
+    window's w² has only a few non-zero DFT terms, so 64 points give it exactly).
+    """
+    w = window(name, 64)
+    w2 = np.fft.fft(w * w)
+    return float(np.sum(np.abs(w2) ** 2) / np.abs(w2[0]) ** 2)
+
+
 def enbw(w: np.ndarray) -> float:
     """Equivalent noise bandwidth of a window in bins: N·Σw² / (Σw)².
 
