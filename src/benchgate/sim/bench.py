@@ -155,9 +155,15 @@ class VirtualBench:
             f"      rail: {{gain: 4.0, offset: 0 mV, {cal}}}",
         ]
         extra = {
-            "supply": ["    accuracy: {gain: 0.05 %, offset: 2 mV}"],
-            "dmm": ["    accuracy: {gain: 0.02 %, offset: 0.5 mV}"],
-            "counter": ["    accuracy: {gain: 0.0002 %, offset: 0.01}"],
+            # Reading bounds per quantity: a voltage offset must not be read as amps.
+            "supply": ["    accuracy:",
+                       "      supply_voltage: {gain: 0.05 %, offset: 2 mV}",
+                       "      supply_current: {gain: 0.1 %, offset: 20 µA}"],
+            "dmm": ["    accuracy:",
+                    "      dc_voltage: {gain: 0.02 %, offset: 0.5 mV}",
+                    "      ac_voltage: {gain: 0.1 %, offset: 1 mV}",
+                    "      dc_current: {gain: 0.05 %, offset: 5 µA}"],
+            "counter": ["    accuracy: {gain: 0.0002 %, offset: 0.01 Hz}"],
             "digitizer": ["    channels: [out]", "    rate: 200 kHz", "    range: 5 V", "    clock_ppm: 20"],
         }
         for role in ("supply", "dmm", "counter", "digitizer"):
