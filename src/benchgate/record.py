@@ -43,7 +43,7 @@ class CheckRecord:
         }
 
     @classmethod
-    def from_dict(cls, d: dict[str, Any]) -> "CheckRecord":
+    def from_dict(cls, d: dict[str, Any]) -> CheckRecord:
         return cls(
             step_id=d["step"],
             measurement=d["measurement"],
@@ -71,7 +71,7 @@ class CaptureRecord:
         return dict(self.__dict__)
 
     @classmethod
-    def from_dict(cls, d: dict[str, Any]) -> "CaptureRecord":
+    def from_dict(cls, d: dict[str, Any]) -> CaptureRecord:
         return cls(**{k: d[k] for k in ("file", "sha256", "channel", "sample_rate", "samples", "instrument")},
                    warnings=list(d.get("warnings", [])))
 
@@ -110,7 +110,7 @@ class StepRecord:
         }
 
     @classmethod
-    def from_dict(cls, d: dict[str, Any]) -> "StepRecord":
+    def from_dict(cls, d: dict[str, Any]) -> StepRecord:
         return cls(
             id=d["id"], kind=d["kind"], title=d["title"], status=d["status"],
             started=d.get("started"), ended=d.get("ended"), attempts=d.get("attempts", 0),
@@ -133,7 +133,7 @@ class InstrumentRecord:
         return dict(self.__dict__)
 
     @classmethod
-    def from_dict(cls, d: dict[str, Any]) -> "InstrumentRecord":
+    def from_dict(cls, d: dict[str, Any]) -> InstrumentRecord:
         return cls(role=d["role"], address=d["address"], identity=d.get("identity"),
                    calibration=d.get("calibration"))
 
@@ -195,7 +195,7 @@ class UnitRecord:
         }
 
     @classmethod
-    def from_dict(cls, d: dict[str, Any]) -> "UnitRecord":
+    def from_dict(cls, d: dict[str, Any]) -> UnitRecord:
         if d.get("schema") != SCHEMA_NAME:
             raise ValueError(f"not a benchgate unit report (schema {d.get('schema')!r})")
         if d.get("schema_version") != SCHEMA_VERSION:

@@ -33,8 +33,10 @@ class TestCapture:
         assert cap.samples[0] == 0.0
         with pytest.raises(ValueError):
             cap.samples[0] = 1.0
-        with pytest.raises(Exception):
-            cap.sample_rate = 5  # frozen
+        import dataclasses
+
+        with pytest.raises(dataclasses.FrozenInstanceError):
+            cap.sample_rate = 5
 
     def test_times_and_slice(self):
         cap = Capture(np.zeros(100), 50.0, start_time=1.0)

@@ -114,12 +114,12 @@ class TestErrors:
 
 class TestCombine:
     def test_precedence(self):
-        P, F, E, I = Verdict.PASS, Verdict.FAIL, Verdict.ERROR, Verdict.INCONCLUSIVE
+        P, F, E, Q = Verdict.PASS, Verdict.FAIL, Verdict.ERROR, Verdict.INCONCLUSIVE
         # issue 5: fail if any failed; else error; else inconclusive; else pass
         assert combine([P, P]) is P
-        assert combine([P, I]) is I
-        assert combine([I, E, P]) is E
-        assert combine([E, F, I]) is F
+        assert combine([P, Q]) is Q
+        assert combine([Q, E, P]) is E
+        assert combine([E, F, Q]) is F
         assert combine([]) is P
 
     def test_to_dict(self):

@@ -2,9 +2,10 @@
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 from types import MappingProxyType
-from typing import Any, Mapping
+from typing import Any
 
 import numpy as np
 
@@ -57,7 +58,7 @@ class AdcInfo:
         return {"bits": int(self.bits), "vref": float(self.vref), "bipolar": bool(self.bipolar)}
 
     @classmethod
-    def from_dict(cls, d: Mapping[str, Any]) -> "AdcInfo":
+    def from_dict(cls, d: Mapping[str, Any]) -> AdcInfo:
         return cls(bits=int(d["bits"]), vref=float(d["vref"]), bipolar=bool(d.get("bipolar", False)))
 
 
@@ -134,7 +135,7 @@ class Capture:
         """Sample instants in seconds, starting at ``start_time``."""
         return self.start_time + np.arange(self.n) / self.sample_rate
 
-    def slice(self, start: int, stop: int | None = None) -> "Capture":
+    def slice(self, start: int, stop: int | None = None) -> Capture:
         """A new capture holding samples ``start:stop``, with its start time moved to match."""
         stop = self.n if stop is None else stop
         start = max(0, int(start))
@@ -148,7 +149,7 @@ class Capture:
             metadata=self.metadata,
         )
 
-    def with_metadata(self, **extra: Any) -> "Capture":
+    def with_metadata(self, **extra: Any) -> Capture:
         """A copy with ``extra`` merged into its metadata."""
         merged = dict(self.metadata)
         merged.update(extra)

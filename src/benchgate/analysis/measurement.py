@@ -3,8 +3,9 @@
 from __future__ import annotations
 
 import math
+from collections.abc import Mapping
 from dataclasses import dataclass
-from typing import Any, Mapping
+from typing import Any
 
 
 @dataclass(frozen=True)
@@ -52,7 +53,7 @@ class Measurement:
             raise ValueError(f"an invalid measurement needs a reason ({self.name})")
 
     @classmethod
-    def invalid(cls, name: str, unit: str, reason: str, value: float = math.nan, **details: Any) -> "Measurement":
+    def invalid(cls, name: str, unit: str, reason: str, value: float = math.nan, **details: Any) -> Measurement:
         """A measurement that could not be made or cannot be trusted."""
         return cls(name=name, value=value, unit=unit, uncertainty=None, valid=False,
                    reason=reason, details=details or None)
@@ -74,7 +75,7 @@ class Measurement:
         return out
 
     @classmethod
-    def from_dict(cls, name: str, d: Mapping[str, Any]) -> "Measurement":
+    def from_dict(cls, name: str, d: Mapping[str, Any]) -> Measurement:
         value = d.get("value")
         return cls(
             name=name,

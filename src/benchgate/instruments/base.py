@@ -7,7 +7,8 @@ manager; closing a supply switches its output off first.
 
 from __future__ import annotations
 
-from typing import Callable, Protocol, runtime_checkable
+from collections.abc import Callable
+from typing import Protocol, runtime_checkable
 
 from benchgate.analysis.capture import Capture
 from benchgate.analysis.measurement import Measurement

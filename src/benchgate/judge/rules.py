@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import enum
 import math
+from collections.abc import Iterable
 from dataclasses import dataclass
-from typing import Iterable
 
 from benchgate.analysis.measurement import Measurement
 from benchgate.plan.limits import Window
@@ -14,7 +14,7 @@ from benchgate.units.format import format_quantity
 DECISION_RULES = ("simple", "guarded")
 
 
-class Verdict(str, enum.Enum):
+class Verdict(enum.StrEnum):
     """Outcome of one check, one step or one unit."""
 
     PASS = "pass"
