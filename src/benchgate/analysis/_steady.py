@@ -37,6 +37,7 @@ class Steady:
     startup_index: float | None  # fractional sample where the envelope first reaches 90 %
     growing: bool  # envelope still changing at the end of the record
     warning: str | None
+    startup_u: float = 0.0  # standard uncertainty (samples) of the crossing from envelope noise
 
 
 def envelope(x: np.ndarray, period_samples: float, stride: int | None = None) -> Envelope:
@@ -64,6 +65,52 @@ def envelope(x: np.ndarray, period_samples: float, stride: int | None = None) ->
     s2 = (c2[ends] - c2[starts] + frac * sq[ends]) / p
     var = np.maximum(s2 - s1 * s1, 0.0)
     return Envelope(centre=starts + (p - 1.0) / 2.0, level=np.sqrt(2.0 * var), window=int(round(p)))
+
+
+def _smoothing_periods(level: float, sd_env: float) -> int:
+    """Periods to average the envelope over so its noise falls to about 0.5 % of the level."""
+    if not (level > 0 and math.isfinite(sd_env)):
+        return 1
+    return int(min(64, max(1, math.ceil((sd_env / (0.005 * level)) ** 2))))
+
+
+def _crossing(env: Envelope, level: float, sd_env: float) -> tuple[float | None, float]:
+    """First 90 % crossing of the envelope (fractional sample) and its standard uncertainty.
+
+    A noisy envelope crosses early on its first noise excursion; averaging it (centred) over
+    enough periods first keeps that bias below the rest of the budget. The remaining noise
+    gives u_t = σ_env / (√K · slope) at the crossing.
+    """
+    lv = env.level
+    if lv.size == 0 or not level > 0:
+        return None, 0.0
+    k = _smoothing_periods(level, sd_env)
+    points_per_period = max(1, int(round(lv.size / max(env.centre[-1] - env.centre[0], 1.0) * env.window)))
+    width = min(k * points_per_period, max(1, lv.size // 8))
+    if width > 1:
+        c = np.concatenate(([0.0], np.cumsum(lv)))
+        half = width // 2
+        i = np.arange(lv.size)
+        lo = np.clip(i - half, 0, lv.size)
+        hi = np.clip(i + half + 1, 0, lv.size)
+        lv = (c[hi] - c[lo]) / (hi - lo)
+    above = np.flatnonzero(lv >= 0.9 * level)
+    if above.size == 0:
+        return None, 0.0
+    i = int(above[0])
+    if i == 0:
+        return 0.0, 0.0
+    lo_v, hi_v = lv[i - 1], lv[i]
+    dt = env.centre[i] - env.centre[i - 1]
+    frac = (0.9 * level - lo_v) / (hi_v - lo_v) if hi_v > lo_v else 1.0
+    at = float(env.centre[i - 1] + frac * dt)
+    # slope over the smoothing width (a two-point slope of a noisy curve would be noisy)
+    j0, j1 = max(i - max(width // 2, 1), 0), min(i + max(width // 2, 1), lv.size - 1)
+    span = env.centre[j1] - env.centre[j0]
+    slope = (lv[j1] - lv[j0]) / span if span > 0 and lv[j1] > lv[j0] else 0.0  # V per sample
+    noise = sd_env / math.sqrt(max(width / points_per_period, 1.0)) if math.isfinite(sd_env) else 0.0
+    u = noise / slope if slope > 0 else 0.0
+    return at, float(min(u, env.centre[-1]))
 
 
 def find_steady(env: Envelope, n: int, cycles: float, noise_var: float) -> Steady:
@@ -99,18 +146,9 @@ def find_steady(env: Envelope, n: int, cycles: float, noise_var: float) -> Stead
         start = int(math.ceil(env.centre[alive[-1]] + env.window)) if alive.size else 0
         warning = "no oscillation at the end of the record" if alive.size else None
         return Steady(min(start, n), level, 0.0, None, False, warning)
-    above = np.flatnonzero(level_all >= 0.9 * level)
-    startup = None
-    if above.size:
-        i = int(above[0])
-        if i == 0:
-            startup = 0.0
-        else:
-            lo, hi = level_all[i - 1], level_all[i]
-            frac = (0.9 * level - lo) / (hi - lo) if hi > lo else 1.0
-            startup = float(env.centre[i - 1] + frac * (env.centre[i] - env.centre[i - 1]))
+    startup, startup_u = _crossing(env, level, sd_env)
     if cycles < 8:
-        return Steady(0, level, tol, startup, growing, None)
+        return Steady(0, level, tol, startup, growing, None, startup_u)
     outside = np.flatnonzero(np.abs(level_all - level) > tol)
     start = 0
     warning = None
@@ -122,4 +160,4 @@ def find_steady(env: Envelope, n: int, cycles: float, noise_var: float) -> Stead
             warning = NOT_STEADY
     if growing:
         warning = STILL_CHANGING
-    return Steady(min(start, n), level, tol, startup, growing, warning)
+    return Steady(min(start, n), level, tol, startup, growing, warning, startup_u)

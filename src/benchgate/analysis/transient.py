@@ -28,9 +28,11 @@ def startup_time(capture: Capture, *, context: Context | None = None) -> Measure
     Notes
     -----
     The envelope is √2 times the sliding standard deviation over one period (local mean
-    removed), the steady amplitude its median over the last quarter of the record; the
-    crossing is interpolated between envelope points. U (k = 2) combines a rectangular
-    half-period resolution of the one-period envelope and the clock tolerance.
+    removed), the steady amplitude its median over the last quarter of the record. In noise
+    the envelope is first averaged over enough periods (centred) that a noise excursion
+    cannot cross early; the crossing is interpolated between envelope points. U (k = 2)
+    combines a rectangular half-period resolution of the one-period envelope, the remaining
+    envelope noise divided by the envelope's slope at the crossing, and the clock tolerance.
 
     References
     ----------
@@ -53,7 +55,7 @@ def startup_time(capture: Capture, *, context: Context | None = None) -> Measure
         return Measurement.invalid("startup_time", "s", "envelope never reaches 90 % of its steady amplitude")
     value = 0.0 if steady.startup_index == 0.0 else steady.startup_index / fs
     period = 1.0 / tone.frequency
-    u = expand(0.5 * period / math.sqrt(3.0), clock_std(value, capture.clock_ppm))
+    u = expand(0.5 * period / math.sqrt(3.0), steady.startup_u / fs, clock_std(value, capture.clock_ppm))
     details = {"steady_amplitude_v": steady.level, "steady_start_s": ctx.steady_start_time,
                "envelope_window_s": ctx.envelope.window / fs if ctx.envelope else None}
     return Measurement("startup_time", value, "s", u, details=details)
