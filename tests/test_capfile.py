@@ -48,6 +48,13 @@ class TestCsv:
         assert_allclose(cap.start_time, 0.5)
         assert_allclose(cap.samples, SINE, atol=1e-9)
 
+    def test_rounded_time_stamps(self, tmp_path):
+        # 44.1 kHz printed to the microsecond: ±0.5 µs jitter on a 22.7 µs step
+        t = np.arange(400) / 44_100.0
+        body = "".join(f"{a:.6f},{b:.6f}\n" for a, b in zip(t, SINE, strict=True))
+        cap = load_capture(write(tmp_path, "r.csv", body))
+        assert_allclose(cap.sample_rate, 44_100.0, rtol=1e-4)
+
     def test_adc(self, tmp_path):
         cap = load_capture(write(tmp_path, "a.csv", "1\n2\n"), rate=10, adc_bits=12, vref=3.3, clock_ppm=50)
         assert cap.adc == AdcInfo(12, 3.3) and cap.clock_ppm == 50
