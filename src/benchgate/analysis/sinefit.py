@@ -80,8 +80,19 @@ class Workspace:
         self.s = self._s[:n]
         self.tmp = self._tmp[:n]
         self.centre = (n - 1) / 2.0
+        self.omega = math.nan
+
+    def sums(self) -> tuple[float, float, float, float, float]:
+        """Σcos², Σsin², Σcos·sin, Σcos, Σsin over the record, in closed form.
+
+        With t symmetric about 0, Σsin = Σcos·sin = 0 and, by the Dirichlet kernel
+        D(x) = Σcos(x·t) = sin(n·x/2)/sin(x/2): Σcos = D(ω), Σcos² = (n + D(2ω))/2,
+        Σsin² = (n − D(2ω))/2 (derived). Saves five passes over the data per fit step.
+        """
+        return _trig_sums(self.omega, self.n)
 
     def set(self, omega: float) -> None:
+        self.omega = float(omega)
         shape = (self.nblocks, self.block)
         zo = np.exp(1j * omega * (np.arange(self.nblocks) * self.block - self.centre))
         zi = np.exp(1j * omega * np.arange(self.block))
@@ -134,13 +145,25 @@ def _centred(y: np.ndarray) -> tuple[np.ndarray, float]:
     return y - mean, mean
 
 
+def _dirichlet(x: float, n: int) -> float:
+    """Σ cos(x·t) over t = −(n−1)/2 … (n−1)/2."""
+    half = math.sin(0.5 * x)
+    if abs(half) < 1e-12:
+        return float(n)
+    return math.sin(0.5 * n * x) / half
+
+
+def _trig_sums(omega: float, n: int) -> tuple[float, float, float, float, float]:
+    d2 = _dirichlet(2.0 * omega, n)
+    return 0.5 * (n + d2), 0.5 * (n - d2), 0.0, _dirichlet(omega, n), 0.0
+
+
 def _solve3(y: np.ndarray, w: Workspace, *, exact_rss: bool = True) -> tuple[float, float, float, float]:
     """Three-parameter least squares; with ``exact_rss=False`` the residual sum of squares comes
     from the normal equations (y·y − p·r; fine for a centred record) or is skipped (NaN)."""
     c, s = w.c, w.s
-    sc, ss = float(c.sum()), float(s.sum())
-    cs = dot(c, s)
-    g = np.array([[dot(c, c), cs, sc], [cs, dot(s, s), ss], [sc, ss, float(y.size)]])
+    cc, s2, cs, sc, ss = w.sums()
+    g = np.array([[cc, cs, sc], [cs, s2, ss], [sc, ss, float(y.size)]])
     r = np.array([dot(y, c), dot(y, s), float(y.sum())])
     p = _lstsq_small(g, r)
     if not exact_rss:
@@ -225,12 +248,14 @@ def fit4(y: np.ndarray, omega0: float, *, max_iter: int = 12, work: Workspace | 
         np.multiply(sz, a, out=w.tmp)
         d -= w.tmp
         d *= t
-        cols = (cz, sz, d)
+        cc, s2, cs, sc, ss = w.sums()
         g = np.empty((4, 4))
-        for i in range(3):
-            for j in range(i, 3):
-                g[i, j] = g[j, i] = dot(cols[i], cols[j])
-            g[i, 3] = g[3, i] = float(cols[i].sum())
+        g[0, 0], g[1, 1], g[0, 1], g[0, 3], g[1, 3] = cc, s2, cs, sc, ss
+        g[1, 0], g[3, 0], g[3, 1] = cs, sc, ss
+        g[0, 2] = g[2, 0] = dot(cz, d)
+        g[1, 2] = g[2, 1] = dot(sz, d)
+        g[2, 2] = dot(d, d)
+        g[2, 3] = g[3, 2] = float(d.sum())
         g[3, 3] = n
         r = np.array([dot(cz, y), dot(sz, y), dot(d, y), sy])
         p = _lstsq_small(g, r)
