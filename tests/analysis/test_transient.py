@@ -74,3 +74,39 @@ class TestStartupTime:
             inside.append(abs(m.value - truth) <= m.uncertainty)
         assert abs(np.mean(err)) < 1e-3
         assert np.mean(inside) >= 0.85
+
+
+class TestStartupFromPowerOn:
+    """A start-up record begins before power-on; the runner stores the switch-on instant."""
+
+    def powered_at(self, t_on, tau=0.02, half=0.0):
+        t = np.arange(int(FS * 0.5)) / FS
+        env = np.where(t < t_on, 0.0, 1.0 - np.exp(-np.clip(t - t_on, 0, None) / tau))
+        x = 1.65 + env * np.sin(2 * np.pi * F * t + 0.3)
+        return Capture(x, FS, metadata={"power_on_at": t_on, "power_on_halfwidth": half})
+
+    def test_measured_from_the_power_on_instant(self):
+        # closed form: 1 − e^(−(t−t_on)/τ) reaches 90 % at t_on + τ·ln 10 (derived); the time
+        # before the switch-on is not part of the unit's start-up
+        tau, t_on = 0.02, 0.08
+        m = startup_time(self.powered_at(t_on, tau))
+        assert m.valid, m.reason
+        assert_allclose(m.value, tau * math.log(10), atol=0.5 / F)
+        assert m.details["measured_from"] == "power-on instant"
+
+    def test_switch_on_interval_widens_u(self):
+        # JCGM 100:2008 4.3.7: a rectangular bound of half-width a contributes u = a/√3
+        narrow = startup_time(self.powered_at(0.05, half=0.0))
+        wide = startup_time(self.powered_at(0.05, half=0.01))
+        assert wide.uncertainty > narrow.uncertainty
+        assert wide.uncertainty >= 2 * 0.01 / math.sqrt(3)
+
+    def test_tone_before_power_on_is_invalid(self):
+        cap = grown(lambda t: np.ones_like(t)).with_metadata(power_on_at=0.1)
+        m = startup_time(cap)
+        assert not m.valid and "before the recorded power-on" in m.reason
+
+    def test_power_on_outside_the_record_is_invalid(self):
+        cap = grown(lambda t: 1.0 - np.exp(-t / 0.02)).with_metadata(power_on_at=3.0)
+        m = startup_time(cap)
+        assert not m.valid and "outside the record" in m.reason

@@ -1,4 +1,5 @@
-"""Start-up: time from the start of the record until the oscillation is established."""
+"""Start-up: time from the start of the record (or the recorded power-on instant) until the
+oscillation is established."""
 
 from __future__ import annotations
 
@@ -12,6 +13,12 @@ from benchgate.analysis.uncertainty import clock_std, expand
 
 def startup_time(capture: Capture, *, context: Context | None = None) -> Measurement:
     """Time (s) from the first sample until the envelope first reaches 90 % of its steady amplitude.
+
+    When the record began before the unit was powered (a start-up capture), the runner stores
+    the power-on instant in the capture's metadata: ``power_on_at`` (s from the first sample)
+    and ``power_on_halfwidth`` (s, half the interval within which the switch-on happened). The
+    time is then measured from that instant instead of the first sample, and the half-width
+    enters the budget as a rectangular bound.
 
     Parameters
     ----------
@@ -54,8 +61,31 @@ def startup_time(capture: Capture, *, context: Context | None = None) -> Measure
     if steady.startup_index is None:
         return Measurement.invalid("startup_time", "s", "envelope never reaches 90 % of its steady amplitude")
     value = 0.0 if steady.startup_index == 0.0 else steady.startup_index / fs
+    origin, u_origin = _power_on(capture)
+    if origin is not None:
+        if not (math.isfinite(origin) and 0.0 <= origin < capture.duration):
+            return Measurement.invalid("startup_time", "s",
+                                       f"recorded power-on instant {origin!r} s lies outside the record")
+        if value <= origin:
+            return Measurement.invalid(
+                "startup_time", "s", f"oscillation already at 90 % of its steady amplitude "
+                f"{(origin - value) * 1e3:.1f} ms before the recorded power-on instant")
+        value -= origin
     period = 1.0 / tone.frequency
-    u = expand(0.5 * period / math.sqrt(3.0), steady.startup_u / fs, clock_std(value, capture.clock_ppm))
+    u = expand(0.5 * period / math.sqrt(3.0), steady.startup_u / fs, u_origin,
+               clock_std(value, capture.clock_ppm))
     details = {"steady_amplitude_v": steady.level, "steady_start_s": ctx.steady_start_time,
-               "envelope_window_s": ctx.envelope.window / fs if ctx.envelope else None}
+               "envelope_window_s": ctx.envelope.window / fs if ctx.envelope else None,
+               "measured_from": "record start" if origin is None else "power-on instant",
+               "power_on_at_s": origin}
     return Measurement("startup_time", value, "s", u, details=details)
+
+
+def _power_on(capture: Capture) -> tuple[float | None, float]:
+    """The recorded power-on instant (s from the first sample) and its standard uncertainty."""
+    at = capture.metadata.get("power_on_at")
+    if at is None:
+        return None, 0.0
+    at = float(at)
+    half = float(capture.metadata.get("power_on_halfwidth") or 0.0)
+    return at, (half / math.sqrt(3.0) if math.isfinite(half) and half > 0 else 0.0)

@@ -185,6 +185,8 @@ class SerialAdc:
             port.flush_input()  # start at the next line boundary, with nothing stale
         else:
             port.write_line(f"START {n} {mask}")
+        if progress is not None:  # lets a caller tie its own events to the record's time axis
+            progress(0.0, f"acquisition of {n} samples started")
         try:
             self._receive(decoder, state, n, duration, progress)
         except InstrumentDisconnected as exc:

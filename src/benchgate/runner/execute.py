@@ -234,11 +234,12 @@ class Executor:
             self._judge(step, srec, check, measurements.get(check.measurement))
 
     def _acquire(self, step: Any, instrument: Any, srec: StepRecord):
-        first: list[float] = []  # clock time and fraction done at the first progress report
+        first: list[float] = []  # clock time and fraction delivered at the first progress report
 
         def progress(fraction: float, text: str = "") -> None:
-            if not first:
+            if not first:  # a driver's report at 0 marks the start of acquisition itself
                 first.extend((self.clock.monotonic(), float(fraction)))
+            if fraction > 0:  # samples are arriving: the recorder really runs
                 started.set()
             self.hooks.progress(fraction, f"capture {step.channel}", step.duration * (1 - fraction))
 
@@ -264,19 +265,30 @@ class Executor:
         worker.start()
         while not started.is_set() and worker.is_alive():
             started.wait(timeout=0.02)
+        power_on: dict[str, float] = {}
         if started.is_set() and "error" not in result:
+            t_sent = self.clock.monotonic()
             self.bench["supply"].output(True)
-            now = self.clock.monotonic()
-            into = now - (first[0] - first[1] * step.duration)  # record start estimated from the first report
-            srec.notes.append(f"supply output switched on {(now - first[0]) * 1e3:.1f} ms after the first "
-                              f"samples arrived, about {into * 1e3:.1f} ms into the record")
+            t_ack = self.clock.monotonic()
+            t_first, delivered = first
+            # Where the switch-on falls in the record's own time: the part already delivered at
+            # the first progress report, plus the clock time from then to the middle of the
+            # output command; half the command's duration bounds where in it the output rose.
+            # The analysis times the start-up from this instant (``power_on_at``).
+            power_on["power_on_at"] = delivered * step.duration + (t_sent - t_first) + (t_ack - t_sent) / 2
+            power_on["power_on_halfwidth"] = (t_ack - t_sent) / 2
+            srec.notes.append(
+                f"supply output switched on {(t_ack - t_first) * 1e3:.1f} ms after the first samples "
+                f"arrived, {power_on['power_on_at'] * 1e3:.1f} ms ± {power_on['power_on_halfwidth'] * 1e3:.1f} ms "
+                "into the record; start-up is timed from there")
         while worker.is_alive():
             worker.join(timeout=0.05)
         if "error" in result:
             raise result["error"]
         if not started.is_set():
             srec.notes.append("the recorder reported no progress; the supply was not switched on")
-        return result["capture"]
+        capture = result["capture"]
+        return capture.with_metadata(**power_on) if power_on else capture
 
     def _power_down_first(self, srec: StepRecord) -> None:
         """A start-up capture needs an unpowered unit (a retry finds the supply on): power cycle."""
