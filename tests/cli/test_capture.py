@@ -72,3 +72,30 @@ def test_unknown_instrument_and_bad_duration(tmp_path, capsys):
         main(["capture", path, "--duration", "3 V", "--out", "x.npz"])
     assert info.value.code == 2
     assert "expected a time in s" in capsys.readouterr().err
+
+
+def test_capture_with_the_supply_powers_the_unit_then_switches_off(tmp_path, capsys):
+    from benchgate.analysis import analyze
+    from benchgate.sim.bench import VirtualBench
+
+    out = tmp_path / "tone.npz"
+    with VirtualBench("tb3", workdir=tmp_path / "vb") as vb:
+        code = main(["capture", str(vb.station_path), "--instrument", "adc", "--duration", "300ms",
+                     "--supply", "9V", "--current-limit", "50mA", "--settle", "200ms",
+                     "--out", str(out)])
+        assert code == 0, capsys.readouterr().err
+        assert vb.supply_output is False  # asked of the SCPI server itself
+    result = analyze(load_capture(out), ["frequency"])
+    freq = result.measurements["frequency"]
+    # a powered TB-3 oscillates near 1/(2πRC√6) ≈ 955 Hz (handbook formula, REFERENCES.md);
+    # loading and part tolerances move it by several percent
+    assert freq.valid and 800.0 < freq.value < 1100.0
+
+
+def test_supply_without_a_current_limit_is_refused(tmp_path, capsys):
+    with PtyAdcDevice(SineSource(frequency=500.0, channels=("out", "rail"))) as dev:
+        code = main(["capture", station_file(tmp_path, dev.port), "--duration", "100ms",
+                     "--supply", "9V", "--out", str(tmp_path / "x.npz")])
+    assert code == 2
+    assert "--current-limit" in capsys.readouterr().err
+    assert not (tmp_path / "x.npz").exists()

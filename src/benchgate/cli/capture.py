@@ -18,7 +18,7 @@ def _quantity(unit: str):
             raise argparse.ArgumentTypeError(f"must be greater than zero, got {text!r}")
         return value
 
-    parse.__name__ = {"s": "duration", "Hz": "rate"}.get(unit, unit)
+    parse.__name__ = {"s": "duration", "Hz": "rate", "V": "voltage", "A": "current"}.get(unit, unit)
     return parse
 
 
@@ -42,21 +42,39 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     parser.add_argument("--channel", metavar="NAME",
                         help="channel to record (default: the instrument's first channel)")
     parser.add_argument("--out", required=True, metavar="FILE.npz", help="where to write the capture")
+    parser.add_argument("--supply", type=_quantity("V"), metavar="VOLTS",
+                        help="power the unit from the station's supply at this voltage for the capture "
+                        "(needs --current-limit); the output is switched off afterwards, whatever happens")
+    parser.add_argument("--current-limit", type=_quantity("A"), metavar="AMPS",
+                        help="supply current limit for --supply, e.g. 50mA")
+    parser.add_argument("--settle", type=_quantity("s"), default=0.5, metavar="TIME",
+                        help="wait after switching the supply on before recording (default 0.5 s)")
     parser.set_defaults(func=run)
     return parser
 
 
 def run(args) -> int:
     from benchgate.capfile import save_capture
-    from benchgate.errors import InstrumentDisconnected
+    from benchgate.clock import SystemClock
+    from benchgate.errors import BenchgateError, InstrumentDisconnected
     from benchgate.instruments import load_station, open_station
     from benchgate.units import format_quantity
 
     station = load_station(args.station)
     role = args.instrument
-    with open_station(station, roles=[role]) as bench:
+    if args.supply is not None and args.current_limit is None:
+        raise BenchgateError("--supply needs --current-limit: set the limit before any power is applied")
+    roles = [role] + (["supply"] if args.supply is not None else [])
+    clock = SystemClock()
+    with open_station(station, roles=roles, clock=clock) as bench:  # its exit switches the supply off
         inst = bench[role]
         channel = args.channel or _default_channel(station.instruments[role])
+        if args.supply is not None:
+            supply = bench.supply
+            supply.set_current_limit(args.current_limit)
+            supply.set_voltage(args.supply)
+            supply.output(True)
+            clock.sleep(args.settle)
         try:
             capture = inst.capture(channel, duration=args.duration, rate=args.rate)
         except InstrumentDisconnected as exc:
