@@ -15,7 +15,7 @@ from collections.abc import Mapping
 from pathlib import Path
 from typing import Any
 
-from benchgate.errors import BenchgateError
+from benchgate.errors import BenchgateError, Position
 from benchgate.record import UnitRecord
 
 SCHEMA_FILE = "unit-report.schema.json"
@@ -32,12 +32,7 @@ class ReportError(BenchgateError):
         self.column = column
 
     def where(self) -> str:
-        parts = [self.file]
-        if self.line is not None:
-            parts.append(str(self.line))
-            if self.column is not None:
-                parts.append(str(self.column))
-        return ":".join(parts)
+        return str(Position(self.file, self.line, self.column))
 
 
 def jsonable(value: Any) -> Any:
