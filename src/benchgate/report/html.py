@@ -74,7 +74,7 @@ def _plain(value: Any) -> str:
     if isinstance(value, float):
         return f"{value:.6g}"
     if isinstance(value, dict):
-        return "; ".join(f"{k} {_plain(v)}" for k, v in value.items())
+        return "; ".join(f"{k} {_plain(v)}" for k, v in value.items() if v is not None)
     if isinstance(value, (list, tuple)):
         return "[" + ", ".join(_plain(v) for v in value) + "]"
     return str(value)
