@@ -32,7 +32,6 @@ EXPECTED = {
     "rate_too_low.yaml": (16, 5, "too low for thd with 10 harmonics"),
     "not_required.yaml": (7, 5, "does not require it"),
     "power_on_with_supply_on.yaml": (18, 5, "needs the supply output off"),
-    "power_on_digitizer.yaml": (19, 5, "needs the streaming adc"),
     "unknown_topology.yaml": (21, 34, "did you mean 'rc_ladder'"),
     "ladder_wrong_count.yaml": (21, 64, "2 values for 3 sections"),
     "ladder_cap_as_resistor.yaml": (21, 64, "expected a resistance in Ω, got a capacitance"),

@@ -76,12 +76,6 @@ def validate_steps(c: Collector, steps: list[Step], positions: list[Pos], requir
                 if not voltage_set:
                     c.error(pos.get("power_on", pos[""]),
                             f"step {step.id!r}: power_on needs a supply step setting the voltage first")
-                if step.instrument != "adc":
-                    # the digitizer records only after it is armed and triggered, so the runner
-                    # cannot place the switch-on inside its record yet
-                    c.error(pos.get("power_on", pos[""]),
-                            f"step {step.id!r}: power_on needs the streaming adc; the "
-                            f"{step.instrument} cannot record the switch-on")
                 supply_on = True
             _capture_timing(c, step, pos, plan_freq)
 

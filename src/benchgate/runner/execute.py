@@ -253,6 +253,8 @@ class Executor:
         # driver's first progress call means samples are arriving; only then is the supply
         # switched on (never before, which could hide a slow start behind the record's start).
         self._power_down_first(srec)
+        if hasattr(instrument, "arm"):  # a triggered recorder: its record starts when armed
+            return self._acquire_armed(step, instrument, srec, kwargs)
         result: dict[str, Any] = {}
 
         def work() -> None:
@@ -289,6 +291,32 @@ class Executor:
             srec.notes.append("the recorder reported no progress; the supply was not switched on")
         capture = result["capture"]
         return capture.with_metadata(**power_on) if power_on else capture
+
+    def _acquire_armed(self, step: Any, instrument: Any, srec: StepRecord, kwargs: dict[str, Any]):
+        """Power-on capture with a digitizer: set up, arm, switch the supply on, wait, fetch.
+
+        The record starts somewhere inside the arm command, the switch-on somewhere inside the
+        output command; ``power_on_at`` is the middle of the interval that leaves, and
+        ``power_on_halfwidth`` its half-width.
+        """
+        instrument.setup(step.channel, duration=step.duration, rate=step.rate, range=kwargs.get("range"))
+        t_arm = self.clock.monotonic()
+        instrument.arm()
+        t_armed = self.clock.monotonic()
+        self.hooks.progress(0.0, f"capture {step.channel}", step.duration)
+        t_sent = self.clock.monotonic()
+        self.bench["supply"].output(True)
+        t_ack = self.clock.monotonic()
+        earliest, latest = t_sent - t_armed, t_ack - t_arm
+        power_on = {"power_on_at": (earliest + latest) / 2, "power_on_halfwidth": (latest - earliest) / 2}
+        srec.notes.append(
+            f"supply output switched on {power_on['power_on_at'] * 1e3:.1f} ms ± "
+            f"{power_on['power_on_halfwidth'] * 1e3:.1f} ms after the {step.instrument} was armed; "
+            "start-up is timed from there")
+        instrument.wait()
+        capture = instrument.to_capture(instrument.fetch())
+        self.hooks.progress(1.0, f"capture {step.channel}", 0.0)
+        return capture.with_metadata(**power_on)
 
     def _power_down_first(self, srec: StepRecord) -> None:
         """A start-up capture needs an unpowered unit (a retry finds the supply on): power cycle."""

@@ -270,15 +270,25 @@ class EmulatedDigitizer(EmulatedInstrument):
             raise ScpiCommandError(-224, f"byte order must be NORMal or SWAPped, got {a!r}")
 
     def _arm(self) -> None:
-        record = np.asarray(self.backend.digitizer_record(self.rate, self.points), dtype=np.float64)
-        self._record = np.clip(record, -self.range, self.range)
+        self._armed_at = self.clock.monotonic()
         self._block = None
-        self._done_at = self.clock.monotonic() + self.points / self.rate
+        self._done_at = self._armed_at + self.points / self.rate
+        if hasattr(self.backend, "digitizer_record_at"):
+            # the record is taken when the acquisition completes, so whatever happens to the
+            # unit while it runs (e.g. the supply switched on) is in it
+            self._record = _PENDING
+        else:
+            self._record = self._clip(self.backend.digitizer_record(self.rate, self.points))
+
+    def _clip(self, record) -> np.ndarray:
+        return np.clip(np.asarray(record, dtype=np.float64), -self.range, self.range)
 
     def _wait_done(self) -> None:
         remaining = self._done_at - self.clock.monotonic()
         if remaining > 0:
             self.clock.sleep(remaining)
+        if self._record is _PENDING:
+            self._record = self._clip(self.backend.digitizer_record_at(self._armed_at, self.rate, self.points))
 
     def operation_complete(self) -> str:
         if self._record is not None:
@@ -293,6 +303,9 @@ class EmulatedDigitizer(EmulatedInstrument):
         if self._block is None or self._block[0] != order:  # encode once per record and order
             self._block = (order, definite_block(self._record.astype(order).tobytes()))
         return self._block[1]
+
+
+_PENDING = np.empty(0)  # an acquisition armed whose record is taken at completion
 
 
 def definite_block(data: bytes) -> bytes:
