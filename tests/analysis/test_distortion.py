@@ -142,3 +142,19 @@ class TestUncertaintyCoverage:
             thd_in.append(abs(t.value - 100 * h3) <= t.uncertainty)
         assert 0.88 <= np.mean(snr_in) <= 1.0
         assert np.mean(thd_in) >= 0.9
+
+
+class TestSnrBesideStrongHarmonics:
+    @pytest.mark.parametrize("amps", [{1: 1.0, 2: 0.01}, {1: 1.0, 3: 0.03, 5: 0.01}])
+    def test_low_noise_with_harmonics(self, amps):
+        # regression: with harmonics at −30 … −40 dBc and noise at −97 dBc, the fundamental's
+        # window leakage and the fit's leftover in the fundamental band were counted as noise
+        # (SNR 86.6 dB for a true 97.0 dB). IEEE Std 1241-2010 SNR definition: A₁²/2 over the
+        # noise power σ² (harmonics excluded), here 10·log10(0.5/1e-10)
+        rng = np.random.default_rng(4)
+        n, fs = 4096, 10_000.0
+        cap = harmonic_series(n, 41.49, amps, fs=fs)
+        x = cap.samples + 0.5 + rng.normal(0, 1e-5, n)
+        m = snr(Capture(x, fs))
+        assert m.valid
+        assert abs(m.value - 10 * math.log10(0.5 / 1e-10)) <= max(m.uncertainty, 0.5)

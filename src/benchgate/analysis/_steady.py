@@ -43,12 +43,17 @@ class Steady:
 def envelope(x: np.ndarray, period_samples: float, stride: int | None = None) -> Envelope:
     """Sliding one-period amplitude envelope of ``x``.
 
-    The window spans exactly one period (a fractional number of samples): the cumulative
+    The window spans exactly one period (a fractional number of samples; for periods under
+    4 samples, the fewest whole periods covering 4 samples): the cumulative
     sums are interpolated at the window's fractional end, which removes the ripple a whole
     number of samples would leave (it would bias the start-up crossing on slow envelopes).
     """
     n = x.size
-    p = float(min(max(4.0, period_samples), n - 1.0))
+    period = float(period_samples)
+    # at least 4 samples, and a whole number of periods (a window of 4 samples over a period
+    # of 2.5 would ripple by tens of per cent and look like a changing amplitude)
+    p = period * math.ceil(4.0 / period) if 0.0 < period < 4.0 else max(4.0, period)
+    p = float(min(p, n - 1.0))
     m = int(math.floor(p))
     frac = p - m
     xc = x - x.mean()
@@ -79,7 +84,8 @@ def _crossing(env: Envelope, level: float, sd_env: float) -> tuple[float | None,
 
     A noisy envelope crosses early on its first noise excursion; averaging it (centred) over
     enough periods first keeps that bias below the rest of the budget. The remaining noise
-    gives u_t = σ_env / (√K · slope) at the crossing.
+    gives u_t = σ_env / (√K · slope) at the crossing; the smoothing's own bias on a curved
+    envelope is bounded by half its width (rectangular).
     """
     lv = env.level
     if lv.size == 0 or not level > 0:
@@ -110,6 +116,12 @@ def _crossing(env: Envelope, level: float, sd_env: float) -> tuple[float | None,
     slope = (lv[j1] - lv[j0]) / span if span > 0 and lv[j1] > lv[j0] else 0.0  # V per sample
     noise = sd_env / math.sqrt(max(width / points_per_period, 1.0)) if math.isfinite(sd_env) else 0.0
     u = noise / slope if slope > 0 else 0.0
+    if width > 1:
+        # a centred average over W samples of a rising envelope crosses a level within ±W/2 of
+        # where the envelope itself crosses it (the average lies between the envelope's values
+        # at the window's ends): a rectangular bound for the bias of the smoothing (derived)
+        step = float(env.centre[1] - env.centre[0]) if env.centre.size > 1 else 1.0
+        u = math.hypot(u, 0.5 * width * step / math.sqrt(3.0))
     return at, float(min(u, env.centre[-1]))
 
 

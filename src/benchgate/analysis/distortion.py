@@ -2,7 +2,7 @@
 
 The fundamental's power is its main-lobe power in the Blackman–Harris windowed spectrum of
 the steady part; the harmonics, spurs and noise come from the same spectrum or, when the
-noise and distortion lie more than 65 dB below the fundamental, from the spectrum of the
+noise lies more than 65 dB below the fundamental, from the spectrum of the
 four-parameter fit residual (the fundamental removed in the time domain, so its window
 leakage does not masquerade as noise). Harmonic powers are summed over each main lobe (±5 bins); noise is
 the mean power of the remaining bins, extrapolated over the whole band (DC excluded).
@@ -59,9 +59,10 @@ def _compute(ctx: Context) -> Harmonics:
     if ctx.checked.clipped:
         return Harmonics(ctx.checked.clipped)
     first = _from_spectrum(ctx, tone, ctx.spectrum, subtract_fundamental=False)
-    if first.reason or first.p1 < LEAKAGE_LIMIT * (first.noise + first.harmonic_power):
+    if first.reason or first.p1 < LEAKAGE_LIMIT * first.noise:
         return first
-    # NAD within ~20 dB of the window's far leakage: measure it on the fit residual instead
+    # noise within ~20 dB of the window's far leakage: measure it on the fit residual instead
+    # (judged on the noise alone: strong harmonics do not stop the leakage biasing the SNR)
     return _from_spectrum(ctx, tone, ctx.residual_spectrum, subtract_fundamental=True, p1_raw=first.p1_raw)
 
 
@@ -76,8 +77,9 @@ def _from_spectrum(ctx: Context, tone, spec, *, subtract_fundamental: bool,
     used[: hw + 1] = True  # DC
     fund_raw, fund_slice = _spectrum.band_power(ctx.spectrum, tone.frequency, hw)
     p1_raw = fund_raw if p1_raw is None else p1_raw
-    if not subtract_fundamental:
-        used[fund_slice] = True
+    # the fundamental's band is never noise: on the residual spectrum it still holds what the
+    # fit could not remove (a harmonic over a non-whole number of cycles pulls the fit a little)
+    used[fund_slice] = True
     orders, freqs, powers, slices = [], [], [], []
     for k in range(2, ctx.harmonics + 1):
         fk = k * tone.frequency

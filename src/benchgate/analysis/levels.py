@@ -102,18 +102,54 @@ def amplitude(capture: Capture, *, context: Context | None = None) -> Measuremen
     details = {"method": "four-parameter sine fit", "samples_used": fit.n}
     if not tone.ok:
         return Measurement.invalid("amplitude", "V", tone.reason, value=fit.amplitude, **details)
-    u = expand(crlb_amplitude_std(fit.residual_var, fit.n), quantisation_std(capture.adc))
+    settle = _settling(ctx) * fit.amplitude
+    if settle:
+        details["settling_v"] = settle
+    u = expand(crlb_amplitude_std(fit.residual_var, fit.n), quantisation_std(capture.adc), settle)
     return Measurement("amplitude", fit.amplitude, "V", u, details=details)
 
 
+def _settling(ctx: Context) -> float:
+    """Relative amount by which the steady part's envelope still differs from its final level.
+
+    The steady part may begin while the amplitude is still within the steady band (1 % of the
+    level) but not yet settled, e.g. the slow tail of an exponential approach; the fit then
+    averages over that tail. When the envelope's mean over the steady part differs from the
+    final level (median of the last quarter) by more than three standard deviations of that
+    difference (envelope noise (4σ²S + 2σ⁴)/M per window of M samples, S = A²/2, as in
+    :func:`benchgate.analysis._steady.find_steady`), the difference is returned as a
+    standard uncertainty term (relative); else 0. (Derived; common practice for a settling
+    systematic effect, JCGM 100:2008 F.2.)
+    """
+    env, steady, fit = ctx.envelope, ctx.steady, ctx.tone.fit
+    if env is None or fit is None or not steady.level > 0 or env.level.size < 4:
+        return 0.0
+    part = env.level[env.centre >= ctx.start + 0.5 * env.window]
+    if part.size < 4:
+        return 0.0
+    diff = float(np.mean(part)) - steady.level
+    level = steady.level
+    s2 = fit.residual_var
+    m = env.window
+    sd_env = math.sqrt(max(4.0 * s2 * 0.5 * level * level + 2.0 * s2 * s2, 0.0) / m) / level
+    windows_steady = max(fit.n / m, 1.0)
+    windows_tail = max(0.25 * ctx.capture.n / m, 1.0)
+    sd_diff = sd_env * math.sqrt(1.0 / windows_steady + 1.57 / windows_tail)  # median: π/2 × var
+    if abs(diff) <= 3.0 * sd_diff:
+        return 0.0
+    return abs(diff) / level
+
+
 def vpp(capture: Capture, *, context: Context | None = None) -> Measurement:
-    """Peak-to-peak voltage (V): mean of the per-cycle peak-to-peak values of the steady part.
+    """Peak-to-peak voltage (V): mean of the per-cycle peak-to-peak values of the steady part,
+    each peak refined by a three-point parabola.
 
     Returns
     -------
     Measurement
         With a trusted tone, the mean over whole cycles and a type A uncertainty (standard
-        deviation of the mean, k = 2) plus the resolution of two readings; without one, the
+        deviation of the mean, k = 2) plus the resolution of two readings and a rectangular
+        bound for the peaks falling between samples (:func:`_sampling_bound`); without one, the
         span of the steady part with the resolution term only. Invalid when clipped.
 
     References
@@ -133,11 +169,54 @@ def vpp(capture: Capture, *, context: Context | None = None) -> Measurement:
                            details={"method": "span of the steady part"})
     starts = bounds[:-1]
     whole = y[: bounds[-1]]
-    ptp = np.maximum.reduceat(whole, starts) - np.minimum.reduceat(whole, starts)
+    fit = ctx.tone.fit
+    curv = 4.0 * fit.amplitude * fit.omega ** 2 if ctx.tone.ok and fit is not None else 0.0
+    ptp = _cycle_peaks(y, whole, starts, 1.0, curv) + _cycle_peaks(y, whole, starts, -1.0, curv)
     k = ptp.size
     u_a = float(np.std(ptp, ddof=1)) / math.sqrt(k) if k > 1 else 0.0
-    return Measurement("vpp", float(np.mean(ptp)), "V", expand(u_a, q, q),
-                       details={"method": "mean per-cycle peak-to-peak", "cycles": k})
+    u_s = _sampling_bound(ctx) / math.sqrt(3.0)
+    return Measurement("vpp", float(np.mean(ptp)), "V", expand(u_a, q, q, u_s),
+                       details={"method": "mean per-cycle peak-to-peak, peaks interpolated",
+                                "cycles": k, "sampling_bound_v": _sampling_bound(ctx)})
+
+
+def _cycle_peaks(y: np.ndarray, whole: np.ndarray, starts: np.ndarray, sign: float,
+                 max_curvature: float) -> np.ndarray:
+    """Per-cycle maximum of ``sign·y``, refined by a parabola through the peak sample and its
+    neighbours (vertex offset limited to ±½ sample; Gasior and Gonzalez 2004 use the same
+    three-point parabola for spectral peaks). A sampled sine's peak sample falls short of
+    the peak by up to A(1 − cos(π/P)) for P samples per period; the parabola leaves far less.
+
+    Only strict local maxima whose second difference is no sharper than ``max_curvature``
+    (4·A·ω², four times a sine's own) are refined: the corner of a square wave's flat top
+    next to its edge would otherwise overshoot by a large part of the step."""
+    v = whole if sign > 0 else -whole
+    peaks = np.maximum.reduceat(v, starts)
+    lengths = np.diff(np.r_[starts, whole.size])
+    hit = np.flatnonzero(v == np.repeat(peaks, lengths))
+    seg = np.searchsorted(starts, hit, side="right") - 1
+    first = hit[np.r_[True, seg[1:] != seg[:-1]]] if hit.size else hit
+    i = first[(first > 0) & (first < y.size - 1)]
+    seg_i = np.searchsorted(starts, i, side="right") - 1
+    a, b, c = sign * y[i - 1], sign * y[i], sign * y[i + 1]
+    den = a - 2.0 * b + c
+    ok = (b > a) & (b > c) & (-den <= max_curvature)
+    delta = np.clip(np.where(ok, (a - c) / np.where(ok, 2.0 * den, 1.0), 0.0), -0.5, 0.5)
+    vertex = b + 0.5 * (c - a) * delta + 0.5 * den * delta * delta
+    peaks[seg_i] = np.maximum(peaks[seg_i], np.where(ok, vertex, b))
+    return peaks
+
+
+def _sampling_bound(ctx: Context) -> float:
+    """Largest shortfall (V) of the interpolated per-cycle peak-to-peak of the fitted sine:
+    2A·min(1 − cos(h/2), h⁴/24) with h = 2π/P (raw peak sample; parabola through three
+    samples of a cosine, whose error stays below the quartic Taylor term — derived and
+    checked numerically), 0 without a trusted fit."""
+    tone = ctx.tone
+    if not tone.ok or tone.fit is None:
+        return 0.0
+    h = tone.fit.omega
+    return 2.0 * tone.fit.amplitude * min(1.0 - math.cos(0.5 * h), h ** 4 / 24.0)
 
 
 def rms(capture: Capture, *, context: Context | None = None) -> Measurement:
@@ -145,6 +224,8 @@ def rms(capture: Capture, *, context: Context | None = None) -> Measurement:
 
     Notes
     -----
+    The fundamental's contribution is taken over exact whole periods (closed form), since
+    the whole cycles used end on a whole sample.
     Standard uncertainty from the residual noise σ² of the fit: var(rms²) ≈ (4σ²S + 2σ⁴)/N
     with S the mean-square signal, so u(rms) = √var(rms²) / (2·rms) (derived, first order).
     """
@@ -156,6 +237,10 @@ def rms(capture: Capture, *, context: Context | None = None) -> Measurement:
     n = y.size
     value = float(np.std(y))
     tone = ctx.tone
+    if tone.ok and tone.fit is not None and value > 0:
+        # the whole cycles end on a whole sample: take out the fundamental's share of the
+        # left-over fraction of a period (as for dc_offset)
+        value = math.sqrt(max(value * value - _sine_ms_excess(tone.fit, n), 0.0))
     details = {"samples_used": n, "whole_cycles": tone.ok}
     if value <= 0:
         return Measurement("rms", 0.0, "V", None, details=details)
@@ -164,7 +249,10 @@ def rms(capture: Capture, *, context: Context | None = None) -> Measurement:
         signal = max(value * value - s2, 0.0)
         var_ms = (4.0 * s2 * signal + 2.0 * s2 * s2) / n
         u = math.sqrt(var_ms) / (2.0 * value)
-        return Measurement("rms", value, "V", expand(u, quantisation_std(capture.adc) / math.sqrt(n)),
+        settle = _settling(ctx) * value
+        if settle:
+            details["settling_v"] = settle
+        return Measurement("rms", value, "V", expand(u, quantisation_std(capture.adc) / math.sqrt(n), settle),
                            details=details)
     return Measurement("rms", value, "V", None, details=details)
 
@@ -174,6 +262,9 @@ def dc_offset(capture: Capture, *, context: Context | None = None) -> Measuremen
 
     Notes
     -----
+    The mean over the whole cycles of the steady part, less the fitted fundamental's own
+    mean over those samples (the whole cycles end on a whole sample, so up to half a sample
+    of a period is left over; at high SNR that bias would exceed U).
     u = √(σ²/N + Q²/12): the residual noise averaged over N samples, and the resolution.
     Without a trusted tone σ² is the sample variance.
 
@@ -188,6 +279,49 @@ def dc_offset(capture: Capture, *, context: Context | None = None) -> Measuremen
     y = _whole_cycles(ctx)
     n = y.size
     tone = ctx.tone
-    s2 = tone.fit.residual_var if tone.ok and tone.fit is not None else float(np.var(y))
-    u = expand(math.sqrt(s2 / n), quantisation_std(capture.adc))
-    return Measurement("dc_offset", float(np.mean(y)), "V", u, details={"samples_used": n})
+    value = float(np.mean(y))
+    if tone.ok and tone.fit is not None:
+        s2 = tone.fit.residual_var
+        # whole cycles end on a whole sample, up to half a sample off the true period: the
+        # fitted fundamental's own mean over the samples used is removed (closed form)
+        value -= _sine_mean(tone.fit, n)
+    else:
+        s2 = float(np.var(y))
+    u_float = 2.0 * np.finfo(float).eps * abs(value)  # the mean itself is rounded
+    u = expand(math.sqrt(s2 / n), quantisation_std(capture.adc), u_float)
+    return Measurement("dc_offset", value, "V", u, details={"samples_used": n})
+
+
+def _phasor_sum(w: float, m: int, n: int) -> complex:
+    """Σ_{k<m} e^{iw·t_k} with t_k = k − (N−1)/2, by the geometric series
+    e^{−iw(N−1)/2}·(e^{iwm} − 1)/(e^{iw} − 1) (derived)."""
+    z = complex(math.cos(w), math.sin(w))
+    if abs(z - 1.0) < 1e-15:
+        total = complex(m, 0.0)
+    else:
+        total = (complex(math.cos(w * m), math.sin(w * m)) - 1.0) / (z - 1.0)
+    c = 0.5 * (n - 1)
+    return total * complex(math.cos(w * c), -math.sin(w * c))
+
+
+def _sine_mean(fit, m: int) -> float:
+    """Mean of the fitted a·cos(ωt) + b·sin(ωt) over the first ``m`` samples of the fit's record
+    (t centred on the fit's record, as in :mod:`benchgate.analysis.sinefit`)."""
+    if m < 1:
+        return 0.0
+    total = _phasor_sum(fit.omega, m, fit.n)
+    return (fit.a * total.real + fit.b * total.imag) / m
+
+
+def _sine_ms_excess(fit, m: int) -> float:
+    """How much the fitted sine's mean square about its own mean over the first ``m`` samples
+    exceeds A²/2, its value over exact whole periods: with cos² = (1 + cos 2ωt)/2,
+    sin² = (1 − cos 2ωt)/2 and cos·sin = sin(2ωt)/2, Σ(a cos + b sin)² = (a² + b²)m/2 +
+    (a² − b²)/2·Re S₂ + ab·Im S₂, S₂ = Σe^{2iωt} (derived)."""
+    if m < 1:
+        return 0.0
+    s2 = _phasor_sum(2.0 * fit.omega, m, fit.n)
+    a, b = fit.a, fit.b
+    sum_sq = 0.5 * (a * a + b * b) * m + 0.5 * (a * a - b * b) * s2.real + a * b * s2.imag
+    mean = _sine_mean(fit, m)
+    return sum_sq / m - mean * mean - 0.5 * (a * a + b * b)
