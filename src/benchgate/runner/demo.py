@@ -130,7 +130,9 @@ def run_demo(*, units: int = 14, speed: float = 4.0, reports_dir: Path | None = 
                 unit.html = None if "html" not in outcome.paths else str(outcome.paths["html"])
                 if on_unit is not None:
                     on_unit(index, len(lot_units), unit)
-            summary_path = reports_dir / f"summary-{lot}.html"
+            from benchgate.report.layout import safe_name
+
+            summary_path = reports_dir / f"summary-{safe_name(lot)}.html"
             summary = write_lot_summary(runner.db, lot, summary_path)
     return DemoResult(lot=lot, units=lot_units, summary=summary, summary_html=summary_path,
                       reports_dir=reports_dir, seconds=time.monotonic() - t0)
