@@ -44,3 +44,30 @@ class TestFrequencyDrift:
         m = frequency_drift(Capture(np.sin(2 * np.pi * 200 * t), FS))
         assert not m.valid and "cycles" in m.reason
         assert math.isnan(m.value)
+
+
+class TestStrongDrift:
+    @staticmethod
+    def chirp(rate, n, seed, fs=1e4, f0=1000.0, noise=0.01, phase=0.7):
+        # linear chirp: φ(t) = 2π(f0·t + rate·(t − T/2)²/2), so df/dt = rate (derived)
+        t = np.arange(n) / fs
+        tc = t - t[-1] / 2
+        rng = np.random.default_rng(seed)
+        return Capture(np.sin(2 * np.pi * (f0 * t + 0.5 * rate * tc * tc) + phase) + rng.normal(0, noise, n), fs)
+
+    def test_phase_unwrapped_with_more_windows(self):
+        # regression: 1 Hz/s over 5 s turns the phase by ~0.8 cycle between 16 windows, the
+        # unwrap slipped and gave 0.35 Hz/s at U 0.21 Hz/s. Known answer: the chirp's rate
+        for seed in range(2):
+            m = frequency_drift(self.chirp(1.0, 50_000, seed))
+            assert m.valid, m.reason
+            assert abs(m.value - 1.0) <= m.uncertainty
+            assert m.details["windows"] > 16
+
+    def test_untrackable_chirp_is_never_valid_and_wrong(self):
+        # regression: −20 Hz/s over 2 s (40 Hz, 80 bins) came out valid at +0.93 Hz/s
+        for phase in (0.7, 5.5):
+            m = frequency_drift(self.chirp(-20.0, 20_000, 0, noise=1e-3, phase=phase))
+            assert not m.valid or abs(m.value + 20.0) <= m.uncertainty
+            if not m.valid:
+                assert m.reason

@@ -15,6 +15,8 @@ from benchgate.analysis.uncertainty import clock_std, expand
 #: most windows the steady part is cut into; each holds at least 2 cycles.
 MAX_WINDOWS = 16
 MIN_WINDOWS = 4
+#: most windows when a strong drift needs shorter ones (each still holds at least 2 cycles).
+MAX_REFINED_WINDOWS = 1024
 
 
 def window_phases(y: np.ndarray, omega: float, windows: int,
@@ -62,11 +64,13 @@ def frequency_drift(capture: Capture, *, context: Context | None = None) -> Meas
     Returns
     -------
     Measurement
-        Invalid without a trusted tone or with fewer than 8 cycles (4 windows of 2 cycles).
+        Invalid without a trusted tone, with fewer than 8 cycles (4 windows of 2 cycles), or
+        when the window phases cannot be unwrapped (more than π/4 between neighbours).
 
     Notes
     -----
-    The steady part is cut into 4 to 16 equal windows; a three-parameter fit at the fitted
+    The steady part is cut into 4 to 16 equal windows (more, up to 1024, when the phase
+    turns by more than π/4 between neighbouring windows); a three-parameter fit at the fitted
     frequency gives each window's phase; a least-squares quadratic φ(t) = p₀ + p₁t + p₂t²
     gives the drift df/dt = p₂/π. The phase noise used for U is the larger of the
     regression residual and the Cramér–Rao phase term √(2σ²/(M·A²)) per window of M samples.
@@ -86,13 +90,29 @@ def frequency_drift(capture: Capture, *, context: Context | None = None) -> Meas
                                    f"fewer than {2 * MIN_WINDOWS} cycles in the steady part")
     fs = capture.sample_rate
     y = ctx.y
-    phase, amp, centre = window_phases(y, tone.fit.omega, windows, ctx.fit_workspace())
-    t = (centre - (y.size - 1) / 2.0) / fs
-    v = np.stack([np.ones_like(t), t, t * t], axis=1)
-    coef, *_ = np.linalg.lstsq(v, phase, rcond=None)
+    most = min(MAX_REFINED_WINDOWS, int(tone.cycles // 2))
+    while True:
+        phase, amp, centre = window_phases(y, tone.fit.omega, windows, ctx.fit_workspace())
+        t = (centre - (y.size - 1) / 2.0) / fs
+        v = np.stack([np.ones_like(t), t, t * t], axis=1)
+        coef, *_ = np.linalg.lstsq(v, phase, rcond=None)
+        # a strong drift turns the phase by more than π/4 between neighbouring windows, where
+        # unwrapping becomes ambiguous (and the fixed-ω fit of each window smears): use more,
+        # shorter windows then
+        step = float(np.max(np.abs(coef[1] + 2.0 * coef[2] * t))) * (y.size / windows / fs)
+        if step <= 0.25 * math.pi or windows >= most:
+            break
+        windows = min(4 * windows, most)
     resid = phase - v @ coef
     dof = max(windows - 3, 1)
     s_res = math.sqrt(float(resid @ resid) / dof)
+    if step > 0.25 * math.pi or s_res > 0.25 * math.pi:
+        # neighbouring window phases more than π/4 apart (turning or scattered): unwrapping
+        # them by the nearest multiple of 2π can no longer be trusted
+        return Measurement.invalid(
+            "frequency_drift", "Hz/s", "the phase cannot be followed from window to window "
+            f"(frequency changing too fast or too noisy; phase residual {s_res:.2f} rad)",
+            value=float(coef[2]) / math.pi, windows=windows)
     m = y.size / windows
     s_th = math.sqrt(2.0 * tone.fit.residual_var / (m * tone.fit.amplitude ** 2))
     sigma = max(s_res, s_th)

@@ -195,7 +195,7 @@ def _lstsq_small(g: np.ndarray, r: np.ndarray) -> np.ndarray:
         return np.linalg.lstsq(g, r, rcond=None)[0]
 
 
-def fit4(y: np.ndarray, omega0: float, *, max_iter: int = 12, work: Workspace | None = None) -> SineFit:
+def fit4(y: np.ndarray, omega0: float, *, max_iter: int = 30, work: Workspace | None = None) -> SineFit:
     """Four-parameter sine fit (Gauss–Newton on [A, B, C, Δω]) from a starting frequency.
 
     Parameters
