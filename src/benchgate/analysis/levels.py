@@ -171,7 +171,8 @@ def vpp(capture: Capture, *, context: Context | None = None) -> Measurement:
     whole = y[: bounds[-1]]
     fit = ctx.tone.fit
     curv = 4.0 * fit.amplitude * fit.omega ** 2 if ctx.tone.ok and fit is not None else 0.0
-    ptp = _cycle_peaks(y, whole, starts, 1.0, curv) + _cycle_peaks(y, whole, starts, -1.0, curv)
+    imax, imin = _cycle_extremes(whole, starts)
+    ptp = _refined_peaks(y, imax, 1.0, curv) + _refined_peaks(y, imin, -1.0, curv)
     k = ptp.size
     u_a = float(np.std(ptp, ddof=1)) / math.sqrt(k) if k > 1 else 0.0
     u_s = _sampling_bound(ctx) / math.sqrt(3.0)
@@ -180,30 +181,40 @@ def vpp(capture: Capture, *, context: Context | None = None) -> Measurement:
                                 "cycles": k, "sampling_bound_v": _sampling_bound(ctx)})
 
 
-def _cycle_peaks(y: np.ndarray, whole: np.ndarray, starts: np.ndarray, sign: float,
-                 max_curvature: float) -> np.ndarray:
-    """Per-cycle maximum of ``sign·y``, refined by a parabola through the peak sample and its
-    neighbours (vertex offset limited to ±½ sample; Gasior and Gonzalez 2004 use the same
-    three-point parabola for spectral peaks). A sampled sine's peak sample falls short of
-    the peak by up to A(1 − cos(π/P)) for P samples per period; the parabola leaves far less.
+def _cycle_extremes(whole: np.ndarray, starts: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Index of the (first) largest and smallest sample of each cycle ``starts[i]:starts[i+1]``.
+
+    The cycles differ in length by at most one sample, so one gather into a (cycles × longest)
+    array, the short rows padded with their own first sample, serves both.
+    """
+    ends = np.r_[starts[1:], whole.size]
+    longest = int(np.max(ends - starts))
+    idx = starts[:, None] + np.arange(longest)[None, :]
+    idx = np.where(idx < ends[:, None], idx, starts[:, None])
+    g = whole[idx]
+    rows = np.arange(starts.size)
+    return idx[rows, np.argmax(g, axis=1)], idx[rows, np.argmin(g, axis=1)]
+
+
+def _refined_peaks(y: np.ndarray, at: np.ndarray, sign: float, max_curvature: float) -> np.ndarray:
+    """Per-cycle peak of ``sign·y`` at sample indices ``at``, refined by a parabola through the
+    peak sample and its neighbours (vertex offset limited to ±½ sample; Gasior and Gonzalez
+    2004 use the same three-point parabola for spectral peaks). A sampled sine's peak sample
+    falls short of the peak by up to A(1 − cos(π/P)) for P samples per period; the parabola
+    leaves far less.
 
     Only strict local maxima whose second difference is no sharper than ``max_curvature``
     (4·A·ω², four times a sine's own) are refined: the corner of a square wave's flat top
     next to its edge would otherwise overshoot by a large part of the step."""
-    v = whole if sign > 0 else -whole
-    peaks = np.maximum.reduceat(v, starts)
-    lengths = np.diff(np.r_[starts, whole.size])
-    hit = np.flatnonzero(v == np.repeat(peaks, lengths))
-    seg = np.searchsorted(starts, hit, side="right") - 1
-    first = hit[np.r_[True, seg[1:] != seg[:-1]]] if hit.size else hit
-    i = first[(first > 0) & (first < y.size - 1)]
-    seg_i = np.searchsorted(starts, i, side="right") - 1
+    peaks = sign * y[at]
+    inner = (at > 0) & (at < y.size - 1)
+    i = at[inner]
     a, b, c = sign * y[i - 1], sign * y[i], sign * y[i + 1]
     den = a - 2.0 * b + c
     ok = (b > a) & (b > c) & (-den <= max_curvature)
     delta = np.clip(np.where(ok, (a - c) / np.where(ok, 2.0 * den, 1.0), 0.0), -0.5, 0.5)
     vertex = b + 0.5 * (c - a) * delta + 0.5 * den * delta * delta
-    peaks[seg_i] = np.maximum(peaks[seg_i], np.where(ok, vertex, b))
+    peaks[inner] = np.where(ok, np.maximum(vertex, b), b)
     return peaks
 
 

@@ -8,6 +8,7 @@ measurements need.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 
@@ -65,6 +66,15 @@ def window(name: str, n: int, *, sym: bool = False) -> np.ndarray:
         w *= c1
         w += coef
     return w
+
+
+@lru_cache(maxsize=4)
+def _periodic_window(name: str, n: int) -> tuple[np.ndarray, float]:
+    """Read-only periodic window and its Σw², kept for the next record of the same length
+    (a station analyses many records of one length; the window costs about one transform)."""
+    w = window(name, n)
+    w.setflags(write=False)
+    return w, float(np.einsum("i,i->", w, w))
 
 
 def _coefficients(name: str) -> tuple[float, ...]:
@@ -174,7 +184,7 @@ def power_spectrum(x: np.ndarray, sample_rate: float, window_name: str = "blackm
     """
     x = np.asarray(x, dtype=float)
     n = x.size
-    w = window(window_name, n)
+    w, w_sq = _periodic_window(window_name, n)
     if detrend and n < 16:  # too short for the bin-wise correction below (bins would wrap)
         x = x - x.mean()
         detrend = False
@@ -189,7 +199,7 @@ def power_spectrum(x: np.ndarray, sample_rate: float, window_name: str = "blackm
             xf[k] -= mean * n * (a if k == 0 else (-1) ** k * a / 2.0)
     power = xf.real * xf.real
     power += xf.imag * xf.imag
-    power *= 2.0 / (n * float(np.einsum("i,i->", w, w)))
+    power *= 2.0 / (n * w_sq)
     power[0] *= 0.5
     if n % 2 == 0:
         power[-1] *= 0.5
@@ -245,10 +255,10 @@ def coarse_frequency(x: np.ndarray, sample_rate: float) -> float:
     x = x - x.mean()
     if n <= 65536:
         pad = 8
-        mag = np.abs(np.fft.rfft(x * window("hann", n), n * pad))
+        mag = np.abs(np.fft.rfft(x * _periodic_window("hann", n)[0], n * pad))
     else:
         pad = 1
-        mag = np.abs(np.fft.rfft(x * window("blackmanharris", n)))
+        mag = np.abs(np.fft.rfft(x * _periodic_window("blackmanharris", n)[0]))
     lo = pad  # one cycle per record
     if mag.size <= lo + 1 or not np.any(mag[lo:] > 0):
         return 0.0
