@@ -25,20 +25,32 @@ def crossings(x: np.ndarray, low: float, high: float) -> tuple[np.ndarray, np.nd
     """
     span = high - low
     mid = low + 0.5 * span
-    band = np.zeros(x.size, dtype=np.int8)
-    band[x >= low + 0.7 * span] = 1
-    band[x <= low + 0.3 * span] = -1
-    where = np.flatnonzero(band)  # samples inside the upper or lower band
-    state = band[where]
-    turn = np.flatnonzero(state[1:] != state[:-1]) + 1
-    at = where[turn]  # first sample in the new band
-    rising_at = at[state[turn] == 1]
-    falling_at = at[state[turn] == -1]
-    return _instants(x, rising_at, x < mid, mid), _instants(x, falling_at, x > mid, mid)
+    up = x >= low + 0.7 * span
+    down = x <= low + 0.3 * span
+    # a transition is the first sample of an upper-band run after a lower-band run (or back);
+    # runs of one band separated only by middle samples are one stay in that band
+    up_starts = _run_starts(up)
+    down_starts = _run_starts(down)
+    idx = np.concatenate((up_starts, down_starts))
+    kind = np.concatenate((np.ones(up_starts.size, np.int8), -np.ones(down_starts.size, np.int8)))
+    order = np.argsort(idx, kind="stable")
+    idx, kind = idx[order], kind[order]
+    turn = np.flatnonzero(kind[1:] != kind[:-1]) + 1
+    rising_at = idx[turn][kind[turn] == 1]
+    falling_at = idx[turn][kind[turn] == -1]
+    # the last sample on the far side of 50 % before a transition is always the start of a
+    # 50 % crossing, so only the (few) crossings need searching
+    rise_cross = np.flatnonzero((x[:-1] < mid) & (x[1:] >= mid))
+    fall_cross = np.flatnonzero((x[:-1] > mid) & (x[1:] <= mid))
+    return _instants(x, rising_at, rise_cross, mid), _instants(x, falling_at, fall_cross, mid)
 
 
-def _instants(x: np.ndarray, at: np.ndarray, before: np.ndarray, mid: float) -> np.ndarray:
-    candidates = np.flatnonzero(before)
+def _run_starts(mask: np.ndarray) -> np.ndarray:
+    starts = np.flatnonzero(mask[1:] & ~mask[:-1]) + 1
+    return np.concatenate(([0], starts)) if mask.size and mask[0] else starts
+
+
+def _instants(x: np.ndarray, at: np.ndarray, candidates: np.ndarray, mid: float) -> np.ndarray:
     pos = np.searchsorted(candidates, at) - 1
     ok = pos >= 0
     i = candidates[pos[ok]]
