@@ -6,7 +6,8 @@ import math
 
 import numpy as np
 
-from benchgate.analysis._steady import NOT_STEADY, STILL_CHANGING
+from benchgate.analysis import sinefit
+from benchgate.analysis._steady import NOT_STEADY, STILL_CHANGING, TAIL_FRACTION
 from benchgate.analysis.capture import Capture
 from benchgate.analysis.context import (
     NO_OSCILLATION,
@@ -110,34 +111,34 @@ def amplitude(capture: Capture, *, context: Context | None = None) -> Measuremen
 
 
 def _settling(ctx: Context) -> float:
-    """Relative amount by which the steady part's envelope still differs from its final level.
+    """Relative amount by which the steady part's amplitude still differs from its final one.
 
     The steady part may begin while the amplitude is still within the steady band (1 % of the
     level) but not yet settled, e.g. the slow tail of an exponential approach; the fit then
-    averages over that tail. When the envelope's mean over the steady part differs from the
-    final level (median of the last quarter) by more than three standard deviations of that
-    difference (envelope noise (4σ²S + 2σ⁴)/M per window of M samples, S = A²/2, as in
-    :func:`benchgate.analysis._steady.find_steady`), the difference is returned as a
-    standard uncertainty term (relative); else 0. (Derived; common practice for a settling
-    systematic effect, JCGM 100:2008 F.2.)
+    averages over that tail. The fitted amplitude is compared with a three-parameter fit (same
+    frequency) to the last quarter of the record; when they differ by more than three standard
+    deviations of the difference (nested least-squares estimates: var = 2σ²(1/K − 1/N), K and
+    N the samples of the quarter and of the steady part; Rife and Boorstyn 1974 for 2σ²/N),
+    the difference is returned as a standard uncertainty term (relative); else 0.
+    (Derived; a settling systematic effect, JCGM 100:2008 F.2.)
     """
-    env, steady, fit = ctx.envelope, ctx.steady, ctx.tone.fit
-    if env is None or fit is None or not steady.level > 0 or env.level.size < 4:
+    return ctx.memo("settling", lambda: _settling_compute(ctx))
+
+
+def _settling_compute(ctx: Context) -> float:
+    fit = ctx.tone.fit
+    if fit is None or not fit.amplitude > 0:
         return 0.0
-    part = env.level[env.centre >= ctx.start + 0.5 * env.window]
-    if part.size < 4:
+    y = ctx.y
+    k = min(int(TAIL_FRACTION * ctx.capture.n), y.size)
+    if k < 16 or k > 0.8 * y.size:
         return 0.0
-    diff = float(np.mean(part)) - steady.level
-    level = steady.level
-    s2 = fit.residual_var
-    m = env.window
-    sd_env = math.sqrt(max(4.0 * s2 * 0.5 * level * level + 2.0 * s2 * s2, 0.0) / m) / level
-    windows_steady = max(fit.n / m, 1.0)
-    windows_tail = max(0.25 * ctx.capture.n / m, 1.0)
-    sd_diff = sd_env * math.sqrt(1.0 / windows_steady + 1.57 / windows_tail)  # median: π/2 × var
-    if abs(diff) <= 3.0 * sd_diff:
+    tail = sinefit.fit3(y[-k:], fit.omega)
+    diff = fit.amplitude - tail.amplitude
+    sd = math.sqrt(max(2.0 * fit.residual_var * (1.0 / k - 1.0 / y.size), 0.0))
+    if abs(diff) <= 3.0 * sd:
         return 0.0
-    return abs(diff) / level
+    return abs(diff) / fit.amplitude
 
 
 def vpp(capture: Capture, *, context: Context | None = None) -> Measurement:
