@@ -205,3 +205,18 @@ class TestSettling:
         m = amplitude(Capture(x, fs))
         assert m.valid
         assert abs(m.value - 1.0) <= m.uncertainty
+
+    def test_steady_tones_get_no_settling_term(self):
+        # a steady sine has nothing left to settle: its U stays the Cramér–Rao term
+        # √(2σ²/N)·2 (Rife and Boorstyn 1974), also for coarsely sampled tones, whose envelope
+        # ripples (that ripple once passed for settling)
+        rng = np.random.default_rng(2)
+        fs, n = 1e4, 20_000
+        t = np.arange(n) / fs
+        flagged = 0
+        for f in (1234.5, 2500.3, 3456.7, 4321.0, 2999.9, 3333.1):
+            x = np.sin(2 * np.pi * f * t + 1.0) + rng.normal(0, 0.0071, n)
+            m = amplitude(Capture(x, fs))
+            assert m.valid
+            flagged += "settling_v" in m.details
+        assert flagged == 0
