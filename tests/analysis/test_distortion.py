@@ -158,3 +158,19 @@ class TestSnrBesideStrongHarmonics:
         m = snr(Capture(x, fs))
         assert m.valid
         assert abs(m.value - 10 * math.log10(0.5 / 1e-10)) <= max(m.uncertainty, 0.5)
+
+
+class TestNothingToSum:
+    def test_no_harmonic_below_nyquist_is_invalid(self):
+        # regression: a 3 kHz tone sampled at 10 kHz has its 2nd harmonic above Nyquist
+        # (Nyquist–Shannon: only f < fs/2 is represented); THD came out a valid 0 %
+        cap, _, _ = tone(20_000, 6000.3, fs=10_000.0)
+        m = thd(cap)
+        assert not m.valid and "Nyquist" in m.reason
+
+    def test_harmonics_one_is_invalid(self):
+        from benchgate.analysis import analyze
+
+        cap, _, _ = tone(20_000, 2000.3, fs=10_000.0)
+        m = analyze(cap, harmonics=1).measurements["thd"]
+        assert not m.valid and m.reason

@@ -158,6 +158,11 @@ def thd(capture: Capture, *, harmonics: int = 10, context: Context | None = None
     h = harmonic_analysis(ctx)
     if h.reason:
         return Measurement.invalid("thd", "%", h.reason)
+    if not h.orders:
+        # nothing summed is no evidence of low distortion
+        why = ("no harmonic order requested (harmonics < 2)" if ctx.harmonics < 2
+               else "no harmonic lies below Nyquist (fundamental above a quarter of the sample rate)")
+        return Measurement.invalid("thd", "%", why)
     ratio = math.sqrt(h.harmonic_power / h.p1)
     u = math.sqrt(ratio * ratio + _harmonic_power_std(h) / h.p1) - ratio
     return Measurement("thd", 100.0 * ratio, "%", 200.0 * u, details=_details(h))
