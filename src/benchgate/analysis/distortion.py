@@ -21,7 +21,7 @@ from benchgate.analysis.context import Context, get_context
 from benchgate.analysis.measurement import Measurement
 
 _TINY = 1e-300
-#: above this fundamental-to-NAD ratio (65 dB) the Blackman–Harris window's far leakage
+#: above this fundamental-to-noise ratio (65 dB) the Blackman–Harris window's far leakage
 #: (about −88 dBc summed over the band) would bias the noise, so the noise and harmonics
 #: are measured on the spectrum of the sine-fit residual instead (one more transform).
 LEAKAGE_LIMIT = 10 ** 6.5
