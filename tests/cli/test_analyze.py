@@ -97,7 +97,7 @@ class TestJson:
         assert d["capture"]["duration"] == pytest.approx(0.4)
         assert list(d["measurements"]) == ["frequency", "amplitude", "vpp", "rms", "dc_offset", "thd", "thd_n",
                                            "sinad", "snr", "sfdr", "enob", "startup_time", "duty_cycle",
-                                           "frequency_drift"]
+                                           "frequency_drift", "amplitude_dip"]
         f = d["measurements"]["frequency"]
         assert f["unit"] == "Hz" and f["valid"] is True and f["reason"] is None and f["uncertainty"] > 0
 

@@ -21,6 +21,7 @@ MEASUREMENT_UNITS: dict[str, str] = {
     "startup_time": "s",
     "duty_cycle": "%",
     "frequency_drift": "Hz/s",
+    "amplitude_dip": "%",
 }
 
 MEASUREMENT_NAMES: tuple[str, ...] = tuple(MEASUREMENT_UNITS)
@@ -41,6 +42,7 @@ MEASUREMENT_TITLES: dict[str, str] = {
     "startup_time": "time from record start to 90 % of steady amplitude",
     "duty_cycle": "high-time duty cycle at the 50 % reference level",
     "frequency_drift": "slope of frequency over the steady part",
+    "amplitude_dip": "deepest dip of the envelope below its median after start-up (dropouts)",
 }
 
 #: single readings a `reading` step can take from a dmm, counter or supply -> unit.

@@ -14,6 +14,7 @@ from benchgate.analysis.frequency import frequency
 from benchgate.analysis.levels import amplitude, dc_offset, rms, vpp
 from benchgate.analysis.measurement import Measurement
 from benchgate.analysis.pulse import duty_cycle
+from benchgate.analysis.stability import amplitude_dip
 from benchgate.analysis.transient import startup_time
 
 MeasurementFunction = Callable[..., Measurement]  # f(capture, *, context) -> Measurement
@@ -33,6 +34,7 @@ MEASUREMENTS: Mapping[str, MeasurementFunction] = MappingProxyType({
     "startup_time": startup_time,
     "duty_cycle": duty_cycle,
     "frequency_drift": frequency_drift,
+    "amplitude_dip": amplitude_dip,
 })
 
 

@@ -19,7 +19,7 @@ MIN_CYCLES = 5
 HARMONIC_CHECKS = ("thd", "thd_n", "sinad", "snr", "sfdr", "enob")
 #: measurements that need whole cycles of the waveform
 CYCLE_CHECKS = ("frequency", "amplitude", "vpp", "rms", "thd", "thd_n", "sinad", "snr", "sfdr",
-                "enob", "duty_cycle", "frequency_drift", "startup_time")
+                "enob", "duty_cycle", "frequency_drift", "startup_time", "amplitude_dip")
 
 Pos = dict[str, tuple[int, int]]
 
