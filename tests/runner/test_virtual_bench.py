@@ -104,9 +104,13 @@ def test_wrong_capacitor_fails_frequency(vbench, plan, tmp_path):
 @pytest.mark.parametrize("defect", ["supply_noise", "intermittent"])
 def test_subtle_defects_do_not_pass(vbench, plan, tmp_path, defect):
     (outcome,), _ = run_units(vbench, plan, tmp_path, [(f"OH-S-{defect}", defect)])
-    # noise and dropouts leave THD alone but raise THD+N (IEEE Std 1241-2010: THD+N = 1/SINAD)
-    thd_n = checks_of(outcome, "steady")["thd_n"]
-    assert thd_n.verdict == Verdict.FAIL and "above 5.000 %" in thd_n.reason
+    # noise and dropouts leave THD alone but raise THD+N (IEEE Std 1241-2010: THD+N = 1/SINAD);
+    # a dropout also shows as a deep dip of the envelope (whichever the record caught)
+    steady = checks_of(outcome, "steady")
+    caught = [c for c in (steady["thd_n"], steady["amplitude_dip"]) if c.verdict == Verdict.FAIL]
+    assert caught and all("above" in c.reason for c in caught)
+    if defect == "supply_noise":
+        assert steady["thd_n"].verdict == Verdict.FAIL
     assert outcome.record.verdict == Verdict.FAIL
 
 
