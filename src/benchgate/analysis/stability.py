@@ -65,11 +65,12 @@ def amplitude_dip(capture: Capture, *, context: Context | None = None) -> Measur
         return Measurement.invalid("amplitude_dip", "%", "too little record after start-up to judge the envelope")
     # judged from where the envelope first settles within SETTLED of its typical level, so the
     # slow end of a start-up is not counted as a dip, while every later dropout is
-    settled = np.nonzero(env.level[after] >= SETTLED * float(np.median(tail)))[0]
+    level, begins = env.level[after], begins[after]
+    settled = np.nonzero(level >= SETTLED * float(np.median(tail)))[0]
     if settled.size == 0:
         return Measurement.invalid("amplitude_dip", "%", "the envelope never settles after start-up")
-    level = env.level[after][settled[0]:]
-    first = float(begins[after][settled[0]])
+    level = level[settled[0]:]
+    first = float(begins[settled[0]])
     if level.size < MIN_POINTS:
         return Measurement.invalid("amplitude_dip", "%",
                                    "too little record after start-up to judge the envelope")
