@@ -1,4 +1,4 @@
-"""Per-unit overhead of the runner on the virtual bench (target: 0.5 s per unit).
+"""Per-unit overhead of the runner on the understudy bench (target: 0.5 s per unit).
 
 Overhead = wall time per unit minus the wall time the plan itself asks for (capture durations,
 waits and settle times, divided by the bench's speed-up), reports and database included. Runs a
@@ -41,11 +41,11 @@ def main() -> None:
     from benchgate.runner.demo import find_plan
     from benchgate.runner.options import RunOptions
     from benchgate.runner.session import Runner
-    from benchgate.sim.bench import VirtualBench
+    from benchgate.sim.bench import UnderstudyBench
 
     plan = load_plan(find_plan())
     asked = requested_seconds(plan) / args.speed
-    with tempfile.TemporaryDirectory() as tmp, VirtualBench("tb3", speed=args.speed, workdir=tmp) as vb:
+    with tempfile.TemporaryDirectory() as tmp, UnderstudyBench("tb3", speed=args.speed, workdir=tmp) as vb:
         station = load_station(vb.station_path)
         options = RunOptions(reports_dir=Path(tmp) / "reports", unattended=True, accept_hazards=True,
                              clock=vb.clock, ui="quiet")

@@ -2,7 +2,7 @@
 
 For each sample rate (device paced in real time), one 0.5 s capture through SerialAdc; prints
 the wall time it took and the ratio of delivered samples/s to the rate asked for (1.00 = the host
-kept up). Shows how far rate × virtual-bench speed can go on this machine. Not a test.
+kept up). Shows how far rate × understudy-bench speed can go on this machine. Not a test.
 Run: .venv/bin/python bench/bench_serial_pty.py
 """
 

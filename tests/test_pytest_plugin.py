@@ -18,7 +18,7 @@ pytest_plugins = ["pytester"]
 
 REPO = Path(__file__).resolve().parents[1]
 TB3 = REPO / "testplans" / "tb3.yaml"
-SPEED = 5.0  # as the runner's own virtual-bench tests
+SPEED = 5.0  # as the runner's own understudy-bench tests
 
 
 @pytest.fixture(scope="module")
@@ -203,14 +203,14 @@ def test_a_run_that_cannot_start_errors_every_item(plan_dir, pytester, monkeypat
     assert "ERROR: benchgate could not run the plan: plan has hazards" in result.stdout.str()
 
 
-# ------------------------------------------------------------------ a CI-style session on the virtual bench
+# ------------------------------------------------------------------ a CI-style session on the understudy bench
 
 
 @pytest.fixture
-def vbench(tmp_path):
-    from benchgate.sim.bench import VirtualBench
+def ubench(tmp_path):
+    from benchgate.sim.bench import UnderstudyBench
 
-    with VirtualBench("tb3", speed=SPEED, workdir=tmp_path / "vb") as vb:
+    with UnderstudyBench("tb3", speed=SPEED, workdir=tmp_path / "vb") as vb:
         yield vb
 
 
@@ -233,9 +233,9 @@ def _db_rows(reports):
         conn.close()
 
 
-def test_ci_session_good_unit(pytester, vbench, tmp_path, plan):
-    vbench.load_unit("OH-PT-1")
-    result, junit, reports = _ci_session(pytester, vbench, "OH-PT-1", tmp_path)
+def test_ci_session_good_unit(pytester, ubench, tmp_path, plan):
+    ubench.load_unit("OH-PT-1")
+    result, junit, reports = _ci_session(pytester, ubench, "OH-PT-1", tmp_path)
     assert result.ret == 0, result.stdout.str()
     suite, cases = _junit(junit)
     assert suite.get("failures") == "0" and suite.get("errors") == "0"
@@ -245,9 +245,9 @@ def test_ci_session_good_unit(pytester, vbench, tmp_path, plan):
     assert Path(report).exists()
 
 
-def test_ci_session_defective_unit(pytester, vbench, tmp_path):
-    vbench.load_unit("OH-PT-2", "high_gain")  # interfaces.md: clipping, high THD
-    result, junit, reports = _ci_session(pytester, vbench, "OH-PT-2", tmp_path)
+def test_ci_session_defective_unit(pytester, ubench, tmp_path):
+    ubench.load_unit("OH-PT-2", "high_gain")  # interfaces.md: clipping, high THD
+    result, junit, reports = _ci_session(pytester, ubench, "OH-PT-2", tmp_path)
     assert result.ret == pytest.ExitCode.TESTS_FAILED
     suite, cases = _junit(junit)
     thd = cases[("steady", "thd")]

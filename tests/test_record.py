@@ -39,7 +39,7 @@ def make_record() -> UnitRecord:
     )
     return UnitRecord(
         run_id="r1", serial="TB3-0001 <x>", plan_id="tb3", plan_version="1", plan_hash="h",
-        plan_path="testplans/tb3.yaml", product="TB-3", station_id="virtual-bench",
+        plan_path="testplans/tb3.yaml", product="TB-3", station_id="understudy-bench",
         operator="Ada", lot="L1", started="2026-12-01T10:00:00Z", software_version="0.1.0",
         decision_rule="simple", ended="2026-12-01T10:00:02Z", verdict=Verdict.ERROR,
         reason="thd not valid", steps=[step],

@@ -1,7 +1,7 @@
-"""Time, injectable: the runner's waits and the virtual bench's pacing share one clock.
+"""Time, injectable: the runner's waits and the understudy bench's pacing share one clock.
 
 ``SystemClock`` is real time. ``ScaledClock(speed)`` runs ``speed`` times faster than real
-time (an accelerated virtual bench: a 2 s warm-up takes 2/speed s of wall time while the
+time (an accelerated understudy bench: a 2 s warm-up takes 2/speed s of wall time while the
 simulated board sees 2 s pass). ``ManualClock`` only moves when told (unit tests).
 """
 

@@ -41,7 +41,7 @@ def pytest_addoption(parser):
     group.addoption("--bench-lot", default=None, metavar="LOT", help="lot of the unit (recorded)")
     group.addoption("--bench-operator", default=None, metavar="NAME", help="operator or CI job name (recorded)")
     group.addoption("--bench-clock-speed", default=None, type=float, metavar="X",
-                    help="virtual seconds per wall-clock second, for an accelerated virtual bench")
+                    help="virtual seconds per wall-clock second, for an accelerated understudy bench")
 
 
 def pytest_configure(config):

@@ -76,10 +76,10 @@ def test_unknown_instrument_and_bad_duration(tmp_path, capsys):
 
 def test_capture_with_the_supply_powers_the_unit_then_switches_off(tmp_path, capsys):
     from benchgate.analysis import analyze
-    from benchgate.sim.bench import VirtualBench
+    from benchgate.sim.bench import UnderstudyBench
 
     out = tmp_path / "tone.npz"
-    with VirtualBench("tb3", workdir=tmp_path / "vb") as vb:
+    with UnderstudyBench("tb3", workdir=tmp_path / "vb") as vb:
         code = main(["capture", str(vb.station_path), "--instrument", "adc", "--duration", "300ms",
                      "--supply", "9V", "--current-limit", "50mA", "--settle", "200ms",
                      "--out", str(out)])

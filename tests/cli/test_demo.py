@@ -1,4 +1,4 @@
-"""``benchgate demo``: a simulated lot on the virtual bench, reports, summary, table or JSON."""
+"""``benchgate demo``: a simulated lot on the understudy bench, reports, summary, table or JSON."""
 
 from __future__ import annotations
 

@@ -15,11 +15,11 @@ TB3 = REPO / "testplans" / "tb3.yaml"
 
 @pytest.fixture(scope="module")
 def stored(tmp_path_factory):
-    """One good unit run on the virtual bench; the bench is gone afterwards."""
-    from benchgate.sim.bench import VirtualBench
+    """One good unit run on the understudy bench; the bench is gone afterwards."""
+    from benchgate.sim.bench import UnderstudyBench
 
     root = tmp_path_factory.mktemp("reanalyze")
-    with VirtualBench("tb3", speed=4.0, workdir=root / "vb") as vb:
+    with UnderstudyBench("tb3", speed=4.0, workdir=root / "vb") as vb:
         vb.load_unit("OH-RE-1")
         code = main(["run", str(TB3), "--station", str(vb.station_path), "--serial", "OH-RE-1",
                      "--unattended", "--display", "quiet", "--reports", str(root / "reports"),

@@ -1,4 +1,4 @@
-"""``benchgate run``: usage errors, unreachable instruments, and full runs on the virtual bench."""
+"""``benchgate run``: usage errors, unreachable instruments, and full runs on the understudy bench."""
 
 from __future__ import annotations
 
@@ -95,14 +95,14 @@ def test_unreachable_instrument_is_error_with_report_and_row(tmp_path, capsys):
     assert (tmp_path / "j.xml").exists()
 
 
-# ---------------------------------------------------------------- on the virtual bench
+# ---------------------------------------------------------------- on the understudy bench
 
 
 @pytest.fixture
-def vbench(tmp_path):
-    from benchgate.sim.bench import VirtualBench
+def ubench(tmp_path):
+    from benchgate.sim.bench import UnderstudyBench
 
-    with VirtualBench("tb3", speed=SPEED, workdir=tmp_path / "vb") as vb:
+    with UnderstudyBench("tb3", speed=SPEED, workdir=tmp_path / "vb") as vb:
         yield vb
 
 
@@ -128,16 +128,16 @@ def wait_for_event(path, event, step, proc, timeout=60.0):
     raise AssertionError(f"no {event} for {step} within {timeout} s")
 
 
-def test_good_unit_in_process_with_junit_and_events(vbench, tmp_path, capsys):
-    vbench.load_unit("OH-CLI-1")
+def test_good_unit_in_process_with_junit_and_events(ubench, tmp_path, capsys):
+    ubench.load_unit("OH-CLI-1")
     junit, events = tmp_path / "ci" / "junit.xml", tmp_path / "ev.jsonl"
-    code = main(["run", str(TB3), "--station", str(vbench.station_path), "--serial", "OH-CLI-1",
+    code = main(["run", str(TB3), "--station", str(ubench.station_path), "--serial", "OH-CLI-1",
                  "--unattended", "--reports", str(tmp_path / "r"), "--clock-speed", str(SPEED),
                  "--junit", str(junit), "--events", str(events), "--operator", "Wren", "--lot", "L7"])
     out = capsys.readouterr().out
     assert code == 0, out
     assert "[3/7] power-on" in out and "PASS" in out and "\x1b[" not in out  # plain: not a terminal
-    assert vbench.supply_output is False
+    assert ubench.supply_output is False
     import xml.etree.ElementTree as ET
 
     from benchgate.plan import load_plan
@@ -155,9 +155,9 @@ def test_good_unit_in_process_with_junit_and_events(vbench, tmp_path, capsys):
     assert report["operator"] == "Wren" and report["lot"] == "L7" and report["flags"]["unattended"] is True
 
 
-def test_ci_true_without_terminal_implies_unattended(vbench, tmp_path):
-    vbench.load_unit("OH-CI-1")
-    proc = bg("run", TB3, "--station", vbench.station_path, "--serial", "OH-CI-1", "--reports",
+def test_ci_true_without_terminal_implies_unattended(ubench, tmp_path):
+    ubench.load_unit("OH-CI-1")
+    proc = bg("run", TB3, "--station", ubench.station_path, "--serial", "OH-CI-1", "--reports",
               tmp_path / "r", "--clock-speed", SPEED, env={"CI": "true"}, stdin=subprocess.DEVNULL)
     out, err = proc.communicate(timeout=120)
     assert proc.returncode == 0, (out, err)
@@ -167,25 +167,25 @@ def test_ci_true_without_terminal_implies_unattended(vbench, tmp_path):
     assert report["steps"][1]["answer"] == "yes"  # the plan's unattended_answer
 
 
-def test_unattended_prompt_without_scripted_answer_is_error(vbench, tmp_path):
+def test_unattended_prompt_without_scripted_answer_is_error(ubench, tmp_path):
     text = TB3.read_text()
     assert "    unattended_answer: yes\n" in text
     plan = tmp_path / "tb3-no-script.yaml"
     plan.write_text(text.replace("    unattended_answer: yes\n", ""))
-    vbench.load_unit("OH-NS-1")
-    proc = bg("run", plan, "--station", vbench.station_path, "--serial", "OH-NS-1", "--unattended",
+    ubench.load_unit("OH-NS-1")
+    proc = bg("run", plan, "--station", ubench.station_path, "--serial", "OH-NS-1", "--unattended",
               "--reports", tmp_path / "r", "--clock-speed", SPEED, stdin=subprocess.DEVNULL)
     out, err = proc.communicate(timeout=120)
     assert proc.returncode == 3, (out, err)
-    assert vbench.supply_output is False
+    assert ubench.supply_output is False
     (row,) = rows(tmp_path / "r" / "results.sqlite")
     assert row[1:3] == (1, "error")
     assert "unattended_answer" in row[3] and "connect" in row[3]
     assert "Traceback" not in err
 
 
-def test_batch_reads_serials_until_empty_line(vbench, tmp_path):
-    proc = bg("run", TB3, "--station", vbench.station_path, "--batch", "--unattended", "--reports",
+def test_batch_reads_serials_until_empty_line(ubench, tmp_path):
+    proc = bg("run", TB3, "--station", ubench.station_path, "--batch", "--unattended", "--reports",
               tmp_path / "r", "--clock-speed", SPEED, stdin=subprocess.PIPE)
     out, err = proc.communicate("OH-B-1\r\nOH-B-2\n\nOH-B-never\n", timeout=120)
     assert proc.returncode == 0, (out, err)
@@ -193,18 +193,18 @@ def test_batch_reads_serials_until_empty_line(vbench, tmp_path):
     assert sorted(r[0] for r in rows(tmp_path / "r" / "results.sqlite")) == ["OH-B-1", "OH-B-2"]
 
 
-def test_sigint_aborts_with_report_supply_off_and_complete_row(vbench, tmp_path):
-    vbench.load_unit("OH-INT-1")
+def test_sigint_aborts_with_report_supply_off_and_complete_row(ubench, tmp_path):
+    ubench.load_unit("OH-INT-1")
     events = tmp_path / "ev.jsonl"
     # the run's own clock is real time here, so the 2 s warm-up leaves room to interrupt it
-    proc = bg("run", TB3, "--station", vbench.station_path, "--serial", "OH-INT-1", "--unattended",
+    proc = bg("run", TB3, "--station", ubench.station_path, "--serial", "OH-INT-1", "--unattended",
               "--reports", tmp_path / "r", "--events", events, stdin=subprocess.DEVNULL)
     wait_for_event(events, "step_started", "warm-up", proc)
-    assert vbench.supply_output is True  # the unit is powered while it warms up
+    assert ubench.supply_output is True  # the unit is powered while it warms up
     proc.send_signal(signal.SIGINT)
     out, err = proc.communicate(timeout=60)
     assert proc.returncode == 130, (out, err)
-    assert vbench.supply_output is False
+    assert ubench.supply_output is False
     (row,) = rows(tmp_path / "r" / "results.sqlite")
     assert row[:3] == ("OH-INT-1", 1, "aborted")
     report = valid_report(row[4])
@@ -215,10 +215,10 @@ def test_sigint_aborts_with_report_supply_off_and_complete_row(vbench, tmp_path)
 
 
 def test_sigint_during_a_capture_switches_off_and_aborts(tmp_path):
-    from benchgate.sim.bench import VirtualBench
+    from benchgate.sim.bench import UnderstudyBench
 
     # a slow bench: the 0.4 s start-up capture takes 0.8 s of wall time
-    with VirtualBench("tb3", speed=0.5, workdir=tmp_path / "vb") as vb:
+    with UnderstudyBench("tb3", speed=0.5, workdir=tmp_path / "vb") as vb:
         vb.load_unit("OH-INT-3")
         events = tmp_path / "ev.jsonl"
         proc = bg("run", TB3, "--station", vb.station_path, "--serial", "OH-INT-3", "--unattended",
@@ -239,10 +239,10 @@ def test_sigint_during_a_capture_switches_off_and_aborts(tmp_path):
     assert report["steps"][2]["status"] == "aborted" and "power-on" in report["reason"]
 
 
-def test_second_sigint_during_cleanup_still_leaves_supply_off(vbench, tmp_path):
-    vbench.load_unit("OH-INT-2")
+def test_second_sigint_during_cleanup_still_leaves_supply_off(ubench, tmp_path):
+    ubench.load_unit("OH-INT-2")
     events = tmp_path / "ev.jsonl"
-    proc = bg("run", TB3, "--station", vbench.station_path, "--serial", "OH-INT-2", "--unattended",
+    proc = bg("run", TB3, "--station", ubench.station_path, "--serial", "OH-INT-2", "--unattended",
               "--reports", tmp_path / "r", "--events", events, stdin=subprocess.DEVNULL)
     wait_for_event(events, "step_started", "warm-up", proc)
     proc.send_signal(signal.SIGINT)
@@ -255,15 +255,15 @@ def test_second_sigint_during_cleanup_still_leaves_supply_off(vbench, tmp_path):
             break
     out, err = proc.communicate(timeout=60)
     assert proc.returncode == 130, (out, err)
-    assert vbench.supply_output is False
+    assert ubench.supply_output is False
     (row,) = rows(tmp_path / "r" / "results.sqlite")
     assert row[1:3] == (1, "aborted")
 
 
-def test_kill_9_leaves_an_incomplete_row(vbench, tmp_path, capsys):
-    vbench.load_unit("OH-KILL-1")
+def test_kill_9_leaves_an_incomplete_row(ubench, tmp_path, capsys):
+    ubench.load_unit("OH-KILL-1")
     events = tmp_path / "ev.jsonl"
-    proc = bg("run", TB3, "--station", vbench.station_path, "--serial", "OH-KILL-1", "--unattended",
+    proc = bg("run", TB3, "--station", ubench.station_path, "--serial", "OH-KILL-1", "--unattended",
               "--reports", tmp_path / "r", "--events", events, stdin=subprocess.DEVNULL)
     wait_for_event(events, "step_started", "warm-up", proc)
     proc.kill()
@@ -275,18 +275,18 @@ def test_kill_9_leaves_an_incomplete_row(vbench, tmp_path, capsys):
     assert code == 0 and "OH-KILL-1" in out and "incomplete" in out.lower()
 
 
-def test_hazards_need_accept_flag_when_unattended_and_are_recorded(vbench, tmp_path, capsys):
+def test_hazards_need_accept_flag_when_unattended_and_are_recorded(ubench, tmp_path, capsys):
     text = TB3.read_text()
     assert "hazards: []" in text
     plan = tmp_path / "tb3-hot.yaml"
     plan.write_text(text.replace("hazards: []", "hazards:\n  - name: hot_surfaces\n"
                                  "    text: The regulator <U1> reaches 70 °C; let it cool before handling."))
-    base = ["run", str(plan), "--station", str(vbench.station_path), "--serial", "OH-HOT-1", "--unattended",
+    base = ["run", str(plan), "--station", str(ubench.station_path), "--serial", "OH-HOT-1", "--unattended",
             "--reports", str(tmp_path / "r"), "--clock-speed", str(SPEED), "--display", "quiet"]
     assert main(base) == 2
     assert "--accept-hazards" in capsys.readouterr().err
     assert not (tmp_path / "r" / "results.sqlite").exists()
-    vbench.load_unit("OH-HOT-1")
+    ubench.load_unit("OH-HOT-1")
     assert main(base + ["--accept-hazards"]) == 0
     (row,) = rows(tmp_path / "r" / "results.sqlite")
     report = valid_report(row[4])
@@ -297,10 +297,10 @@ def test_hazards_need_accept_flag_when_unattended_and_are_recorded(vbench, tmp_p
     conn.close()
 
 
-def test_expired_calibration_stops_the_run_unless_allowed(vbench, tmp_path, capsys):
+def test_expired_calibration_stops_the_run_unless_allowed(ubench, tmp_path, capsys):
     import re
 
-    text = vbench.station_path.read_text()
+    text = ubench.station_path.read_text()
     text, n = re.subn(r"(out: \{gain: 1\.0, offset: 0 mV, )date: [0-9-]+, due: [0-9-]+",
                       r"\1date: 2020-01-01, due: 2021-01-01", text)
     assert n == 1
@@ -311,8 +311,8 @@ def test_expired_calibration_stops_the_run_unless_allowed(vbench, tmp_path, caps
     assert main(base) == 2
     err = capsys.readouterr().err
     assert "adc (channel out) calibration was due 2021-01-01" in err and str(station) in err
-    assert vbench.supply_output is False and not (tmp_path / "r" / "results.sqlite").exists()
-    vbench.load_unit("OH-CAL-1")
+    assert ubench.supply_output is False and not (tmp_path / "r" / "results.sqlite").exists()
+    ubench.load_unit("OH-CAL-1")
     assert main(base + ["--allow-expired-calibration"]) == 0
     (row,) = rows(tmp_path / "r" / "results.sqlite")
     report = valid_report(row[4])
@@ -323,13 +323,13 @@ def test_expired_calibration_stops_the_run_unless_allowed(vbench, tmp_path, caps
     conn.close()
 
 
-def test_attended_run_asks_serial_and_prompt_and_hazard(vbench, tmp_path):
+def test_attended_run_asks_serial_and_prompt_and_hazard(ubench, tmp_path):
     text = TB3.read_text().replace("hazards: []", "hazards:\n  - name: hot_surfaces\n"
                                    "    text: The regulator gets hot.")
     plan = tmp_path / "tb3-attended.yaml"
     plan.write_text(text)
-    vbench.load_unit("OH-ATT-1")
-    proc = bg("run", plan, "--station", vbench.station_path, "--reports", tmp_path / "r",
+    ubench.load_unit("OH-ATT-1")
+    proc = bg("run", plan, "--station", ubench.station_path, "--reports", tmp_path / "r",
               "--clock-speed", SPEED, stdin=subprocess.PIPE)
     # the hazard's name (acknowledged before anything), the serial as a scanner types it, then
     # "y" to the connect question

@@ -155,12 +155,12 @@ class TestRegistry:
         assert "fake" in a.kinds() and "fake" not in b.kinds()
 
 
-def test_virtual_bench_supply_is_off_after_an_exception(tmp_path):
-    # whole path: station file from the virtual bench, real drivers over the pty and loopback
+def test_understudy_bench_supply_is_off_after_an_exception(tmp_path):
+    # whole path: station file from the understudy bench, real drivers over the pty and loopback
     from benchgate.instruments import load_station
-    from benchgate.sim.bench import VirtualBench
+    from benchgate.sim.bench import UnderstudyBench
 
-    with VirtualBench("tb3", speed=5.0, workdir=tmp_path) as vb:
+    with UnderstudyBench("tb3", speed=5.0, workdir=tmp_path) as vb:
         st = load_station(vb.station_path)
         with pytest.raises(RuntimeError, match="abort"):
             with open_station(st, clock=vb.clock) as bench:

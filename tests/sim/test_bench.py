@@ -1,4 +1,4 @@
-"""The whole virtual bench, end to end through the real drivers over the pty and loopback."""
+"""The whole understudy bench, end to end through the real drivers over the pty and loopback."""
 
 from __future__ import annotations
 
@@ -15,14 +15,14 @@ import pytest
 from benchgate.analysis import analyze
 from benchgate.instruments import open_station
 from benchgate.instruments.station import load_station
-from benchgate.sim import VirtualBench
+from benchgate.sim import UnderstudyBench
 from benchgate.sim.boards import BOARDS, Unit
 
 SPEED = 4.0
 
 
 @contextlib.contextmanager
-def instruments(vb: VirtualBench):
+def instruments(vb: UnderstudyBench):
     """The station's instruments opened by their drivers, as the runner opens them."""
     with open_station(load_station(vb.station_path), clock=vb.clock) as bench:
         yield bench
@@ -38,14 +38,14 @@ def power_up(bench, vb, *, settle=0.3):
 
 @pytest.fixture
 def tb3():
-    with VirtualBench("tb3", speed=SPEED, serial="OH-0001") as vb:
+    with UnderstudyBench("tb3", speed=SPEED, serial="OH-0001") as vb:
         yield vb
 
 
 class TestStationFile:
     def test_points_at_the_running_bench(self, tb3):
         st = load_station(tb3.station_path)
-        assert st.id == "virtual-bench"
+        assert st.id == "understudy-bench"
         assert set(st.instruments) == {"adc", "supply", "dmm", "counter", "digitizer"}
         adc = st.instruments["adc"]
         assert adc.address == tb3.serial_port and os.path.exists(adc.address)
@@ -122,7 +122,7 @@ class TestEndToEnd:
 
 class TestDefectsThroughTheBench:
     def test_low_gain_never_starts(self):
-        with VirtualBench("tb3", speed=SPEED, serial="OH-2", defect="low_gain") as vb:
+        with UnderstudyBench("tb3", speed=SPEED, serial="OH-2", defect="low_gain") as vb:
             with instruments(vb) as bench:
                 power_up(bench, vb)
                 cap = bench["adc"].capture("out", duration=0.2, rate=50_000)
@@ -132,7 +132,7 @@ class TestDefectsThroughTheBench:
     def test_high_gain_distorts_more_than_a_good_unit(self):
         thd = {}
         for defect in (None, "high_gain"):
-            with VirtualBench("tb3", speed=SPEED, serial="OH-3", defect=defect) as vb:
+            with UnderstudyBench("tb3", speed=SPEED, serial="OH-3", defect=defect) as vb:
                 with instruments(vb) as bench:
                     power_up(bench, vb)
                     cap = bench["adc"].capture("out", duration=0.2, rate=50_000)
@@ -149,7 +149,7 @@ class TestDefectsThroughTheBench:
 
 
 def test_lines_protocol_pf2():
-    with VirtualBench("pf2", speed=SPEED, protocol="lines", serial="PF-1") as vb:
+    with UnderstudyBench("pf2", speed=SPEED, protocol="lines", serial="PF-1") as vb:
         with instruments(vb) as bench:
             power_up(bench, vb, settle=0.05)
             cap = bench["adc"].capture("out", duration=0.1, rate=50_000)
@@ -161,7 +161,7 @@ def test_lines_protocol_pf2():
 
 
 def test_close_switches_off_and_removes_the_temporary_station():
-    vb = VirtualBench("wo1", speed=SPEED)
+    vb = UnderstudyBench("wo1", speed=SPEED)
     path = vb.station_path
     assert path.exists()
     vb.close()

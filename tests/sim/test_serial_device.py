@@ -128,7 +128,7 @@ def test_power_command_reaches_the_source():
 def test_disconnect_from_another_thread():
     with PtyAdcDevice(SineSource(), clock=ScaledClock(SPEED)) as dev:
         port = open_port(dev)
-        dev.disconnect()  # e.g. the virtual bench's fault handle, called by a test
+        dev.disconnect()  # e.g. the understudy bench's fault handle, called by a test
         with pytest.raises((serial.SerialException, OSError)):
             port.read(10)
             port.read(10)

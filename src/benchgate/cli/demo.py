@@ -1,4 +1,4 @@
-"""``benchgate demo``: the main job end to end on the virtual bench, in about a minute."""
+"""``benchgate demo``: the main job end to end on the understudy bench, in about a minute."""
 
 from __future__ import annotations
 
@@ -7,14 +7,14 @@ import argparse
 
 def add_parser(subparsers) -> argparse.ArgumentParser:
     p = subparsers.add_parser(
-        "demo", help="run the TB-3 plan over a simulated lot on the virtual bench",
-        description="Start the virtual bench (serial ADC on a pseudo-terminal, SCPI instruments on "
+        "demo", help="run the TB-3 plan over a simulated lot on the understudy bench",
+        description="Start the understudy bench (serial ADC on a pseudo-terminal, SCPI instruments on "
         "loopback), run the TB-3 tone-board plan over a lot of simulated units (good ones and one of "
         "each defect), write every unit report and the lot summary, and print the results.")
     p.add_argument("--units", type=int, default=14, metavar="N",
                    help="units in the lot (at least one per defect plus one good; default 14)")
     p.add_argument("--speed", type=float, default=4.0, metavar="X",
-                   help="how much faster than real time the virtual bench runs (default 4)")
+                   help="how much faster than real time the understudy bench runs (default 4)")
     p.add_argument("--reports", default="reports", metavar="DIR", help="report folder (default: reports)")
     p.add_argument("--lot", default="TB3-2612", metavar="LOT",
                    help="lot name; serials are LOT-001 … (default TB3-2612: running the demo again "

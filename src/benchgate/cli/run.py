@@ -38,7 +38,7 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     p.add_argument("--display", choices=("auto", "rich", "plain", "quiet"), default="auto",
                    help="live display (auto: rich on a terminal, plain otherwise or with NO_COLOR)")
     p.add_argument("--clock-speed", type=float, default=None, metavar="X",
-                   help="only for an accelerated virtual bench: waits pass X times faster (recorded)")
+                   help="only for an accelerated understudy bench: waits pass X times faster (recorded)")
     p.set_defaults(func=run)
     return p
 

@@ -1,4 +1,4 @@
-"""``benchgate sim``: run a virtual bench until interrupted."""
+"""``benchgate sim``: run an understudy bench until interrupted."""
 
 from __future__ import annotations
 
@@ -8,7 +8,7 @@ import argparse
 def add_parser(subparsers) -> argparse.ArgumentParser:
     p = subparsers.add_parser(
         "sim",
-        help="run a virtual bench (simulated board on a pty and loopback SCPI ports)",
+        help="run an understudy bench (simulated board on a pty and loopback SCPI ports)",
         description="Start a simulated unit of one of the demo boards behind a serial ADC on a "
         "pseudo-terminal and a SCPI supply, DMM, counter and digitizer on 127.0.0.1, write a "
         "station file pointing at them, and run until interrupted (Ctrl-C).",
@@ -36,7 +36,7 @@ def run(args) -> int:
     import sys
     import threading
 
-    from benchgate.sim.bench import VirtualBench
+    from benchgate.sim.bench import UnderstudyBench
     from benchgate.sim.boards import SimError
 
     if not (math.isfinite(args.speed) and args.speed > 0):
@@ -50,7 +50,7 @@ def run(args) -> int:
     for sig in (signal.SIGINT, signal.SIGTERM):
         previous[sig] = signal.signal(sig, _stop)
     try:
-        with VirtualBench(args.board, speed=args.speed, protocol=args.protocol,
+        with UnderstudyBench(args.board, speed=args.speed, protocol=args.protocol,
                           serial=args.serial, defect=args.defect) as vb:
             station = vb.station_path
             if args.write_station:
@@ -74,7 +74,7 @@ def run(args) -> int:
                 }))
             else:
                 defect = args.defect or "no defect"
-                print(f"virtual bench: {vb.board.name}, unit {args.serial} ({defect}), speed {args.speed:g}x")
+                print(f"understudy bench: {vb.board.name}, unit {args.serial} ({defect}), speed {args.speed:g}x")
                 print(f"  serial ADC   {vb.serial_port}  ({args.protocol})")
                 for role, res in resources.items():
                     print(f"  {role:<12} {res}")
@@ -87,5 +87,5 @@ def run(args) -> int:
         for sig, handler in previous.items():
             signal.signal(sig, handler)
     if not args.json:
-        print("virtual bench stopped")
+        print("understudy bench stopped")
     return 0

@@ -1,7 +1,7 @@
 """One serial port as the ADC driver uses it: opening, line commands, raw reads.
 
 Every method here runs on the driver's owner thread (see ``serial_adc``). Reads use a short
-pyserial timeout inside deadlines measured with the injected clock, so a virtual bench running
+pyserial timeout inside deadlines measured with the injected clock, so an understudy bench running
 ``speed`` times faster keeps its deadlines in its own time.
 """
 

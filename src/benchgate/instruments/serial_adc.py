@@ -206,7 +206,7 @@ class SerialAdc:
         """Read until the device has sent ``n`` samples (or END), within the deadlines.
 
         Deadlines are in the clock's time, each with a floor of wall time as well (WALL_GRACE),
-        so a busy host running an accelerated virtual bench does not mistake its own delays
+        so a busy host running an accelerated understudy bench does not mistake its own delays
         for a silent device.
         """
         port, clock = self._port, self.clock

@@ -1,8 +1,8 @@
-"""The demo lot: the TB-3 plan run over simulated units on the virtual bench, accelerated.
+"""The demo lot: the TB-3 plan run over simulated units on the understudy bench, accelerated.
 
 Owl Hollow Kits' tone board TB-3 (invented). A lot of good units, with one unit for each kind of
 defect the simulator has, in a fixed shuffled order, runs through the real runner against the
-virtual bench (serial ADC on a pseudo-terminal, SCPI instruments on loopback sockets). Every
+understudy bench (serial ADC on a pseudo-terminal, SCPI instruments on loopback sockets). Every
 unit gets its reports and database row; the lot gets a summary page.
 """
 
@@ -16,7 +16,7 @@ from typing import Any
 
 from benchgate.runner.options import RunOptions
 
-#: every defect the TB-3 simulator knows (interfaces: VirtualBench.load_unit)
+#: every defect the TB-3 simulator knows (interfaces: UnderstudyBench.load_unit)
 KNOWN_DEFECTS = ("wrong_capacitor", "low_gain", "high_gain", "open_section", "supply_noise", "intermittent")
 PLAN_NAME = "tb3.yaml"
 
@@ -111,10 +111,10 @@ def run_demo(*, units: int = 14, speed: float = 4.0, reports_dir: Path | None = 
     reports_dir.mkdir(parents=True, exist_ok=True)
     lot_units = make_lot(units, lot, defects("tb3"))
     workdir = tempfile.mkdtemp(prefix="benchgate-demo-")
-    with bench_module.VirtualBench("tb3", speed=speed, workdir=workdir) as vb:
+    with bench_module.UnderstudyBench("tb3", speed=speed, workdir=workdir) as vb:
         station = load_station(vb.station_path)
         if on_start is not None:
-            on_start(f"virtual bench up: ADC on {vb.serial_port}, supply at {vb.resources['supply']}; "
+            on_start(f"understudy bench up: ADC on {vb.serial_port}, supply at {vb.resources['supply']}; "
                      f"plan {plan.id} v{plan.version}; lot {lot}, {len(lot_units)} units; "
                      f"time runs x{speed:g}")
         options = RunOptions(operator="demo", lot=lot, reports_dir=reports_dir, unattended=True,

@@ -1,16 +1,16 @@
-"""The virtual bench: simulated boards on a real pseudo-terminal and loopback SCPI ports.
+"""The understudy bench: simulated boards on a real pseudo-terminal and loopback SCPI ports.
 
-``VirtualBench`` (in ``sim.bench``) is imported lazily, so ``import benchgate.sim`` stays light.
+``UnderstudyBench`` (in ``sim.bench``) is imported lazily, so ``import benchgate.sim`` stays light.
 """
 
 from __future__ import annotations
 
-__all__ = ["VirtualBench"]
+__all__ = ["UnderstudyBench"]
 
 
 def __getattr__(name: str):
-    if name == "VirtualBench":
-        from benchgate.sim.bench import VirtualBench
+    if name == "UnderstudyBench":
+        from benchgate.sim.bench import UnderstudyBench
 
-        return VirtualBench
+        return UnderstudyBench
     raise AttributeError(f"module 'benchgate.sim' has no attribute {name!r}")

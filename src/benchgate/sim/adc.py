@@ -1,4 +1,4 @@
-"""The virtual ADC of the virtual bench: a :class:`~benchgate.sim.interfaces.SampleSource`.
+"""The virtual ADC of the understudy bench: a :class:`~benchgate.sim.interfaces.SampleSource`.
 
 It samples the simulated unit in bench-clock time, from the instant acquisition starts: a
 capture started before power-on sees the flat line of an unpowered unit, then the start-up.

@@ -1,4 +1,4 @@
-"""The simulated unit on the virtual bench, and what the emulated SCPI instruments see of it.
+"""The simulated unit on the understudy bench, and what the emulated SCPI instruments see of it.
 
 :class:`BenchState` is shared by the virtual ADC and the SCPI backend: the unit under test, the
 emulated supply's settings, the ADC board's fixture-power relay and the history of power-on

@@ -1,10 +1,10 @@
-"""The virtual bench: a simulated unit on a real pseudo-terminal and loopback SCPI ports.
+"""The understudy bench: a simulated unit on a real pseudo-terminal and loopback SCPI ports.
 
-:class:`VirtualBench` draws a unit of the chosen board, wires it to the virtual ADC (served by
+:class:`UnderstudyBench` draws a unit of the chosen board, wires it to the virtual ADC (served by
 :class:`~benchgate.sim.serial_device.PtyAdcDevice` on ``/dev/pts/N``) and to the emulated supply,
 DMM, counter and digitizer (:class:`~benchgate.sim.scpi_server.ScpiBench` on 127.0.0.1), all on
 one :class:`~benchgate.clock.ScaledClock`, and writes a station file that points at itself.
-The runner must use :attr:`VirtualBench.clock` so its waits and the simulation agree.
+The runner must use :attr:`UnderstudyBench.clock` so its waits and the simulation agree.
 """
 
 from __future__ import annotations
@@ -28,7 +28,7 @@ class BenchFaults:
     corrupted frames, disconnect, slow identify …) and ``.scpi`` (slow, missing or garbled
     replies); :meth:`inject_error` queues a SCPI error on one instrument."""
 
-    def __init__(self, bench: VirtualBench):
+    def __init__(self, bench: UnderstudyBench):
         from benchgate.sim.scpi_server import ScpiFaults
         from benchgate.sim.serial_device import DeviceFaults
 
@@ -48,7 +48,7 @@ def _q(text: str) -> str:
     return json.dumps(str(text))  # a JSON string is a valid YAML scalar
 
 
-class VirtualBench:
+class UnderstudyBench:
     """A whole simulated bench. Use as a context manager (or call :meth:`close`).
 
     Parameters
@@ -80,7 +80,7 @@ class VirtualBench:
         self.faults = BenchFaults(self)
         self._tmp = None
         if workdir is None:
-            self._tmp = tempfile.mkdtemp(prefix="benchgate-vbench-")
+            self._tmp = tempfile.mkdtemp(prefix="benchgate-ubench-")
             workdir = self._tmp
         self.workdir = Path(workdir)
         self.workdir.mkdir(parents=True, exist_ok=True)
@@ -91,7 +91,7 @@ class VirtualBench:
         try:
             self.device.start()
             self.server.start()
-            self.station_path = self.write_station(self.workdir / "virtual-bench.yaml")
+            self.station_path = self.write_station(self.workdir / "understudy-bench.yaml")
         except BaseException:
             self.close()
             raise
@@ -132,10 +132,10 @@ class VirtualBench:
         cal = f"date: {today.isoformat()}, due: {due.isoformat()}"
         res = self.resources
         lines = [
-            "# A virtual bench (benchgate sim): the serial ADC on a pseudo-terminal and the SCPI",
+            "# A understudy bench (benchgate sim): the serial ADC on a pseudo-terminal and the SCPI",
             "# instruments on loopback ports of this machine. Valid while that process runs.",
-            "station: virtual-bench",
-            f"description: {_q(f'virtual bench with a simulated {self.board.name}')}",
+            "station: understudy-bench",
+            f"description: {_q(f'understudy bench with a simulated {self.board.name}')}",
             "instruments:",
             "  adc:",
             "    kind: serial-adc",
@@ -195,7 +195,7 @@ class VirtualBench:
                     if self._tmp is not None:
                         shutil.rmtree(self._tmp, ignore_errors=True)
 
-    def __enter__(self) -> VirtualBench:
+    def __enter__(self) -> UnderstudyBench:
         return self
 
     def __exit__(self, *exc) -> None:

@@ -30,7 +30,7 @@ OPEN_RESISTOR = 1e9
 
 
 class SimError(BenchgateError):
-    """A virtual-bench request that cannot be met (unknown board or defect)."""
+    """A understudy-bench request that cannot be met (unknown board or defect)."""
 
 
 @dataclass(frozen=True)

@@ -2,7 +2,7 @@
 
 The pseudo-terminal ADC device (``sim.serial_device``) asks a :class:`SampleSource` for ADC
 codes; the loopback SCPI server (``sim.scpi_server``) asks a :class:`ScpiBackend` what its
-emulated supply, DMM, counter and digitizer would see. ``sim.bench.VirtualBench`` wires the
+emulated supply, DMM, counter and digitizer would see. ``sim.bench.UnderstudyBench`` wires the
 board simulation to both. Each server also has a small stand-alone implementation for its own
 tests.
 """

@@ -285,7 +285,7 @@ class ScpiBench:
     def __exit__(self, *exc) -> None:
         self.stop()
 
-    # -- what tests and the virtual bench look at
+    # -- what tests and the understudy bench look at
     @property
     def ports(self) -> dict[str, int]:
         return {role: lst.port for role, lst in self._listeners.items()}

@@ -11,7 +11,7 @@ amplifier is monotone, so the root is unique; Newton is kept inside a bracket so
 saturation cannot throw it off). The loop runs on Python floats in a generated, unrolled
 kernel: a few microseconds a step, so a 1 kHz oscillator at ~100 steps a period simulates a
 second in about half a second (more on a loaded machine). ``trace.LoopTrace`` adds the
-bookkeeping the virtual bench needs: it extends the waveform on demand and, once the limit
+bookkeeping the understudy bench needs: it extends the waveform on demand and, once the limit
 cycle has settled, continues it periodically from one simulated period (everything up to the
 settled cycle, start-up included, is integrated).
 """

@@ -1,4 +1,4 @@
-"""The runner on the virtual bench (pty ADC, loopback SCPI), accelerated: verdicts and faults."""
+"""The runner on the understudy bench (pty ADC, loopback SCPI), accelerated: verdicts and faults."""
 
 from __future__ import annotations
 
@@ -25,10 +25,10 @@ def plan():
 
 
 @pytest.fixture(scope="module")
-def vbench(tmp_path_factory):
-    from benchgate.sim.bench import VirtualBench
+def ubench(tmp_path_factory):
+    from benchgate.sim.bench import UnderstudyBench
 
-    with VirtualBench("tb3", speed=SPEED, workdir=tmp_path_factory.mktemp("vb")) as vb:
+    with UnderstudyBench("tb3", speed=SPEED, workdir=tmp_path_factory.mktemp("vb")) as vb:
         yield vb
 
 
@@ -49,8 +49,8 @@ def checks_of(outcome, step):
     return {c.measurement: c for c in outcome.record.checks() if c.step_id == step}
 
 
-def test_good_unit_passes(vbench, plan, tmp_path):
-    (outcome,), options = run_units(vbench, plan, tmp_path, [("OH-GOOD-1", None)])
+def test_good_unit_passes(ubench, plan, tmp_path):
+    (outcome,), options = run_units(ubench, plan, tmp_path, [("OH-GOOD-1", None)])
     rec = outcome.record
     assert rec.verdict == Verdict.PASS, rec.reason
     assert outcome.exit_code == 0
@@ -68,8 +68,8 @@ def test_good_unit_passes(vbench, plan, tmp_path):
     conn.close()
 
 
-def test_high_gain_fails_thd(vbench, plan, tmp_path):
-    (outcome,), _ = run_units(vbench, plan, tmp_path, [("OH-HG-1", "high_gain")])
+def test_high_gain_fails_thd(ubench, plan, tmp_path):
+    (outcome,), _ = run_units(ubench, plan, tmp_path, [("OH-HG-1", "high_gain")])
     thd = checks_of(outcome, "steady")["thd"]
     # interfaces.md: high_gain clips -> high THD; the plan allows at most 5 %
     assert thd.verdict == Verdict.FAIL and "above 5.000 %" in thd.reason
@@ -77,8 +77,8 @@ def test_high_gain_fails_thd(vbench, plan, tmp_path):
 
 
 @pytest.mark.parametrize("defect", ["low_gain", "open_section", "wrong_capacitor"])
-def test_defects_that_stop_the_tone_never_pass(vbench, plan, tmp_path, defect):
-    (outcome,), _ = run_units(vbench, plan, tmp_path, [(f"OH-{defect}", defect)])
+def test_defects_that_stop_the_tone_never_pass(ubench, plan, tmp_path, defect):
+    (outcome,), _ = run_units(ubench, plan, tmp_path, [(f"OH-{defect}", defect)])
     assert outcome.record.verdict in (Verdict.FAIL, Verdict.ERROR)
     power_on = outcome.record.steps[2]
     assert power_on.attempts == 2  # the plan's retry was used, and noted
@@ -86,24 +86,24 @@ def test_defects_that_stop_the_tone_never_pass(vbench, plan, tmp_path, defect):
 
 
 @pytest.mark.parametrize("defect", ["low_gain", "open_section"])
-def test_no_start_fails_amplitude(vbench, plan, tmp_path, defect):
-    (outcome,), _ = run_units(vbench, plan, tmp_path, [(f"OH-A-{defect}", defect)])
+def test_no_start_fails_amplitude(ubench, plan, tmp_path, defect):
+    (outcome,), _ = run_units(ubench, plan, tmp_path, [(f"OH-A-{defect}", defect)])
     amp = checks_of(outcome, "power-on")["amplitude"]
     assert amp.verdict == Verdict.FAIL and "below" in amp.reason
 
 
-def test_wrong_capacitor_fails_frequency(vbench, plan, tmp_path):
+def test_wrong_capacitor_fails_frequency(ubench, plan, tmp_path):
     # parts are drawn from the serial number: this one's wrong capacitor moves the tone (others
     # stop it altogether, which the test above covers)
-    (outcome,), _ = run_units(vbench, plan, tmp_path, [("OH-WC-2", "wrong_capacitor")])
+    (outcome,), _ = run_units(ubench, plan, tmp_path, [("OH-WC-2", "wrong_capacitor")])
     freq = checks_of(outcome, "steady")["frequency"]
     assert freq.verdict == Verdict.FAIL and ("below" in freq.reason or "above" in freq.reason)
     assert outcome.record.verdict == Verdict.FAIL
 
 
 @pytest.mark.parametrize("defect", ["supply_noise", "intermittent"])
-def test_subtle_defects_do_not_pass(vbench, plan, tmp_path, defect):
-    (outcome,), _ = run_units(vbench, plan, tmp_path, [(f"OH-S-{defect}", defect)])
+def test_subtle_defects_do_not_pass(ubench, plan, tmp_path, defect):
+    (outcome,), _ = run_units(ubench, plan, tmp_path, [(f"OH-S-{defect}", defect)])
     # noise and dropouts leave THD alone but raise THD+N (IEEE Std 1241-2010: THD+N = 1/SINAD);
     # a dropout also shows as a deep dip of the envelope (whichever the record caught)
     steady = checks_of(outcome, "steady")
@@ -125,10 +125,10 @@ def _tight(plan, decision, high):
     return dataclasses.replace(plan, steps=tuple(steps), decision=decision, version=plan.version + "-tight")
 
 
-def test_just_inside_a_limit_simple_passes_guarded_is_inconclusive(vbench, plan, tmp_path):
+def test_just_inside_a_limit_simple_passes_guarded_is_inconclusive(ubench, plan, tmp_path):
     from benchgate.runner.reanalyze import reanalyze
 
-    (first,), _ = run_units(vbench, plan, tmp_path / "a", [("OH-EDGE-1", None)])
+    (first,), _ = run_units(ubench, plan, tmp_path / "a", [("OH-EDGE-1", None)])
     m = checks_of(first, "steady")["frequency"].result
     assert m.valid and m.uncertainty > 0
     # Place the upper limit half an uncertainty above the measured value and re-judge the very
@@ -147,9 +147,9 @@ def test_just_inside_a_limit_simple_passes_guarded_is_inconclusive(vbench, plan,
 
 
 def _fresh_bench(tmp_path):
-    from benchgate.sim.bench import VirtualBench
+    from benchgate.sim.bench import UnderstudyBench
 
-    return VirtualBench("tb3", speed=SPEED, workdir=tmp_path / "vb")
+    return UnderstudyBench("tb3", speed=SPEED, workdir=tmp_path / "vb")
 
 
 def test_adc_disconnect_mid_capture(plan, tmp_path):
@@ -252,12 +252,12 @@ steps:
 """
 
 
-def test_start_up_recorded_by_the_digitizer(vbench, tmp_path):
+def test_start_up_recorded_by_the_digitizer(ubench, tmp_path):
     from benchgate.plan import load_plan
 
     path = tmp_path / "digitizer.yaml"
     path.write_text(DIGITIZER_PLAN)
-    (outcome,), _ = run_units(vbench, load_plan(path), tmp_path, [("OH-DIG-1", None)])
+    (outcome,), _ = run_units(ubench, load_plan(path), tmp_path, [("OH-DIG-1", None)])
     assert outcome.record.verdict == Verdict.PASS, outcome.record.reason
     startup = checks_of(outcome, "power-on")["startup_time"].result
     # the same unit's start-up through the streaming ADC is 40-60 ms (see the demo); the
