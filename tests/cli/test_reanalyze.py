@@ -80,3 +80,18 @@ def test_not_a_report_is_one_clear_line(tmp_path, capsys):
     code = main(["reanalyze", str(bad), "--plan", str(TB3)])
     err = capsys.readouterr().err
     assert code == 2 and err.startswith("benchgate: ") and "bad.json" in err and len(err.splitlines()) == 1
+
+
+def test_reanalysis_files_say_so_in_their_names_and_headline(stored, tmp_path, capsys):
+    root, report = stored
+    code = main(["reanalyze", str(report), "--plan", str(tighter_plan(tmp_path)), "--json"])
+    out = json.loads(capsys.readouterr().out)
+    assert code == 1
+    for ext in ("json", "html"):
+        name = Path(out["report"][ext]).name
+        # <time>-reanalysis-v<plan version>-<verdict>, beside (never over) the original run
+        assert name.endswith(f"-reanalysis-v1.1-fail.{ext}"), name
+    assert Path(out["report"]["json"]).parent == report.parent
+    assert report.exists() and report.with_suffix(".html").exists()
+    html = Path(out["report"]["html"]).read_text(encoding="utf-8")
+    assert "Reanalysis without hardware" in html and "the original run was pass under plan v1.0" in html

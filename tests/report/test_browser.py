@@ -181,3 +181,33 @@ def test_a_timeout_mid_frame_loses_nothing():
     finally:
         client.close()
         server.close()
+
+
+@needs_chromium
+def test_unit_report_fits_700_px(tmp_path):
+    # a real demo-sized report: long measurement names, derivation details, long reasons
+    from report_samples import make_record as _mk
+
+    capture = tone_capture()
+    layout = ReportLayout(tmp_path, "tb3", "TB3-2612-002", "2026-12-01T10:00:00Z")
+    layout.ensure()
+    cap = layout.capture_path("capture-tone")
+    sha = save_npz(capture, cap)
+    rec = _mk("TB3-2612-002", fail=True, capture_file=layout.relative(cap), sha256=sha)
+    rec.steps[2].checks[0].measurement = "supply_current"
+    html = write_reports(rec, layout, {"capture-tone": capture})["html"]
+    assert browser.overflow(html, width=700) == []
+    shot = browser.screenshot(html, tmp_path / "unit-700.png", width=700)
+    width, _ = struct.unpack(">II", shot.read_bytes()[16:24])  # PNG IHDR (ISO/IEC 15948, 11.2.2)
+    assert width == 700
+
+
+@needs_chromium
+def test_the_overflow_check_can_fail(tmp_path):
+    page = tmp_path / "wide.html"
+    page.write_text('<!DOCTYPE html><html><body><table style="width:300px;table-layout:fixed"><tr>'
+                    '<td style="white-space:nowrap;width:50px">0.02695&nbsp;%&nbsp;0.021&nbsp;%</td><td>x</td>'
+                    '</tr></table><div style="width:900px">wide</div></body></html>', encoding="utf-8")
+    found = browser.overflow(page, width=700)
+    assert any(f.startswith("td") and "content" in f for f in found), found
+    assert any(f.startswith("page:") for f in found), found

@@ -162,7 +162,7 @@ def test_hostile_channel_name_is_escaped_inside_svg(capture):
 def test_limit_derivations_listed_once_below_the_table():
     html = render_html(make_record(), {})
     assert "How the limits were derived" in html
-    assert html.count("gain_needed") == 1 and "details: derivation 1 below" in html
+    assert html.count("amplifier gain needed") == 1 and "details: derivation 1 below" in html
     assert "rc_ladder highpass 3 sections: worst case" in html
 
 
@@ -175,3 +175,97 @@ def test_flat_record_is_drawn_flat(capture):
     # the voltage axis spans at least a tenth of the 3.3 V converter range, not one LSB of noise
     assert max(ticks) - min(ticks) >= 0.2
     assert "no fundamental found" in figures[2].caption or "largest bin" in figures[2].svg
+
+
+# --- issue 9: reanalysis names, engineering derivations, unframed captures, cautions ---
+
+
+def test_reanalysis_reports_are_named_and_headlined_as_such(tmp_path, capture):
+    rec = make_record("TB3-0099", fail=True, reanalysis=True)
+    layout = ReportLayout(tmp_path, "tb3", "TB3-0099", "2026-12-02T08:00:00Z")
+    paths = write_reports(rec, layout, {"capture-tone": capture})
+    for ext in ("json", "html"):
+        # the plan version judged against is in the name, before the verdict
+        assert paths[ext].name == f"20261202T080000.000Z-reanalysis-v3-fail.{ext}"
+    html = paths["html"].read_text(encoding="utf-8")
+    banner = html[html.index('<header class="banner"'):html.index("</header>")]
+    assert "Reanalysis — not a test run" in banner and "Reanalysis without hardware" in banner
+    assert "<title>REANALYSIS · FAIL" in html
+    # an ordinary run keeps the plain name and no reanalysis mark
+    plain = write_reports(make_record("TB3-0098"), ReportLayout(tmp_path, "tb3", "TB3-0098",
+                                                                "2026-12-02T08:00:00Z"), {})
+    assert plain["json"].name == "20261202T080000.000Z-pass.json"
+    assert "Reanalysis" not in plain["html"].read_text(encoding="utf-8")
+
+
+def _derived_record():
+    from benchgate.analysis.measurement import Measurement
+    from benchgate.judge.rules import judge
+    from benchgate.plan.limits import Window
+    from benchgate.record import CheckRecord
+
+    rec = make_record()
+    details = {  # the shape benchgate.plan.derive writes (values invented, TB-3 demo board)
+        "topology": "rc_ladder",
+        "parts": {"C1": {"nominal": 1e-08, "unit": "F", "tolerance": "±10 %"},
+                  "R1": {"nominal": 6800.0, "unit": "Ω", "tolerance": "±5 %"}},
+        "worst_case": [813.41284, 1101.9374],
+        "gain_needed": {"nominal": 34.1145, "worst": 37.5285},
+        "monte_carlo": {"draws": 20000, "seed": 3, "distribution": "uniform", "mean": 942.9157,
+                        "p0_135": 850.7327, "p99_865": 1048.1653, "yield": 0.9987, "yield_u": None},
+        "widened_by_mc": False,
+    }
+    w = Window("Hz", 789.0, 1135.0, 940.7, "rc_ladder highpass 3 sections: worst case", details=details)
+    m = Measurement("frequency", 951.2, "Hz", 0.4)
+    v = judge(m, w, "simple")
+    rec.steps[1].checks[0] = CheckRecord("capture-tone", "frequency", w, m, v.verdict, v.reason, v.rule)
+    return rec
+
+
+def test_derivation_box_shows_engineering_values():
+    html = render_html(_derived_record(), {})
+    box = html[html.index('<section id="derivations">'):]
+    box = box[:box.index("</section>")]
+    assert "10 nF ±10 %" in box and "6.8 kΩ ±5 %" in box
+    assert "813.4 Hz … 1.102 kHz" in box
+    assert "99.865th percentile" in box and "1.048 kHz" in box and "99.87 %" in box
+    for raw in ("1e-08", "unit F", "p99_865", "p0_135", "False", "None", "6800.0", "widened_by_mc"):
+        assert raw not in box, raw
+    assert "widened by the Monte Carlo spread" in box and "<dd>no</dd>" in box
+
+
+def test_run_conditions_read_as_words_not_python():
+    html = render_html(make_record(), {})
+    assert "allow expired calibration: yes" in html and "unattended: no" in html
+    assert "= True" not in html and "= False" not in html
+
+
+@pytest.mark.parametrize("meta", [{"framing": "lines"},
+                                  {"instrument": {"role": "adc", "kind": "serial-adc", "protocol": "lines"}}])
+def test_a_capture_taken_without_framing_is_marked(capture, meta):
+    rec = make_record()
+    html = render_html(rec, {"capture-tone": capture.with_metadata(**meta)})
+    top = html[:html.index('<section id="identity">')]
+    assert 'id="unframed"' in top and "Captured without framing" in top and "Capture the tone" in top
+    step = html[html.index('<section id="steps">'):]
+    assert "Captured without framing (serial lines mode)" in step
+    # the metadata itself is shown, whatever keys the driver wrote
+    assert "Capture conditions" in step and ("framing" in step or "protocol lines" in step)
+
+
+def test_a_framed_capture_is_not_marked(capture):
+    html = render_html(make_record(), {"capture-tone": capture.with_metadata(
+        instrument={"role": "adc", "protocol": "framed"}, loss={"lost_samples": 0, "end_frame": True})})
+    assert "Captured without framing" not in html and 'id="unframed"' not in html
+    assert "lost samples 0" in html and "end frame yes" in html
+
+
+def test_general_cautions_and_plan_cautions_in_the_safety_section():
+    html = render_html(make_record(), {})
+    safety = html[html.index('<section id="safety">'):]
+    safety = safety[:safety.index("</section>")]
+    # the plan's own cautions and the bench cautions of the README's safety section
+    assert "Low voltage only: 9 V board supply" in safety and "Fixture clip &lt;J3&gt;" in safety
+    for words in ("current limit", "emergency stop", "isolation transformer", "ESD-safe workstation",
+                  "charged after power-off"):
+        assert words in safety, words

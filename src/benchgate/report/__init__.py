@@ -1,7 +1,8 @@
 """Reports: the JSON and HTML evidence of each unit, written whatever happened.
 
 ``write_reports(record, layout, captures)`` writes ``<time>-<verdict>.json`` first (the record
-of truth) and then the self-contained ``.html`` beside it. Heavy modules (jinja2, numpy plots)
+of truth) and then the self-contained ``.html`` beside it; a reanalysis is written as
+``<time>-reanalysis-v<plan version>-<verdict>.*``. Heavy modules (jinja2, numpy plots)
 are imported only when a report is written.
 """
 
@@ -39,9 +40,11 @@ def write_reports(record: UnitRecord, layout: ReportLayout,
     """
     from benchgate.report.html import write_html
     from benchgate.report.json_report import write_json
+    from benchgate.report.layout import report_tag
 
     layout.ensure()
     verdict = record.verdict.value
-    paths = {"json": write_json(record, layout.report_path(verdict, "json"))}
-    paths["html"] = write_html(record, layout.report_path(verdict, "html"), captures or {})
+    tag = report_tag(record)
+    paths = {"json": write_json(record, layout.report_path(verdict, "json", tag=tag))}
+    paths["html"] = write_html(record, layout.report_path(verdict, "html", tag=tag), captures or {})
     return paths

@@ -356,6 +356,33 @@ def check_page(html_path: str | Path, *, timeout: float = 30.0) -> PageCheck:
     return result
 
 
+_OVERFLOW = """JSON.stringify((function () {
+  var out = [], vw = document.documentElement.clientWidth;
+  if (document.documentElement.scrollWidth > vw) out.push('page: ' + document.documentElement.scrollWidth + ' px wide');
+  Array.from(document.querySelectorAll('body *')).forEach(function (e) {
+    var r = e.getBoundingClientRect(), cs = getComputedStyle(e);
+    if (r.width === 0 || cs.display === 'none' || cs.visibility === 'hidden') return;
+    var what = e.tagName.toLowerCase() + (e.className && e.className.baseVal === undefined ? '.' + e.className : '');
+    if (r.right > vw + 0.5) out.push(what + ' ends at ' + Math.round(r.right) + ' px');
+    if (e.scrollWidth > e.clientWidth + 1 && cs.overflowX === 'visible' && e.clientWidth > 0
+        && !(e instanceof SVGElement))
+      out.push(what + ' content ' + e.scrollWidth + ' px in ' + e.clientWidth + ' px: ' + (e.innerText || '').slice(0, 40));
+  });
+  return out; })())"""
+
+
+def overflow(html_path: str | Path, *, width: int = 700, timeout: float = 30.0) -> list[str]:
+    """Elements of ``html_path`` that do not fit a ``width``-pixel-wide window.
+
+    Anything ending right of the viewport, and any box whose content is wider than the box
+    (text running into the next table cell); an empty list when the page fits.
+    """
+    url = _file_url(html_path)
+    with _browser(timeout) as page:
+        _load(page, url, width=width)
+        return list(json.loads(page.evaluate(_OVERFLOW) or "[]"))
+
+
 def screenshot(html_path: str | Path, png_path: str | Path, *, width: int = 1000, media: str = "screen",
                timeout: float = 30.0) -> Path:
     """Write a full-page PNG of ``html_path`` (``media="print"`` shows the print styles)."""

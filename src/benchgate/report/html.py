@@ -19,6 +19,8 @@ from benchgate.analysis.capture import Capture
 from benchgate.analysis.names import MEASUREMENT_TITLES
 from benchgate.record import CheckRecord, StepRecord, UnitRecord
 from benchgate.report import plots
+from benchgate.report.cautions import GENERAL_CAUTIONS
+from benchgate.report.derivation import derivation_rows, value_text
 from benchgate.report.svg import esc
 from benchgate.units.format import format_quantity
 
@@ -70,18 +72,7 @@ def limits_text(check: CheckRecord) -> str:
     return f"≤ {_q(w.high, w.unit)}"
 
 
-def _plain(value: Any) -> str:
-    if isinstance(value, float):
-        return f"{value:.6g}"
-    if isinstance(value, dict):
-        return "; ".join(f"{k} {_plain(v)}" for k, v in value.items() if v is not None)
-    if isinstance(value, (list, tuple)):
-        return "[" + ", ".join(_plain(v) for v in value) + "]"
-    return str(value)
-
-
-def _short(value: Any, limit: int = 800) -> str:
-    text = _plain(value)
+def _short(text: str, limit: int = 800) -> str:
     return text if len(text) <= limit else text[: limit - 1] + "…"
 
 
@@ -96,7 +87,7 @@ def _check_row(c: CheckRecord, step: StepRecord) -> dict[str, Any]:
         value = _q(r.value, r.unit)
         # GUM (JCGM 100:2008) 7.2.6: an uncertainty is stated with at most two significant digits
         u = "not stated" if r.uncertainty is None else _q(r.uncertainty, r.unit, 2)
-    details = [(str(k), _short(v)) for k, v in list(c.window.details.items())[:16]]
+    details = [(k, _short(v)) for k, v in derivation_rows(c.window.details, unit)]
     return {
         "step": step.title or step.id,
         "step_id": step.id,
@@ -135,12 +126,46 @@ def _file_sha256(path: Path) -> str | None:
         return None
 
 
+#: capture metadata not repeated in the facts list (shown elsewhere, or local to the machine).
+_META_HIDDEN = {"file", "format", "warnings"}
+
+UNFRAMED_NOTE = ("Taken without framing (serial lines mode): the device sends one text line per sample "
+                 "with no checksum or sequence number, so a corrupted line that still reads as a "
+                 "valid code, or a dropped line when the device's END count is missing, cannot be "
+                 "detected. Values from this capture are less certain than from a framed capture.")
+
+
+def unframed(metadata: Mapping[str, Any]) -> bool:
+    """Whether a capture was taken without framing (serial lines mode).
+
+    Read from the capture's metadata: ``framing: "lines"`` (the serial driver's marker), or the
+    instrument entry's ``protocol: "lines"``.
+    """
+    instrument = metadata.get("instrument")
+    protocol = instrument.get("protocol") if isinstance(instrument, Mapping) else None
+    return metadata.get("framing") == "lines" or protocol == "lines"
+
+
+def metadata_rows(metadata: Mapping[str, Any], *, limit: int = 24) -> list[tuple[str, str]]:
+    """The capture's metadata as ``(label, text)`` rows, whatever keys the driver wrote."""
+    rows = [(str(k).replace("_", " "), _short(value_text(str(k), v, ""), 300))
+            for k, v in metadata.items() if str(k) not in _META_HIDDEN]
+    if len(rows) > limit:
+        rows = rows[: limit - 1] + [("…", f"{len(rows) - limit + 1} more entries in the capture file")]
+    return rows
+
+
 def _step_view(step: StepRecord, captures: Mapping[str, Capture], folder: Path | None) -> dict[str, Any]:
     figures: list[plots.Figure] = []
     notes: list[str] = []
     cap = step.capture
+    meta_rows: list[tuple[str, str]] = []
+    no_framing = False
     if cap is not None:
         capture = captures.get(step.id)
+        if capture is not None:
+            meta_rows = metadata_rows(capture.metadata)
+            no_framing = unframed(capture.metadata)
         if folder is not None:
             found = _file_sha256(folder / cap.file)
             if found is None:
@@ -159,7 +184,7 @@ def _step_view(step: StepRecord, captures: Mapping[str, Capture], folder: Path |
         "duration": _duration(step.started, step.ended), "attempts": step.attempts,
         "retried": step.attempts > 1, "answer": step.answer, "error": step.error,
         "notes": list(step.notes), "capture": cap, "figures": figures, "bars": bars,
-        "plot_notes": notes,
+        "plot_notes": notes, "meta_rows": meta_rows, "unframed": no_framing,
         "rate_text": _q(cap.sample_rate, "S/s") if cap is not None else "",
     }
 
@@ -177,24 +202,34 @@ def context(record: UnitRecord, captures: Mapping[str, Capture], folder: Path | 
     for i, row in enumerate(rows, 1):
         row["index"] = i
     counts = {v: sum(1 for r in rows if r["verdict"] == v) for v in ("pass", "fail", "inconclusive", "error")}
-    flags = {str(k): v for k, v in record.flags.items()}
+    flags = {str(k): value_text(str(k), v, "") for k, v in record.flags.items()}
     cal_problems = [i.role for i in record.instruments
                     if (i.calibration or {}).get("status", "none") != "valid"]
+    headline = HEADLINES.get(verdict, verdict)
+    if record.reanalysis_of:
+        was = record.reanalysis_of
+        headline = (f"Reanalysis without hardware — {headline} (plan v{record.plan_version}); "
+                    f"the original run was {was.get('verdict') or '?'} under plan "
+                    f"v{was.get('plan_version') or '?'}")
     return {
         "r": record,
         "verdict": verdict,
         "verdict_word": verdict.upper(),
-        "headline": HEADLINES.get(verdict, verdict),
+        "reanalysis": bool(record.reanalysis_of),
+        "headline": headline,
         "serial_shown": record.serial if record.serial != "" else "(empty serial number)",
         "duration": _duration(record.started, record.ended),
         "rows": rows,
         "counts": counts,
         "steps": steps,
         "retries": [s for s in steps if s["retried"]],
+        "unframed_steps": [s["title"] for s in steps if s["unframed"]],
+        "unframed_note": UNFRAMED_NOTE,
         "flags": sorted(flags.items()),
         "cal_problems": cal_problems,
-        "expired_allowed": bool(flags.get("allow_expired_calibration")),
+        "expired_allowed": bool(record.flags.get("allow_expired_calibration")),
         "safety": SAFETY,
+        "general_cautions": GENERAL_CAUTIONS,
     }
 
 

@@ -1,5 +1,8 @@
 """Where a unit's evidence goes on disk: ``reports/<plan>/<serial>/<UTC time>-<verdict>.<ext>``.
 
+A reanalysis (stored captures re-judged without hardware) is named so that nobody can take it
+for a run: ``<UTC time>-reanalysis-v<plan version>-<verdict>.<ext>`` (:func:`report_tag`).
+
 Serial numbers come from operators and barcode scanners, so they are turned into file names by
 :func:`safe_name`: no path separators or traversal, no control characters, no leading dots,
 bounded length, and still unique — whenever sanitising changed anything a short hash of the
@@ -84,6 +87,17 @@ def utc_stamp(started: str) -> str:
     return t.strftime("%Y%m%dT%H%M%S") + f".{t.microsecond // 1000:03d}Z"
 
 
+def report_tag(record: object) -> str | None:
+    """The file-name tag of a record's reports: ``reanalysis-v<plan version>`` for a reanalysis.
+
+    ``record`` is a :class:`benchgate.record.UnitRecord` (anything with ``reanalysis_of`` and
+    ``plan_version``); an ordinary run has no tag.
+    """
+    if not getattr(record, "reanalysis_of", None):
+        return None
+    return f"reanalysis-v{getattr(record, 'plan_version', '')}"
+
+
 class ReportLayout:
     """File names for one run of one plan on one unit.
 
@@ -116,12 +130,17 @@ class ReportLayout:
         """Where the raw capture of step ``step_id`` goes (``<time>-<step>.npz``)."""
         return self.folder / f"{self.stamp}-{safe_name(step_id)}.npz"
 
-    def report_path(self, verdict: str, ext: str) -> Path:
-        """Where the report with this verdict and extension goes (``<time>-<verdict>.<ext>``)."""
+    def report_path(self, verdict: str, ext: str, *, tag: str | None = None) -> Path:
+        """Where the report with this verdict and extension goes (``<time>-<verdict>.<ext>``).
+
+        ``tag`` (e.g. ``reanalysis-v4``, from :func:`report_tag`) goes between the time and
+        the verdict: ``<time>-<tag>-<verdict>.<ext>``.
+        """
         ext = str(ext).lstrip(".")
         if not re.fullmatch(r"[a-z0-9]{1,8}", ext):
             raise ValueError(f"report extension {ext!r} must be 1 to 8 lower-case letters or digits")
-        return self.folder / f"{self.stamp}-{safe_name(str(verdict))}.{ext}"
+        middle = f"{safe_name(tag)}-" if tag else ""
+        return self.folder / f"{self.stamp}-{middle}{safe_name(str(verdict))}.{ext}"
 
     def relative(self, path: str | Path) -> str:
         """``path`` relative to the unit's folder, as reports name their captures."""

@@ -15,9 +15,12 @@ import os
 from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any
+from urllib.parse import quote
 
 from markupsafe import Markup, escape
 
+from benchgate.report.bounds import clip_axis
+from benchgate.report.cautions import GENERAL_CAUTIONS
 from benchgate.units.format import format_quantity
 
 SAFETY = ("Bench work can hurt people and boards: mains-powered instruments, charged capacitors "
@@ -41,11 +44,13 @@ def _q(x: float | None, unit: str) -> str:
 def histogram_svg(stats: Any, *, width: int = 360, height: int = 120) -> Markup:
     """A histogram of one check's values with the window limits and the mean marked.
 
-    ``stats`` is a :class:`~benchgate.store.queries.CheckStats`; returns inline SVG markup.
+    ``stats`` is a :class:`~benchgate.store.queries.CheckStats`; returns inline SVG markup. The
+    axis never extends past what the quantity can physically take (:func:`benchgate.report.bounds.physical_bounds`):
+    no negative frequencies, amplitudes or start-up times, no duty cycle above 100 %.
     """
     edges = list(stats.histogram.edges)
     counts = list(stats.histogram.counts)
-    lo, hi = edges[0], edges[-1]
+    lo, hi = clip_axis(edges[0], edges[-1], stats.measurement, stats.unit, stats.min, stats.max)
     top = max(counts) if counts and max(counts) > 0 else 1
     ml, mr, mt, mb = 8, 8, 14, 22  # margins
     pw, ph = width - ml - mr, height - mt - mb
@@ -61,7 +66,7 @@ def histogram_svg(stats: Any, *, width: int = 360, height: int = 120) -> Markup:
         if c <= 0:
             continue
         h = c / top * ph
-        left, right = x(edges[i]), x(edges[i + 1])
+        left, right = x(max(edges[i], lo)), x(min(edges[i + 1], hi))
         outside = ((stats.low is not None and edges[i + 1] <= stats.low)
                    or (stats.high is not None and edges[i] >= stats.high))
         parts.append(f'<rect class="{"bar out" if outside else "bar"}" x="{_num(left)}" '
@@ -122,6 +127,48 @@ def _window(low: float | None, high: float | None, unit: str) -> str:
     return f"≥ {_q(low, unit)}" if low is not None else f"≤ {_q(high, unit)}"
 
 
+def _field(item: Any, name: str, default: Any = None) -> Any:
+    if isinstance(item, dict):
+        return item.get(name, default)
+    return getattr(item, name, default)
+
+
+def report_link(report_path: str | os.PathLike[str] | None, page_dir: Path | None) -> str | None:
+    """A relative link from the summary page to a unit's HTML report (beside its JSON report).
+
+    ``report_path`` is the report path stored with the run (JSON or HTML, absolute or relative
+    to the working folder); ``page_dir`` the folder the summary page is written to (None: the
+    working folder). Returns a percent-encoded relative URL, or None when there is no report.
+    """
+    if not report_path:
+        return None
+    target = Path(report_path)
+    if target.suffix == ".json":
+        target = target.with_suffix(".html")
+    base = Path.cwd() if page_dir is None else page_dir
+    try:
+        rel = os.path.relpath(target.resolve(), base.resolve())
+    except ValueError:  # another drive (Windows): no relative path exists
+        return None
+    return quote(Path(rel).as_posix())
+
+
+def unit_rows(units: Any, page_dir: Path | None) -> list[dict[str, Any]]:
+    """The unit list of the page: serial, plan, latest verdict, attempts and the report link.
+
+    ``units`` is a sequence of per-unit entries (objects or dicts) with ``serial``,
+    ``plan_id``, ``verdict`` (of the latest attempt), ``attempts`` and ``report_path`` (of the
+    latest attempt), as the results database reports them.
+    """
+    rows = []
+    for u in units or ():
+        verdict = _field(u, "verdict") or "incomplete"
+        rows.append({"serial": str(_field(u, "serial", "")), "plan_id": str(_field(u, "plan_id", "") or ""),
+                     "verdict": str(verdict), "attempts": _field(u, "attempts", "—"),
+                     "link": report_link(_field(u, "report_path"), page_dir)})
+    return rows
+
+
 def _environment():
     import jinja2
 
@@ -131,8 +178,13 @@ def _environment():
 
 
 def render_summary_html(summary: Any, *, title: str | None = None,
-                        generated: datetime | None = None) -> str:
-    """The lot summary page for ``summary`` (a :class:`~benchgate.store.queries.Summary`)."""
+                        generated: datetime | None = None, units: Any = None,
+                        page_dir: str | os.PathLike[str] | None = None) -> str:
+    """The lot summary page for ``summary`` (a :class:`~benchgate.store.queries.Summary`).
+
+    The unit list comes from ``summary.units`` (or ``units`` when given); each unit's report is
+    linked relative to ``page_dir``, the folder the page will be written to.
+    """
     from benchgate import __version__
 
     generated = generated or datetime.now(UTC)
@@ -167,9 +219,12 @@ def render_summary_html(summary: Any, *, title: str | None = None,
                                                     kind="fail" if r.kind == "fail" else "error")}
                            for r in summary.pareto_reasons],
         "checks": checks,
+        "units": unit_rows(units if units is not None else getattr(summary, "units", None),
+                           None if page_dir is None else Path(page_dir)),
         "generated": generated.astimezone(UTC).strftime("%Y-%m-%d %H:%M UTC"),
         "version": __version__,
         "safety": SAFETY,
+        "general_cautions": GENERAL_CAUTIONS,
         "cpk_good": CPK_GOOD,
     }
     return _environment().get_template("summary.html.j2").render(**context)
@@ -179,6 +234,7 @@ def write_summary_html(summary: Any, path: str | os.PathLike[str], **kwargs: Any
     """Write the lot summary page to ``path`` (folders created); returns the path."""
     p = Path(path)
     p.parent.mkdir(parents=True, exist_ok=True)
+    kwargs.setdefault("page_dir", p.parent)
     tmp = p.with_name(p.name + ".part")
     tmp.write_text(render_summary_html(summary, **kwargs), encoding="utf-8")
     os.replace(tmp, p)
