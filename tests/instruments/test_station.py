@@ -168,3 +168,20 @@ class TestCalibrationStatus:
         assert cal.status(self.today) == "expired"
         d = cal.to_dict(self.today)
         assert d["due"] == "2026-01-01" and d["channels"]["rail"]["status"] == "expired"
+
+
+@pytest.mark.parametrize(("body", "col", "message"), [
+    # issue 9: every number of a station file is finite and plausible
+    ("  adc: {kind: serial-adc, port: /dev/x, timeout: .nan}", 50, "is not a finite number"),
+    ("  adc: {kind: serial-adc, port: /dev/x, vref: inf V}", 47, "finite"),
+    ("  adc: {kind: serial-adc, port: /dev/x, clock_ppm: 1e999}", 52, "finite"),
+    ("  adc: {kind: serial-adc, port: /dev/x, timeout: 1e9 s}", 50, "out of range"),
+    ("  adc: {kind: serial-adc, port: /dev/x, rate: -.inf}", 47, "is not a finite number"),
+    ("  adc: {kind: serial-adc, port: /dev/x, calibration: {gain: nan}}", 61, "finite"),
+    ("  dmm: {kind: scpi-dmm, resource: x, accuracy: {gain: nan %}}", 55, "finite"),
+    ("  dmm: {kind: scpi-dmm, resource: x, settle: 'inf s'}", 46, "finite"),
+])
+def test_non_finite_numbers(tmp_path, body, col, message):
+    lines = errors_of(tmp_path, f"station: b\ninstruments:\n{body}\n")
+    assert lines[0].startswith(f"{tmp_path / 'station.yaml'}:3:{col}: "), lines
+    assert message in lines[0], lines

@@ -125,3 +125,40 @@ class TestCombine:
     def test_to_dict(self):
         assert CheckVerdict(Verdict.PASS, "ok", "simple").to_dict() == {
             "verdict": "pass", "reason": "ok", "rule": "simple"}
+
+
+def _broken_window(**changes) -> Window:
+    """A window altered after it was built (as a corrupted record or a bug elsewhere could)."""
+    w = Window(unit="Hz", low=900.0, high=1000.0, nominal=950.0)
+    for k, v in changes.items():
+        object.__setattr__(w, k, v)
+    return w
+
+
+class TestNeverPassOnUntrusted:
+    # issue 9, defence in depth: the loader refuses these; the judge must not pass them either
+    @pytest.mark.parametrize("changes", [
+        {"low": math.nan}, {"high": math.nan}, {"low": math.nan, "high": math.nan},
+        {"low": -math.inf}, {"high": math.inf}, {"low": 1000.0, "high": 900.0},
+        {"low": None, "high": None}, {"nominal": math.nan},
+    ])
+    @pytest.mark.parametrize("rule", ["simple", "guarded"])
+    def test_improper_window_is_an_error(self, changes, rule):
+        v = judge(m(950.0, 1.0), _broken_window(**changes), rule)
+        assert v.verdict is Verdict.ERROR and "window" in v.reason
+
+    def test_window_refuses_non_finite_limits_when_built(self):
+        for kw in ({"low": math.nan}, {"high": math.inf}, {"low": 1.0, "nominal": math.nan}):
+            with pytest.raises(ValueError, match="finite"):
+                Window(unit="Hz", **kw)
+
+    @pytest.mark.parametrize(("value", "u"), [(math.nan, 1.0), (math.inf, 1.0), (-math.inf, None),
+                                              (950.0, math.nan), (950.0, math.inf), (950.0, -1.0)])
+    @pytest.mark.parametrize("rule", ["simple", "guarded"])
+    def test_non_finite_value_or_u_is_an_error(self, value, u, rule):
+        # Measurement refuses these when built; this one is altered afterwards
+        meas = m(950.0, 1.0)
+        object.__setattr__(meas, "value", value)
+        object.__setattr__(meas, "uncertainty", u)
+        v = judge(meas, W, rule)
+        assert v.verdict is Verdict.ERROR, v

@@ -7,6 +7,7 @@ import math
 import pytest
 
 from benchgate.units import UnitError, parse_quantity, parse_value
+from benchgate.units.parse import NotFiniteError, parse_rate
 
 
 class TestPrefixes:
@@ -120,3 +121,40 @@ class TestDimensions:
     def test_unknown_expected_unit(self):
         with pytest.raises(UnitError):
             parse_quantity("1", "furlong")
+
+
+class TestFiniteOnly:
+    # issue 9: NaN and infinity are never a value of a plan or station field
+    @pytest.mark.parametrize("bad", ["nan", "NaN V", "-inf", "inf Hz", "Infinity", "1e999 Hz",
+                                     "9" * 400, float("nan"), float("inf"), 10**400])
+    def test_refused(self, bad):
+        with pytest.raises(NotFiniteError, match="finite"):
+            parse_quantity(bad, "Hz", field="rate")
+
+
+class TestInductanceCodes:
+    def test_rkm_for_inductance(self):
+        # IEC 60062 letter-position rule applied to inductors (from memory): 4u7 = 4.7 µH
+        q = parse_quantity("4u7", "H")
+        assert q.unit == "H" and math.isclose(q.value, 4.7e-6, rel_tol=1e-15)
+        assert math.isclose(parse_quantity("100n", "H").value, 100e-9, rel_tol=1e-15)
+        # without an expected unit the code still reads as a capacitance
+        assert parse_quantity("4u7").unit == "F"
+
+    def test_r_is_not_read_as_henry(self):
+        # "4R7" on an inductor commonly means 4.7 µH; refuse rather than read 4.7 H
+        with pytest.raises(UnitError, match="inductance"):
+            parse_quantity("4R7", "H", field="L")
+
+
+class TestRate:
+    # one reader for every sample rate (analyze --rate, capture --rate)
+    @pytest.mark.parametrize(("text", "hz"), [("48k", 48e3), ("48 kHz", 48e3), ("50 kS/s", 50e3),
+                                              ("48000", 48e3), ("1.5M", 1.5e6), (44100, 44100.0)])
+    def test_accepted(self, text, hz):
+        assert parse_rate(text) == hz
+
+    @pytest.mark.parametrize("bad", ["0", "-48k", "nan", "48 V", "fast", "inf"])
+    def test_refused(self, bad):
+        with pytest.raises(UnitError):
+            parse_rate(bad)

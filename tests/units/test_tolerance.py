@@ -75,3 +75,41 @@ class TestPart:
     def test_bad_resistors(self, bad):
         with pytest.raises(UnitError):
             parse_part(bad, "Ω", field="R")
+
+
+class TestAmbiguous:
+    # issue 9: "±5" could be 5 % or 5 of the unit; a bare YAML number stays percent (documented)
+    @pytest.mark.parametrize("bad", ["±5", "+/-5", "+10/-5", "± 2.5"])
+    def test_plus_minus_without_unit(self, bad):
+        with pytest.raises(UnitError, match="unit"):
+            parse_tolerance(bad, "Hz")
+
+    @pytest.mark.parametrize("bad", [float("nan"), float("inf"), "±nan %", "inf %", "1e999 %",
+                                     "+1e999/-5 %", 10**400])
+    def test_non_finite(self, bad):
+        with pytest.raises(UnitError, match="finite"):
+            parse_tolerance(bad, "V")
+
+
+class TestSpacedLetters:
+    # issue 9: with a space, a letter after a bare number is an SI prefix or an error, never a
+    # tolerance code (the old code read "47 K" as 47 Ω ±10 % and "1 M" as 1 Ω ±20 %)
+    def test_prefix_after_space(self):
+        p = parse_part("47 K", "Ω")
+        assert p.nominal == 47e3 and p.tolerance.plus == 0.0
+        p = parse_part("1 M", "Ω")
+        assert p.nominal == 1e6 and p.tolerance.plus == 0.0
+
+    @pytest.mark.parametrize("bad", ["47 J", "47 B", "47 D"])
+    def test_non_prefix_letter_refused(self, bad):
+        with pytest.raises(UnitError, match="not an SI prefix"):
+            parse_part(bad, "Ω", field="R")
+
+    def test_code_then_letter_is_still_a_tolerance(self):
+        # IEC 60062: a complete value followed by its tolerance letter
+        assert math.isclose(parse_part("16k J", "Ω").tolerance.plus, 0.05)
+        assert math.isclose(parse_part("47 k J", "Ω").tolerance.plus, 0.05)
+
+    def test_inductor_part(self):
+        p = parse_part("4u7 ±20%", "H", field="L")
+        assert math.isclose(p.nominal, 4.7e-6) and math.isclose(p.tolerance.plus, 0.2)

@@ -5,6 +5,8 @@ from __future__ import annotations
 import argparse
 import sys
 
+from benchgate.cli._argtypes import rate as _rate
+
 
 def add_parser(subparsers) -> argparse.ArgumentParser:
     parser = subparsers.add_parser(
@@ -16,8 +18,8 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
         "2 the file cannot be read.",
     )
     parser.add_argument("file", metavar="FILE", help="capture file: .csv, .wav or .npz")
-    parser.add_argument("--rate", type=float, metavar="HZ",
-                        help="sample rate in Hz (needed for a one-column CSV)")
+    parser.add_argument("--rate", type=_rate, metavar="RATE",
+                        help="sample rate, e.g. 48k or 48 kHz (needed for a one-column CSV)")
     parser.add_argument("--adc-bits", type=int, metavar="N", help="ADC resolution in bits")
     parser.add_argument("--vref", type=float, metavar="V",
                         help="ADC reference voltage (range 0 … V); for WAV, volts at full scale")

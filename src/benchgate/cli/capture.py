@@ -5,21 +5,8 @@ from __future__ import annotations
 import argparse
 import sys
 
-
-def _quantity(unit: str):
-    def parse(text: str) -> float:
-        from benchgate.units import UnitError, parse_value
-
-        try:
-            value = parse_value(text, unit)
-        except UnitError as exc:
-            raise argparse.ArgumentTypeError(str(exc)) from None
-        if not value > 0:
-            raise argparse.ArgumentTypeError(f"must be greater than zero, got {text!r}")
-        return value
-
-    parse.__name__ = {"s": "duration", "Hz": "rate", "V": "voltage", "A": "current"}.get(unit, unit)
-    return parse
+from benchgate.cli._argtypes import positive_quantity as _quantity
+from benchgate.cli._argtypes import rate as _rate
 
 
 def add_parser(subparsers) -> argparse.ArgumentParser:
@@ -37,7 +24,7 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
                         help="instrument role to record with: adc or digitizer (default adc)")
     parser.add_argument("--duration", required=True, type=_quantity("s"), metavar="TIME",
                         help="record length, e.g. 1s, 250ms")
-    parser.add_argument("--rate", type=_quantity("Hz"), metavar="RATE",
+    parser.add_argument("--rate", type=_rate, metavar="RATE",
                         help="sample rate, e.g. 50k or 50 kHz (default: the station's or the device's)")
     parser.add_argument("--channel", metavar="NAME",
                         help="channel to record (default: the instrument's first channel)")

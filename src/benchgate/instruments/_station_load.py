@@ -13,9 +13,11 @@ from benchgate.instruments.registry import KIND_ROLES
 from benchgate.instruments.station import ROLES, Calibration, InstrumentConfig, Station
 from benchgate.plan.yamlpos import YNode, load_file
 from benchgate.units import UnitError, parse_quantity
+from benchgate.units.parse import NotFiniteError
 
 _TOP_KEYS = {"station", "description", "instruments"}
 _ADDRESS_KEYS = ("port", "url", "usb", "resource")
+_MAX_TIMEOUT = 3600.0  # s; longer is a typo, and would overflow some OS timeouts
 _CAL_KEYS = {"date", "due", "gain", "offset"}
 # ADC keys with their reader; anything else in an ADC entry is an error (a typo must not pass)
 _ADC_DEFAULTS: dict[str, Any] = {
@@ -86,7 +88,7 @@ class StationReader:
         else:
             kind = kind_node.value
         address = self.address(role, kind, entry, node)
-        timeout = self.quantity(entry.pop("timeout", None), "s", 1.0, positive=True)
+        timeout = self.quantity(entry.pop("timeout", None), "s", 1.0, positive=True, hi=_MAX_TIMEOUT)
         cal_node = entry.pop("calibration", None)
         if kind == "serial-adc":
             options = self.adc_options(entry)
@@ -184,13 +186,13 @@ class StationReader:
                 else:
                     opts[key] = v.value
             elif key == "vref":
-                opts[key] = self.quantity(v, "V", 3.3, positive=True)
+                opts[key] = self.quantity(v, "V", 3.3, positive=True, hi=1000.0)
             elif key == "identify_timeout":
-                opts[key] = self.quantity(v, "s", 2.0, positive=True)
+                opts[key] = self.quantity(v, "s", 2.0, positive=True, hi=_MAX_TIMEOUT)
             elif key == "rate":
-                opts[key] = self.quantity(v, "Hz", None, positive=True)
+                opts[key] = self.quantity(v, "Hz", None, positive=True, hi=1e10)
             elif key == "clock_ppm":
-                ppm = self.quantity(v, None, None)
+                ppm = self.quantity(v, None, None, hi=1e6)
                 if ppm is not None and ppm < 0:
                     self.err("'clock_ppm' must be >= 0", v)
                 opts[key] = ppm
@@ -237,12 +239,12 @@ class StationReader:
             elif key in ("date", "due"):
                 fields[key] = self.date(v)
             elif key == "gain":
-                g = self.quantity(v, None, 1.0)
+                g = self.quantity(v, None, 1.0, hi=1e6)
                 if not g > 0:
                     self.err(f"calibration gain must be > 0, got {v.value!r}", v)
                 fields[key] = g
             else:
-                fields[key] = self.quantity(v, "V", 0.0)
+                fields[key] = self.quantity(v, "V", 0.0, lo=-1000.0, hi=1000.0)
         if fields.get("date") and fields.get("due") and fields["due"] < fields["date"]:
             self.err("calibration due date is before its date", node.value["due"])
         return Calibration(**fields)
@@ -255,7 +257,9 @@ class StationReader:
             self.err(f"expected a date like 2026-06-01, got {node.value!r}", node)
             return None
 
-    def quantity(self, node: YNode | None, unit: str | None, default, *, positive: bool = False):
+    def quantity(self, node: YNode | None, unit: str | None, default, *, positive: bool = False,
+                 lo: float | None = None, hi: float | None = None):
+        """A finite number (parse_quantity refuses NaN and infinity) inside its plausible range."""
         if node is None:
             return default
         try:
@@ -265,6 +269,12 @@ class StationReader:
             return default
         if positive and not q.value > 0:
             self.err(f"must be greater than zero, got {node.value!r}", node)
+            return default
+        if (lo is not None and q.value < lo) or (hi is not None and q.value > hi):
+            span = f"{lo:g} … {hi:g}" if lo is not None and hi is not None else (
+                f"at least {lo:g}" if lo is not None else f"at most {hi:g}")
+            symbol = q.unit or unit or ""
+            self.err(f"{node.value!r} is out of range ({span}{' ' + symbol if symbol else ''})", node)
             return default
         return q.value
 
@@ -293,6 +303,9 @@ class StationReader:
         if isinstance(node.value, str):
             try:
                 q = parse_quantity(node.value)
+            except NotFiniteError as exc:  # "nan", "inf V", "1e999": never a setting
+                self.err(f"{key}: {exc}", node)
+                return None
             except UnitError:
                 return node.value
             if q.unit == "%":

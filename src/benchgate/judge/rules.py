@@ -4,11 +4,12 @@ from __future__ import annotations
 
 import enum
 import math
+import numbers
 from collections.abc import Iterable
 from dataclasses import dataclass
 
 from benchgate.analysis.measurement import Measurement
-from benchgate.plan.limits import Window
+from benchgate.plan.limits import Window, window_problem
 from benchgate.units.format import format_quantity
 
 DECISION_RULES = ("simple", "guarded")
@@ -88,6 +89,9 @@ def judge(measurement: Measurement | None, window: Window, rule: str = "simple")
     rule = window.decision or rule
     if rule not in DECISION_RULES:
         raise ValueError(f"unknown decision rule {rule!r}; expected one of {', '.join(DECISION_RULES)}")
+    problem = window_problem(window)
+    if problem is not None:  # defence in depth: the loader refuses such windows
+        return CheckVerdict(Verdict.ERROR, f"the window cannot be judged against: {problem}", rule)
     if measurement is None:
         return CheckVerdict(Verdict.ERROR, "measurement was not made", rule)
     if measurement.unit != window.unit:
@@ -96,6 +100,9 @@ def judge(measurement: Measurement | None, window: Window, rule: str = "simple")
         return CheckVerdict(Verdict.ERROR, f"{measurement.name} not valid: {measurement.reason}", rule)
     x = measurement.value
     u = measurement.uncertainty
+    untrusted = _untrusted(x, u)
+    if untrusted is not None:
+        return CheckVerdict(Verdict.ERROR, f"{measurement.name} cannot be judged: {untrusted}", rule)
     lo, hi = window.low, window.high
     what = _describe(measurement)
     below = lo is not None and x < lo
@@ -107,7 +114,7 @@ def judge(measurement: Measurement | None, window: Window, rule: str = "simple")
             return CheckVerdict(Verdict.FAIL, f"{what} above {_fmt(hi, window.unit)}", rule)
         return CheckVerdict(Verdict.PASS, f"{what} inside {_window_text(window)}", rule)
     # guarded: acceptance zone shrunk by U, rejection zone grown by U
-    if u is None or not math.isfinite(u):
+    if u is None:
         if below or above:
             edge = lo if below else hi
             side = "below" if below else "above"
@@ -125,6 +132,19 @@ def judge(measurement: Measurement | None, window: Window, rule: str = "simple")
         f"{what} within U of the limit {_fmt(edge, window.unit)}; guard band w = U",
         rule,
     )
+
+
+def _untrusted(x: object, u: object) -> str | None:
+    """Why a measured value and its U cannot be compared with limits (None when they can)."""
+    if isinstance(x, bool) or not isinstance(x, numbers.Real) or not math.isfinite(x):
+        return f"the value {x!r} is not a finite number"
+    if u is None:
+        return None
+    if isinstance(u, bool) or not isinstance(u, numbers.Real) or not math.isfinite(u):
+        return f"its uncertainty {u!r} is not a finite number"
+    if u < 0:
+        return f"its uncertainty {u!r} is negative"
+    return None
 
 
 def _window_text(w: Window) -> str:

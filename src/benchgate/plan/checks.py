@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from typing import Any
 
+from benchgate.analysis.bounds import bounds_of
 from benchgate.plan import derive
 from benchgate.plan.fields import Collector
 from benchgate.plan.limits import Window
@@ -24,8 +25,48 @@ _CACHE_MAX = 256
 
 
 def parse_limit(c: Collector, node: YNode, path: str, measurement: str, unit: str,
-                mc_defaults: dict[str, Any]) -> Window | None:
-    """The window of one check, or None after recording errors."""
+                mc_defaults: dict[str, Any], budget: derive.WorkBudget | None = None) -> Window | None:
+    """The window of one check, or None after recording errors.
+
+    Every window that comes out is a proper finite interval that some possible value of the
+    quantity can fall in (see :mod:`benchgate.analysis.bounds`).
+    """
+    try:
+        w = _parse_window(c, node, path, measurement, unit, mc_defaults,
+                          budget if budget is not None else derive.WorkBudget())
+    except ValueError as exc:  # a Window refusing its limits (e.g. overflow in a derivation)
+        c.error(node, f"{path}: {exc}")
+        return None
+    if w is None:
+        return None
+    return _passable(c, node, path, measurement, w)
+
+
+def _passable(c: Collector, node: YNode, path: str, measurement: str, w: Window) -> Window | None:
+    """``w`` when some value can pass it; an error at the limit otherwise."""
+    text = _window_text(w)
+    if w.low is not None and w.high is not None and w.low == w.high:
+        c.error(node, f"{path}: the window {text} has zero width; no measured value, which "
+                      "carries an uncertainty, can be shown to lie in it")
+        return None
+    b = bounds_of(measurement)
+    if not b.admits(w.low, w.high):
+        c.error(node, f"{path}: no {measurement} can ever pass the window {text}: "
+                      f"{measurement} is {b.describe(w.unit)} ({b.why})")
+        return None
+    return w
+
+
+def _window_text(w: Window) -> str:
+    if w.low is not None and w.high is not None:
+        return f"{format_quantity(w.low, w.unit)} … {format_quantity(w.high, w.unit)}"
+    if w.low is not None:
+        return f"≥ {format_quantity(w.low, w.unit)}"
+    return f"≤ {format_quantity(w.high, w.unit)}"
+
+
+def _parse_window(c: Collector, node: YNode, path: str, measurement: str, unit: str,
+                  mc_defaults: dict[str, Any], budget: derive.WorkBudget) -> Window | None:
     m = c.mapping(node, path, LIMIT_KEYS)
     if m is None:
         return None
@@ -76,6 +117,13 @@ def parse_limit(c: Collector, node: YNode, path: str, measurement: str, unit: st
         margin = _tolerance(c, m["margin"], f"{path}.margin", unit)
     if circuit is None or (len(c.errors) > n_err):
         return None
+    key = _key(circuit, measurement, unit, mc, given)
+    cost = derive.work(circuit, mc["draws"])
+    if not budget.charge(key, cost):
+        c.error(fc, f"{path}.from_circuit: this derivation ({cost:,} circuit evaluations) would take "
+                    f"the plan past its budget of {budget.limit:,}; use fewer Monte Carlo draws or fewer "
+                    "toleranced parts, or share one from_circuit between checks with a YAML anchor")
+        return None
     try:
         d = _analyse(circuit, measurement, unit, mc, given)
     except ValueError as exc:
@@ -96,11 +144,17 @@ def _tolerance(c: Collector, node: YNode, path: str, unit: str) -> Tolerance | N
         return None
 
 
+def _key(circuit: derive.Circuit, measurement: str, unit: str, mc: dict[str, Any],
+         given: Window | None) -> tuple:
+    win = None if given is None else (given.low, given.high)
+    return (circuit.topology, tuple(sorted(circuit.options.items())), tuple(sorted(circuit.parts.items())),
+            measurement, unit, mc["draws"], mc["seed"], mc["distribution"], win)
+
+
 def _analyse(circuit: derive.Circuit, measurement: str, unit: str, mc: dict[str, Any],
              given: Window | None) -> derive.Derivation:
     win = None if given is None else (given.low, given.high)
-    key = (circuit.topology, tuple(sorted(circuit.options.items())), tuple(sorted(circuit.parts.items())),
-           measurement, unit, mc["draws"], mc["seed"], mc["distribution"], win)
+    key = _key(circuit, measurement, unit, mc, given)
     if key not in _CACHE:
         if len(_CACHE) >= _CACHE_MAX:
             _CACHE.clear()
@@ -114,7 +168,7 @@ def parse_monte_carlo(c: Collector, node: YNode | None, path: str, base: dict[st
     m = c.mapping(node, path, MC_KEYS)
     if not m:
         return out
-    draws = c.integer(m.get("draws"), f"{path}.draws", derive.MIN_DRAWS, 1_000_000)
+    draws = c.integer(m.get("draws"), f"{path}.draws", derive.MIN_DRAWS, derive.MAX_DRAWS)
     seed = c.integer(m.get("seed"), f"{path}.seed", 0, 2**63 - 1)
     dist = c.choice(m.get("distribution"), f"{path}.distribution", derive.DISTRIBUTIONS)
     for k, v in (("draws", draws), ("seed", seed), ("distribution", dist)):

@@ -28,6 +28,11 @@ from benchgate.units.tolerance import Part, Tolerance
 MAX_CORNER_PARTS = 16
 DEFAULT_DRAWS = 20_000
 MIN_DRAWS = 10_000
+MAX_DRAWS = 1_000_000
+#: circuit evaluations (corners + Monte Carlo draws, weighted by :func:`work_weight`) one plan
+#: may ask for, so that loading and `benchgate check` finish within a few seconds on any plan
+#: the loader accepts; one unit is about a microsecond on a small CI machine.
+MAX_PLAN_WORK = 2_500_000
 DISTRIBUTIONS = ("uniform", "normal")
 
 #: topology -> (options with allowed values, parts: key -> unit, required parts, outputs)
@@ -153,6 +158,45 @@ def _corner_values(circuit: Circuit) -> tuple[dict[str, np.ndarray], list[str], 
     return values, varied, bits
 
 
+def work_weight(circuit: Circuit) -> int:
+    """Relative cost of evaluating ``circuit`` at one point (about 1 µs per unit, measured).
+
+    The ladder solves its phase condition on a grid per point, each section adding to it; the
+    Wien bridge and the tanks find a root numerically; the timer is a closed form.
+    """
+    if circuit.topology == "rc_ladder":
+        return 8 + int(circuit.options.get("sections") or 3)
+    if circuit.topology == "wien_bridge":
+        return 2
+    return 1
+
+
+def work(circuit: Circuit, draws: int) -> int:
+    """The evaluation work of :func:`analyse` for ``circuit`` and ``draws``: nominal, corners, draws."""
+    varied = sum(1 for p in circuit.parts.values() if p.low != p.high)
+    corners = 2 ** min(varied, MAX_CORNER_PARTS)
+    return (1 + corners + draws) * work_weight(circuit)
+
+
+class WorkBudget:
+    """The evaluation work one plan has asked for so far; a derivation asked twice costs once."""
+
+    def __init__(self, limit: int | None = None):
+        self.limit = MAX_PLAN_WORK if limit is None else limit
+        self.spent = 0
+        self._seen: set[Any] = set()
+
+    def charge(self, key: Any, cost: int) -> bool:
+        """Book ``cost`` for derivation ``key``; False (nothing booked) when it would overrun."""
+        if key in self._seen:
+            return True
+        if self.spent + cost > self.limit:
+            return False
+        self._seen.add(key)
+        self.spent += cost
+        return True
+
+
 def draw(circuit: Circuit, draws: int, seed: int, distribution: str = "uniform") -> dict[str, np.ndarray]:
     """Monte Carlo part values: independent per part, inside each tolerance band.
 
@@ -199,8 +243,8 @@ def analyse(circuit: Circuit, measurement: str, *, draws: int = DEFAULT_DRAWS, s
         raise ValueError(f"{circuit.topology} gives {', '.join(info['outputs'])}, not {measurement}")
     key = info["outputs"][measurement]
     scale = output_scale(measurement)
-    if draws < MIN_DRAWS:
-        raise ValueError(f"Monte Carlo needs at least {MIN_DRAWS} draws, got {draws}")
+    if not MIN_DRAWS <= draws <= MAX_DRAWS:
+        raise ValueError(f"Monte Carlo needs {MIN_DRAWS} to {MAX_DRAWS} draws, got {draws}")
     nominal_vals = {n: np.array([p.nominal]) for n, p in circuit.parts.items()}
     nom_out = evaluate(circuit, nominal_vals)
     nominal = float(nom_out[key][0]) * scale

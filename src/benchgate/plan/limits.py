@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+import numbers
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any
@@ -38,10 +39,9 @@ class Window:
     details: Mapping[str, Any] = field(default_factory=dict)
 
     def __post_init__(self) -> None:
-        if self.low is None and self.high is None:
-            raise ValueError("a window needs at least one limit")
-        if self.low is not None and self.high is not None and self.low > self.high:
-            raise ValueError(f"window low {self.low} is above high {self.high}")
+        problem = window_problem(self)
+        if problem:
+            raise ValueError(problem)
 
     def contains(self, x: float) -> bool:
         """Whether ``x`` lies inside the closed window."""
@@ -73,3 +73,26 @@ class Window:
             decision=d.get("decision"),
             details=d.get("details") or {},
         )
+
+
+def window_problem(w: Window) -> str | None:
+    """Why ``w`` is not a proper finite interval (None when it is one).
+
+    A proper window has at least one limit, every limit and the nominal finite numbers, and
+    low <= high. :class:`Window` refuses others when built; the judge asks again, because a
+    window can also arrive from a stored record or be altered after it was built.
+    """
+    low, high = getattr(w, "low", None), getattr(w, "high", None)
+    if low is None and high is None:
+        return "a window needs at least one limit"
+    for name in ("low", "high", "nominal"):
+        v = getattr(w, name, None)
+        if v is None:
+            continue
+        if isinstance(v, bool) or not isinstance(v, numbers.Real):
+            return f"window {name} {v!r} is not a number"
+        if not math.isfinite(v):
+            return f"window {name} {v} is not a finite number"
+    if low is not None and high is not None and low > high:
+        return f"window low {low} is above high {high}"
+    return None

@@ -33,6 +33,7 @@ from benchgate.plan.model import (
 from benchgate.plan.validate import validate_steps
 from benchgate.plan.yamlpos import YNode, load_file, load_text
 
+MAX_STEPS = 500  # keeps loading and `check` within a few seconds; real plans have tens
 MC_DEFAULTS = {"draws": derive.DEFAULT_DRAWS, "seed": 1, "distribution": "uniform"}
 
 
@@ -90,8 +91,13 @@ def build_plan(root: YNode, file: str) -> Plan:
             c.error(steps_node, "steps: expected a non-empty list of steps")
         else:
             positions: list[dict[str, tuple[int, int]]] = []
+            budget = derive.WorkBudget()
+            if len(steps_node.value) > MAX_STEPS:
+                c.error(steps_node.value[MAX_STEPS], f"steps: more than {MAX_STEPS} steps; split the "
+                                                     "plan (a plan runs on one unit in one go)")
+                raise PlanErrors(c.errors)
             for i, item in enumerate(steps_node.value):
-                got = _step(c, item, f"steps[{i}]", defaults)
+                got = _step(c, item, f"steps[{i}]", defaults, budget)
                 if got is not None:
                     steps.append(got[0])
                     positions.append(got[1])
@@ -159,8 +165,8 @@ def _field(c: Collector, f: dataclasses.Field, node: YNode, path: str) -> Any:
     raise AssertionError(f"unhandled field kind {kind}")  # a model/loader mismatch, not user input
 
 
-def _step(c: Collector, node: YNode, path: str,
-          defaults: dict[str, Any]) -> tuple[Step, dict[str, tuple[int, int]]] | None:
+def _step(c: Collector, node: YNode, path: str, defaults: dict[str, Any],
+          budget: derive.WorkBudget) -> tuple[Step, dict[str, tuple[int, int]]] | None:
     if not node.is_map:
         c.error(node, f"{path}: expected a step (a mapping with id, title, kind …), got {described(node.value)}")
         return None
@@ -196,7 +202,7 @@ def _step(c: Collector, node: YNode, path: str,
         for key, v in defaults["capture"].items():
             values.setdefault(key, v)
         _capture_extras(c, m, node, path, values)
-        checks = _checks(c, m.get("checks"), f"{path}.checks", defaults)
+        checks = _checks(c, m.get("checks"), f"{path}.checks", defaults, budget)
         values["checks"] = tuple(checks)
     elif kind == "reading":
         q = values.get("quantity")
@@ -212,7 +218,7 @@ def _step(c: Collector, node: YNode, path: str,
             if lim is None:
                 c.error(node, f"{path}: missing required key 'limit' (the window for the reading)")
             else:
-                w = parse_limit(c, lim, f"{path}.limit", q, READING_UNITS[q], defaults["monte_carlo"])
+                w = parse_limit(c, lim, f"{path}.limit", q, READING_UNITS[q], defaults["monte_carlo"], budget)
                 if w is not None:
                     pos = node.key_pos.get("limit", (lim.line, lim.column))
                     values["checks"] = (Check(q, w, pos[0], pos[1]),)
@@ -259,7 +265,8 @@ def _capture_extras(c: Collector, m: dict[str, YNode], node: YNode, path: str, v
         c.error(node, f"{path}: missing required key 'channel' (here or in defaults.capture)")
 
 
-def _checks(c: Collector, node: YNode | None, path: str, defaults: dict[str, Any]) -> list[Check]:
+def _checks(c: Collector, node: YNode | None, path: str, defaults: dict[str, Any],
+            budget: derive.WorkBudget) -> list[Check]:
     if node is None:
         return []
     m = c.mapping(node, path, MEASUREMENT_UNITS)
@@ -269,7 +276,8 @@ def _checks(c: Collector, node: YNode | None, path: str, defaults: dict[str, Any
     for name, lim in m.items():
         if name not in MEASUREMENT_UNITS:
             continue  # reported by mapping()
-        w = parse_limit(c, lim, f"{path}.{name}", name, MEASUREMENT_UNITS[name], defaults["monte_carlo"])
+        w = parse_limit(c, lim, f"{path}.{name}", name, MEASUREMENT_UNITS[name], defaults["monte_carlo"],
+                        budget)
         if w is not None:
             line, col = node.key_pos[name]
             out.append(Check(name, w, line, col))

@@ -80,24 +80,53 @@ _NUMBER = r"[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?"
 _QUANTITY_RE = re.compile(rf"^\s*({_NUMBER})\s*(.*?)\s*$")
 # IEC 60062 letter-and-digit code: digits, a letter standing for the decimal point, digits.
 _RKM_RE = re.compile("^\\s*(\\d*)([Rrpnu\u00b5\u03bcmkKMG])(\\d+)\\s*(\u03a9|\u2126|ohms?|F|H)?\\s*$")
-_RKM_LETTERS: dict[str, tuple[float, str | None]] = {
-    "R": (1.0, "Ω"),
-    "r": (1.0, "Ω"),
+# letter -> (factor, units the letter may stand for; the first is taken when none is expected).
+# IEC 60062 writes resistors with R (and k, M, G) and capacitors with p, n, µ (and m); inductors
+# are written with the same letter-position rule (4u7 = 4.7 µH; IEC 60062, from memory). R is
+# not accepted for an inductance: "4R7" on an inductor often means 4.7 µH, not 4.7 H.
+_RKM_LETTERS: dict[str, tuple[float, tuple[str, ...] | None]] = {
+    "R": (1.0, ("Ω",)),
+    "r": (1.0, ("Ω",)),
     "k": (1e3, None),
     "K": (1e3, None),
     "M": (1e6, None),
     "G": (1e9, None),
     "m": (1e-3, None),
-    "p": (1e-12, "F"),
-    "n": (1e-9, "F"),
-    "u": (1e-6, "F"),
-    "\u00b5": (1e-6, "F"),
-    "\u03bc": (1e-6, "F"),
+    "p": (1e-12, ("F", "H")),
+    "n": (1e-9, ("F", "H")),
+    "u": (1e-6, ("F", "H")),
+    "\u00b5": (1e-6, ("F", "H")),
+    "\u03bc": (1e-6, ("F", "H")),
 }
+# "nan", "inf", "infinity" (any case, signed), with or without a unit after them
+_NONFINITE_RE = re.compile(r"^\s*[+-]?(?:nan|inf(?:inity)?)\b", re.IGNORECASE)
 
 
 class UnitError(ValueError):
     """A value that is not a number, has an unknown unit, or has the wrong dimension."""
+
+
+class NotFiniteError(UnitError):
+    """A number that is NaN or infinite (``.nan``, ``inf``, ``1e999``) where a finite one is meant."""
+
+
+def finite(value: float, text: object, where: str = "") -> float:
+    """``value`` when it is a finite number; NotFiniteError naming ``text`` otherwise.
+
+    The one check every number read from a plan or a station goes through.
+    """
+    if not math.isfinite(value):
+        raise NotFiniteError(f"{where}value must be a finite number, got {_short(text)}")
+    return value
+
+
+def _short(text: object) -> str:
+    r = repr(text)
+    return r if len(r) <= 40 else r[:37] + "..."
+
+
+def _a(word: str) -> str:
+    return f"an {word}" if word[:1] in "aeiou" else f"a {word}"
 
 
 @dataclass(frozen=True)
@@ -139,15 +168,20 @@ def _split_unit(rest: str) -> tuple[float, str]:
     raise UnitError(f"unknown unit {rest!r}")
 
 
-def _parse_rkm(text: str) -> Quantity | None:
+def _parse_rkm(text: str, expected: str | None = None) -> Quantity | None:
     m = _RKM_RE.match(text)
     if not m:
         return None
     whole, letter, frac, sym = m.groups()
     factor, implied = _RKM_LETTERS[letter]
     value = _scaled(f"{whole or '0'}.{frac}", factor)
-    unit = canonical_unit(sym) if sym else (implied or "")
-    if implied and unit and implied != unit:
+    if sym:
+        unit = canonical_unit(sym)
+    elif implied is None:
+        unit = ""
+    else:
+        unit = expected if expected in implied else implied[0]
+    if implied and unit and unit not in implied:
         raise UnitError(f"letter code {text.strip()!r} mixes {letter!r} with unit {sym!r}")
     return Quantity(value, unit)
 
@@ -185,31 +219,35 @@ def parse_quantity(text: str | int | float, unit: str | None = None, *, field: s
     if isinstance(text, bool):
         raise UnitError(f"{where}expected a number, got {text!r}")
     if isinstance(text, (int, float)):
-        value = float(text)
+        try:
+            value = float(text)
+        except OverflowError:  # an integer too large for a float
+            raise NotFiniteError(f"{where}value must be a finite number, got {_short(text)}") from None
         got = ""
     elif isinstance(text, str):
         try:
-            q = _parse_text(text)
+            q = _parse_text(text, expected)
         except UnitError as exc:
-            raise UnitError(f"{where}{exc}") from None
+            raise type(exc)(f"{where}{exc}") from None
         value, got = q.value, q.unit
     else:
         raise UnitError(f"{where}expected a number, got {type(text).__name__}")
-    if not math.isfinite(value):
-        raise UnitError(f"{where}value must be finite, got {text!r}")
+    finite(value, text, where)
     if expected is not None and got and got != expected:
         raise UnitError(
-            f"{where}expected a {dimension_name(expected)} in {expected}, "
-            f"got a {dimension_name(got)} ({text!r})"
+            f"{where}expected {_a(dimension_name(expected))} in {expected}, "
+            f"got {_a(dimension_name(got))} ({text!r})"
         )
     return Quantity(value, expected if expected is not None else got)
 
 
-def _parse_text(text: str) -> Quantity:
+def _parse_text(text: str, expected: str | None = None) -> Quantity:
     s = text.strip()
     if not s:
         raise UnitError("expected a number, got an empty string")
-    rkm = _parse_rkm(s)
+    if _NONFINITE_RE.match(s):
+        raise NotFiniteError(f"value must be a finite number, got {text!r}")
+    rkm = _parse_rkm(s, expected)
     if rkm is not None:
         return rkm
     m = _QUANTITY_RE.match(s)
@@ -229,3 +267,24 @@ def _scaled(number: str, factor: float) -> float:
 def parse_value(text: str | int | float, unit: str, *, field: str | None = None) -> float:
     """Shortcut for ``parse_quantity(text, unit, field=field).value``."""
     return parse_quantity(text, unit, field=field).value
+
+
+def parse_positive(text: str | int | float, unit: str, *, field: str | None = None) -> float:
+    """A finite value greater than zero in ``unit`` (a duration, a sample rate, a voltage range).
+
+    >>> parse_positive("48k", "Hz")
+    48000.0
+    """
+    value = parse_value(text, unit, field=field)
+    if not value > 0:
+        where = f"{field}: " if field else ""
+        raise UnitError(f"{where}must be greater than zero, got {text!r}")
+    return value
+
+
+def parse_rate(text: str | int | float, *, field: str | None = None) -> float:
+    """A sample rate in Hz: ``48k``, ``48 kHz``, ``50 kS/s``, ``48000``; finite and above zero.
+
+    The one reader of rates for every command-line option and file that gives one.
+    """
+    return parse_positive(text, "Hz", field=field)

@@ -9,7 +9,15 @@ from __future__ import annotations
 import re
 from dataclasses import dataclass
 
-from benchgate.units.parse import UnitError, canonical_unit, dimension_name, parse_quantity
+from benchgate.units.parse import (
+    PREFIXES,
+    NotFiniteError,
+    UnitError,
+    canonical_unit,
+    dimension_name,
+    finite,
+    parse_quantity,
+)
 
 #: IEC 60062 tolerance letters for resistors and capacitors -> ± percent
 #: (F, J, K and M: IEC 60062 via REFERENCES.md, J and M from memory; B, C, D, G from memory).
@@ -27,6 +35,8 @@ TOLERANCE_LETTERS: dict[str, float] = {
 _PM = r"(?:±|\+/-|\+-|\+/−)"
 _NUM = r"(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?"
 _SYM_RE = re.compile(rf"^\s*{_PM}?\s*({_NUM})\s*(\S*)\s*$")
+_PM_START_RE = re.compile(rf"^\s*{_PM}")
+_NONFINITE_TOL_RE = re.compile(rf"^\s*(?:{_PM}|\+)?\s*(?:nan|inf(?:inity)?)\b", re.IGNORECASE)
 _ASYM_RE = re.compile(rf"^\s*\+\s*({_NUM})\s*(\S*?)\s*/\s*[-−]\s*({_NUM})\s*(\S*)\s*$")
 
 
@@ -89,10 +99,16 @@ def parse_tolerance(text: str | int | float, unit: str | None = None, *, field: 
     if isinstance(text, bool) or not isinstance(text, (str, int, float)):
         raise UnitError(f"{where}expected a tolerance such as '±5 %', got {text!r}")
     if isinstance(text, (int, float)):
-        if text < 0:
+        try:
+            pct = finite(float(text), text, where)
+        except OverflowError:
+            raise NotFiniteError(f"{where}value must be a finite number, got {str(text)[:20]}...") from None
+        if pct < 0:
             raise UnitError(f"{where}a tolerance cannot be negative ({text!r})")
-        return Tolerance(float(text) / 100, float(text) / 100, True)
+        return Tolerance(pct / 100, pct / 100, True)
     s = text.strip()
+    if _NONFINITE_TOL_RE.match(s):
+        raise NotFiniteError(f"{where}value must be a finite number, got {text!r}")
     if s in TOLERANCE_LETTERS:
         p = TOLERANCE_LETTERS[s] / 100
         return Tolerance(p, p, True)
@@ -102,12 +118,18 @@ def parse_tolerance(text: str | int | float, unit: str | None = None, *, field: 
         u = minus_u or plus_u
         if plus_u and minus_u and plus_u != minus_u:
             raise UnitError(f"{where}tolerance {text!r} mixes units {plus_u!r} and {minus_u!r}")
+        if not u:
+            raise UnitError(f"{where}tolerance {text!r} has no unit: write '%' for a relative "
+                            "band or the value's unit for an absolute one (e.g. '+10/-5 %')")
         plus = _width(plus_n, u, expected, text, where)
         minus = _width(minus_n, u, expected, text, where)
         return Tolerance(minus[0], plus[0], plus[1], plus[2])
     m = _SYM_RE.match(s)
     if m:
         n, u = m.groups()
+        if not u and _PM_START_RE.match(s):
+            raise UnitError(f"{where}tolerance {text!r} is ambiguous without a unit: write "
+                            f"'{s} %' for a relative band or '{s} <unit>' for an absolute one")
         w, rel, cu = _width(n, u, expected, text, where)
         return Tolerance(w, w, rel, cu)
     raise UnitError(f"{where}expected a tolerance such as '±5 %', '+10/-5 %' or '±12 Hz', got {text!r}")
@@ -115,7 +137,7 @@ def parse_tolerance(text: str | int | float, unit: str | None = None, *, field: 
 
 def _width(number: str, unit: str, expected: str | None, text: str, where: str) -> tuple[float, bool, str]:
     if unit in ("", "%"):
-        return float(number) / 100, True, ""
+        return finite(float(number), text, where) / 100, True, ""
     try:
         q = parse_quantity(f"{number} {unit}", expected)
     except UnitError as exc:
@@ -126,7 +148,7 @@ def _width(number: str, unit: str, expected: str | None, text: str, where: str) 
                    f"or %, got {dimension_name(got)} ({text!r})")
         raise UnitError(f"{where}{msg}") from None
     if not q.unit:
-        return float(number) / 100, True, ""
+        return finite(float(number), text, where) / 100, True, ""
     return q.value, False, q.unit
 
 
@@ -185,6 +207,13 @@ def _split_part(text: str, unit: str) -> tuple[str, str]:
         if ch in "±+" and i > 0:
             return s[:i].strip(), s[i:].strip()
     parts = s.split()
+    if len(parts) == 2 and _BARE_NUMBER.match(parts[0]) and parts[1] in TOLERANCE_LETTERS:
+        # "47 K", "1 M": with a space, a letter after a bare number is an SI prefix (47 kΩ)
+        # or the unit, never silently a tolerance code; "47 J" is neither.
+        if parts[1] in PREFIXES or canonical_unit_or_none(parts[1]) == unit:
+            return s, ""
+        raise UnitError(f"{s!r}: {parts[1]!r} after a bare number is not an SI prefix; for a "
+                        f"tolerance write '{parts[0]} ±{TOLERANCE_LETTERS[parts[1]]:g} %'")
     if len(parts) >= 2:
         last = parts[-1]
         letter = last in TOLERANCE_LETTERS and not (unit == "F" and last == "F")
@@ -200,3 +229,11 @@ def _split_part(text: str, unit: str) -> tuple[str, str]:
 
 
 _RKM_GLUED = re.compile(r"^\d*[RrpnuµμmkKMG]\d+$")
+_BARE_NUMBER = re.compile(r"^(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?$")
+
+
+def canonical_unit_or_none(text: str) -> str | None:
+    try:
+        return canonical_unit(text)
+    except UnitError:
+        return None
