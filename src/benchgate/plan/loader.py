@@ -20,6 +20,7 @@ from benchgate.plan.model import (
     CAPTURE_DEFAULT_KEYS,
     DEFAULTS_SPEC,
     HAZARD_NAMES,
+    MAX_STEPS,
     STEP_CLASSES,
     STEP_KINDS,
     CaptureStep,
@@ -33,7 +34,6 @@ from benchgate.plan.model import (
 from benchgate.plan.validate import validate_steps
 from benchgate.plan.yamlpos import YNode, load_file, load_text
 
-MAX_STEPS = 500  # keeps loading and `check` within a few seconds; real plans have tens
 MC_DEFAULTS = {"draws": derive.DEFAULT_DRAWS, "seed": 1, "distribution": "uniform"}
 
 

@@ -16,6 +16,7 @@ from benchgate.plan.limits import Window
 STEP_KINDS = ("supply", "wait", "prompt", "capture", "reading")
 ON_FAIL = ("stop", "continue")
 DECISIONS = ("simple", "guarded")
+MAX_STEPS = 500  # keeps loading and `check` within a few seconds; real plans have tens
 #: hazards a plan may declare; each needs an explicit acknowledgement before a run.
 HAZARD_NAMES = ("mains", "high_voltage", "hot_surfaces", "stored_energy", "moving_parts",
                 "optical_radiation", "other")

@@ -14,11 +14,12 @@ from typing import Any
 
 from benchgate.analysis.names import CAPABILITIES, MEASUREMENT_UNITS, READING_UNITS
 from benchgate.plan.checks import LIMIT_KEYS
-from benchgate.plan.derive import DISTRIBUTIONS, LC_PARTS, MIN_DRAWS, TOPOLOGIES
+from benchgate.plan.derive import DISTRIBUTIONS, LC_PARTS, MAX_DRAWS, MIN_DRAWS, TOPOLOGIES
 from benchgate.plan.model import (
     CAPTURE_DEFAULT_KEYS,
     DECISIONS,
     HAZARD_NAMES,
+    MAX_STEPS,
     ON_FAIL,
     STEP_CLASSES,
     CaptureStep,
@@ -126,7 +127,7 @@ def build_schema() -> dict[str, Any]:
     for key, f in _keys(Plan):
         md = f.metadata
         if md["kind"] == "steps":
-            props[key] = {"type": "array", "minItems": 1, "description": md["doc"],
+            props[key] = {"type": "array", "minItems": 1, "maxItems": MAX_STEPS, "description": md["doc"],
                           "items": {"oneOf": [{"$ref": f"#/$defs/step_{k}"} for k in STEP_CLASSES]}}
         elif md["kind"] == "hazards":
             hz = {k: _field_schema(f2.metadata) for k, f2 in _keys(Hazard)}
@@ -170,7 +171,7 @@ def build_schema() -> dict[str, Any]:
     defs["circuit"] = {"description": "the window derived from the design (worst case over tolerance corners)",
                        "oneOf": [s for t in TOPOLOGIES for s in _circuit_schema(t)]}
     defs["monte_carlo"] = {"type": "object", "additionalProperties": False, "properties": {
-        "draws": {"type": "integer", "minimum": MIN_DRAWS},
+        "draws": {"type": "integer", "minimum": MIN_DRAWS, "maximum": MAX_DRAWS},
         "seed": {"type": "integer", "minimum": 0},
         "distribution": {"enum": list(DISTRIBUTIONS)}}}
     return {
