@@ -147,3 +147,18 @@ class TestCheckStaysFast:
     def test_too_many_yaml_values(self):
         lines = errors("plan: x\ncautions: [" + ",".join(["a"] * 60_000) + "]\n")
         assert "more than 50000 YAML values" in lines[0]
+
+
+class TestCaptureSizes:
+    def test_rate_and_range_bounded(self):
+        assert "out of range" in errors(tb3_with("rate: 50 kS/s", "rate: 1e300 Hz"))[0]
+        assert "out of range" in errors(tb3_with("rate: 50 kS/s", "rate: 50 kS/s\n    range: 1e300 V"))[0]
+
+    def test_samples_at_a_tiny_rate(self):
+        # 5e7 samples at 1e-310 Hz made an infinite duration on the old code
+        text = tb3_with("    duration: 500 ms\n    checks:", "    samples: 50000000\n    rate: 1e-310 Hz\n    checks:")
+        assert any("last longer than the longest capture" in line for line in errors(text))
+
+    def test_too_many_samples(self):
+        text = tb3_with("rate: 50 kS/s", "rate: 1 GS/s").replace("duration: 500 ms", "duration: 60 s")
+        assert any("samples (rate × duration)" in line for line in errors(text))

@@ -20,6 +20,7 @@ from benchgate.plan.model import (
     CAPTURE_DEFAULT_KEYS,
     DEFAULTS_SPEC,
     HAZARD_NAMES,
+    MAX_SAMPLES,
     MAX_STEPS,
     STEP_CLASSES,
     STEP_KINDS,
@@ -247,7 +248,7 @@ def _step(c: Collector, node: YNode, path: str, defaults: dict[str, Any],
 
 def _capture_extras(c: Collector, m: dict[str, YNode], node: YNode, path: str, values: dict[str, Any]) -> None:
     if "samples" in m:
-        n = c.integer(m["samples"], f"{path}.samples", 16, 50_000_000)
+        n = c.integer(m["samples"], f"{path}.samples", 16, MAX_SAMPLES)
         if "duration" in m:
             c.error(m["samples"], f"{path}: give duration or samples, not both")
         elif n is not None:
@@ -255,12 +256,22 @@ def _capture_extras(c: Collector, m: dict[str, YNode], node: YNode, path: str, v
             if rate is None:
                 c.error(m["samples"], f"{path}: samples needs a rate (here or in defaults.capture)")
             elif rate > 0:
-                values["duration"] = n / rate
+                longest = _yaml_keys(CaptureStep)["duration"].metadata["maximum"]
+                if n / rate > longest:
+                    c.error(m["samples"], f"{path}: {n} samples at {rate:g} Hz last longer than "
+                                          f"the longest capture ({longest:g} s)")
+                else:
+                    values["duration"] = n / rate
     if values.get("duration") in (None, 0.0):
         if "samples" not in m and "duration" not in m:
             c.error(node, f"{path}: missing required key 'duration' (or samples with rate)")
         elif "duration" in values:
             c.error(m.get("duration"), f"{path}.duration: must be greater than zero")
+    rate, duration = values.get("rate"), values.get("duration")
+    if rate and duration and rate * duration > MAX_SAMPLES:
+        c.error(m.get("duration") or m.get("samples") or m.get("rate") or node,
+                f"{path}: {rate * duration:.3g} samples (rate × duration) in one capture; at most "
+                f"{MAX_SAMPLES:,}")
     if not values.get("channel"):
         c.error(node, f"{path}: missing required key 'channel' (here or in defaults.capture)")
 

@@ -17,6 +17,7 @@ STEP_KINDS = ("supply", "wait", "prompt", "capture", "reading")
 ON_FAIL = ("stop", "continue")
 DECISIONS = ("simple", "guarded")
 MAX_STEPS = 500  # keeps loading and `check` within a few seconds; real plans have tens
+MAX_SAMPLES = 50_000_000  # samples in one capture (rate × duration)
 #: hazards a plan may declare; each needs an explicit acknowledgement before a run.
 HAZARD_NAMES = ("mains", "high_voltage", "hot_surfaces", "stored_energy", "moving_parts",
                 "optical_radiation", "other")
@@ -132,13 +133,13 @@ class CaptureStep(Step):
     channel: str = field(default="", metadata=spec("channel name on the recorder (required here or in defaults.capture)"))
     rate: float | None = field(default=None, metadata=spec(
         "sample rate (Hz or S/s); absent: the instrument's default", kind="quantity", unit="Hz",
-        minimum=0))
+        minimum=0, maximum=1e10))
     duration: float = field(default=0.0, metadata=spec(
         "record length (or give `samples` with `rate`)", kind="quantity", unit="s", minimum=0,
         maximum=600))
     range: float | None = field(default=None, metadata=spec(
         "input range (full-scale voltage) when the recorder has ranges", kind="quantity", unit="V",
-        minimum=0))
+        minimum=0, maximum=1000))
     power_on: bool = field(default=False, metadata=spec(
         "switch the supply output on right after the record starts, to capture the start-up",
         kind="bool"))
