@@ -1,4 +1,4 @@
-"""A whole run on the virtual bench: a SCPI error is blamed on the command that caused it.
+"""A whole run on the understudy bench: a SCPI error is blamed on the command that caused it.
 
 The issue's case: an entry queued by an earlier supply command was found by the closing
 ``OUTP OFF`` and turned a passing unit into an error blamed on ``OUTP OFF``.
@@ -27,9 +27,9 @@ def plan():
 
 def run_one(tmp_path, plan, arm):
     from benchgate.instruments.station import load_station
-    from benchgate.sim.bench import VirtualBench
+    from benchgate.sim.bench import UnderstudyBench
 
-    with VirtualBench("tb3", speed=SPEED, workdir=tmp_path / "vb") as vb:
+    with UnderstudyBench("tb3", speed=SPEED, workdir=tmp_path / "vb") as vb:
         vb.load_unit("OH-ATTR-1")
         options = RunOptions(reports_dir=tmp_path / "r", unattended=True, clock=vb.clock, ui="quiet")
         with Runner(plan, load_station(vb.station_path), options) as runner:
