@@ -252,3 +252,16 @@ def test_backend_failure_is_queued_not_fatal():
             assert c.query("*IDN?") == b.instruments["counter"].identity
         finally:
             c.close()
+
+
+def test_error_on_injection_runs_the_command_and_queues_once(bench):
+    c = Client(bench.ports["supply"])
+    try:
+        bench.faults.error_on("supply", "volt", -222, "Data out of range")
+        c.send("VOLT 2")
+        assert float(c.query("VOLT?")) == 2.0  # the command itself ran
+        assert c.query("SYST:ERR?") == '-222,"Data out of range"'
+        c.send("VOLT 3")
+        assert c.query("SYST:ERR?") == '0,"No error"'  # one use only
+    finally:
+        c.close()

@@ -8,6 +8,14 @@ command, followed by draining ``SYSTem:ERRor?`` until ``0``), :meth:`~ScpiSessio
 definite-length block, checked against its header). One lock per instrument covers each
 write+read; after a timeout or a garbled reply the next use first drains stale replies.
 
+Error attribution: the session remembers every command sent since it last read the error queue
+empty. A checked write first drains entries left by those earlier commands (and blames them,
+not itself); an entry found right after a command is that command's. Drivers check the queue
+after their queries too (readings, ``*OPC?``, a waveform fetch), so an entry is named after the
+command that caused it (:class:`ScpiQueueError`). Only the urgent "output off" goes out before
+any drain (switching off must not wait); entries found after it name it together with the
+unchecked commands before it.
+
 Command templates: each driver has SCPI-99 style defaults; a station overrides any of them with
 the instrument option ``commands: {name: "TEMPLATE {value}"}`` (see ``docs/scpi.md``).
 """
@@ -17,7 +25,6 @@ from __future__ import annotations
 import os
 import re
 import socket
-import string
 import threading
 import time
 from collections.abc import Mapping
@@ -25,69 +32,22 @@ from typing import Any
 
 import numpy as np
 
-from benchgate.errors import InstrumentError, PlanError
+from benchgate.errors import InstrumentError
+from benchgate.instruments.scpi_commands import (
+    COMMON_COMMANDS,
+    ScpiQueueError,
+    _format_arg,
+    command_templates,
+    station_error,
+)
+
+__all__ = ["COMMON_COMMANDS", "ScpiQueueError", "ScpiSession", "command_templates", "station_error"]
 
 DEFAULT_VISA_LIBRARY = "@py"
 ERROR_QUEUE_CAP = 20  # SYSTem:ERRor? reads before we give up on an instrument's queue
 CHUNK_SIZE = 1 << 20
 
-COMMON_COMMANDS: dict[str, str] = {
-    "identify": "*IDN?",
-    "reset": "*RST",
-    "clear": "*CLS",
-    "operation_complete": "*OPC?",
-    "error_query": "SYST:ERR?",
-}
-
 _ERROR_REPLY = re.compile(r'^\s*([+-]?\d+)\s*,\s*"(.*)"\s*$', re.DOTALL)
-
-
-def station_error(config, message: str) -> PlanError:
-    """A problem with a station entry, at the entry's position when known."""
-    return PlanError(f"{config.role}: {message}", getattr(config, "file", None) or "<station>",
-                     getattr(config, "line", None))
-
-
-def _fields(template: str) -> set[str]:
-    return {name for _lit, name, _spec, _conv in string.Formatter().parse(template) if name}
-
-
-def command_templates(config, defaults: Mapping[str, str]) -> dict[str, str]:
-    """Driver defaults merged with the station's ``commands`` option.
-
-    Unknown template names, non-text templates and placeholders the driver does not supply
-    are station errors.
-    """
-    templates = {**COMMON_COMMANDS, **defaults}
-    overrides = config.option("commands") or {}
-    if not isinstance(overrides, Mapping):
-        raise station_error(config, "'commands' must be a mapping of template name -> text")
-    for name, text in overrides.items():
-        if name not in templates:
-            known = ", ".join(sorted(templates))
-            raise station_error(config, f"unknown command template {name!r} (known: {known})")
-        if not isinstance(text, str) or not text.strip():
-            raise station_error(config, f"command template {name!r} must be non-empty text")
-        try:
-            extra = _fields(text) - _fields(templates[name])
-        except ValueError as exc:
-            raise station_error(config, f"command template {name!r}: {exc}") from None
-        if extra:
-            allowed = ", ".join(sorted(_fields(templates[name]))) or "none"
-            raise station_error(config, f"command template {name!r} uses {{{', '.join(sorted(extra))}}}"
-                                        f" (placeholders allowed: {allowed})")
-        templates[name] = text.strip()
-    return templates
-
-
-def _format_arg(value: Any) -> str:
-    if isinstance(value, bool):
-        return "ON" if value else "OFF"
-    if isinstance(value, (int, np.integer)):
-        return str(int(value))
-    if isinstance(value, (float, np.floating)):
-        return f"{float(value):.10g}"
-    return str(value)
 
 
 def _is_timeout(exc: Exception) -> bool:
@@ -142,6 +102,7 @@ class ScpiSession:
         self._lock = threading.RLock()
         self._stale = False
         self._closed = False
+        self._unchecked: list[str] = []  # commands sent since the error queue was last read empty
         self._resync_timeout = resync_timeout or max(1.0, 4.0 * self.timeout)
 
     # ------------------------------------------------------------------ opening
@@ -171,10 +132,10 @@ class ScpiSession:
             res.chunk_size = CHUNK_SIZE
             _tune_socket_session(role, config.address, res)
             session.identity = session.query(templates["identify"])
+            session.stale_errors = session.read_errors()  # left by whoever used it before: kept
             if config.option("reset", False):
-                session.write(templates["reset"], check=False)
-                session.write(templates["clear"], check=False)
-            session.stale_errors = session.read_errors()
+                session.write(templates["reset"])
+                session.write(templates["clear"])
         except BaseException:
             session.close()
             raise
@@ -186,27 +147,42 @@ class ScpiSession:
         return self.templates[name].format(**{k: _format_arg(v) for k, v in params.items()})
 
     # ------------------------------------------------------------------ verbs
-    def write(self, command: str, *, check: bool = True) -> None:
-        """Send ``command``; with ``check`` drain the error queue and raise on any entry.
+    def write(self, command: str, *, check: bool = True, urgent: bool = False) -> None:
+        """Send ``command``; with ``check`` raise :class:`ScpiQueueError` for any queue entry.
 
-        A write reads nothing, so it goes out even while stale replies wait to be drained
-        (switching a supply off must never wait for that).
+        A checked write first drains what earlier unchecked commands left in the queue (and
+        blames them); ``urgent`` skips that, so the command goes out at once (switching a supply
+        off). A write reads nothing, so it goes out even while stale replies wait to be drained.
         """
         with self._lock:
+            if check and not urgent and self._unchecked:
+                earlier = list(self._unchecked)
+                entries = self.read_errors()
+                if entries:
+                    raise ScpiQueueError(self.role, entries, earlier, found_before=command)
             self._call("write", command, lambda: self._res.write(command))
+            self._unchecked.append(command)
             if check:
                 self.check_errors(command)
 
-    def query(self, command: str, *, timeout: float | None = None) -> str:
-        """Send ``command`` and return the reply line (termination stripped)."""
+    def query(self, command: str, *, timeout: float | None = None, check: bool = False) -> str:
+        """Send ``command`` and return the reply line (termination stripped).
+
+        With ``check`` the error queue is read right after the reply, and an entry raises
+        :class:`ScpiQueueError` naming ``command``.
+        """
         with self._lock:
             self._prepare()
-            return self._call("query", command, lambda: self._query_line(command, timeout))
+            self._note(command)
+            reply = self._call("query", command, lambda: self._query_line(command, timeout))
+            if check:
+                self.check_errors(command)
+            return reply
 
-    def query_float(self, command: str, *, timeout: float | None = None) -> float:
-        """A query whose reply is one decimal number."""
+    def query_float(self, command: str, *, timeout: float | None = None, check: bool = False) -> float:
+        """A query whose reply is one decimal number (``check`` as for :meth:`query`)."""
         with self._lock:
-            reply = self.query(command, timeout=timeout)
+            reply = self.query(command, timeout=timeout, check=check)
             try:
                 return float(reply.split(";")[0].strip())
             except ValueError:
@@ -214,7 +190,8 @@ class ScpiSession:
                 raise InstrumentError(self.role, f"{command!r} returned {reply[:40]!r}, not a number") from None
 
     def query_binary_values(self, command: str, *, datatype: str = "f", is_big_endian: bool = False,
-                            points: int | None = None, timeout: float | None = None) -> np.ndarray:
+                            points: int | None = None, timeout: float | None = None,
+                            check: bool = False) -> np.ndarray:
         """Send ``command`` and read an IEEE 488.2 definite-length block of ``datatype`` values.
 
         The header ``#<n><length>`` is checked (digit count, length a whole number of values,
@@ -224,25 +201,37 @@ class ScpiSession:
         dtype = np.dtype(datatype).newbyteorder(">" if is_big_endian else "<")
         with self._lock:
             self._prepare()
-            return self._call("binary query", command,
-                              lambda: self._query_block(command, dtype, points, timeout))
+            self._note(command)
+            values = self._call("binary query", command,
+                                lambda: self._query_block(command, dtype, points, timeout))
+            if check:
+                self.check_errors(command)
+            return values
 
     def check_errors(self, after: str) -> None:
-        """Drain ``SYSTem:ERRor?``; raise InstrumentError for the first entry (if any)."""
+        """Drain ``SYSTem:ERRor?``; raise :class:`ScpiQueueError` if it held anything.
+
+        The entries are attributed to ``after`` when it is the only command sent since the
+        queue was last read empty, otherwise to all those commands (``suspects``).
+        """
+        suspects = list(self._unchecked) or [after]
         entries = self.read_errors()
         if entries:
-            code, text = entries[0]
-            more = f" (and {len(entries) - 1} more: " + "; ".join(
-                f"{c},{t!r}" for c, t in entries[1:]) + ")" if len(entries) > 1 else ""
-            raise InstrumentError(self.role, f"{after!r} rejected: {code},\"{text}\"{more}",
-                                  code=code, code_text=text)
+            raise ScpiQueueError(self.role, entries, suspects)
+
+    def _note(self, command: str) -> None:
+        if len(self._unchecked) >= 50:
+            del self._unchecked[:25]
+        self._unchecked.append(command)
 
     def read_errors(self) -> list[tuple[int, str]]:
         """Read ``SYSTem:ERRor?`` until it answers ``0`` (at most ERROR_QUEUE_CAP times)."""
         entries: list[tuple[int, str]] = []
         command = self.templates["error_query"]
         for _ in range(ERROR_QUEUE_CAP):
-            reply = self.query(command)
+            with self._lock:
+                self._prepare()
+                reply = self._call("query", command, lambda: self._query_line(command, None))
             m = _ERROR_REPLY.match(reply)
             if not m:
                 self._stale = True
@@ -250,6 +239,7 @@ class ScpiSession:
                                                  "not <code>,\"<text>\"")
             code, text = int(m.group(1)), m.group(2)
             if code == 0:
+                self._unchecked.clear()
                 return entries
             entries.append((code, text))
         raise InstrumentError(self.role, f"error queue still not empty after {ERROR_QUEUE_CAP} reads "

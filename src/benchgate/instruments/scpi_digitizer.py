@@ -77,7 +77,7 @@ class ScpiDigitizer(ScpiInstrument):
         self.configure("set_points", value=points)
         if range is not None:
             self.configure("set_range", value=float(range))
-        actual = self.session.query_float(self.session.command("rate_query"))
+        actual = self.session.query_float(self.session.command("rate_query"), check=True)
         if not (math.isfinite(actual) and actual > 0):
             raise InstrumentError(self.name, f"instrument reports a sample rate of {actual!r}")
         self._setup = {"channel": channel, "instrument_channel": inst_channel, "rate": actual,
@@ -96,7 +96,8 @@ class ScpiDigitizer(ScpiInstrument):
         speed = getattr(self.clock, "speed", 1.0) or 1.0
         length = self._setup["points"] / self._setup["rate"]
         wall = 0.0 if math.isinf(speed) else length / speed
-        reply = self.session.query(self.session.command("wait"), timeout=self.session.timeout + 1.5 * wall)
+        reply = self.session.query(self.session.command("wait"), timeout=self.session.timeout + 1.5 * wall,
+                                   check=True)
         if reply.strip() != "1":
             raise InstrumentError(self.name, f"operation-complete query returned {reply[:30]!r}, not 1")
 
@@ -108,7 +109,8 @@ class ScpiDigitizer(ScpiInstrument):
         wall_per_mb = 0.5  # generous allowance for slow links on top of the station timeout
         timeout = self.session.timeout + wall_per_mb * points * 4 / 1e6
         return self.session.query_binary_values(self.session.command("fetch"), datatype="f",
-                                                is_big_endian=False, points=points, timeout=timeout)
+                                                is_big_endian=False, points=points, timeout=timeout,
+                                                check=True)
 
     # ------------------------------------------------------------------ whole capture
     def capture(self, channel: str, *, duration: float, rate: float | None = None,

@@ -12,7 +12,7 @@ from typing import Any
 
 import numpy as np
 
-from benchgate.instruments.scpi import ScpiSession, station_error
+from benchgate.instruments.scpi import ScpiQueueError, ScpiSession, station_error
 
 
 def _accuracy_table(config) -> dict[str, tuple[float, float]]:
@@ -81,6 +81,11 @@ class ScpiInstrument:
 
         command = self.session.command(template, **params)
         value = self.session.query_float(command)
+        try:
+            self.session.check_errors(command)
+        except ScpiQueueError as exc:  # the instrument flagged this very reading: not trusted
+            return Measurement.invalid(name, unit, f"{self.name}: {exc.message}", value=value,
+                                       instrument=self.name, command=command, instrument_error=exc.code)
         if not np.isfinite(value) or abs(value) >= 9.9e37:
             return Measurement.invalid(name, unit, f"{self.name} reported overload or no value ({value:g})",
                                        instrument=self.name)

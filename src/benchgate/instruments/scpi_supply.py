@@ -29,10 +29,14 @@ class ScpiSupply(ScpiInstrument):
         self.configure("set_current_limit", value=float(amps))
 
     def output(self, on: bool) -> None:
-        self.configure("output", state=bool(on))
+        """Switch the output; "off" is sent at once, before earlier queue entries are read."""
+        self.session.write(self.session.command("output", state=bool(on)), urgent=not on)
 
     def output_state(self) -> bool:
-        reply = self.session.query(self.session.command("output_state")).strip().upper()
+        return self._output_state(check=True)
+
+    def _output_state(self, *, check: bool) -> bool:
+        reply = self.session.query(self.session.command("output_state"), check=check).strip().upper()
         if reply in ("1", "ON"):
             return True
         if reply in ("0", "OFF"):
@@ -50,7 +54,7 @@ class ScpiSupply(ScpiInstrument):
         command = self.session.command("output", state=False)
         try:
             self.session.write(command, check=False)
-            still_on = self.output_state()
+            still_on = self._output_state(check=False)
         except InstrumentError as exc:
             raise InstrumentError(self.name, f"could not switch the output off and confirm it "
                                              f"({exc.message}); check the supply by hand") from exc

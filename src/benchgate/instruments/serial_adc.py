@@ -230,7 +230,10 @@ class SerialAdc:
                     state.last_point_index = state.index
                 if progress is not None:
                     progress(min(1.0, state.index / n), f"{state.index} of {n} samples")
-            if decoder.next_index >= n or decoder.end_total is not None:
+            if self.protocol == "lines" and not self.free_running:
+                if decoder.ended:  # wait for END: its count shows split or repeated lines
+                    return
+            elif decoder.next_index >= n or decoder.end_total is not None:
                 return
             if now - last_data > stall and wall - wall_last > min(stall, stall / speed + WALL_GRACE):
                 if state.index and now - start >= duration:
@@ -244,29 +247,39 @@ class SerialAdc:
     def _build(self, channel, state: _Progress, actual: float, decoder, n: int, *,
                complete: bool) -> Capture | None:
         codes = state.codes()
-        if complete is False and codes.size == 0:
+        if complete is False and state.index == 0:
             return None
+        extra: dict = {}
         if self.protocol == "framed":
             periods = sorted(state.periods)
             if len(periods) > 1 and complete:
                 raise InstrumentError(self.name, f"device on {self.address} changed its sample period "
                                                  f"during the capture ({periods[0]} to {periods[-1]} ps)")
             declared = 1e12 / periods[0] if periods else actual
-            gaps, lost = state.gaps, state.lost
+            gaps = [(a, min(b, n - a)) for a, b in state.gaps if a < n]
+            lost = sum(b for _a, b in gaps)
             rejected, garbage = state.rejected, state.garbage
             end_total = state.end_total
+            codes = codes[:max(0, n - lost)]
+            received = int(codes.shape[0])
+            tail = max(0, n - received - lost) if complete else 0
+            if tail:
+                gaps = [*gaps, (received + lost, tail)]
+                lost += tail
         else:
-            declared = decoder.timestamp_rate() or float(self.config.options.get("rate") or actual)
-            gaps, lost, rejected, garbage = list(decoder.gaps), decoder.lost, decoder.bad_lines, 0
-            end_total = decoder.end_total
-        gaps = [(a, min(b, n - a)) for a, b in gaps if a < n]  # a free-running stream goes on past n
-        lost = sum(b for _a, b in gaps)
-        codes = codes[:max(0, n - lost)]
-        received = int(codes.shape[0])
-        tail = max(0, n - received - lost) if complete else 0
-        if tail:
-            gaps = [*gaps, (received + lost, tail)]
-            lost += tail
+            res = decoder.result(n, complete=complete)
+            if res.extra and complete:
+                raise InstrumentError(self.name, f"adc on {self.address} says it sent {res.end_total} samples "
+                                                 f"but {res.slots} lines arrived: lines were split or repeated, "
+                                                 "so samples may sit at the wrong index; capture refused "
+                                                 "(lines mode has no framing)")
+            codes, gaps, lost = res.codes, res.gaps, res.lost
+            declared = res.rate or float(self.config.options.get("rate") or actual)
+            rejected, garbage, end_total = len(res.bad_lines), 0, res.end_total
+            extra = {"bad_lines": res.bad_lines[:100], "time_outliers": res.time_outliers[:100],
+                     "repeated_lines": res.repeats, "unlocated": res.unlocated,
+                     "extra_lines": res.extra, "end_count": res.end_total,
+                     "rate_fit": res.fit or None}
         measured = arrival_rate(state.points, declared)
         span = state.points[-1][0] - state.points[0][0] if len(state.points) > 1 else 0.0
         wall = span / (getattr(self.clock, "speed", 1.0) or 1.0)
@@ -285,6 +298,12 @@ class SerialAdc:
         if lost:
             warnings.append(f"{lost} samples lost in {len(gaps)} gap(s) were left out; the record is "
                             f"joined at those points")
+        if extra.get("unlocated"):
+            warnings.append(f"{extra['unlocated']} of the samples the device sent are missing at places "
+                            "lines mode cannot locate (no time stamps); the record is joined at its end")
+        if extra.get("time_outliers"):
+            warnings.append(f"{len(extra['time_outliers'])} samples with an implausible time stamp were "
+                            "counted as lost")
         cal = self.calibration.for_channel(channel) if self.calibration else None
         volts = codes[:, 0].astype(np.float64) * (self.vref / 2.0**self.bits)
         if cal is not None:
@@ -297,7 +316,10 @@ class SerialAdc:
             "loss": {"lost_samples": int(lost), "requested_samples": int(n), "fraction": fraction,
                      "gaps": [[int(a), int(b)] for a, b in gaps], "rejected_frames": int(rejected),
                      "garbage_bytes": int(garbage), "max_loss": self.max_loss,
-                     "end_frame": end_total is not None},
+                     "end_frame": end_total is not None, **extra},
+            # "lines": taken without framing (no checksum, no sequence numbers); see
+            # docs/serial-protocol.md for what such a capture cannot detect
+            "framing": self.protocol,
             "rate": {"declared": declared, "device_reply": actual, "host_measured": measured,
                      "check": "ok" if checkable else f"not checked (needs {MIN_CHECK_WALL:g} s of wall time)"},
             "warnings": warnings,
@@ -346,9 +368,6 @@ class _Progress:
             self.garbage += got.garbage_bytes
             if got.end_total is not None:
                 self.end_total = got.end_total
-        else:
-            self.parts.append(got)
-            self.count += got.shape[0]
         self.index = decoder.next_index
 
     def codes(self) -> np.ndarray:

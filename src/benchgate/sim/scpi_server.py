@@ -84,12 +84,14 @@ class ScpiFaults:
     """Faults applied to the next replies of an instrument (thread-safe).
 
     ``slow(role, seconds)`` delays replies by wall-clock seconds; ``drop(role)`` never sends
-    them; ``garbage(role, data)`` sends ``data`` just before them.
+    them; ``garbage(role, data)`` sends ``data`` just before them; ``error_on(role, header,
+    code, text)`` queues a SCPI error when that command is executed.
     """
 
     def __init__(self) -> None:
         self._lock = threading.Lock()
         self._pending: dict[str, deque[_Fault]] = {r: deque() for r in ROLES}
+        self._errors: dict[str, list[list]] = {}  # role -> [header, code, text, uses left]
 
     def _add(self, role: str, fault: _Fault) -> None:
         if role not in self._pending:
@@ -108,10 +110,42 @@ class ScpiFaults:
     def garbage(self, role: str, data: bytes = b"\x15\xfe#garbage\n", count: int = 1) -> None:
         self._add(role, _Fault("garbage", count, data=bytes(data)))
 
+    def error_on(self, role: str, header: str, code: int, text: str, count: int = 1) -> None:
+        """Queue ``code,"text"`` on ``role`` when it next executes ``header`` (``count`` times).
+
+        ``header`` is a program message unit's header as sent (``MEAS:CURR?``, ``OUTP``),
+        compared without regard to case; the command itself still runs and answers normally,
+        like an instrument that executes a command and flags it (a setting it clipped, a
+        reading taken in a bad state).
+        """
+        if role not in self._pending:
+            raise ValueError(f"unknown role {role!r} (known: {', '.join(ROLES)})")
+        if count < 1:
+            raise ValueError(f"fault count must be >= 1, got {count}")
+        with self._lock:
+            self._errors.setdefault(role, []).append([header.strip().upper(), int(code), text, count])
+
+    def errors_for(self, role: str, message: str) -> list[tuple[int, str]]:
+        """The errors to queue for program message ``message`` on ``role`` (consumes uses)."""
+        with self._lock:
+            armed = self._errors.get(role)
+            if not armed:
+                return []
+            out = []
+            for unit in message.split(";"):
+                head = unit.strip().partition(" ")[0].upper()
+                for entry in armed:
+                    if entry[0] == head and entry[3] > 0:
+                        entry[3] -= 1
+                        out.append((entry[1], entry[2]))
+            armed[:] = [e for e in armed if e[3] > 0]
+            return out
+
     def clear(self) -> None:
         with self._lock:
             for q in self._pending.values():
                 q.clear()
+            self._errors.clear()
 
     def take(self, role: str) -> _Fault | None:
         """The fault for the reply about to be sent by ``role``, if any (consumes one use)."""
@@ -179,7 +213,10 @@ class _Listener:
                 while (i := buf.find(b"\n")) >= 0:
                     line = bytes(buf[:i]).rstrip(b"\r")
                     del buf[: i + 1]
-                    reply = self.instrument.handle(line.decode("ascii", errors="replace"))
+                    message = line.decode("ascii", errors="replace")
+                    reply = self.instrument.handle(message)
+                    for code, text in self.faults.errors_for(self.instrument.role, message):
+                        self.instrument.push_error(code, text)
                     if reply is not None:
                         self._send(conn, reply)
         except OSError:

@@ -50,6 +50,10 @@ class DeviceFaults:
     identify_missing: bool = False  # never answer IDN?
     rate_error: float = 0.0  # true sample rate = declared × (1 + rate_error)
     startup_bytes: bytes = b""  # sent as soon as the device starts (a boot banner, noise)
+    # lines mode, by sample index since START: "drop" (line not sent), "repeat" (sent twice),
+    # "split" (a line feed after its first digit), "garble" (letters instead of digits),
+    # "bad_time" (the time stamp off by a large amount)
+    line_faults: dict[int, str] = field(default_factory=dict)
     seed: int = 0
 
 
@@ -335,18 +339,42 @@ class PtyAdcDevice:
             if s["n"] and s["sent"] >= s["n"]:
                 self._finish()
 
+    def _lines(self, seq: int, codes: np.ndarray) -> str:
+        """The text lines for samples ``seq`` …, with the line faults for those indices applied."""
+        values = codes[:, 0].tolist()
+        if self.lines_timestamps:
+            micros = np.round((seq + np.arange(len(values))) / self.rate * 1e6).astype(np.int64).tolist()
+            lines = [f"{t},{v}" for t, v in zip(micros, values, strict=True)]
+        else:
+            lines = [str(v) for v in values]
+        faults = self.faults.line_faults
+        if not faults:
+            return "".join(f"{line}\n" for line in lines)
+        out = []
+        for i, line in enumerate(lines):
+            kind = faults.get(seq + i)
+            if kind == "drop":
+                continue
+            if kind == "repeat":
+                out.append(line)
+            elif kind == "split":
+                cut = line.rfind(",") + 2
+                line = line[:cut] + "\n" + line[cut:]
+            elif kind == "garble":
+                line = line.translate(str.maketrans("0123456789", "oIzEhSbTBq"))
+            elif kind == "bad_time" and "," in line:
+                t, _, v = line.partition(",")
+                line = f"{int(t) + 7_777_777},{v}"
+            out.append(line)
+        return "".join(f"{line}\n" for line in out)
+
     def _emit(self, s: dict, codes: np.ndarray) -> None:
         seq, number = s["sent"], s["frame"]
         s["sent"] += codes.shape[0]
         s["frame"] += 1
         f, rng = self.faults, self._rng
         if self.protocol == "lines":
-            if self.lines_timestamps:
-                micros = np.round((seq + np.arange(codes.shape[0])) / self.rate * 1e6).astype(np.int64)
-                text = "".join(f"{t},{v}\n" for t, v in zip(micros.tolist(), codes[:, 0].tolist(), strict=True))
-            else:
-                text = "".join(f"{v}\n" for v in codes[:, 0].tolist())
-            payload = bytearray(text.encode("ascii"))
+            payload = bytearray(self._lines(seq, codes).encode("ascii"))
         else:
             payload = bytearray(encode_frame(seq, s["period_ps"], s["mask"], codes))
         if number in f.drop_frames or (f.drop_probability and rng.random() < f.drop_probability):
