@@ -9,12 +9,15 @@ Fills a temporary database with synthetic TB-3 runs (five checks each), then tim
 from __future__ import annotations
 
 import argparse
+import sys
 import tempfile
 import time
 from pathlib import Path
 
 from benchgate.store import ResultsDB
-from benchgate.store.synthetic import synthetic_lot
+
+sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))  # test data, not product
+from synthetic_runs import synthetic_lot  # noqa: E402
 
 TARGET_S = 2.0
 

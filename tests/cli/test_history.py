@@ -10,7 +10,7 @@ import pytest
 from benchgate.cli import main
 from benchgate.judge.rules import Verdict
 from benchgate.store import ResultsDB
-from benchgate.store.synthetic import EPOCH, CheckSpec, make_record
+from synthetic_runs import EPOCH, CheckSpec, make_record
 
 
 def _spec(v):
@@ -77,3 +77,17 @@ def test_hostile_serial_printed_safely(tmp_path, capsys):
     assert "\x1b" not in out and "\\x1b[2J\\n<x>" in out
     assert main(["history", serial, "--db", str(path), "--json"]) == 0
     assert json.loads(capsys.readouterr().out)["runs"][0]["serial"] == serial
+
+
+def test_cut_short_runs_say_whether_they_count(tmp_path, capsys):
+    path = tmp_path / "r.sqlite"
+    with ResultsDB.open(path) as db:
+        db.finish_run(make_record("TB3-9", _spec(955.0), started=EPOCH, cut="station error"), None)
+        db.finish_run(make_record("TB3-9", _spec(1100.0), started=EPOCH + timedelta(hours=1),
+                                  cut="aborted"), None)
+    assert main(["history", "TB3-9", "--db", str(path)]) == 0
+    out = capsys.readouterr().out
+    assert "ERROR (station error, not counted)" in out and "FAIL (aborted)" in out
+    assert main(["history", "TB3-9", "--db", str(path), "--json"]) == 0
+    runs = json.loads(capsys.readouterr().out)["runs"]
+    assert [(r["cut_short"], r["counts"]) for r in runs] == [("aborted", True), ("station error", False)]

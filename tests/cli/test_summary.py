@@ -10,7 +10,7 @@ import pytest
 from benchgate.cli import main
 from benchgate.judge.rules import Verdict
 from benchgate.store import ResultsDB
-from benchgate.store.synthetic import EPOCH, CheckSpec, make_record
+from synthetic_runs import EPOCH, CheckSpec, make_record
 
 
 def _rec(serial, minutes, value, lot="L1", plan="tb3", **kw):
@@ -37,7 +37,8 @@ def test_json_numbers(dbpath, capsys):
     assert d["first_pass_yield"] == pytest.approx(1 / 3)   # A only
     assert d["final_yield"] == pytest.approx(2 / 3)        # A, B
     (c,) = d["checks"]
-    assert c["n"] == 4 and c["mean"] == pytest.approx((950 + 1100 + 960 + 800) / 4)
+    # Cpk inputs: one value per unit, from its latest complete run (docs/results.md)
+    assert c["n"] == 3 and c["mean"] == pytest.approx((950 + 960 + 800) / 3)
     assert [p["measurement"] for p in d["pareto_checks"]] == ["frequency"]
     assert d["pareto_checks"][0]["fail"] == 2
     assert d["html"] is None and d["lot"] == "L1"

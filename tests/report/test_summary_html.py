@@ -17,7 +17,7 @@ from benchgate.report.summary_html import (
     write_summary_html,
 )
 from benchgate.store import ResultsDB
-from benchgate.store.synthetic import EPOCH, CheckSpec, make_record, synthetic_lot
+from synthetic_runs import EPOCH, CheckSpec, make_record, synthetic_lot
 
 EVIL = '<script>alert("x")</script>&\'"'
 

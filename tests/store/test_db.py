@@ -7,13 +7,16 @@ import subprocess
 import sys
 import textwrap
 import threading
+from pathlib import Path
 
 import pytest
 
 from benchgate.judge.rules import Verdict
 from benchgate.store import ResultsDB, StoreError
 from benchgate.store.db import MIGRATIONS, SCHEMA_VERSION, migrate, schema_version
-from benchgate.store.synthetic import CheckSpec, make_record
+from synthetic_runs import CheckSpec, make_record
+
+TESTS_DIR = str(Path(__file__).resolve().parents[1])  # where synthetic_runs lives
 
 
 def _rec(serial="TB3-0001", **kw):
@@ -190,7 +193,8 @@ def test_writer_waits_for_another_writers_lock(tmp_path):
 WRITER = textwrap.dedent("""
     import sys
     from benchgate.store import ResultsDB
-    from benchgate.store.synthetic import CheckSpec, make_record
+    sys.path.insert(0, sys.argv[4])
+    from synthetic_runs import CheckSpec, make_record
     path, tag, n = sys.argv[1], sys.argv[2], int(sys.argv[3])
     with ResultsDB.open(path) as db:
         for i in range(n):
@@ -204,7 +208,7 @@ def test_two_processes_write_at_once(tmp_path):
     path = tmp_path / "r.sqlite"
     ResultsDB.open(path).close()
     n = 60
-    procs = [subprocess.Popen([sys.executable, "-c", WRITER, str(path), tag, str(n)],
+    procs = [subprocess.Popen([sys.executable, "-c", WRITER, str(path), tag, str(n), TESTS_DIR],
                               stderr=subprocess.PIPE, text=True) for tag in ("A", "B")]
     for p in procs:
         _, err = p.communicate(timeout=120)
@@ -226,3 +230,25 @@ def test_verdict_enum_values_round_trip(db):
         rec = _rec(f"V-{v.value}", verdict=v, reason=f"forced {v.value}")
         db.finish_run(rec, None)
         assert db.history(rec.serial)[0].verdict == v.value
+
+
+def test_migration_from_version_2_reads_how_old_runs_ended(tmp_path):
+    path = tmp_path / "r.sqlite"
+    conn = sqlite3.connect(path, isolation_level=None)
+    assert migrate(conn, target=2) == 2
+    conn.execute("INSERT INTO check_defs (id, plan_id, step, measurement, unit) VALUES (1, 'tb3', 's', 'f', 'Hz')")
+    for pk, serial, verdict in ((1, "AB", "aborted"), (2, "ST", "error"), (3, "CE", "error"),
+                                (4, "OK", "pass")):
+        conn.execute("INSERT INTO runs (id, run_id, serial, plan_id, plan_version, plan_hash, started,"
+                     " started_epoch, complete, verdict) VALUES (?, ?, ?, 'tb3', '1', 'h',"
+                     " '2026-11-01T00:00:00Z', ?, 1, ?)", (pk, f"r{pk}", serial, float(pk), verdict))
+    # CE's error comes from an untrusted measurement of the unit: it ran to its end
+    conn.execute("INSERT INTO checks (run, seq, def, started_epoch, valid, verdict, reason)"
+                 " VALUES (3, 0, 1, 3.0, 0, 'error', 'no steady tone found')")
+    conn.close()
+    with ResultsDB.open(path) as d:
+        assert d.version == SCHEMA_VERSION
+        cut = dict(d.connection.execute("SELECT serial, cut_short FROM runs").fetchall())
+        s = d.summary()
+    assert cut == {"AB": "aborted", "ST": "station error", "CE": None, "OK": None}
+    assert (s.units_tested, s.units_untested, s.final_pass) == (2, 2, 1)

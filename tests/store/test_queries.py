@@ -13,7 +13,7 @@ import pytest
 from benchgate.judge.rules import Verdict
 from benchgate.store import ResultsDB, StoreError
 from benchgate.store.queries import HISTOGRAM_BINS, cpk
-from benchgate.store.synthetic import EPOCH, CheckSpec, make_record
+from synthetic_runs import EPOCH, CheckSpec, make_record
 
 # a fixed data set: mean 10.0, sample standard deviation 0.2 (hand computation:
 # deviations ±0.2, ±0.1, 0, ±0.3, 0 -> sum of squares 0.28, / (n - 1 = 7) = 0.04)
@@ -98,8 +98,8 @@ def _crafted_history(db):
     _put(db, "B", 5, Verdict.FAIL)                                       #   fail, then pass
     _put(db, "C", 1, Verdict.FAIL)
     _put(db, "C", 11, Verdict.FAIL)                                      # fails twice
-    _put(db, "D", 2, Verdict.ERROR)
-    _put(db, "D", 12, Verdict.FAIL)
+    _put(db, "D", 2, Verdict.ERROR)                                      # station error (no check
+    _put(db, "D", 12, Verdict.FAIL)                                      #   explains it): cut short
     _put(db, "D", 22, Verdict.PASS)                                      # error, fail, pass
     _put(db, "E", 3, finished=False)                                     # crashed, incomplete
     _put(db, "F", 4, Verdict.PASS)
@@ -109,13 +109,14 @@ def _crafted_history(db):
 def test_yields_and_retests(db):
     _crafted_history(db)
     s = db.summary()
-    # common practice: FPY = units passing at their first attempt / units tested
-    assert s.units_tested == 6 and s.runs == 11
-    assert s.first_pass == 2 and s.first_pass_yield == pytest.approx(2 / 6)   # A, F
-    assert s.final_pass == 4 and s.final_yield == pytest.approx(4 / 6)        # A, B, D, F
-    assert s.retests == 5                                                     # 11 attempts - 6 units
+    # definitions of docs/results.md (common practice, no published source): units tested have a
+    # complete run; E (never finished) is an attempt only, D's station error is cut short
+    assert s.units_tested == 5 and s.units_untested == 1 and s.runs == 11
+    assert s.first_pass == 2 and s.first_pass_yield == pytest.approx(2 / 5)   # A, F
+    assert s.final_pass == 4 and s.final_yield == pytest.approx(4 / 5)        # A, B, D, F
+    assert s.retests == 4                  # complete runs after the first: B, C, D (fail, pass), F
     assert s.units_retested == 4                                              # B, C, D, F
-    assert s.incomplete == 1
+    assert s.incomplete == 1 and s.cut_short == 1
     assert s.verdicts == {"pass": 5, "fail": 4, "error": 1, "incomplete": 1}
 
 
@@ -201,7 +202,7 @@ def test_to_dict_is_json(db):
     d = db.summary().to_dict()
     text = json.dumps(d, allow_nan=False)
     back = json.loads(text)
-    assert back["units_tested"] == 7 and math.isclose(back["first_pass_yield"], 2 / 7)
+    assert back["units_tested"] == 6 and math.isclose(back["first_pass_yield"], 2 / 6)
     assert back["checks"][0]["histogram"]["counts"]
     assert set(back["pareto_checks"][0]) >= {"step", "measurement", "fail", "error", "inconclusive", "total"}
 

@@ -48,7 +48,10 @@ def run(args: argparse.Namespace) -> int:
     for r in runs:
         flags = [k for k, v in r.flags.items() if v]
         reason = r.reason if r.complete else "run did not finish (no end recorded)"
-        rows.append((r.started, r.status.upper() if r.status != "incomplete" else "INCOMPLETE",
+        status = r.status.upper()
+        if r.cut_short:  # stopped early: say whether it still counts for the yields
+            status += f" ({r.cut_short}{'' if r.counts else ', not counted'})"
+        rows.append((r.started, status,
                      f"{r.plan_id} {r.plan_version}", r.station_id or "—", r.lot or "—",
                      r.operator or "—", reason or "—"))
         if flags:

@@ -50,10 +50,12 @@ def run(args: argparse.Namespace) -> int:
     scope = ", ".join(f"{k} {shown(v)}" for k, v in (("plan", s.plan), ("lot", s.lot),
                                                      ("since", s.since)) if v is not None)
     print(f"summary of {scope or 'all stored runs'} ({args.db})")
-    print(f"  units tested     {s.units_tested}  ({s.runs} runs, {s.incomplete} incomplete)")
+    print(f"  units tested     {s.units_tested}  (with a complete run; docs/results.md)")
+    print(f"  attempts         {s.runs}  ({s.incomplete} never finished, {s.cut_short} cut short; "
+          f"{s.units_untested} unit{'' if s.units_untested == 1 else 's'} without a complete run)")
     print(f"  first-pass yield {fmt_ratio(s.first_pass_yield)}  ({s.first_pass} units)")
     print(f"  final yield      {fmt_ratio(s.final_yield)}  ({s.final_pass} units)")
-    print(f"  retests          {s.retests}  ({s.units_retested} units tested more than once)")
+    print(f"  retests          {s.retests}  ({s.units_retested} units with more than one complete run)")
     if s.verdicts:
         print("  verdicts         " + ", ".join(f"{v} {n}" for v, n in s.verdicts.items()))
     if s.pareto_checks:

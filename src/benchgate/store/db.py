@@ -19,6 +19,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from benchgate.errors import BenchgateError
+from benchgate.store.outcome import cut_short
 
 if TYPE_CHECKING:
     from benchgate.record import UnitRecord
@@ -106,10 +107,21 @@ CREATE VIEW check_results AS
     FROM checks c JOIN check_defs d ON d.id = c.def JOIN runs r ON r.id = c.run;
 """
 
+# how a finished run ended (see store/outcome.py); rows written before version 3 are read from
+# their verdict and checks: aborted, or an error verdict that no check explains
+_V3 = """
+ALTER TABLE runs ADD COLUMN cut_short TEXT;
+UPDATE runs SET cut_short = 'aborted' WHERE complete = 1 AND verdict = 'aborted';
+UPDATE runs SET cut_short = 'station error' WHERE complete = 1 AND verdict = 'error'
+    AND NOT EXISTS (SELECT 1 FROM checks c WHERE c.run = runs.id AND c.verdict = 'error');
+CREATE INDEX runs_latest ON runs(plan_id, serial, started_epoch, run_id, complete, cut_short, verdict, lot)
+"""
+
 #: ordered migrations: (version reached, how to get there from the version before).
 MIGRATIONS: tuple[tuple[int, str | Callable[[sqlite3.Connection], None]], ...] = (
     (1, _V1),
     (2, _V2),
+    (3, _V3),
 )
 SCHEMA_VERSION = MIGRATIONS[-1][0]
 
@@ -294,9 +306,9 @@ class ResultsDB:
             c.execute(
                 "UPDATE runs SET complete = 1, verdict = ?, reason = ?, ended = ?, accept_hazards = ?,"
                 " allow_expired_calibration = ?, unattended = ?, report_path = ?, operator = ?,"
-                " lot = ? WHERE id = ?",
+                " lot = ?, cut_short = ? WHERE id = ?",
                 (record.verdict.value, record.reason, record.ended, hazards, expired, unattended,
-                 report, record.operator, record.lot, pk))
+                 report, record.operator, record.lot, cut_short(record), pk))
             c.execute("DELETE FROM checks WHERE run = ?", (pk,))
             rows = []
             for seq, check in enumerate(record.checks()):

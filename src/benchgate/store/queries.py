@@ -1,20 +1,29 @@
 """Questions asked of the results database: a unit's history and a lot summary.
 
-The summary is aggregated by SQLite (``GROUP BY`` over covering indexes) and finished with
-numpy on the few grouped rows, so it stays fast on 10⁵ stored runs: no Python loop ever walks
-the run or check rows themselves.
+The summary is aggregated by the database (window functions and ``GROUP BY``) and finished
+with numpy on the few grouped rows: no Python loop ever walks the run or check rows themselves.
 
-Definitions used by :func:`summary`:
+Definitions used by :func:`summary` (docs/results.md gives them in full, with the reasons):
 
-- a *unit* is a (plan id, serial) pair among the selected runs; its attempts are its runs in
-  order of start time. Every run counts as an attempt, including incomplete ones (a run that
-  crashed, or is still going on: it has not passed yet).
-- first-pass yield = units whose first attempt passed / units tested; final yield = units
-  whose latest attempt passed / units tested (common practice, no published source).
-- retests = attempts after the first, summed over units.
-- per numeric check (one window of one step of one plan): mean, sample standard deviation
-  (n − 1), min, max and Cpk = min(USL − μ, μ − LSL) / 3σ, one-sided when the window has one
-  limit (ISO 22514-2), over the valid values of completed runs.
+- a *unit* is a (plan id, serial) pair among the selected runs; every selected run is one of
+  its *attempts*. A *complete* run is one that decided something about the unit
+  (:mod:`benchgate.store.outcome`): it finished and ran to its end, or it found a valid value
+  outside its window before it was cut short. Runs never finished, aborted (Ctrl-C, a signal,
+  a prompt answered "no") or stopped by a station error are attempts that did not complete.
+- units tested = units with at least one complete run; the others are counted apart
+  (``units_untested``).
+- final yield = units whose latest complete run passed / units tested; first-pass yield =
+  units whose complete runs all passed / units tested (so a unit passes first time only if no
+  complete run ever said otherwise; first-pass yield ≤ final yield always).
+- retests = complete runs after each unit's first complete run; units retested = units with
+  more than one complete run.
+- per numeric check (one window of one step of one plan), over one value per unit: the valid
+  value of the unit's latest complete run. Mean, sample standard deviation (n − 1), min, max
+  and Cpk = min(USL − μ, μ − LSL) / 3σ, one-sided when the window has one limit (ISO 22514-2,
+  from memory). Failing units' values stay in: leaving them out would cut the tail off the
+  distribution and flatter Cpk.
+- the Pareto lists count events: every non-passing check and every run cut short, over all
+  attempts.
 """
 
 from __future__ import annotations
@@ -26,6 +35,8 @@ from datetime import UTC, datetime
 from typing import Any
 
 import numpy as np
+
+from benchgate.store.outcome import COMPLETE_SQL, is_complete
 
 #: histogram bins per numeric check.
 HISTOGRAM_BINS = 30
@@ -68,6 +79,12 @@ class HistoryRun:
     report_path: str | None
     flags: dict[str, bool]
     checks: tuple[HistoryCheck, ...] = ()
+    cut_short: str | None = None  # "aborted" / "station error" for a run stopped early
+
+    @property
+    def counts(self) -> bool:
+        """True for a complete run: one that decided something about the unit (docs/results.md)."""
+        return is_complete(self.complete, self.cut_short, self.verdict)
 
     @property
     def status(self) -> str:
@@ -77,6 +94,7 @@ class HistoryRun:
     def to_dict(self) -> dict[str, Any]:
         d = asdict(self)
         d["status"] = self.status
+        d["counts"] = self.counts
         d["checks"] = [asdict(c) for c in self.checks]
         return d
 
@@ -86,7 +104,7 @@ def history(conn: sqlite3.Connection, serial: str) -> list[HistoryRun]:
     runs = conn.execute(
         "SELECT id, run_id, serial, plan_id, plan_version, station_id, operator, lot, started,"
         " ended, complete, verdict, reason, report_path, accept_hazards,"
-        " allow_expired_calibration, unattended FROM runs WHERE serial = ?"
+        " allow_expired_calibration, unattended, cut_short FROM runs WHERE serial = ?"
         " ORDER BY started_epoch DESC, id DESC", (serial,)).fetchall()
     checks: dict[int, list[HistoryCheck]] = {}
     if runs:
@@ -105,7 +123,7 @@ def history(conn: sqlite3.Connection, serial: str) -> list[HistoryRun]:
             verdict=r[11], reason=r[12], report_path=r[13],
             flags={"accept_hazards": bool(r[14]), "allow_expired_calibration": bool(r[15]),
                    "unattended": bool(r[16])},
-            checks=tuple(checks.get(r[0], ()))))
+            checks=tuple(checks.get(r[0], ())), cut_short=r[17]))
     return out
 
 
@@ -170,6 +188,8 @@ class Summary:
     retests: int
     units_retested: int
     verdicts: dict[str, int]
+    cut_short: int = 0  # finished runs cut short before deciding anything (aborted, station error)
+    units_untested: int = 0  # units with attempts but no complete run
     pareto_checks: tuple[ParetoCheck, ...] = ()
     pareto_reasons: tuple[ParetoReason, ...] = ()
     checks: tuple[CheckStats, ...] = field(default=())
@@ -244,39 +264,52 @@ def _filters(plan: str | None, lot: str | None, since: str | None
 
 def summary(conn: sqlite3.Connection, *, plan: str | None = None, lot: str | None = None,
             since: str | None = None) -> Summary:
-    """The lot summary over the runs selected by plan id, lot and start time (all when None)."""
+    """The lot summary over the runs selected by plan id, lot and start time (all when None).
+
+    Definitions: docs/results.md and the module docstring.
+    """
     rf, cf, params = _filters(plan, lot, since)
-    # one group per unit, read from the covering index runs_units; with a single MIN() or
-    # MAX() aggregate SQLite takes the bare column (verdict) from that row
-    units, n_runs, first, retested = conn.execute(
-        "SELECT COUNT(*), COALESCE(SUM(n), 0), COALESCE(SUM(v = 'pass'), 0), COALESCE(SUM(n > 1), 0)"
-        " FROM (SELECT COUNT(*) AS n, MIN(started_epoch), verdict AS v FROM runs r"
-        f" INDEXED BY runs_units WHERE 1{rf} GROUP BY plan_id, serial)", params).fetchone()
-    (final,) = conn.execute(
-        "SELECT COALESCE(SUM(v = 'pass'), 0) FROM (SELECT MAX(started_epoch), verdict AS v"
-        f" FROM runs r INDEXED BY runs_units WHERE 1{rf} GROUP BY plan_id, serial)",
+    # one row per unit: attempts, complete runs, complete runs that did not pass, and whether
+    # the latest complete run passed (window function: latest first within the complete runs)
+    (units_seen, attempts, tested, first, final, retests, retested, finished_cut) = conn.execute(
+        f"WITH sel AS (SELECT r.plan_id, r.serial, r.verdict,"
+        f" CASE WHEN r.complete = 1 AND NOT {COMPLETE_SQL} THEN 1 ELSE 0 END AS cut,"
+        f" CASE WHEN {COMPLETE_SQL} THEN 1 ELSE 0 END AS ok,"
+        f" ROW_NUMBER() OVER (PARTITION BY r.plan_id, r.serial, CASE WHEN {COMPLETE_SQL} THEN 1 ELSE 0 END"
+        f" ORDER BY r.started_epoch DESC, r.run_id DESC) AS k FROM runs r WHERE 1 = 1{rf}),"
+        " u AS (SELECT COUNT(*) AS n, SUM(ok) AS done, SUM(cut) AS cut,"
+        " SUM(CASE WHEN ok = 1 AND verdict <> 'pass' THEN 1 ELSE 0 END) AS bad,"
+        " MAX(CASE WHEN ok = 1 AND k = 1 AND verdict = 'pass' THEN 1 ELSE 0 END) AS final"
+        " FROM sel GROUP BY plan_id, serial)"
+        " SELECT COUNT(*), COALESCE(SUM(n), 0), COALESCE(SUM(CASE WHEN done > 0 THEN 1 ELSE 0 END), 0),"
+        " COALESCE(SUM(CASE WHEN done > 0 AND bad = 0 THEN 1 ELSE 0 END), 0), COALESCE(SUM(final), 0),"
+        " COALESCE(SUM(CASE WHEN done > 1 THEN done - 1 ELSE 0 END), 0),"
+        " COALESCE(SUM(CASE WHEN done > 1 THEN 1 ELSE 0 END), 0), COALESCE(SUM(cut), 0) FROM u",
         params).fetchone()
     verdicts = {str(v): int(k) for v, k in conn.execute(
-        "SELECT CASE WHEN complete = 1 THEN verdict ELSE 'incomplete' END, COUNT(*)"
-        f" FROM runs r INDEXED BY runs_units WHERE 1{rf} GROUP BY 1 ORDER BY 2 DESC, 1", params)}
+        "SELECT CASE WHEN r.complete = 1 THEN r.verdict ELSE 'incomplete' END AS v, COUNT(*) AS n"
+        f" FROM runs r WHERE 1 = 1{rf} GROUP BY 1 ORDER BY 2 DESC, 1", params)}
 
     defs = {row[0]: row[1:] for row in conn.execute(
         "SELECT id, plan_id, step, measurement, unit, low, high FROM check_defs")}
     return Summary(
-        plan=plan, lot=lot, since=since, runs=n_runs, incomplete=verdicts.get("incomplete", 0),
-        units_tested=units, first_pass=first, final_pass=final, retests=n_runs - units,
-        units_retested=retested, verdicts=verdicts,
+        plan=plan, lot=lot, since=since, runs=int(attempts),
+        incomplete=verdicts.get("incomplete", 0), cut_short=int(finished_cut),
+        units_tested=int(tested), units_untested=int(units_seen) - int(tested),
+        first_pass=int(first), final_pass=int(final), retests=int(retests),
+        units_retested=int(retested), verdicts=verdicts,
         pareto_checks=_pareto_checks(conn, defs, cf, params),
         pareto_reasons=_pareto_reasons(conn, rf, cf, params),
-        checks=_check_stats(conn, defs, cf, params),
+        checks=_check_stats(conn, defs, rf, params),
     )
 
 
 def _pareto_checks(conn, defs, cf, params) -> tuple[ParetoCheck, ...]:
     merged: dict[tuple[str, str, str], list[int]] = {}
     for d, fail, err, inc in conn.execute(
-            "SELECT c.def, SUM(c.verdict = 'fail'), SUM(c.verdict IN ('error', 'aborted')),"
-            " SUM(c.verdict = 'inconclusive') FROM checks c"
+            "SELECT c.def, SUM(CASE WHEN c.verdict = 'fail' THEN 1 ELSE 0 END),"
+            " SUM(CASE WHEN c.verdict IN ('error', 'aborted') THEN 1 ELSE 0 END),"
+            " SUM(CASE WHEN c.verdict = 'inconclusive' THEN 1 ELSE 0 END) FROM checks c"
             f" WHERE c.verdict <> 'pass'{cf} GROUP BY c.def", params):
         acc = merged.setdefault(tuple(defs[d][:3]), [0, 0, 0])
         acc[0] += fail
@@ -324,11 +357,22 @@ def _pareto_reasons(conn, rf, cf, params) -> tuple[ParetoReason, ...]:
     return tuple(ParetoReason(r, n, kind) for r, (n, kind) in items)
 
 
-def _check_stats(conn, defs, cf, params) -> tuple[CheckStats, ...]:
+def _latest_complete(rf: str) -> str:
+    """A ``WITH`` clause naming ``latest``: the id of each unit's latest complete run in scope."""
+    return ("WITH latest AS (SELECT t.id FROM (SELECT r.id, ROW_NUMBER() OVER (PARTITION BY"
+            " r.plan_id, r.serial ORDER BY r.started_epoch DESC, r.run_id DESC) AS k FROM runs r"
+            f" WHERE {COMPLETE_SQL}{rf}) t WHERE t.k = 1)")
+
+
+def _check_stats(conn, defs, rf, params) -> tuple[CheckStats, ...]:
+    """Statistics per check over the Cpk inputs: the valid values of each unit's latest complete
+    run (one value per unit and check; see docs/results.md)."""
     valid = "c.valid = 1 AND c.value IS NOT NULL"
+    with_latest = _latest_complete(rf)
     rows = conn.execute(
-        "SELECT c.def, COUNT(*), AVG(c.value), MIN(c.value), MAX(c.value) FROM checks c"
-        f" WHERE {valid}{cf} GROUP BY c.def", params).fetchall()
+        f"{with_latest} SELECT c.def, COUNT(*), AVG(c.value), MIN(c.value), MAX(c.value)"
+        f" FROM checks c WHERE {valid} AND c.run IN (SELECT id FROM latest) GROUP BY c.def",
+        params).fetchall()
     if not rows:
         return ()
     ids = np.array([r[0] for r in rows], dtype=np.int64)
@@ -346,19 +390,25 @@ def _check_stats(conn, defs, cf, params) -> tuple[CheckStats, ...]:
     lo, hi = lo - pad, hi + pad
     width = (hi - lo) / HISTOGRAM_BINS
 
-    # second pass, one query per check (a handful): bin counts and squared deviations
-    # about the mean from the first pass (two-pass variance, no cancellation)
+    # second pass, one query for all checks: bin counts and squared deviations about the mean
+    # of the first pass (two-pass variance, no cancellation). Every value lies above its lo, so
+    # truncation is the floor; the top bin is clamped against rounding.
     counts = np.zeros((len(rows), HISTOGRAM_BINS), dtype=np.int64)
     ssd = np.zeros(len(rows))
-    sql = (f"SELECT MIN(MAX(CAST((c.value - ?) / ? AS INTEGER), 0), {HISTOGRAM_BINS - 1}) AS b,"
-           " COUNT(*), SUM((c.value - ?) * (c.value - ?)) FROM checks c"
-           f" WHERE c.def = ? AND {valid}{cf} GROUP BY b")
+    index = {int(d): k for k, d in enumerate(ids)}
+    values = ", ".join(["(CAST(? AS INTEGER), CAST(? AS DOUBLE PRECISION),"
+                        " CAST(? AS DOUBLE PRECISION), CAST(? AS DOUBLE PRECISION))"] * len(rows))
+    vparams: list[Any] = []
     for k in range(len(rows)):
-        mu = float(mean[k])
-        for b, cnt, s in conn.execute(sql, [float(lo[k]), float(width[k]), mu, mu, int(ids[k])]
-                                      + params):
-            counts[k, b] = cnt
-            ssd[k] += s
+        vparams += [int(ids[k]), float(lo[k]), float(width[k]), float(mean[k])]
+    sql = (f"{with_latest}, p (def, lo, width, mu) AS (VALUES {values})"
+           f" SELECT c.def, CAST((c.value - p.lo) / p.width AS INTEGER) AS b, COUNT(*),"
+           " SUM((c.value - p.mu) * (c.value - p.mu)) FROM checks c JOIN p ON p.def = c.def"
+           f" WHERE {valid} AND c.run IN (SELECT id FROM latest) GROUP BY c.def, b")
+    for d, b, cnt, s in conn.execute(sql, params + vparams):
+        k = index[int(d)]
+        counts[k, min(max(int(b), 0), HISTOGRAM_BINS - 1)] += cnt
+        ssd[k] += s
     std = np.sqrt(ssd / np.maximum(n - 1, 1))
 
     out = []

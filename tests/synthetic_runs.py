@@ -1,5 +1,8 @@
 """Hand-made run records: for benchmarks of the store, and for tests that need runs without a bench.
 
+Test and benchmark data, not part of the product: tests import it as ``synthetic_runs`` (this
+folder is on ``sys.path`` under pytest), ``bench/`` scripts put this folder on ``sys.path``.
+
 :func:`make_record` builds a finished :class:`~benchgate.record.UnitRecord` from a short list
 of checks; :func:`synthetic_lot` draws a lot of invented units (values from normal
 distributions, a few retests) for the summary benchmark. Nothing here touches instruments.
@@ -43,9 +46,16 @@ def make_record(serial: str, checks: Sequence[CheckSpec] = (), *, plan_id: str =
                 started: datetime | str = EPOCH, lot: str | None = "L1",
                 verdict: Verdict | None = None, reason: str | None = None,
                 finished: bool = True, flags: dict | None = None,
-                operator: str | None = "synthetic", run_id: str | None = None) -> UnitRecord:
+                operator: str | None = "synthetic", run_id: str | None = None,
+                cut: str | None = None) -> UnitRecord:
     """A record with one step per distinct step id in ``checks``; the unit verdict is combined
-    from the checks unless ``verdict`` is given."""
+    from the checks unless ``verdict`` is given.
+
+    ``cut`` ends the run the way the runner's executor records a run stopped early: a last step
+    ``power-on`` with status ``aborted`` (``cut="aborted"``: Ctrl-C or a signal; unit verdict
+    aborted unless a check failed) or status ``error`` with its own error text
+    (``cut="station error"``: an instrument lost mid-step; unit verdict error unless a check
+    failed)."""
     t0 = datetime.fromisoformat(started.replace("Z", "+00:00")) if isinstance(started, str) else started
     steps: dict[str, StepRecord] = {}
     for spec in checks:
@@ -62,7 +72,15 @@ def make_record(serial: str, checks: Sequence[CheckSpec] = (), *, plan_id: str =
                                        window=window, result=m, verdict=v,
                                        reason=spec.reason or judged.reason, rule="simple"))
     all_checks = [c for s in steps.values() for c in s.checks]
-    unit_verdict = verdict or combine(c.verdict for c in all_checks)
+    found = [c.verdict for c in all_checks]
+    if cut is not None:
+        status, text, v = {"aborted": ("aborted", "interrupted by the operator (Ctrl-C)", Verdict.ABORTED),
+                           "station error": ("error", "psu: no answer within 2 s", Verdict.ERROR)}[cut]
+        steps["power-on"] = StepRecord(id="power-on", kind="supply", title="power-on",
+                                       status=status, attempts=1, error=text)
+        found.append(v)
+        reason = reason or text
+    unit_verdict = verdict or combine(found)
     if reason is None:
         bad = [c.reason for c in all_checks if c.verdict is not Verdict.PASS]
         reason = bad[0] if bad else "all checks passed"
