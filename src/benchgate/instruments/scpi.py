@@ -25,7 +25,7 @@ from typing import Any
 
 import numpy as np
 
-from benchgate.errors import InstrumentError, PlanError
+from benchgate.errors import InstrumentDisconnected, InstrumentError, PlanError
 
 DEFAULT_VISA_LIBRARY = "@py"
 ERROR_QUEUE_CAP = 20  # SYSTem:ERRor? reads before we give up on an instrument's queue
@@ -142,7 +142,9 @@ class ScpiSession:
         self._lock = threading.RLock()
         self._stale = False
         self._closed = False
-        self._resync_timeout = resync_timeout or max(1.0, 4.0 * self.timeout)
+        self._dead: str | None = None  # why the link was given up (no reply even to a resync)
+        # after a timeout the link gets one more timeout's worth to answer, not several
+        self._resync_timeout = resync_timeout or max(1.0, self.timeout)
 
     # ------------------------------------------------------------------ opening
     @classmethod
@@ -272,6 +274,8 @@ class ScpiSession:
 
         if self._closed:
             raise InstrumentError(self.role, f"{what} {command!r} on a closed session")
+        if self._dead is not None and what != "write":  # not waited on again; a write still goes out
+            raise InstrumentDisconnected(self.role, f"{what} {command!r} not sent: {self._dead}")
         try:
             return fn()
         except pyvisa.errors.VisaIOError as exc:
@@ -367,8 +371,8 @@ class ScpiSession:
         Sends ``*IDN?`` and discards every line until the identity recorded at open comes back
         (the instrument answers in order, so everything before it is stale).
         """
-        if not self._stale or self._closed:
-            return
+        if not self._stale or self._closed or self._dead is not None:
+            return  # a given-up link fails at once in _call
         import pyvisa
 
         self._stale = False
@@ -391,6 +395,7 @@ class ScpiSession:
                 self.discarded_replies += 1
         except (pyvisa.errors.VisaIOError, OSError) as exc:
             self._stale = True
-            raise InstrumentError(self.role, f"not answering after an earlier timeout "
-                                             f"({self.address}): {exc}") from exc
+            self._dead = (f"not answering after an earlier timeout ({self.address}), "
+                          "so the link was given up")
+            raise InstrumentDisconnected(self.role, f"{self._dead}: {exc}") from exc
 
