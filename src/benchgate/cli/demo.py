@@ -33,7 +33,6 @@ def _table(result) -> None:
     if sys.stdout.isatty() and not os.environ.get("NO_COLOR"):
         from rich.console import Console
         from rich.table import Table
-
         from rich.text import Text
 
         styles = {"pass": "green", "fail": "red", "inconclusive": "yellow", "error": "magenta"}
