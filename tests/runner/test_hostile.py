@@ -103,3 +103,43 @@ def test_markup_in_serial_operator_lot_and_reasons_is_shown_as_text(tmp_path, se
     assert outcome.record.verdict.value == "fail" and outcome.exit_code == 1
     text = out.getvalue()
     assert f"unit {serial}" in text and "[/] keep [bold]clear" in text
+
+
+def test_display_fuzz_markup_and_control_text_never_raise():
+    """Seeded random text with markup and control characters through every display hook."""
+    import random
+    from types import SimpleNamespace
+
+    from benchgate.analysis.measurement import Measurement
+    from benchgate.judge.rules import Verdict
+    from benchgate.plan.limits import Window
+    from benchgate.runner.ui import RichDisplay
+
+    rng = random.Random(9)
+    alphabet = "[]/\\ab =#@:;,.!~|{}()<>'\"\x1b\t\n\r" + "bold red link on /"
+    for _ in range(60):
+        def text() -> str:
+            return "".join(rng.choice(alphabet) for _ in range(rng.randint(1, 12)))
+
+        out = _Tty()
+        d = RichDisplay(out)
+        serial, reason, note = text(), text(), text()
+        rec = SimpleNamespace(serial=serial, plan_id=text(), plan_version=text(), verdict=Verdict.FAIL,
+                              reason=reason)
+        step = SimpleNamespace(id=text(), title=text(), kind=rng.choice(["wait", "capture", "prompt"]),
+                               status="failed", error=text(), notes=["retry " + note], answer=None)
+        check = SimpleNamespace(verdict=Verdict.FAIL, measurement=text(), reason=reason,
+                                result=Measurement.invalid("x", "V", "r" + text()), window=Window(unit="V", high=1.0))
+        d.info(text())
+        d.alarm(text())
+        d.run_started(rec, 3)
+        d.step_started(1, 3, step)
+        d.progress(0.5, text(), 1.0)
+        d.check(check)
+        d.step_finished(step)
+        d.run_finished(rec, {"html": text()})
+        d.close()
+        shown = out.getvalue()
+        for piece in (serial, reason):
+            if piece.isprintable():  # shown as typed: markup is never interpreted
+                assert piece in shown, (piece, shown)

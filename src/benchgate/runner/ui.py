@@ -167,8 +167,8 @@ class RichDisplay(PlainDisplay):
         if step.kind in ("wait", "capture"):
             from rich.progress import BarColumn, Progress, TaskProgressColumn, TextColumn
 
-            self._progress = Progress(TextColumn("   {task.description}"), BarColumn(), TaskProgressColumn(),
-                                      TextColumn("{task.fields[left]}"), console=self.console, transient=True)
+            self._progress = Progress(TextColumn("   {task.description}", markup=False), BarColumn(), TaskProgressColumn(),
+                                      TextColumn("{task.fields[left]}", markup=False), console=self.console, transient=True)
             self._task = self._progress.add_task(step.kind, total=1.0, left="")
             self._progress.start()
 
