@@ -47,8 +47,8 @@ def pytest_addoption(parser):
 def pytest_configure(config):
     config.stash[_RUNS] = {}
     if config.getoption("bench_station") is not None:
-        if not config.getoption("bench_serial"):
-            raise pytest.UsageError("--bench-serial SN is required with --bench-station")
+        if not (config.getoption("bench_serial") or "").strip():
+            raise pytest.UsageError("--bench-serial SN is required with --bench-station (not blank)")
         speed = config.getoption("bench_clock_speed")
         if speed is not None and not speed > 0:
             raise pytest.UsageError(f"--bench-clock-speed must be > 0, got {speed}")

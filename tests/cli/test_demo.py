@@ -24,8 +24,21 @@ def test_lot_has_every_defect_once_and_starts_good():
     assert len(lot) == 12 and lot[0].defect is None
     assert sorted(u.defect for u in lot if u.defect) == sorted(KNOWN_DEFECTS)
     assert len({u.serial for u in lot}) == 12
-    assert len(make_lot(3, "L", KNOWN_DEFECTS)) == len(KNOWN_DEFECTS) + 1  # never too small
     assert [u.defect for u in make_lot(12, "L", KNOWN_DEFECTS)] == [u.defect for u in lot]  # fixed order
+
+
+@pytest.mark.parametrize("units", [1, 2, 3, 6])
+def test_small_lot_has_the_units_asked_for_and_says_what_it_leaves_out(units):
+    from benchgate.runner.demo import lot_note
+
+    lot = make_lot(units, "L", KNOWN_DEFECTS)
+    assert len(lot) == units and lot[0].defect is None
+    found = [u.defect for u in lot if u.defect]
+    assert len(found) == units - 1 and len(set(found)) == len(found) and set(found) <= set(KNOWN_DEFECTS)
+    assert [u.defect for u in make_lot(units, "L", KNOWN_DEFECTS)] == [u.defect for u in lot]
+    note = lot_note(units, KNOWN_DEFECTS)
+    assert note is not None and f"shows {units - 1} of the {len(KNOWN_DEFECTS)}" in note
+    assert lot_note(len(KNOWN_DEFECTS) + 1, KNOWN_DEFECTS) is None
 
 
 @pytest.fixture(scope="module")
@@ -101,3 +114,11 @@ def test_demo_reports_in_a_real_browser(demo_json, tmp_path):
         png = tmp_path / f"{name}.png"
         screenshot(html, png)
         assert png.stat().st_size > 10_000
+
+
+def test_demo_runs_the_number_of_units_asked_for(tmp_path, capsys):
+    code = main(["demo", "--units", "2", "--json", "--reports", str(tmp_path), "--speed", "8"])
+    captured = capsys.readouterr()
+    data = json.loads(captured.out)
+    assert code == 0 and len(data["units"]) == 2
+    assert data["units"][0]["defect"] is None and data["units"][1]["defect"] in KNOWN_DEFECTS

@@ -48,6 +48,7 @@ class Step:
     ask: bool = False
     expect: str | None = None
     unattended_answer: str | None = None
+    on_wrong_answer: str = "abort"
     # capture / reading
     instrument: str = "adc"
     channel: str = "out"

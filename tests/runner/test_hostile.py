@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import io
 import json
 import sqlite3
 
@@ -12,8 +13,8 @@ from benchgate.clock import ManualClock
 from benchgate.runner.options import RunOptions
 from benchgate.runner.session import Runner, Services
 
-HOSTILE = ["../../x", "<script>alert('x')</script>", "quote\"s and 'single'", "S" * 500, "",
-           "Ünïcødé-板-🔧", "nul\x00and\x1bescape", "/etc/passwd", "CON", "a/b\\c"]
+HOSTILE = ["../../x", "<script>alert('x')</script>", "quote\"s and 'single'", "S" * 500, "[/bold]",
+           "Ünïcødé-板-🔧", "nul\x00and\x1bescape", "/etc/passwd", "CON", "a/b\\c", "[red]x[/red] [link=y]"]
 
 
 @pytest.fixture(scope="module")
@@ -65,3 +66,80 @@ def test_database_rows_are_correct(lot):
     rows = dict(conn.execute("SELECT run_id, serial FROM runs WHERE complete = 1").fetchall())
     conn.close()
     assert rows == {o.record.run_id: s for s, o in zip(HOSTILE, outcomes, strict=True)}
+
+
+@pytest.mark.parametrize("serial", ["", "   ", "\t\r\n"])
+def test_blank_serial_is_refused_before_anything(tmp_path, serial):
+    from runner_fakes import services
+
+    from benchgate.runner.options import PreflightError
+
+    bench = make_bench()
+    svc, db = services(bench)
+    options = RunOptions(reports_dir=tmp_path, ui="quiet", clock=ManualClock())
+    with Runner(standard_plan(), Station(), options, services=svc) as runner:
+        with pytest.raises(PreflightError, match="serial number is empty"):
+            runner.run(serial)
+    assert db.rows == {} and bench.supply.log == [] and not bench.exited
+
+
+class _Tty(io.StringIO):
+    def isatty(self):
+        return True
+
+
+@pytest.mark.parametrize("serial", ["[/bold]", "[red]x", "a[/]b", "[bold red on blue]N-1[/]"])
+def test_markup_in_serial_operator_lot_and_reasons_is_shown_as_text(tmp_path, serial):
+    from runner_fakes import services
+
+    from benchgate.runner.ui import RichDisplay
+
+    out = _Tty()
+    svc, _ = services(make_bench(frequency=1100.0))  # fails: the reason reaches the display too
+    options = RunOptions(reports_dir=tmp_path, clock=ManualClock(), operator="[/i]", lot="[blink]L")
+    with Runner(standard_plan(cautions=("[/] keep [bold]clear",)), Station(), options, services=svc,
+                display=RichDisplay(out)) as runner:
+        outcome = runner.run(serial)
+    assert outcome.record.verdict.value == "fail" and outcome.exit_code == 1
+    text = out.getvalue()
+    assert f"unit {serial}" in text and "[/] keep [bold]clear" in text
+
+
+def test_display_fuzz_markup_and_control_text_never_raise():
+    """Seeded random text with markup and control characters through every display hook."""
+    import random
+    from types import SimpleNamespace
+
+    from benchgate.analysis.measurement import Measurement
+    from benchgate.judge.rules import Verdict
+    from benchgate.plan.limits import Window
+    from benchgate.runner.ui import RichDisplay
+
+    rng = random.Random(9)
+    alphabet = "[]/\\ab =#@:;,.!~|{}()<>'\"\x1b\t\n\r" + "bold red link on /"
+    for _ in range(60):
+        def text() -> str:
+            return "".join(rng.choice(alphabet) for _ in range(rng.randint(1, 12)))
+
+        out = _Tty()
+        d = RichDisplay(out)
+        serial, reason, note = text(), text(), text()
+        rec = SimpleNamespace(serial=serial, plan_id=text(), plan_version=text(), verdict=Verdict.FAIL,
+                              reason=reason)
+        step = SimpleNamespace(id=text(), title=text(), kind=rng.choice(["wait", "capture", "prompt"]),
+                               status="failed", error=text(), notes=["retry " + note], answer=None)
+        check = SimpleNamespace(verdict=Verdict.FAIL, measurement=text(), reason=reason,
+                                result=Measurement.invalid("x", "V", "r" + text()), window=Window(unit="V", high=1.0))
+        d.info(text())
+        d.alarm(text())
+        d.run_started(rec, 3)
+        d.step_started(1, 3, step)
+        d.progress(0.5, text(), 1.0)
+        d.check(check)
+        d.step_finished(step)
+        d.run_finished(rec, {"html": text()})
+        d.close()
+        shown = out.getvalue()
+        for piece in (serial, reason):
+            if piece.isprintable():  # shown as typed: markup is never interpreted
+                assert piece in shown, (piece, shown)

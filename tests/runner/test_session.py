@@ -132,14 +132,46 @@ def test_unattended_prompt_with_scripted_answer(tmp_path):
     assert outcome.record.steps[0].answer == "yes"
 
 
-def test_operator_answer_no_fails_the_unit(tmp_path):
-    plan = standard_plan()
-    steps = (Step("look", "prompt", "look", text="Is the LED lit?", ask=True, expect="yes"), *plan.steps)
+def powered_plan(on_fail="continue", **prompt):
+    """A fixture prompt, then the supply switched on and a capture (as in the TB-3 plan)."""
+    return standard_plan(steps=(
+        Step("place", "prompt", "place the board", text="Place the board in the fixture", ask=True,
+             expect="yes", on_fail=on_fail, **prompt),
+        Step("power", "supply", "switch on", voltage=9.0, output=True, on_fail=on_fail),
+        Step("tone", "capture", "capture the tone", duration=0.2, on_fail=on_fail,
+             checks=(Check("frequency", freq_window()),)),
+    ))
+
+
+@pytest.mark.parametrize("on_fail", ["continue", "stop"])
+def test_prompt_answered_against_expect_aborts_and_never_powers_the_unit(tmp_path, on_fail):
     replies = iter(["maybe", "n"])
-    outcome, _ = run(replace(plan, steps=steps), make_bench(), tmp_path, ask=lambda p: next(replies))
+    bench = make_bench()
+    outcome, db = run(powered_plan(on_fail), bench, tmp_path, ask=lambda p: next(replies))
     rec = outcome.record
-    assert rec.steps[0].answer == "no" and rec.steps[0].status == "failed"
-    assert rec.verdict == Verdict.FAIL and "Is the LED lit?" in rec.reason
+    assert "on" not in bench.supply.log and bench.supply.on is False  # never switched on
+    assert bench["adc"].supply_on_at_start == []  # nothing was measured
+    assert rec.steps[0].answer == "no" and rec.steps[0].status == "aborted"
+    assert [s.status for s in rec.steps[1:]] == ["skipped", "skipped"]
+    assert rec.verdict == Verdict.ABORTED and outcome.exit_code == 130
+    assert rec.reason.startswith("place: answer 'no' to 'Place the board in the fixture'")
+    assert db.rows[rec.run_id]["verdict"] == "aborted"
+
+
+def test_unattended_answer_against_expect_aborts_too(tmp_path):
+    bench = make_bench()
+    outcome, _ = run(powered_plan(unattended_answer="no"), bench, tmp_path, unattended=True)
+    assert outcome.record.verdict == Verdict.ABORTED and "on" not in bench.supply.log
+
+
+def test_plan_may_let_a_wrong_answer_continue(tmp_path):
+    replies = iter(["n"])
+    bench = make_bench()
+    outcome, _ = run(powered_plan("continue", on_wrong_answer="continue"), bench, tmp_path,
+                     ask=lambda p: next(replies))
+    rec = outcome.record
+    assert rec.steps[0].status == "failed" and [s.status for s in rec.steps[1:]] == ["done", "done"]
+    assert rec.verdict == Verdict.FAIL and "Place the board" in rec.reason
 
 
 def test_adc_lost_mid_capture_keeps_partial_and_switches_off(tmp_path):

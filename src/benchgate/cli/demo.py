@@ -12,7 +12,8 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
         "loopback), run the TB-3 tone-board plan over a lot of simulated units (good ones and one of "
         "each defect), write every unit report and the lot summary, and print the results.")
     p.add_argument("--units", type=int, default=14, metavar="N",
-                   help="units in the lot (at least one per defect plus one good; default 14)")
+                   help="units in the lot (default 14; with fewer than 7 not every simulated defect "
+                   "is in it)")
     p.add_argument("--speed", type=float, default=4.0, metavar="X",
                    help="how much faster than real time the understudy bench runs (default 4)")
     p.add_argument("--reports", default="reports", metavar="DIR", help="report folder (default: reports)")
@@ -32,13 +33,15 @@ def _table(result) -> None:
     if sys.stdout.isatty() and not os.environ.get("NO_COLOR"):
         from rich.console import Console
         from rich.table import Table
+        from rich.text import Text
 
         styles = {"pass": "green", "fail": "red", "inconclusive": "yellow", "error": "magenta"}
-        table = Table(title=f"lot {result.lot} · {len(rows)} units", title_justify="left")
+        # Text everywhere: a lot name or reason holding "[...]" is shown as typed, never as markup
+        table = Table(title=Text(f"lot {result.lot} · {len(rows)} units"), title_justify="left")
         for col in ("serial", "defect injected", "verdict", "reason"):
             table.add_column(col, overflow="fold")
         for serial, defect, verdict, reason in rows:
-            table.add_row(serial, defect, f"[{styles.get(verdict, '')}]{verdict}[/]", reason)
+            table.add_row(Text(serial), Text(defect), Text(verdict, style=styles.get(verdict, "")), Text(reason))
         Console().print(table)
     else:
         width = max(len(r[0]) for r in rows)

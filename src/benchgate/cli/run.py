@@ -7,9 +7,10 @@ import os
 import sys
 from pathlib import Path
 
-EPILOG = ("Exit codes: 0 every check passed, 1 a check failed, 2 plan/station/usage error (nothing "
-          "was run), 3 error or inconclusive (could not decide), 130 aborted. With CI=true and no "
-          "terminal on stdin the run is unattended.")
+EPILOG = ("Exit codes: 0 every check passed, 1 a check failed, 2 plan/station/usage error or "
+          "station busy (nothing was run), 3 error or inconclusive (could not decide), 130 aborted "
+          "(Ctrl-C or a declined prompt), 143 SIGTERM, 129 SIGHUP (aborted; supply off, report "
+          "written). With CI=true and no terminal on stdin the run is unattended.")
 
 
 def add_parser(subparsers) -> argparse.ArgumentParser:
@@ -54,46 +55,25 @@ def is_unattended(args) -> bool:
     return os.environ.get("CI", "").strip().lower() == "true" and not tty
 
 
-class _StopOnce:
-    """SIGINT handler for the command: the first Ctrl-C stops, later ones are ignored (the
-    runner has already made the bench safe and is writing the evidence, or has finished)."""
-
-    def __init__(self) -> None:
-        self.seen = False
-
-    def __call__(self, signum, frame) -> None:
-        if self.seen:
-            return
-        self.seen = True
-        raise KeyboardInterrupt
-
-
 def run(args) -> int:
-    import signal
-    import threading
+    from benchgate.runner.safety import StopRequested, StopSignals
 
-    if threading.current_thread() is not threading.main_thread():
-        return _run(args, None)
-    stop = _StopOnce()
-    previous = signal.signal(signal.SIGINT, stop)
-    try:
-        code = _run(args, stop)
-    except KeyboardInterrupt:
-        stop.seen = True
-        raise
-    finally:
-        if stop.seen:  # interrupted: everything is saved; ignore Ctrl-C while the process ends
-            signal.signal(signal.SIGINT, signal.SIG_IGN)
-        else:
-            signal.signal(signal.SIGINT, previous)
-    return code
+    # The one signal handler of the run (SIGINT, SIGTERM, SIGHUP): the runner uses it too. Once a
+    # stop was asked for, the signals stay ignored while the process ends.
+    with StopSignals(ignore_after_stop=True) as signals:
+        try:
+            return _run(args, signals)
+        except StopRequested as stop:  # outside a unit (a prompt before the first, a batch serial)
+            signals.shielded = True
+            print(f"benchgate: {stop.description}; no unit was running", file=sys.stderr)
+            return stop.exit_code
 
 
-def _run(args, stop) -> int:
+def _run(args, signals) -> int:
     from benchgate.instruments.station import load_station
     from benchgate.plan import load_plan
     from benchgate.runner.batch import read_serial, run_batch
-    from benchgate.runner.options import EXIT_USAGE, PreflightError, RunOptions, worst_exit_code
+    from benchgate.runner.options import PreflightError, RunOptions, check_serial, worst_exit_code
     from benchgate.runner.session import Runner
 
     plan = load_plan(args.plan)
@@ -110,6 +90,8 @@ def _run(args, stop) -> int:
         flags["clock_speed"] = args.clock_speed
     if args.serial is None and not args.batch and unattended:
         raise PreflightError("an unattended run needs --serial (there is nobody to ask)")
+    if args.serial is not None:
+        check_serial(args.serial)
     options = RunOptions(
         operator=args.operator, lot=args.lot, reports_dir=Path(args.reports),
         db_path=None if args.db is None else Path(args.db), unattended=unattended,
@@ -117,11 +99,9 @@ def _run(args, stop) -> int:
         events=None if args.events is None else Path(args.events),
         junit=None if args.junit is None else Path(args.junit), clock=clock,
         ui=args.display, extra_flags=flags)
-    with Runner(plan, station, options) as runner:
+    with Runner(plan, station, options, signals=signals) as runner:
         if args.batch:
             outcomes = run_batch(runner, runner.ask_operator, runner.display.info)
-            if stop is not None and outcomes and outcomes[-1].exit_code == 130:
-                stop.seen = True
             if not outcomes:
                 runner.display.info("no units tested")
                 return 0
@@ -130,9 +110,5 @@ def _run(args, stop) -> int:
         if serial is None:
             serial = read_serial(runner.ask_operator, "serial number (scan or type): ")
             if serial is None:
-                print("benchgate: no serial number given", file=sys.stderr)
-                return EXIT_USAGE
-        code = runner.run(serial).exit_code
-        if stop is not None and code == 130:
-            stop.seen = True  # from now on Ctrl-C is ignored: the unit is saved, the process ends
-        return code
+                raise PreflightError("no serial number given")
+        return runner.run(serial).exit_code

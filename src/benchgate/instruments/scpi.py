@@ -32,7 +32,7 @@ from typing import Any
 
 import numpy as np
 
-from benchgate.errors import InstrumentError
+from benchgate.errors import InstrumentDisconnected, InstrumentError
 from benchgate.instruments.scpi_commands import (
     COMMON_COMMANDS,
     ScpiQueueError,
@@ -103,7 +103,9 @@ class ScpiSession:
         self._stale = False
         self._closed = False
         self._unchecked: list[str] = []  # commands sent since the error queue was last read empty
-        self._resync_timeout = resync_timeout or max(1.0, 4.0 * self.timeout)
+        self._dead: str | None = None  # why the link was given up (no reply even to a resync)
+        # after a timeout the link gets one more timeout's worth to answer, not several
+        self._resync_timeout = resync_timeout or max(1.0, self.timeout)
 
     # ------------------------------------------------------------------ opening
     @classmethod
@@ -262,6 +264,8 @@ class ScpiSession:
 
         if self._closed:
             raise InstrumentError(self.role, f"{what} {command!r} on a closed session")
+        if self._dead is not None and what != "write":  # not waited on again; a write still goes out
+            raise InstrumentDisconnected(self.role, f"{what} {command!r} not sent: {self._dead}")
         try:
             return fn()
         except pyvisa.errors.VisaIOError as exc:
@@ -357,8 +361,8 @@ class ScpiSession:
         Sends ``*IDN?`` and discards every line until the identity recorded at open comes back
         (the instrument answers in order, so everything before it is stale).
         """
-        if not self._stale or self._closed:
-            return
+        if not self._stale or self._closed or self._dead is not None:
+            return  # a given-up link fails at once in _call
         import pyvisa
 
         self._stale = False
@@ -381,6 +385,7 @@ class ScpiSession:
                 self.discarded_replies += 1
         except (pyvisa.errors.VisaIOError, OSError) as exc:
             self._stale = True
-            raise InstrumentError(self.role, f"not answering after an earlier timeout "
-                                             f"({self.address}): {exc}") from exc
+            self._dead = (f"not answering after an earlier timeout ({self.address}), "
+                          "so the link was given up")
+            raise InstrumentDisconnected(self.role, f"{self._dead}: {exc}") from exc
 

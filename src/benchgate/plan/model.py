@@ -121,6 +121,10 @@ class PromptStep(Step):
     unattended_answer: str | None = field(default=None, metadata=spec(
         "answer used in unattended runs (with ask); without it an unattended run stops here",
         kind="choice", choices=("yes", "no")))
+    on_wrong_answer: str = field(default="abort", metadata=spec(
+        "an answer other than expect: abort the unit there (default; nothing more is switched "
+        "on) or continue (the step is recorded as failed and on_fail applies)", kind="choice",
+        choices=("abort", "continue")))
 
 
 @dataclass(frozen=True, kw_only=True)

@@ -10,7 +10,7 @@ from collections import Counter
 from collections.abc import Callable
 from typing import Any
 
-from benchgate.runner.options import EXIT_ABORTED, RunOutcome
+from benchgate.runner.options import RunOutcome, is_abort_code
 
 SERIAL_PROMPT = "serial number (scan or type; empty line ends the batch): "
 
@@ -42,7 +42,7 @@ def run_batch(runner: Any, ask: Callable[[str], str], show: Callable[[str], None
         outcomes.append(outcome)
         tally[outcome.record.verdict.value] += 1
         show(tally_line(tally, len(outcomes)))
-        if outcome.exit_code == EXIT_ABORTED:
+        if is_abort_code(outcome.exit_code):
             show("batch stopped: the last unit was aborted")
             break
     return outcomes

@@ -54,15 +54,30 @@ class DemoUnit:
 
 
 def make_lot(units: int, lot: str, defect_names: tuple[str, ...], seed: int = 2612) -> list[DemoUnit]:
-    """``units`` serials (at least one per defect), defects spread through the lot in a fixed order."""
-    units = max(units, len(defect_names) + 1)
-    kinds: list[str | None] = list(defect_names) + [None] * (units - len(defect_names))
+    """Exactly ``units`` serials, starting with a good board, then the defects spread through the lot
+    in a fixed order; a lot too small for every defect (``len(defect_names) + 1`` units) gets as
+    many of them as fit, drawn with the same seed (:func:`lot_note` says so)."""
+    if units < 1:
+        raise ValueError(f"a lot needs at least one unit, got {units}")
     rng = random.Random(seed)
+    chosen = list(defect_names)
+    if len(chosen) > units - 1:
+        chosen = rng.sample(chosen, units - 1)
+    kinds: list[str | None] = list(chosen) + [None] * (units - len(chosen))
     rng.shuffle(kinds)
     if kinds[0] is not None:  # start with a good board, as a line usually does
         first_good = kinds.index(None)
         kinds[0], kinds[first_good] = kinds[first_good], kinds[0]
     return [DemoUnit(serial=f"{lot}-{i:03d}", defect=k) for i, k in enumerate(kinds, 1)]
+
+
+def lot_note(units: int, defect_names: tuple[str, ...]) -> str | None:
+    """One line when a lot of ``units`` is too small to show every defect, else None."""
+    shown = max(0, min(len(defect_names), units - 1))
+    if shown == len(defect_names):
+        return None
+    return (f"a lot of {units} shows {shown} of the {len(defect_names)} simulated defects "
+            f"(a lot of {len(defect_names) + 1} or more shows every one)")
 
 
 @dataclass
@@ -113,6 +128,9 @@ def run_demo(*, units: int = 14, speed: float = 4.0, reports_dir: Path | None = 
     workdir = tempfile.mkdtemp(prefix="benchgate-demo-")
     with bench_module.UnderstudyBench("tb3", speed=speed, workdir=workdir) as vb:
         station = load_station(vb.station_path)
+        note = lot_note(len(lot_units), defects("tb3"))
+        if on_start is not None and note is not None:
+            on_start(note)
         if on_start is not None:
             on_start(f"understudy bench up: ADC on {vb.serial_port}, supply at {vb.resources['supply']}; "
                      f"plan {plan.id} v{plan.version}; lot {lot}, {len(lot_units)} units; "

@@ -46,6 +46,9 @@ class EventLog:
     def info(self, text: str) -> None:
         self.emit("message", text=text)
 
+    def alarm(self, text: str) -> None:
+        self.emit("alarm", text=text)
+
     def run_started(self, record: Any, total_steps: int) -> None:
         self._run_id, self._serial = record.run_id, record.serial
         self.emit("run_started", plan=record.plan_id, plan_version=record.plan_version,

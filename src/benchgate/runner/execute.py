@@ -22,6 +22,7 @@ from benchgate.analysis.measurement import Measurement
 from benchgate.errors import BenchgateError, InstrumentDisconnected
 from benchgate.judge.rules import Verdict, combine, judge
 from benchgate.record import CaptureRecord, CheckRecord, StepRecord
+from benchgate.runner.safety import as_stop
 
 #: reading quantity -> name of the instrument method that takes it
 READING_METHODS = {
@@ -92,8 +93,8 @@ class Executor:
             self.hooks.step_started(index, total, step)
             try:
                 self._run_step(step, srec)
-            except KeyboardInterrupt:
-                self._end(srec, "aborted", "interrupted by the operator (Ctrl-C)")
+            except KeyboardInterrupt as exc:
+                self._end(srec, "aborted", as_stop(exc).description)
                 raise
             except BenchgateError as exc:
                 self._end(srec, "error", error_reason(exc))
@@ -101,6 +102,12 @@ class Executor:
             except Exception as exc:  # a bug or an unexpected library error: still keep the evidence
                 self._end(srec, "error", f"{type(exc).__name__}: {exc}")
                 raise
+            if wrong_answer_stops(step, srec):
+                srec.status = "aborted"
+                srec.notes.append("the answer was not the expected one: the unit was stopped here and "
+                                  "the remaining steps were not run (nothing more was switched on)")
+                self.hooks.step_finished(srec)
+                return
             self.hooks.step_finished(srec)
             if srec.status in ("failed", "error") and step.on_fail == "stop":
                 srec.notes.append("on_fail: stop; the remaining steps were not run")
@@ -197,7 +204,7 @@ class Executor:
                 answer = self._read(step, f"{step.text} [Enter when done] ").strip()
         srec.answer = answer
         if step.ask and step.expect is not None and answer.casefold() != str(step.expect).casefold():
-            srec.error = f"answer {answer!r} to {step.text!r}; {step.expect!r} lets the run go on"
+            srec.error = f"answer {answer!r} to {step.text!r} (the run goes on only with {step.expect!r})"
 
     def _do_reading(self, step: Any, srec: StepRecord, attempt: int) -> None:
         instrument = self.bench[step.instrument]
@@ -354,6 +361,13 @@ class Executor:
 def _renamed(m: Measurement, name: str) -> Measurement:
     return Measurement(name=name, value=m.value, unit=m.unit, uncertainty=m.uncertainty, valid=m.valid,
                        reason=m.reason, details=m.details)
+
+
+def wrong_answer_stops(step: Any, srec: StepRecord) -> bool:
+    """A prompt answered against its ``expect`` stops the unit unless the plan says
+    ``on_wrong_answer: continue`` for that step."""
+    return (step.kind == "prompt" and srec.status == "failed"
+            and getattr(step, "on_wrong_answer", "abort") != "continue")
 
 
 def step_status(srec: StepRecord) -> str:

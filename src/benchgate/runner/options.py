@@ -5,10 +5,14 @@ Exit codes (the same for ``benchgate run``, ``reanalyze`` and the pytest plugin)
 ===  ==========================================================
 0    every check passed
 1    at least one check failed
-2    plan, station or usage error (nothing was run)
+2    plan, station or usage error, or the station is busy (nothing was run)
 3    error or inconclusive: the run could not decide
-130  aborted (Ctrl-C)
+130  aborted: Ctrl-C (SIGINT), or the operator stopped the unit at a prompt
+143  aborted: SIGTERM (a cancelled CI job, ``timeout``, ``kill``)
+129  aborted: SIGHUP (the terminal was closed)
 ===  ==========================================================
+
+Every abort still switches the supply off and writes the report and the database row.
 """
 
 from __future__ import annotations
@@ -42,12 +46,31 @@ def exit_code_for(verdict: Verdict) -> int:
     return _EXIT_FOR_VERDICT[Verdict(verdict)]
 
 
+def is_abort_code(code: int) -> bool:
+    """An exit code that says the run was aborted (130, or 128 + another stop signal)."""
+    return code > 128
+
+
 def worst_exit_code(codes: list[int]) -> int:
     """The exit code of several units: aborted, then fail, then undecided, then pass."""
-    for code in (EXIT_ABORTED, EXIT_FAIL, EXIT_UNDECIDED, EXIT_USAGE):
+    aborted = [c for c in codes if is_abort_code(c)]
+    if aborted:
+        return aborted[-1]
+    for code in (EXIT_FAIL, EXIT_UNDECIDED, EXIT_USAGE):
         if code in codes:
             return code
     return EXIT_PASS
+
+
+def check_serial(serial: str | None) -> str:
+    """The serial number as given, or :class:`PreflightError` when it is missing or blank.
+
+    It is kept verbatim (reports and the database store it as typed); only a serial with nothing
+    but white space is refused, since no report or row could name the unit.
+    """
+    if serial is None or not str(serial).strip():
+        raise PreflightError("the serial number is empty; give the unit's serial number")
+    return str(serial)
 
 
 class PreflightError(BenchgateError):

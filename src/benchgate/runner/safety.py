@@ -1,78 +1,160 @@
-"""Leaving the bench safe: supply output off, whatever happened, even on a second Ctrl-C.
+"""Leaving the bench safe: supply output off, whatever happened, whatever signal arrived.
 
-:class:`InterruptGuard` lets the first Ctrl-C stop a run and holds every later one back while
-the safe-state sequence and the evidence (reports, database row) are written. :func:`make_safe` switches the supply off (retrying)
-and closes the bench through its own context manager.
+:class:`StopSignals` is the one place benchgate handles the signals that ask a process to stop:
+SIGINT (Ctrl-C), SIGTERM (a cancelled CI job, ``timeout``, ``kill``) and SIGHUP (a closed
+terminal). The first one raises :class:`StopRequested` where the run is, so the unit stops
+there; every later one — and any that arrives while :attr:`StopSignals.shielded` is set for the
+safe-state sequence and the evidence — is only counted: nothing can cut the supply-off command
+or the reports short. :func:`make_safe` switches the supply off (retrying a lost command, not a
+dead link) and closes the bench through its own context manager.
 """
 
 from __future__ import annotations
 
 import signal
 import threading
-from typing import Any
+from collections.abc import Callable
+from contextlib import AbstractContextManager
+from types import FrameType
+from typing import Any, Protocol
+
+#: the signals that stop a run, and how the run's reason names them
+STOP_SIGNALS: dict[int, str] = {
+    signal.SIGINT: "interrupted by the operator (Ctrl-C)",
+    signal.SIGTERM: "stopped by SIGTERM (the job was cancelled, timed out or killed)",
+}
+if hasattr(signal, "SIGHUP"):  # not on every platform
+    STOP_SIGNALS[signal.SIGHUP] = "stopped by SIGHUP (the terminal was closed)"
+
+#: the console line when the supply output cannot be confirmed off
+SUPPLY_ALARM = "SWITCH THE SUPPLY OFF BY HAND"
 
 
-class InterruptGuard:
-    """SIGINT handling for one unit's run (main thread only; elsewhere it does nothing).
+class StopRequested(KeyboardInterrupt):
+    """A stop signal arrived: the unit is aborted, the process exits 128 + the signal number.
 
-    The first Ctrl-C raises :class:`KeyboardInterrupt` as usual, so the run stops where it is.
-    Every later one — and any Ctrl-C once :attr:`shielded` is set for the safe-state sequence and
-    the evidence — is only counted: it can never cut the supply-off command or the reports short.
+    A subclass of :class:`KeyboardInterrupt`, so it travels through the same ``except``
+    clauses (and is never swallowed by ``except Exception``).
     """
 
-    def __init__(self) -> None:
-        self.count = 0
-        self.raised = False
-        self.shielded = False
-        self._previous: Any = None
-        self._active = False
+    def __init__(self, signum: int = signal.SIGINT):
+        super().__init__(signum)
+        self.signum = int(signum)
 
-    def _handler(self, signum: int, frame: Any) -> None:
-        self.count += 1
-        if self.shielded or self.raised:
+    @property
+    def exit_code(self) -> int:
+        """128 + the signal number: 130 for SIGINT, 143 for SIGTERM, 129 for SIGHUP (shell rule)."""
+        return 128 + self.signum
+
+    @property
+    def description(self) -> str:
+        return STOP_SIGNALS.get(self.signum, f"stopped by signal {self.signum}")
+
+
+def as_stop(exc: BaseException) -> StopRequested:
+    """A plain KeyboardInterrupt (raised by Python's own handler) counts as SIGINT."""
+    return exc if isinstance(exc, StopRequested) else StopRequested(signal.SIGINT)
+
+
+class StopSignals:
+    """Handles SIGINT, SIGTERM and SIGHUP while entered (main thread only; elsewhere it does nothing).
+
+    ``ignore_after_stop``: once a stop was requested, leave the signals ignored on exit instead
+    of restoring the previous handlers (the process is ending; a late Ctrl-C must not print a
+    traceback over the last lines).
+    """
+
+    def __init__(self, *, ignore_after_stop: bool = False) -> None:
+        self.received: list[int] = []
+        self.stop: StopRequested | None = None  # the one that was raised
+        self.shielded = False
+        self.ignore_after_stop = ignore_after_stop
+        self._previous: dict[int, Any] = {}
+        self._depth = 0
+
+    def _handler(self, signum: int, frame: FrameType | None) -> None:
+        self.received.append(signum)
+        if self.shielded or self.stop is not None:
             return
-        self.raised = True
-        raise KeyboardInterrupt
+        self.stop = StopRequested(signum)
+        raise self.stop
+
+    @property
+    def count(self) -> int:
+        return len(self.received)
 
     @property
     def deferred(self) -> int:
-        """Interrupts that were held back (all but the one that was raised)."""
-        return self.count - (1 if self.raised else 0)
+        """Signals that were held back (all but the one that was raised)."""
+        return self.count - (1 if self.stop is not None else 0)
 
-    def __enter__(self) -> InterruptGuard:
-        if threading.current_thread() is threading.main_thread():
-            self._previous = signal.signal(signal.SIGINT, self._handler)
-            self._active = True
+    @property
+    def active(self) -> bool:
+        return bool(self._previous)
+
+    def __enter__(self) -> StopSignals:
+        self._depth += 1
+        if self._depth == 1 and threading.current_thread() is threading.main_thread():
+            for signum in STOP_SIGNALS:
+                self._previous[signum] = signal.signal(signum, self._handler)
         return self
 
-    def __exit__(self, *exc: Any) -> None:
-        if self._active:
-            signal.signal(signal.SIGINT, self._previous)
-            self._active = False
+    def __exit__(self, *exc: object) -> None:
+        self._depth -= 1
+        if self._depth > 0 or not self._previous:
+            return
+        keep_ignoring = self.ignore_after_stop and bool(self.received)
+        for signum, previous in self._previous.items():
+            signal.signal(signum, signal.SIG_IGN if keep_ignoring else previous)
+        self._previous = {}
 
 
-def make_safe(bench_cm: Any, bench: Any, exc: BaseException | None, attempts: int = 3) -> list[str]:
+class _Supply(Protocol):
+    def output(self, on: bool) -> None: ...
+
+
+class _OpenBench(Protocol):
+    def get(self, role: str, default: Any = None) -> Any: ...
+
+
+def link_is_dead(err: BaseException) -> bool:
+    """True for an error that says the instrument no longer answers (retrying cannot help)."""
+    from benchgate.errors import InstrumentDisconnected
+
+    return isinstance(err, InstrumentDisconnected)
+
+
+def make_safe(bench_cm: AbstractContextManager[Any] | None, bench: _OpenBench | None,
+              exc: BaseException | None, attempts: int = 3,
+              alarm: Callable[[str], None] | None = None) -> list[str]:
     """Switch the supply output off and close the bench; returns notes on anything that went wrong.
 
-    The supply is switched off here first (retried up to ``attempts`` times) and again by the
-    bench's own exit, so one lost command cannot leave the unit powered.
+    The supply is switched off here first (a lost command is retried up to ``attempts`` times; a
+    link that no longer answers is not waited on again) and again by the bench's own exit, so one
+    lost command cannot leave the unit powered. When the output cannot be confirmed off,
+    ``alarm`` is called with one line starting with :data:`SUPPLY_ALARM`.
     """
     notes: list[str] = []
-    supply = None
+    supply: _Supply | None = None
     if bench is not None:
         try:
             supply = bench.get("supply")
         except Exception:  # a broken bench object: the context manager below still closes it
             supply = None
+    confirmed = supply is None
+    last_error: BaseException | None = None
     if supply is not None:
         for attempt in range(1, attempts + 1):
             try:
                 supply.output(False)
+                confirmed = True
                 break
             except Exception as err:  # keep trying: this is the one command that must get through
+                last_error = err
                 notes.append(f"supply output off failed (attempt {attempt}): {err}")
-        else:
-            notes.append("WARNING: the supply output could not be confirmed off; switch it off by hand")
+                if link_is_dead(err):
+                    break
+    close_error: BaseException | None = None
     if bench_cm is not None:
         try:
             if exc is None:
@@ -80,5 +162,15 @@ def make_safe(bench_cm: Any, bench: Any, exc: BaseException | None, attempts: in
             else:
                 bench_cm.__exit__(type(exc), exc, exc.__traceback__)
         except Exception as err:
+            close_error = err
             notes.append(f"closing the instruments: {err}")
+        for err in getattr(bench, "close_errors", None) or ():
+            if err is not close_error and f"closing the instruments: {err}" not in notes:
+                notes.append(f"closing the instruments: {err}")
+    if not confirmed:
+        why = f" ({last_error})" if last_error is not None else ""
+        line = f"{SUPPLY_ALARM}: the supply did not confirm that its output is off{why}"
+        notes.append(line)
+        if alarm is not None:
+            alarm(line)
     return notes

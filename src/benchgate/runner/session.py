@@ -2,7 +2,8 @@
 
 For every unit, whatever happens: a database row inserted at the start and completed at the end,
 the supply output switched off, and a JSON + HTML report written. A lost instrument makes the
-unit ``error`` with the reason; Ctrl-C makes it ``aborted`` (exit 130).
+unit ``error`` with the reason; Ctrl-C, SIGTERM or SIGHUP make it ``aborted`` (exit 130, 143,
+129). The station is locked for the runner's life (:mod:`benchgate.runner.lock`).
 """
 
 from __future__ import annotations
@@ -14,20 +15,23 @@ from pathlib import Path
 from typing import Any
 
 from benchgate import __version__
+from benchgate.analysis.context import NO_OSCILLATION
 from benchgate.errors import BenchgateError
 from benchgate.judge.rules import Verdict, combine
 from benchgate.record import UnitRecord
 from benchgate.runner.events import EventLog, Hooks
 from benchgate.runner.execute import Executor, error_reason, utc_now
+from benchgate.runner.lock import StationLock
 from benchgate.runner.options import (
-    EXIT_ABORTED,
     PreflightError,
     RunOptions,
     RunOutcome,
+    check_serial,
     exit_code_for,
+    is_abort_code,
 )
 from benchgate.runner.preflight import preflight
-from benchgate.runner.safety import InterruptGuard, make_safe
+from benchgate.runner.safety import StopSignals, as_stop, make_safe
 from benchgate.runner.ui import make_display
 
 _STEP_VERDICT = {"failed": Verdict.FAIL, "error": Verdict.ERROR, "aborted": Verdict.ABORTED}
@@ -71,12 +75,25 @@ class Runner:
     """
 
     def __init__(self, plan: Any, station: Any, options: RunOptions, *, services: Services | None = None,
-                 display: Any = None):
+                 display: Any = None, signals: StopSignals | None = None):
         self.plan = plan
         self.station = station
         self.options = options
         self.ask = options.ask or _default_ask
         self.display = display or make_display(options.ui, unattended=options.unattended)
+        # One station, one run: locked before anything is asked, opened or written.
+        self.lock = StationLock(station).acquire()
+        self.signals = signals if signals is not None else StopSignals()
+        self.signals.__enter__()
+        try:
+            self._setup(services)
+        except BaseException:
+            self.signals.__exit__(None, None, None)
+            self.lock.release()
+            raise
+
+    def _setup(self, services: Services | None) -> None:
+        plan, station, options = self.plan, self.station, self.options
         self.pre = preflight(plan, station, options, self.ask_operator, self.display.info)
         self.services = services or Services.default(options)
         self.clock = options.clock
@@ -98,15 +115,23 @@ class Runner:
         self.done: list[RunOutcome] = []  # kept only for --junit
         self.count = 0
         self.late_interrupts = 0
+        self._closed = False
 
     def ask_operator(self, prompt: str) -> str:
         self.display.pause()
         return self.ask(prompt)
 
     def close(self) -> None:
-        self.events.close()
-        self.display.close()
-        self.db.close()
+        if self._closed:
+            return
+        self._closed = True
+        try:
+            self.events.close()
+            self.display.close()
+            self.db.close()
+        finally:
+            self.signals.__exit__(None, None, None)
+            self.lock.release()
 
     def __enter__(self) -> Runner:
         return self
@@ -131,6 +156,7 @@ class Runner:
             hazards_acknowledged=self.pre.hazards_acknowledged, flags=flags)
 
     def run(self, serial: str) -> RunOutcome:
+        serial = check_serial(serial)
         s, o = self.services, self.options
         record = self.new_record(serial)
         layout = s.layout(o.reports_dir, self.plan.id, serial, record.started)
@@ -139,30 +165,38 @@ class Runner:
                             save_capture=s.save_capture, analyze=s.analyze)
         bench_cm = bench = None
         caught: BaseException | None = None
-        with InterruptGuard() as guard:
+        signals = self.signals
+        signals.shielded = False
+        signals.stop = None
+        seen_before = signals.count
+        try:
             try:
-                try:
-                    self.db.begin_run(record)
-                    self.hooks.run_started(record, len(self.plan.steps))
-                    bench_cm = s.open_bench(self.station, clock=self.clock, roles=self.pre.roles)
-                    bench = bench_cm.__enter__()
-                    executor.bench = bench
-                    record.instruments = list(bench.records())
-                    executor.run()
-                except BaseException as exc:  # noqa: B036 - every way out is recorded, then handled
-                    caught = exc
-                guard.shielded = True
-            except KeyboardInterrupt as exc:  # the first Ctrl-C, just after the steps ended
-                caught = caught or exc
-                guard.shielded = True
-            # from here on no Ctrl-C is raised: the bench is made safe and the evidence written
-            notes = make_safe(bench_cm, bench, caught)
-            if bench_cm is not None and not record.instruments:
-                record.instruments = _records_or_empty(bench)
-            outcome = self._finish(record, layout, executor, caught, notes)
-        self.late_interrupts += guard.deferred
-        if guard.deferred:
-            outcome.exit_code = EXIT_ABORTED
+                self.db.begin_run(record)
+                self.hooks.run_started(record, len(self.plan.steps))
+                bench_cm = s.open_bench(self.station, clock=self.clock, roles=self.pre.roles)
+                bench = bench_cm.__enter__()
+                executor.bench = bench
+                record.instruments = list(bench.records())
+                executor.run()
+            except BaseException as exc:  # noqa: B036 - every way out is recorded, then handled
+                caught = exc
+            signals.shielded = True
+        except KeyboardInterrupt as exc:  # a stop signal just after the steps ended
+            caught = caught or exc
+            signals.shielded = True
+        # from here on no signal is raised: the bench is made safe and the evidence written
+        notes = make_safe(bench_cm, bench, caught, alarm=self.hooks.alarm)
+        if bench_cm is not None and not record.instruments:
+            record.instruments = _records_or_empty(bench)
+        outcome = self._finish(record, layout, executor, caught, notes)
+        late = signals.received[seen_before:]
+        if signals.stop is not None and late:
+            late = late[1:]  # the one that was raised is not late
+        self.late_interrupts += len(late)
+        if late and not is_abort_code(outcome.exit_code):
+            outcome.exit_code = 128 + late[0]  # a stop asked for while the evidence was written
+        if len(signals.received) == seen_before:
+            signals.shielded = False  # between units (a batch's serial prompt) a signal stops at once
         if isinstance(caught, (SystemExit, GeneratorExit)):
             raise caught
         return outcome
@@ -170,9 +204,10 @@ class Runner:
     def _finish(self, record: UnitRecord, layout: Any, executor: Executor, caught: BaseException | None,
                 notes: list[str]) -> RunOutcome:
         failure = None
-        if isinstance(caught, KeyboardInterrupt):
+        stop = as_stop(caught) if isinstance(caught, KeyboardInterrupt) else None
+        if stop is not None:
             where = f" during step {executor.current.id}" if executor.current else ""
-            failure = (Verdict.ABORTED, f"aborted: interrupted by the operator (Ctrl-C){where}")
+            failure = (Verdict.ABORTED, f"aborted: {stop.description}{where}")
         elif isinstance(caught, BenchgateError):
             failure = (Verdict.ERROR, error_reason(caught))
         elif caught is not None:
@@ -189,7 +224,7 @@ class Runner:
             self.display.info(f"benchgate: could not write the report: {exc}")
         report = paths.get("json")
         self.db.finish_run(record, None if report is None else str(report))
-        code = EXIT_ABORTED if isinstance(caught, KeyboardInterrupt) else exit_code_for(record.verdict)
+        code = stop.exit_code if stop is not None else exit_code_for(record.verdict)
         outcome = RunOutcome(record=record, paths=paths, exit_code=code)
         self.count += 1
         if self.options.junit is not None:  # JUnit lists every unit of the session
@@ -213,28 +248,54 @@ def _records_or_empty(bench: Any) -> list:
 
 
 def unit_verdict(record: UnitRecord, failure: tuple[Verdict, str] | None) -> tuple[Verdict, str]:
-    """The unit's verdict and its reason from the checks, the step outcomes and how the run ended."""
+    """The unit's verdict and its reason from the checks, the step outcomes and how the run ended.
+
+    The reason names the most basic finding first (see :func:`findings`); how the run ended is
+    added after it when that is not what decided the verdict.
+    """
     checks = record.checks()
     found = [c.verdict for c in checks]
     found += [_STEP_VERDICT[s.status] for s in record.steps if s.status in _STEP_VERDICT]
     if failure is not None:
         found.append(failure[0])
     verdict = combine(found)
-    first_check = next((c for c in checks if c.verdict == verdict), None)
-    first_step = next((s for s in record.steps if _STEP_VERDICT.get(s.status) == verdict and s.error), None)
     if failure is not None and failure[0] == verdict:
         reason = failure[1]
     elif verdict == Verdict.PASS:
         reason = f"all {len(checks)} checks passed" if checks else "all steps done (no checks)"
-    elif first_check is not None:
-        reason = f"{first_check.step_id}: {first_check.reason}"
-    elif first_step is not None:
-        reason = f"{first_step.id}: {first_step.error}"
     else:
-        reason = verdict.value
+        reason = next(iter(findings(record, verdict)), verdict.value)
     if failure is not None and failure[0] != verdict:
         reason += f"; then {failure[1]}"
     return verdict, reason
+
+
+def findings(record: UnitRecord, verdict: Verdict) -> list[str]:
+    """What went wrong with a unit, most basic first.
+
+    1. A step that could not run or stopped the unit (an instrument error, a declined prompt):
+       nothing after it means much.
+    2. A capture in which nothing oscillates: every level, frequency or start-up figure of that
+       capture (and a failing check on it) only follows from that, so it is named as such,
+       whatever the order of the steps.
+    3. The checks whose verdict is the unit's, in plan order; then any other check that did
+       not pass.
+    """
+    out: list[str] = []
+    for s in record.steps:
+        if s.error and _STEP_VERDICT.get(s.status) == verdict:
+            out.append(f"{s.id}: {s.error}")
+    for s in record.steps:
+        dead = [c for c in s.checks if c.result is not None and not c.result.valid
+                and c.result.reason in NO_OSCILLATION]
+        if dead:
+            bad = next((c for c in s.checks if c.verdict == verdict), None)
+            detail = f" ({bad.reason})" if bad is not None and bad not in dead else ""
+            out.append(f"{s.id}: no oscillation in the {s.id} record{detail}")
+    checks = record.checks()
+    out += [f"{c.step_id}: {c.reason}" for c in checks if c.verdict == verdict]
+    out += [f"{c.step_id}: {c.reason}" for c in checks if c.verdict not in (verdict, Verdict.PASS)]
+    return list(dict.fromkeys(out))
 
 
 def run_unit(plan: Any, station: Any, serial: str, options: RunOptions) -> RunOutcome:

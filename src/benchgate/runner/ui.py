@@ -48,6 +48,14 @@ class QuietDisplay:
     """Shows nothing (``ui="quiet"``)."""
 
     def info(self, text: str) -> None: ...
+
+    def alarm(self, text: str) -> None:
+        """A line the operator must see whatever the display (even quiet): on stderr."""
+        try:
+            print(f"benchgate: {text}", file=sys.stderr, flush=True)
+        except (BrokenPipeError, ValueError):
+            pass
+
     def run_started(self, record: Any, total_steps: int) -> None: ...
     def step_started(self, index: int, total: int, step: Any) -> None: ...
     def progress(self, fraction: float, text: str, time_left: float | None) -> None: ...
@@ -73,6 +81,11 @@ class PlainDisplay(QuietDisplay):
 
     def info(self, text: str) -> None:
         self._line(text)
+
+    def alarm(self, text: str) -> None:
+        self._line(text)
+        if not _is_terminal(self.stream):  # a log file or a pipe: the console gets it on stderr
+            super().alarm(text)
 
     def run_started(self, record: Any, total_steps: int) -> None:
         self._line(f"unit {record.serial!r} · plan {record.plan_id} v{record.plan_version} · "
@@ -135,20 +148,27 @@ class RichDisplay(PlainDisplay):
         style = "bold yellow" if text.startswith(("CAUTION", "HAZARD", "WARNING")) else ""
         self._print((text, style))
 
+    def alarm(self, text: str) -> None:
+        self._print((f" {text} ", "bold white on red"))
+        if not _is_terminal(self.stream):
+            QuietDisplay.alarm(self, text)
+
     def run_started(self, record: Any, total_steps: int) -> None:
         from rich.rule import Rule
+        from rich.text import Text
 
         self._stop_bar()
-        self.console.print(Rule(f"benchgate · {record.plan_id} v{record.plan_version} · unit {record.serial}",
-                                style="cyan"), markup=False)
+        # Text, never a markup string: a serial such as "[/bold]" is shown as typed
+        title = Text(f"benchgate · {record.plan_id} v{record.plan_version} · unit {record.serial}")
+        self.console.print(Rule(title, style="cyan"))
 
     def step_started(self, index: int, total: int, step: Any) -> None:
         self._print((f"▶ {index}/{total} ", "bold cyan"), (f"{step.id}: {step.title}", ""))
         if step.kind in ("wait", "capture"):
             from rich.progress import BarColumn, Progress, TaskProgressColumn, TextColumn
 
-            self._progress = Progress(TextColumn("   {task.description}"), BarColumn(), TaskProgressColumn(),
-                                      TextColumn("{task.fields[left]}"), console=self.console, transient=True)
+            self._progress = Progress(TextColumn("   {task.description}", markup=False), BarColumn(), TaskProgressColumn(),
+                                      TextColumn("{task.fields[left]}", markup=False), console=self.console, transient=True)
             self._task = self._progress.add_task(step.kind, total=1.0, left="")
             self._progress.start()
 
@@ -201,7 +221,14 @@ def make_display(mode: str, *, unattended: bool = False, stream: TextIO | None =
         return PlainDisplay(stream)
     if mode == "rich":
         return RichDisplay(stream)
-    tty = bool(getattr(stream, "isatty", lambda: False)())
+    tty = _is_terminal(stream)
     if not tty or unattended or os.environ.get("NO_COLOR"):
         return PlainDisplay(stream)
     return RichDisplay(stream)
+
+
+def _is_terminal(stream: Any) -> bool:
+    try:
+        return bool(stream.isatty())
+    except (AttributeError, ValueError):
+        return False
