@@ -87,12 +87,19 @@ class TestEndToEnd:
             supply = bench["supply"]
             supply.set_voltage(9.0)
             supply.set_current_limit(0.05)
+            # switch on 50 ms (bench time) after the ADC says acquisition started: an event,
+            # not a race between a timer thread and the capture command under CPU load
             th = threading.Thread(target=lambda: (tb3.clock.sleep(0.05), supply.output(True)))
-            th.start()
+
+            def progress(fraction, text):
+                if not th.is_alive() and th.ident is None:
+                    th.start()
+
             try:
-                cap = bench["adc"].capture("out", duration=0.8, rate=50_000)
+                cap = bench["adc"].capture("out", duration=0.8, rate=50_000, progress=progress)
             finally:
-                th.join()
+                if th.ident is not None:
+                    th.join()
         v = cap.samples
         assert np.ptp(v[:1000]) < 0.01  # flat: the unit is not powered yet
         assert np.ptp(v[-5000:]) > 1.2  # oscillating at the end
