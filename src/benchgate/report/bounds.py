@@ -11,29 +11,22 @@ from __future__ import annotations
 
 import math
 
-#: measurement or reading name -> (lowest, highest) physically possible value, in SI units
-#: (per cent for "%"); None where the quantity is unbounded on that side.
-PHYSICAL_BOUNDS: dict[str, tuple[float | None, float | None]] = {
-    "frequency": (0.0, None),
-    "amplitude": (0.0, None),
-    "vpp": (0.0, None),
-    "rms": (0.0, None),
-    "ac_voltage": (0.0, None),
-    "thd": (0.0, None),
-    "thd_n": (0.0, None),
-    "startup_time": (0.0, None),
-    "duty_cycle": (0.0, 100.0),
-    "amplitude_dip": (0.0, 100.0),
-}
-#: by unit, for names not in the table: no negative frequencies or durations.
+from benchgate.analysis.bounds import UNBOUNDED, bounds_of
+
+#: by unit, for names the vocabulary does not bound: no negative frequencies or durations.
 _UNIT_BOUNDS: dict[str, tuple[float | None, float | None]] = {"Hz": (0.0, None), "s": (0.0, None)}
 
 
 def physical_bounds(name: str, unit: str = "") -> tuple[float | None, float | None]:
-    """``(low, high)`` physical bounds of quantity ``name`` measured in ``unit`` (None: unbounded)."""
-    if name in PHYSICAL_BOUNDS:
-        return PHYSICAL_BOUNDS[name]
-    return _UNIT_BOUNDS.get(unit, (None, None))
+    """``(low, high)`` physical bounds of quantity ``name`` measured in ``unit`` (None: unbounded).
+
+    One table serves the plan loader (impossible windows) and the plots:
+    :data:`benchgate.analysis.bounds.PHYSICAL_BOUNDS`.
+    """
+    b = bounds_of(name)
+    if b is UNBOUNDED:
+        return _UNIT_BOUNDS.get(unit, (None, None))
+    return (None if math.isinf(b.low) else b.low, None if math.isinf(b.high) else b.high)
 
 
 def clip_axis(lo: float, hi: float, name: str, unit: str, data_min: float, data_max: float
