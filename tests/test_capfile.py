@@ -209,3 +209,36 @@ class TestNpz:
         p.write_bytes(b"PK\x03\x04 this is not a zip")
         with pytest.raises(CaptureError, match="not a readable .npz"):
             load_capture(p)
+
+
+class TestTruncatedWav:
+    """A WAV file cut short (interrupted copy or recording) is refused, never read in part."""
+
+    def _full(self, tmp_path):
+        p = tmp_path / "whole.wav"
+        _pcm_wav(p, np.round(SINE * 30000).astype("<i2").tobytes(), 2)
+        return p
+
+    def test_whole_file_reads(self, tmp_path):
+        assert load_capture(self._full(tmp_path)).n == SINE.size
+
+    @pytest.mark.parametrize("cut", [1, 2, 101, 400])
+    def test_data_chunk_cut_short(self, tmp_path, cut):
+        data = self._full(tmp_path).read_bytes()
+        p = tmp_path / "cut.wav"
+        p.write_bytes(data[:-cut])
+        with pytest.raises(CaptureError, match="truncated WAV") as err:
+            load_capture(p)
+        assert err.value.where().endswith("cut.wav") and "\n" not in str(err.value)
+
+    def test_cli_refuses_in_one_line(self, tmp_path, capsys):
+        from benchgate.cli import main
+
+        data = self._full(tmp_path).read_bytes()
+        p = tmp_path / "cut.wav"
+        p.write_bytes(data[:-3])
+        code = main(["analyze", str(p)])
+        err = capsys.readouterr().err
+        assert code != 0
+        lines = [line for line in err.splitlines() if line.strip()]
+        assert len(lines) == 1 and "cut.wav" in lines[0] and "truncated" in lines[0]

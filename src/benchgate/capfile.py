@@ -270,6 +270,11 @@ def _read_wav(data: bytes, name: str) -> tuple[np.ndarray, float, int, bool]:
     while pos + 8 <= len(data):
         cid, size = data[pos:pos + 4], struct.unpack("<I", data[pos + 4:pos + 8])[0]
         body = data[pos + 8:pos + 8 + size]
+        if cid in (b"fmt ", b"data") and len(body) < size:
+            # a chunk that promises more bytes than the file holds: the file was cut short
+            # (an interrupted copy or recording); reading what is there would lose data silently
+            raise CaptureError(f"truncated WAV file: its {cid.decode().strip()!r} chunk declares {size} bytes "
+                               f"but only {len(body)} follow", file=name)
         if cid == b"fmt ":
             fmt = body
         elif cid == b"data":
@@ -285,9 +290,12 @@ def _read_wav(data: bytes, name: str) -> tuple[np.ndarray, float, int, bool]:
     if channels < 1 or rate <= 0 or bits == 0:
         raise CaptureError(f"WAV header not usable ({channels} channels, {rate} Hz, {bits} bits)", file=name)
     width = bits // 8
-    if align < channels * width:
+    if align < max(channels * width, 1):
         raise CaptureError("WAV block alignment smaller than its sample size", file=name)
-    frames = len(payload) // align
+    frames, rest = divmod(len(payload), align)
+    if rest:
+        raise CaptureError(f"truncated WAV file: the data chunk ends {rest} byte(s) into a sample frame "
+                           f"of {align} bytes", file=name)
     raw = np.frombuffer(payload[: frames * align], dtype=np.uint8).reshape(frames, align)[:, :width]
     if tag == 1 and bits in (8, 16, 24, 32):
         if bits == 8:
