@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import numpy as np
+import pytest
 from _analysis_signals import quantise
 
 from benchgate.analysis import AdcInfo, Capture, analyze
@@ -68,3 +69,53 @@ class TestStateLevels:
         x = np.r_[rng.normal(0.2, 0.01, 6000), rng.normal(2.9, 0.01, 4000), np.linspace(0.2, 2.9, 50)]
         low, high = state_levels(x)
         assert abs(low - 0.2) < 0.02 and abs(high - 2.9) < 0.02
+
+
+class TestFullScaleSineIsNotClipping:
+    """Samples at the end codes are compared with what the fitted sine predicts there."""
+
+    ADC = AdcInfo(10, 1.0)
+    N = 16_384
+
+    def _sine(self, scale, *, noise=0.0, seed=0, phase=0.1):
+        adc = self.ADC
+        a = 0.5 * (adc.high_rail - adc.low_rail) * scale  # scale 1: peaks at the end code centres
+        c = 0.5 * (adc.high_rail + adc.low_rail)
+        t = np.arange(self.N)
+        x = c + a * np.sin(2 * np.pi * 1021 * t / self.N + phase)
+        if noise:
+            x = x + np.random.default_rng(seed).normal(0.0, noise * adc.lsb, self.N)
+        return Capture(quantise(x, adc), 100_000.0, adc=adc), a
+
+    def test_sine_touching_the_top_code_is_not_clipped(self):
+        cap, a = self._sine(1.0)
+        at_top = int(np.count_nonzero(cap.samples >= self.ADC.high_rail - 0.5 * self.ADC.lsb))
+        # IEEE Std 1241-2010 histogram test (arcsine density): a sine reaching 1/2 LSB past the
+        # top transition spends arccos(1 − 0.5/511.5)/π of its time there: 230.7 of 16 384
+        assert abs(at_top - 16_384 * np.arccos(1 - 0.5 / 511.5) / np.pi) <= 3
+        checked = check_capture(cap)
+        assert checked.clipped is None and checked.warnings == ()
+        m = analyze(cap).measurements
+        assert m["amplitude"].valid and abs(m["amplitude"].value - a) <= m["amplitude"].uncertainty
+        # ideal 10-bit quantiser SNR = 6.02·N + 1.76 = 61.96 dB (IEEE Std 1241-2010)
+        assert m["sinad"].valid and abs(m["sinad"].value - 61.96) < 0.3
+        assert m["enob"].valid and abs(m["enob"].value - 10.0) < 0.05
+
+    @pytest.mark.parametrize("seed", range(4))
+    def test_noisy_full_scale_sine_is_not_clipped(self, seed):
+        cap, _ = self._sine(1.0, noise=0.5, seed=seed, phase=seed)
+        assert check_capture(cap).clipped is None
+
+    @pytest.mark.parametrize("scale", [1.003, 1.02, 1.2])
+    def test_sine_past_the_rails_is_clipped(self, scale):
+        cap, _ = self._sine(scale)  # peaks 1.5, 10 and 100 LSB past the end codes' centres
+        c = check_capture(cap)
+        assert c.clipped and "clipped at the ADC low and high rail" in c.clipped
+        assert not analyze(cap).measurements["amplitude"].valid
+
+    def test_one_sided_clipping(self):
+        adc = self.ADC
+        t = np.arange(self.N)
+        x = quantise(0.62 + 0.45 * np.sin(2 * np.pi * 1021 * t / self.N), adc)  # top at 1.07 V > rail
+        c = check_capture(Capture(x, 100_000.0, adc=adc))
+        assert c.clipped and "high rail" in c.clipped and "low" not in c.clipped

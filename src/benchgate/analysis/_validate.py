@@ -11,7 +11,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from benchgate.analysis.capture import Capture
+from benchgate.analysis import sinefit, spectrum
+from benchgate.analysis.capture import AdcInfo, Capture
 
 #: fewest samples any measurement is attempted on.
 MIN_SAMPLES = 16
@@ -88,6 +89,60 @@ def _run_fraction(mask: np.ndarray) -> float:
     return float(np.count_nonzero(inner)) / mask.size
 
 
+def _rail_clipping(x: np.ndarray, adc: AdcInfo, low_mask: np.ndarray, high_mask: np.ndarray) -> str | None:
+    """Whether samples at the end codes mean clipping, or are what an unclipped sine gives.
+
+    A sine whose peaks just reach the top code puts a predictable share of its samples there:
+    a sine of amplitude A is above a level A − d for a fraction arccos(1 − d/A)/π of the time
+    (its arcsine amplitude distribution, the reasoning of the IEEE 1241 histogram test). The
+    sine is not clipped while its peak stays inside the end code's own width (d ≤ 1 LSB from
+    the code's transition level), so at most N·arccos(1 − (Q + 3σ)/A)/π samples sit at each end
+    code (σ the noise, which may carry a peak a little further), plus a binomial allowance of
+    three standard deviations and two samples. A and the offset come from a three-parameter
+    sine fit (at the four-parameter fit's frequency) to the samples strictly inside the rails,
+    so a clipped sine's true, larger amplitude is recovered. More samples at a rail than that
+    is clipping. Returns the reason, or None.
+
+    References
+    ----------
+    IEEE Std 1241-2010, histogram (code density) test with a sine input (arcsine distribution);
+    IEEE Std 1057-2017, sine fits.
+    """
+    inner = ~(low_mask | high_mask)
+    n = x.size
+    both = " and ".join(name for name, m in (("low", low_mask), ("high", high_mask)) if np.count_nonzero(m) >= 2)
+    plain = f"clipped at the ADC {both} rail ({int(np.count_nonzero(~inner))} samples)"
+    if np.count_nonzero(inner) < 16:
+        return plain
+    f0 = spectrum.coarse_frequency(x, 1.0)
+    if not 0.0 < f0 < 0.5:
+        return plain
+    omega = sinefit.fit4(x, 2.0 * np.pi * f0).omega
+    t = np.arange(n) - (n - 1) / 2.0
+    cols = np.stack([np.cos(omega * t), np.sin(omega * t), np.ones(n)], axis=1)[inner]
+    coef, *_ = np.linalg.lstsq(cols, x[inner], rcond=None)
+    amp = float(np.hypot(coef[0], coef[1]))
+    resid = x[inner] - cols @ coef
+    noise = float(np.sqrt(max(float(np.mean(resid * resid)) - adc.lsb ** 2 / 12.0, 0.0)))
+    if not amp > 0:
+        return plain
+    reach = adc.lsb + 3.0 * noise
+    worst = n * float(np.arccos(np.clip(1.0 - reach / amp, -1.0, 1.0))) / np.pi
+    allowed = worst + 3.0 * np.sqrt(worst) + 2.0
+    sides = []
+    for name, mask in (("low", low_mask), ("high", high_mask)):
+        count = int(np.count_nonzero(mask))
+        if count < 2:
+            continue
+        if count > allowed:
+            sides.append(name)
+    if not sides:
+        return None
+    total = int(sum(np.count_nonzero(m) for m in (low_mask, high_mask)))
+    return (f"clipped at the ADC {' and '.join(sides)} rail ({total} samples; a sine reaching "
+            f"the end code without clipping would put at most {int(allowed)} there)")
+
+
 def check_capture(capture: Capture) -> Checked:
     """Check a capture's samples: count, finiteness, flat line, clipping or flat tops."""
     x = capture.samples
@@ -115,14 +170,16 @@ def check_capture(capture: Capture) -> Checked:
     if capture.adc is not None:
         adc = capture.adc
         tol = 0.5 * adc.lsb
-        at_low = int(np.count_nonzero(x <= adc.low_rail + tol))
-        at_high = int(np.count_nonzero(x >= adc.high_rail - tol))
+        low_mask = x <= adc.low_rail + tol
+        high_mask = x >= adc.high_rail - tol
+        at_low = int(np.count_nonzero(low_mask))
+        at_high = int(np.count_nonzero(high_mask))
         if at_low >= 2 or at_high >= 2:
             where = " and ".join(name for name, count in (("low", at_low), ("high", at_high)) if count >= 2)
             if pulse:
                 warnings.append(f"a pulse state sits at the ADC {where} rail; its level may be limited")
             else:
-                clipped = f"clipped at the ADC {where} rail ({at_low + at_high} samples)"
+                clipped = _rail_clipping(x, adc, low_mask, high_mask)
     elif not pulse:
         tol = 1e-9 * span
         frac = max(_run_fraction(x >= hi - tol), _run_fraction(x <= lo + tol))
