@@ -38,3 +38,15 @@ def quantise(x: np.ndarray, adc: AdcInfo) -> np.ndarray:
     """Ideal mid-tread quantiser with the converter's code range."""
     codes = np.clip(np.round((x - adc.low_rail) / adc.lsb), 0, 2 ** adc.bits - 1)
     return adc.low_rail + codes * adc.lsb
+
+
+def pink_noise(n: int, rng, *, exponent: float = 1.0) -> np.ndarray:
+    """Gaussian noise of power density ∝ 1/f^exponent (unit variance), shaped in the frequency
+    domain: complex Gaussian bins scaled by f^(−exponent/2), DC removed (common practice)."""
+    bins = rng.normal(size=n // 2 + 1) + 1j * rng.normal(size=n // 2 + 1)
+    k = np.arange(n // 2 + 1, dtype=float)
+    k[0] = 1.0
+    bins *= k ** (-0.5 * exponent)
+    bins[0] = 0.0
+    x = np.fft.irfft(bins, n)
+    return x / np.std(x)

@@ -60,3 +60,17 @@ class TestDutyCycle:
     def test_too_few_periods(self):
         m = duty_cycle(trapezoid(988.0, 0.5, rise=20e-6, duration=0.0015))
         assert not m.valid and "periods" in m.reason
+
+
+class TestDutyNeedsPeriods:
+    def test_two_periods_are_not_enough(self):
+        # regression: two complete periods gave a valid duty cycle; at least three are needed
+        cap = trapezoid(988.0, 0.5, rise=20e-6, duration=2.6 / 988.0)
+        m = duty_cycle(cap)
+        assert not m.valid and "fewer than 3 complete periods" in m.reason
+
+    def test_three_periods_are(self):
+        # IEEE Std 181-2011: duty = pulse duration / period; symmetric edges keep 50 %
+        m = duty_cycle(trapezoid(988.0, 0.5, rise=20e-6, duration=4.2 / 988.0))
+        assert m.valid and m.details["periods"] >= 3
+        assert_allclose(m.value, 50.0, atol=max(m.uncertainty, 0.1))

@@ -12,7 +12,8 @@ from functools import cached_property
 
 import numpy as np
 
-from benchgate.analysis import _steady, sinefit, spectrum
+from benchgate.analysis import _detect, _steady, _track, sinefit, spectrum
+from benchgate.analysis._detect import detection_threshold, local_floor
 from benchgate.analysis._validate import Checked, check_capture, state_levels
 from benchgate.analysis.capture import Capture
 
@@ -20,21 +21,14 @@ from benchgate.analysis.capture import Capture
 MIN_CYCLES = 3.0
 #: highest fundamental, as a fraction of the sample rate.
 MAX_FRACTION_OF_RATE = 0.45
-#: detection margin (natural log units) above the largest periodogram value noise would give.
-DETECTION_MARGIN = 25.0
 
 
+FEW_CYCLES = f"fewer than {MIN_CYCLES:g} cycles in the record"
 NO_TONE = "no tone detected above the noise (no oscillation?)"
 NO_OSCILLATION_FLAT = "no oscillation: the steady part is a flat line"
 NO_OSCILLATION_SLOW = "no oscillation: nothing faster than one cycle per record"
 #: tone reasons meaning "nothing oscillates" (levels can then state a bound on the amplitude)
 NO_OSCILLATION = (NO_TONE, NO_OSCILLATION_FLAT, NO_OSCILLATION_SLOW)
-
-
-def detection_threshold(n: int) -> float:
-    """Smallest N·A²/(4σ²) counted as a tone: the largest periodogram value of white noise
-    exceeds ln(N) + m with probability about e^(−m); m = 25."""
-    return math.log(max(n, 2)) + DETECTION_MARGIN
 
 
 @dataclass(frozen=True)
@@ -45,6 +39,23 @@ class Tone:
     frequency: float  # Hz (NaN when no fit)
     cycles: float
     reason: str | None  # None when the tone can be trusted
+    noise_floor: float = math.nan  # σ² the detection was judged against (V², local or global)
+    track: _track.PhaseTrack | None = None  # the phase followed over the record (≥ 8 cycles)
+    chirp: _track.ChirpFit | None = None  # fit along the tracked phase, when the drift is significant
+
+    @property
+    def amplitude(self) -> float:
+        """Peak amplitude (V): along the drifting phase when there is a significant drift."""
+        if self.chirp is not None:
+            return self.chirp.amplitude
+        return self.fit.amplitude if self.fit is not None else math.nan
+
+    @property
+    def noise_var(self) -> float:
+        """Residual variance (V²) of the model used for the amplitude."""
+        if self.chirp is not None:
+            return self.chirp.residual_var
+        return self.fit.residual_var if self.fit is not None else math.nan
 
     @property
     def ok(self) -> bool:
@@ -141,12 +152,23 @@ class Context:
         w0 = 2.0 * math.pi * f0 / fs
         if f0 * n / fs < 20 and n <= 65536:
             w0 = sinefit.best_start(y, w0)
-        work = sinefit.Workspace(n)
-        fit = sinefit.fit4(y, w0, work=work)
+        fit, work, track, chirp, floor, detection = self._model(y, w0)
+        first_cycles = fit.omega * n / (2.0 * math.pi)
+        if (detection < detection_threshold(n) or first_cycles < MIN_CYCLES) and n >= 64:
+            # the strongest peak is no tone above its own floor, or too slow to be measured
+            # (coloured noise is strongest at low frequencies): try the peak that stands highest
+            # above its local floor
+            alt = _detect.most_prominent_peak(y)
+            if alt is not None and abs(alt - fit.omega) * n / (2.0 * math.pi) > 2.0:
+                second = self._model(y, alt)
+                steady_phase = second[2] is None or second[2].followed
+                if second[5] >= detection_threshold(n) and steady_phase:
+                    # (a tone found only this way must also keep its phase over the record: a
+                    # ring-down at power-on is no oscillation of the steady part)
+                    fit, work, track, chirp, floor, detection = second
         self.__dict__["_fit_work"] = work
         freq = fit.omega * fs / (2.0 * math.pi)
         cycles = freq * n / fs
-        detection = n * fit.amplitude ** 2 / (4.0 * fit.residual_var) if fit.residual_var > 0 else math.inf
         reason = None
         if detection < detection_threshold(n):
             reason = NO_TONE
@@ -155,10 +177,41 @@ class Context:
         elif freq > MAX_FRACTION_OF_RATE * fs:
             reason = f"fundamental near Nyquist (above {MAX_FRACTION_OF_RATE:g} of the sample rate)"
         elif cycles < MIN_CYCLES:
-            reason = f"fewer than {MIN_CYCLES:g} cycles in the record ({cycles:.2f})"
+            reason = f"{FEW_CYCLES} ({cycles:.2f})"
         elif not fit.converged:
             reason = "the four-parameter sine fit did not converge"
-        return Tone(fit, freq, cycles, reason)
+        return Tone(fit, freq, cycles, reason, floor, track, chirp)
+
+    def _model(self, y: np.ndarray, w0: float) -> tuple:
+        """Four-parameter fit from ``w0``, its phase track and drifting-phase fit, the noise floor
+        at its frequency and the detection statistic N·A²/(4·floor)."""
+        n = y.size
+        fs = self.capture.sample_rate
+        work = sinefit.Workspace(n)
+        fit = sinefit.fit4(y, w0, work=work)
+        cycles = fit.omega * n / (2.0 * math.pi)
+        track = _track.track_phase(y, fit, cycles, fs, work) if fit.converged and cycles < n / 2 else None
+        chirp = None
+        if track is not None and track.followed and track.significant:
+            chirp = _track.chirp_fit(y, fit, track, fs)
+        amp = chirp.amplitude if chirp is not None else fit.amplitude
+        floor = self._detection_floor(fit, cycles, chirp)
+        detection = n * amp ** 2 / (4.0 * floor) if floor > 0 else math.inf
+        return fit, work, track, chirp, floor, detection
+
+    def _detection_floor(self, fit: sinefit.SineFit, cycles: float, chirp: _track.ChirpFit | None) -> float:
+        """The larger of the residual variance and the residual's local floor at the fitted
+        frequency (:func:`benchgate.analysis._detect.local_floor`): coloured noise is judged
+        against its own level there. The residual is that of the drifting-phase fit when
+        there is one (a drifting tone's own power would otherwise raise its floor)."""
+        floor = chirp.residual_var if chirp is not None else fit.residual_var
+        if fit.n >= 64 and cycles >= 1.0:
+            resid = chirp.residual if chirp is not None else sinefit.residual(self.y, fit)
+            spec = spectrum.power_spectrum(resid, self.capture.sample_rate, "hann")
+            local = local_floor(spec, cycles)
+            if local is not None:
+                floor = max(floor, local)
+        return floor
 
     @cached_property
     def spectrum(self) -> spectrum.Spectrum:
@@ -186,6 +239,11 @@ class Context:
         if self.start == 0:
             return self.checked.low_state, self.checked.high_state
         return state_levels(self.y)
+
+    @property
+    def phase_track(self) -> _track.PhaseTrack | None:
+        """The phase of the fundamental followed over the steady part (None under 8 cycles)."""
+        return self.tone.track
 
     def fit_workspace(self) -> sinefit.Workspace | None:
         """cos/sin of the steady part at the fitted frequency (left by the fit), if any."""

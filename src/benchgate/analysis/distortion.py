@@ -25,6 +25,9 @@ _TINY = 1e-300
 #: (about −88 dBc summed over the band) would bias the noise, so the noise and harmonics
 #: are measured on the spectrum of the sine-fit residual instead (one more transform).
 LEAKAGE_LIMIT = 10 ** 6.5
+#: most DFT bins the fundamental may move by over the record (drift × duration²) before its
+#: power spreads past the band summed as the fundamental (main lobe ± 1 bin)
+MAX_SWEEP_BINS = 1.0
 
 
 @dataclass(frozen=True)
@@ -58,6 +61,12 @@ def _compute(ctx: Context) -> Harmonics:
         return Harmonics(tone.reason)
     if ctx.checked.clipped:
         return Harmonics(ctx.checked.clipped)
+    track = tone.track
+    if track is not None and tone.chirp is not None:
+        sweep = abs(track.drift) * (ctx.y.size / ctx.capture.sample_rate) ** 2  # bins moved
+        if sweep > MAX_SWEEP_BINS:
+            return Harmonics(f"the fundamental drifts by {sweep:.1f} bins over the record: its power "
+                             "is not in one spectral line")
     first = _from_spectrum(ctx, tone, ctx.spectrum, subtract_fundamental=False)
     if first.reason or first.p1 < LEAKAGE_LIMIT * first.noise:
         return first

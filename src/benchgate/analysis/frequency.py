@@ -33,7 +33,9 @@ def frequency(capture: Capture, *, context: Context | None = None) -> Measuremen
     records, Blackman–Harris for long ones; a small grid of three-parameter fits for records
     under 20 cycles), refined by the four-parameter least-squares fit on the steady part
     (after start-up). The standard uncertainty combines the Cramér–Rao bound evaluated with
-    the fit's own residual noise and amplitude, and the sample-clock tolerance (rectangular).
+    the fit's amplitude and the noise at the tone's frequency (the larger of the residual
+    variance and the local floor used for detection, so coloured noise is not taken for
+    white), and the sample-clock tolerance (rectangular).
 
     References
     ----------
@@ -46,7 +48,11 @@ def frequency(capture: Capture, *, context: Context | None = None) -> Measuremen
         return Measurement.invalid("frequency", "Hz", tone.reason or "no tone")
     fit = tone.fit
     fs = capture.sample_rate
-    u_fit = crlb_frequency_std(fit.snr, fit.n) * fs
+    # η from the noise at the tone's own frequency: with coloured noise the local density,
+    # not the record's average, sets how well the frequency is known
+    noise = max(tone.noise_var, tone.noise_floor) if math.isfinite(tone.noise_floor) else tone.noise_var
+    eta = tone.amplitude ** 2 / (2.0 * noise) if noise > 0 else math.inf
+    u_fit = crlb_frequency_std(eta, fit.n) * fs
     u_clock = clock_std(tone.frequency, capture.clock_ppm)
     details = {"method": "four-parameter sine fit", "samples_used": fit.n,
                "steady_start_s": ctx.steady_start_time, "cycles": round(tone.cycles, 3),

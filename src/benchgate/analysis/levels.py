@@ -6,7 +6,7 @@ import math
 
 import numpy as np
 
-from benchgate.analysis import sinefit
+from benchgate.analysis import _track, sinefit
 from benchgate.analysis._steady import NOT_STEADY, STILL_CHANGING, TAIL_FRACTION
 from benchgate.analysis.capture import Capture
 from benchgate.analysis.context import (
@@ -36,8 +36,10 @@ def _no_oscillation_amplitude(ctx: Context, capture: Capture) -> Measurement | N
 
     A flat line, or a steady part that is flat or only drifts (nothing faster than one cycle
     per record, e.g. an oscillation that died out), bounds the amplitude by half the span.
-    A record whose fit did not pass the detection test (noise only) bounds it by twice the
-    amplitude that test would have detected, √(4σ²T/N) with T its threshold. A dead unit
+    A record whose fit did not pass the detection test (noise only) bounds it by the larger of
+    twice the amplitude that test would have detected, √(4σ²T/N) with T its threshold and σ²
+    the noise floor at the fitted frequency, and √2 times the AC rms of the steady part (no
+    sine can carry more than the record's power, whether or not it was detected). A dead unit
     then fails an amplitude window instead of being left undecided.
     """
     q = quantisation_std(capture.adc)
@@ -54,8 +56,12 @@ def _no_oscillation_amplitude(ctx: Context, capture: Capture) -> Measurement | N
         return Measurement("amplitude", 0.0, "V", half + expand(q),
                            details={"method": "bound: half the span of the steady part",
                                     "no_oscillation": True})
-    detectable = math.sqrt(4.0 * fit.residual_var * detection_threshold(fit.n) / fit.n)
-    u = max(fit.amplitude, 2.0 * detectable) + expand(q)
+    detectable = math.sqrt(4.0 * tone.noise_floor * detection_threshold(fit.n) / fit.n)
+    # a sine of amplitude A carries A²/2 of the record's AC power, so √2·(AC rms) bounds any
+    # sine that is there but was not detected as one (e.g. a chirp too fast to follow); the
+    # detection limit alone bounds only a steady sine
+    span_bound = math.sqrt(2.0) * float(np.std(ctx.y))
+    u = max(fit.amplitude, 2.0 * detectable, span_bound) + expand(q)
     return Measurement("amplitude", fit.amplitude, "V", u,
                        details={"method": "bound: no tone above the noise", "no_oscillation": True,
                                 "detectable_v": detectable})
@@ -103,11 +109,61 @@ def amplitude(capture: Capture, *, context: Context | None = None) -> Measuremen
     details = {"method": "four-parameter sine fit", "samples_used": fit.n}
     if not tone.ok:
         return Measurement.invalid("amplitude", "V", tone.reason, value=fit.amplitude, **details)
-    settle = _settling(ctx) * fit.amplitude
+    wander = _wander(ctx)
+    if wander.reason:
+        return Measurement.invalid("amplitude", "V", wander.reason, value=tone.amplitude, **details)
+    value = tone.amplitude
+    if tone.chirp is not None:
+        details["method"] = "sine fit along the drifting phase (quadratic phase, IEEE 1057 three-parameter)"
+        details["drift_hz_per_s"] = tone.track.drift
+    settle = _settling(ctx) * value
     if settle:
         details["settling_v"] = settle
-    u = expand(crlb_amplitude_std(fit.residual_var, fit.n), quantisation_std(capture.adc), settle)
-    return Measurement("amplitude", fit.amplitude, "V", u, details=details)
+    misfit = wander.relative * value
+    if misfit:
+        details["phase_misfit_v"] = misfit
+    noise = max(tone.noise_var, tone.noise_floor) if math.isfinite(tone.noise_floor) else tone.noise_var
+    u = expand(crlb_amplitude_std(noise, fit.n), quantisation_std(capture.adc), settle, misfit)
+    return Measurement("amplitude", value, "V", u, details=details)
+
+
+class _Wander:
+    """How far the fundamental's phase strays from the fitted model (see :func:`_wander`)."""
+
+    def __init__(self, relative: float = 0.0, reason: str | None = None):
+        self.relative = relative
+        self.reason = reason
+
+
+#: largest relative amplitude loss from an unfollowed phase wander that is stated as a U term
+MAX_WANDER = 0.05
+
+
+def _wander(ctx: Context) -> _Wander:
+    """Amplitude lost to a phase the model does not follow, as a relative standard uncertainty.
+
+    A sine fit along a phase that is off by ε(t) finds A·mean(cos ε) ≈ A(1 − ε²/2): the phase
+    residual about the fitted quadratic beyond its noise (rms ε, from the window phases of
+    :mod:`benchgate.analysis._track`) gives the term ε²/2 (derived, second-order Taylor).
+    Only a residual clearly above the noise (more than twice its expected rms) counts. A
+    phase that cannot be followed from window to window, or a loss above 5 %, leaves no
+    trustworthy amplitude at all.
+    """
+    track = ctx.tone.track
+    if track is None:
+        return _Wander()
+    if not track.followed:
+        if track.residual > 2.0 * track.noise or track.step > 0.25 * math.pi:
+            return _Wander(reason="frequency changes too fast to follow over the record: the fitted "
+                           "amplitude would be too small")
+        return _Wander()
+    if track.residual <= 2.0 * track.noise:
+        return _Wander()
+    loss = 0.5 * track.misfit ** 2
+    if loss > MAX_WANDER:
+        return _Wander(reason=f"the phase wanders {track.misfit:.2f} rad rms beyond a steady drift: "
+                       "no single amplitude fits the record")
+    return _Wander(loss)
 
 
 def _settling(ctx: Context) -> float:
@@ -133,12 +189,16 @@ def _settling_compute(ctx: Context) -> float:
     k = min(int(TAIL_FRACTION * ctx.capture.n), y.size)
     if k < 16 or k > 0.8 * y.size:
         return 0.0
-    tail = sinefit.fit3(y[-k:], fit.omega)
-    diff = fit.amplitude - tail.amplitude
-    sd = math.sqrt(max(2.0 * fit.residual_var * (1.0 / k - 1.0 / y.size), 0.0))
+    tone = ctx.tone
+    if tone.chirp is not None:  # the tail along the same drifting phase
+        tail_amp = _track.chirp_fit(y, fit, tone.track, ctx.capture.sample_rate, start=y.size - k).amplitude
+    else:
+        tail_amp = sinefit.fit3(y[-k:], fit.omega).amplitude
+    diff = tone.amplitude - tail_amp
+    sd = math.sqrt(max(2.0 * tone.noise_var * (1.0 / k - 1.0 / y.size), 0.0))
     if abs(diff) <= 3.0 * sd:
         return 0.0
-    return abs(diff) / fit.amplitude
+    return abs(diff) / tone.amplitude
 
 
 def vpp(capture: Capture, *, context: Context | None = None) -> Measurement:

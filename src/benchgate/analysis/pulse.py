@@ -7,9 +7,14 @@ import math
 import numpy as np
 
 from benchgate.analysis.capture import Capture
-from benchgate.analysis.context import Context, get_context
+from benchgate.analysis.context import FEW_CYCLES, Context, get_context
 from benchgate.analysis.measurement import Measurement
 from benchgate.analysis.uncertainty import expand
+
+#: fewest complete periods (rising edge to rising edge) a duty cycle is stated from.
+MIN_PERIODS = 3
+#: largest relative standard deviation of those periods for the waveform to count as periodic.
+MAX_PERIOD_SCATTER = 0.2
 
 
 def crossings(x: np.ndarray, low: float, high: float) -> tuple[np.ndarray, np.ndarray]:
@@ -73,8 +78,9 @@ def duty_cycle(capture: Capture, *, context: Context | None = None) -> Measureme
     Measurement
         Mean over the complete periods (rising edge to rising edge). U (k = 2) combines the
         standard deviation of the mean over periods and a rectangular one-sample resolution
-        of each crossing. Invalid with fewer than 2 complete periods, or when no periodic
-        waveform was found (noise alone).
+        of each crossing. Invalid with fewer than 3 complete periods, or when no periodic
+        waveform was found: no tone detected (noise alone), or periods that scatter by more
+        than 20 % of their mean (threshold crossings of noise, common practice, no source).
 
     References
     ----------
@@ -84,25 +90,32 @@ def duty_cycle(capture: Capture, *, context: Context | None = None) -> Measureme
     ctx = get_context(capture, context)
     if ctx.fatal:
         return Measurement.invalid("duty_cycle", "%", ctx.fatal)
-    if ctx.tone.fit is None or (ctx.tone.reason and "cycles" not in ctx.tone.reason):
-        # noise has no periods to time; a record of few cycles is judged by its edges below
-        return Measurement.invalid("duty_cycle", "%", ctx.tone.reason or "no periodic waveform")
     y = ctx.y
     low, high = ctx.steady_levels
     if not high > low:
         return Measurement.invalid("duty_cycle", "%", "flat line: no transitions")
     rise, fall = crossings(y, low, high)
-    if rise.size < 3:
-        return Measurement.invalid("duty_cycle", "%", f"fewer than 2 complete periods ({max(rise.size - 1, 0)})")
+    if rise.size < MIN_PERIODS + 1:
+        return Measurement.invalid("duty_cycle", "%", f"fewer than {MIN_PERIODS} complete periods "
+                                   f"({max(rise.size - 1, 0)})")
+    if ctx.tone.fit is None or (ctx.tone.reason and not ctx.tone.reason.startswith(FEW_CYCLES)):
+        # noise has no periods to time, however many threshold crossings it makes
+        return Measurement.invalid("duty_cycle", "%", ctx.tone.reason or "no periodic waveform")
     nxt = np.searchsorted(fall, rise[:-1])
     ok = nxt < fall.size
     starts, ends = rise[:-1][ok], rise[1:][ok]
     falls = fall[nxt[ok]]
     inside = falls < ends
     starts, ends, falls = starts[inside], ends[inside], falls[inside]
-    if starts.size < 2:
-        return Measurement.invalid("duty_cycle", "%", "fewer than 2 complete periods")
+    if starts.size < MIN_PERIODS:
+        return Measurement.invalid("duty_cycle", "%", f"fewer than {MIN_PERIODS} complete periods")
     period = ends - starts
+    scatter = float(np.std(period)) / float(np.mean(period))
+    if scatter > MAX_PERIOD_SCATTER:
+        # edges of noise (or of a waveform whose threshold crossings wander) are not periods
+        return Measurement.invalid("duty_cycle", "%", f"no periodic waveform: the periods between rising "
+                                   f"edges scatter by {100 * scatter:.0f} % (more than "
+                                   f"{100 * MAX_PERIOD_SCATTER:.0f} %)")
     duty = 100.0 * (falls - starts) / period
     k = duty.size
     u_a = float(np.std(duty, ddof=1)) / math.sqrt(k)
