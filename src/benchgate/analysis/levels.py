@@ -6,18 +6,20 @@ import math
 
 import numpy as np
 
-from benchgate.analysis import _track, sinefit
-from benchgate.analysis._steady import NOT_STEADY, STILL_CHANGING, TAIL_FRACTION
+from benchgate.analysis._budget import no_oscillation_amplitude, settling, wander
+from benchgate.analysis._steady import NOT_STEADY, STILL_CHANGING
 from benchgate.analysis.capture import Capture
 from benchgate.analysis.context import (
-    NO_OSCILLATION,
-    NO_TONE,
+    FEW_CYCLES,
+    NO_OSCILLATION_SLOW,
     Context,
-    detection_threshold,
     get_context,
 )
 from benchgate.analysis.measurement import Measurement
 from benchgate.analysis.uncertainty import crlb_amplitude_std, expand, quantisation_std
+
+#: fewest cycles a DC offset is stated from when the tone has fewer than 3.
+MIN_DC_CYCLES = 2.0
 
 
 def _refuse(ctx: Context, name: str) -> str | None:
@@ -29,42 +31,6 @@ def _refuse(ctx: Context, name: str) -> str | None:
     if name in ("amplitude", "vpp", "rms") and ctx.steady.warning in (NOT_STEADY, STILL_CHANGING):
         return ctx.steady.warning
     return None
-
-
-def _no_oscillation_amplitude(ctx: Context, capture: Capture) -> Measurement | None:
-    """A valid upper bound for the amplitude of a record with no oscillation, or None.
-
-    A flat line, or a steady part that is flat or only drifts (nothing faster than one cycle
-    per record, e.g. an oscillation that died out), bounds the amplitude by half the span.
-    A record whose fit did not pass the detection test (noise only) bounds it by the larger of
-    twice the amplitude that test would have detected, √(4σ²T/N) with T its threshold and σ²
-    the noise floor at the fitted frequency, and √2 times the AC rms of the steady part (no
-    sine can carry more than the record's power, whether or not it was detected). A dead unit
-    then fails an amplitude window instead of being left undecided.
-    """
-    q = quantisation_std(capture.adc)
-    if ctx.checked.flat:
-        half = 0.5 * float(np.ptp(capture.samples))
-        return Measurement("amplitude", half, "V", half + expand(q),
-                           details={"method": "bound: flat line", "no_oscillation": True})
-    tone = ctx.tone
-    if tone.reason not in NO_OSCILLATION:
-        return None
-    fit = tone.fit
-    if tone.reason != NO_TONE or fit is None:
-        half = 0.5 * float(np.ptp(ctx.y))
-        return Measurement("amplitude", 0.0, "V", half + expand(q),
-                           details={"method": "bound: half the span of the steady part",
-                                    "no_oscillation": True})
-    detectable = math.sqrt(4.0 * tone.noise_floor * detection_threshold(fit.n) / fit.n)
-    # a sine of amplitude A carries A²/2 of the record's AC power, so √2·(AC rms) bounds any
-    # sine that is there but was not detected as one (e.g. a chirp too fast to follow); the
-    # detection limit alone bounds only a steady sine
-    span_bound = math.sqrt(2.0) * float(np.std(ctx.y))
-    u = max(fit.amplitude, 2.0 * detectable, span_bound) + expand(q)
-    return Measurement("amplitude", fit.amplitude, "V", u,
-                       details={"method": "bound: no tone above the noise", "no_oscillation": True,
-                                "detectable_v": detectable})
 
 
 def _whole_cycles(ctx: Context) -> np.ndarray:
@@ -99,7 +65,7 @@ def amplitude(capture: Capture, *, context: Context | None = None) -> Measuremen
     ctx = get_context(capture, context)
     refused = _refuse(ctx, "amplitude")
     if not refused:
-        bound = _no_oscillation_amplitude(ctx, capture)
+        bound = no_oscillation_amplitude(ctx, capture)
         if bound is not None:
             return bound
     tone = ctx.tone
@@ -109,96 +75,22 @@ def amplitude(capture: Capture, *, context: Context | None = None) -> Measuremen
     details = {"method": "four-parameter sine fit", "samples_used": fit.n}
     if not tone.ok:
         return Measurement.invalid("amplitude", "V", tone.reason, value=fit.amplitude, **details)
-    wander = _wander(ctx)
-    if wander.reason:
-        return Measurement.invalid("amplitude", "V", wander.reason, value=tone.amplitude, **details)
+    stray = wander(ctx)
+    if stray.reason:
+        return Measurement.invalid("amplitude", "V", stray.reason, value=tone.amplitude, **details)
     value = tone.amplitude
     if tone.chirp is not None:
         details["method"] = "sine fit along the drifting phase (quadratic phase, IEEE 1057 three-parameter)"
         details["drift_hz_per_s"] = tone.track.drift
-    settle = _settling(ctx) * value
+    settle = settling(ctx) * value
     if settle:
         details["settling_v"] = settle
-    misfit = wander.relative * value
+    misfit = stray.relative * value
     if misfit:
         details["phase_misfit_v"] = misfit
     noise = max(tone.noise_var, tone.noise_floor) if math.isfinite(tone.noise_floor) else tone.noise_var
     u = expand(crlb_amplitude_std(noise, fit.n), quantisation_std(capture.adc), settle, misfit)
     return Measurement("amplitude", value, "V", u, details=details)
-
-
-class _Wander:
-    """How far the fundamental's phase strays from the fitted model (see :func:`_wander`)."""
-
-    def __init__(self, relative: float = 0.0, reason: str | None = None):
-        self.relative = relative
-        self.reason = reason
-
-
-#: largest relative amplitude loss from an unfollowed phase wander that is stated as a U term
-MAX_WANDER = 0.05
-
-
-def _wander(ctx: Context) -> _Wander:
-    """Amplitude lost to a phase the model does not follow, as a relative standard uncertainty.
-
-    A sine fit along a phase that is off by ε(t) finds A·mean(cos ε) ≈ A(1 − ε²/2): the phase
-    residual about the fitted quadratic beyond its noise (rms ε, from the window phases of
-    :mod:`benchgate.analysis._track`) gives the term ε²/2 (derived, second-order Taylor).
-    Only a residual clearly above the noise (more than twice its expected rms) counts. A
-    phase that cannot be followed from window to window, or a loss above 5 %, leaves no
-    trustworthy amplitude at all.
-    """
-    track = ctx.tone.track
-    if track is None:
-        return _Wander()
-    if not track.followed:
-        if track.residual > 2.0 * track.noise or track.step > 0.25 * math.pi:
-            return _Wander(reason="frequency changes too fast to follow over the record: the fitted "
-                           "amplitude would be too small")
-        return _Wander()
-    if track.residual <= 2.0 * track.noise:
-        return _Wander()
-    loss = 0.5 * track.misfit ** 2
-    if loss > MAX_WANDER:
-        return _Wander(reason=f"the phase wanders {track.misfit:.2f} rad rms beyond a steady drift: "
-                       "no single amplitude fits the record")
-    return _Wander(loss)
-
-
-def _settling(ctx: Context) -> float:
-    """Relative amount by which the steady part's amplitude still differs from its final one.
-
-    The steady part may begin while the amplitude is still within the steady band (1 % of the
-    level) but not yet settled, e.g. the slow tail of an exponential approach; the fit then
-    averages over that tail. The fitted amplitude is compared with a three-parameter fit (same
-    frequency) to the last quarter of the record; when they differ by more than three standard
-    deviations of the difference (nested least-squares estimates: var = 2σ²(1/K − 1/N), K and
-    N the samples of the quarter and of the steady part; Rife and Boorstyn 1974 for 2σ²/N),
-    the difference is returned as a standard uncertainty term (relative); else 0.
-    (Derived; a settling systematic effect, JCGM 100:2008 F.2.)
-    """
-    return ctx.memo("settling", lambda: _settling_compute(ctx))
-
-
-def _settling_compute(ctx: Context) -> float:
-    fit = ctx.tone.fit
-    if fit is None or not fit.amplitude > 0:
-        return 0.0
-    y = ctx.y
-    k = min(int(TAIL_FRACTION * ctx.capture.n), y.size)
-    if k < 16 or k > 0.8 * y.size:
-        return 0.0
-    tone = ctx.tone
-    if tone.chirp is not None:  # the tail along the same drifting phase
-        tail_amp = _track.chirp_fit(y, fit, tone.track, ctx.capture.sample_rate, start=y.size - k).amplitude
-    else:
-        tail_amp = sinefit.fit3(y[-k:], fit.omega).amplitude
-    diff = tone.amplitude - tail_amp
-    sd = math.sqrt(max(2.0 * tone.noise_var * (1.0 / k - 1.0 / y.size), 0.0))
-    if abs(diff) <= 3.0 * sd:
-        return 0.0
-    return abs(diff) / tone.amplitude
 
 
 def vpp(capture: Capture, *, context: Context | None = None) -> Measurement:
@@ -321,7 +213,7 @@ def rms(capture: Capture, *, context: Context | None = None) -> Measurement:
         signal = max(value * value - s2, 0.0)
         var_ms = (4.0 * s2 * signal + 2.0 * s2 * s2) / n
         u = math.sqrt(var_ms) / (2.0 * value)
-        settle = _settling(ctx) * value
+        settle = settling(ctx) * value
         if settle:
             details["settling_v"] = settle
         return Measurement("rms", value, "V", expand(u, quantisation_std(capture.adc) / math.sqrt(n), settle),
@@ -348,9 +240,12 @@ def dc_offset(capture: Capture, *, context: Context | None = None) -> Measuremen
     refused = _refuse(ctx, "dc_offset")
     if refused:
         return Measurement.invalid("dc_offset", "V", refused)
+    tone = ctx.tone
+    if tone.fit is not None and not tone.ok and (tone.reason == NO_OSCILLATION_SLOW
+                                                  or tone.reason.startswith(FEW_CYCLES)):
+        return _dc_of_few_cycles(ctx, capture)
     y = _whole_cycles(ctx)
     n = y.size
-    tone = ctx.tone
     value = float(np.mean(y))
     if tone.ok and tone.fit is not None:
         s2 = tone.fit.residual_var
@@ -362,6 +257,33 @@ def dc_offset(capture: Capture, *, context: Context | None = None) -> Measuremen
     u_float = 2.0 * np.finfo(float).eps * abs(value)  # the mean itself is rounded
     u = expand(math.sqrt(s2 / n), quantisation_std(capture.adc), u_float)
     return Measurement("dc_offset", value, "V", u, details={"samples_used": n})
+
+
+def _dc_of_few_cycles(ctx: Context, capture: Capture) -> Measurement:
+    """DC offset of a record of fewer than 3 cycles: the four-parameter fit's offset with its
+    least-squares standard uncertainty σ²·(JᵀJ)⁻¹ (J the fit's Jacobian at the solution; the
+    offset is correlated with the phase and frequency when few cycles are fitted), or invalid
+    under 2 cycles, where the mean of the record depends on where it cuts the cycle (a Monte
+    Carlo over phases covered the truth in about half the records). Linear least squares,
+    IEEE Std 1057-2017 four-parameter fit; JCGM 100:2008 for U."""
+    tone = ctx.tone
+    fit = tone.fit
+    if tone.cycles < MIN_DC_CYCLES:
+        return Measurement.invalid("dc_offset", "V", f"fewer than {MIN_DC_CYCLES:g} cycles in the record "
+                                   f"({tone.cycles:.2f}): the mean depends on where the record cuts the cycle")
+    n = fit.n
+    t = np.arange(n) - (n - 1) / 2.0
+    c, s = np.cos(fit.omega * t), np.sin(fit.omega * t)
+    jac = np.stack([c, s, t * (fit.b * c - fit.a * s), np.ones(n)], axis=1)
+    try:
+        cov = np.linalg.inv(jac.T @ jac)
+    except np.linalg.LinAlgError:
+        return Measurement.invalid("dc_offset", "V", "the sine fit's offset is not determined")
+    s2 = max(tone.noise_var, tone.noise_floor) if math.isfinite(tone.noise_floor) else tone.noise_var
+    u = expand(math.sqrt(max(s2 * float(cov[3, 3]), 0.0)), quantisation_std(capture.adc))
+    return Measurement("dc_offset", fit.offset, "V", u,
+                       details={"samples_used": n, "method": "offset of the four-parameter sine fit",
+                                "cycles": round(tone.cycles, 3)})
 
 
 def _phasor_sum(w: float, m: int, n: int) -> complex:
