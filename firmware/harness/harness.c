@@ -1,5 +1,5 @@
 /* avr-harness: runs the reference firmware (.elf) on simavr's ATmega328P at 16 MHz, as the
- * serial ADC board of benchgate's virtual bench.
+ * serial ADC board of benchgate's understudy bench.
  *
  *   avr-harness --elf FILE --pty-fd N --link-fd N --page FILE [--speed X] [--crystal-hz F]
  *               [--lines] [--bridge-bytes N] [--max-seconds S]

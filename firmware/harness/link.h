@@ -1,4 +1,4 @@
-/* The harness's two links to the Python side of the virtual bench (benchgate.sim.firmware):
+/* The harness's two links to the Python side of the understudy bench (benchgate.sim.firmware):
  *
  *  - a stream socket (inherited descriptor): the harness asks for input voltages and reports
  *    the fixture-power pin; every message is answered before the AVR runs on (lockstep);

@@ -14,7 +14,7 @@ import serial
 from benchgate.instruments import open_station
 from benchgate.instruments.framing import FrameDecoder
 from benchgate.instruments.station import load_station
-from benchgate.sim import VirtualBench
+from benchgate.sim import UnderstudyBench
 from benchgate.sim.firmware import find_build
 
 # The Python device is paced by the wall clock and falls behind on a busy 2-core machine at
@@ -32,20 +32,20 @@ def need_firmware() -> None:
         pytest.skip("the firmware harness is not built (make -C firmware)")
 
 
-def bench(device: str, board: str = "tb3", **kw) -> VirtualBench:
+def bench(device: str, board: str = "tb3", **kw) -> UnderstudyBench:
     if device == "firmware":
         need_firmware()
     kw.setdefault("speed", SPEED[device])
-    return VirtualBench(board, adc_device=device, **kw)
+    return UnderstudyBench(board, adc_device=device, **kw)
 
 
 @contextlib.contextmanager
-def instruments(vb: VirtualBench):
+def instruments(vb: UnderstudyBench):
     with open_station(load_station(vb.station_path), clock=vb.clock) as opened:
         yield opened
 
 
-def power_up(opened, vb: VirtualBench, settle: float = 0.3) -> None:
+def power_up(opened, vb: UnderstudyBench, settle: float = 0.3) -> None:
     supply = opened["supply"]
     supply.set_voltage(vb.board.supply)
     supply.set_current_limit(0.05)
@@ -56,7 +56,7 @@ def power_up(opened, vb: VirtualBench, settle: float = 0.3) -> None:
 class RawPort:
     """The serial ADC opened with pyserial directly, for what the driver does not expose."""
 
-    def __init__(self, vb: VirtualBench, wall_timeout: float = 20.0):
+    def __init__(self, vb: UnderstudyBench, wall_timeout: float = 20.0):
         self.vb = vb
         self.ser = serial.Serial(vb.serial_port, 2_000_000, timeout=0.02, exclusive=True)
         self.wall_timeout = wall_timeout

@@ -130,7 +130,7 @@ def test_six_channels_fit_only_at_lower_rates():
         decoder, results = run_sets(port, "START 100 63")
     codes = np.concatenate([r.samples for r in results])
     assert codes.shape == (100, 6) and decoder.end_total == 100
-    assert np.all(codes[:, 2:] == 0)  # A2..A5 are not wired on the virtual bench
+    assert np.all(codes[:, 2:] == 0)  # A2..A5 are not wired on the understudy bench
 
 
 def test_harness_clock_is_the_avrs_time():

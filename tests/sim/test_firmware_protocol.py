@@ -1,4 +1,4 @@
-"""Protocol v1 (docs/serial-protocol.md) against both serial ADC devices of the virtual bench:
+"""Protocol v1 (docs/serial-protocol.md) against both serial ADC devices of the understudy bench:
 the Python device model and the reference firmware running on simavr. One suite, two devices.
 """
 

@@ -1,4 +1,4 @@
-"""The serial ADC board of the virtual bench as real firmware: the reference firmware
+"""The serial ADC board of the understudy bench as real firmware: the reference firmware
 (``firmware/``, ATmega328P at 16 MHz) running on simavr inside ``avr-harness``.
 
 :class:`FirmwareAdcDevice` starts the harness on a pseudo-terminal (the host opens
