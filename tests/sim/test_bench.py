@@ -49,7 +49,7 @@ class TestStationFile:
         assert set(st.instruments) == {"adc", "supply", "dmm", "counter", "digitizer"}
         adc = st.instruments["adc"]
         assert adc.address == tb3.serial_port and os.path.exists(adc.address)
-        assert adc.options["bits"] == 12 and adc.options["vref"] == pytest.approx(3.3)
+        assert adc.options["bits"] == 10 and adc.options["vref"] == pytest.approx(5.0)
         assert adc.options["channels"] == ("out", "rail")
         assert adc.calibration.status(dt.date.today()) == "valid"
         for role, res in tb3.resources.items():
@@ -74,7 +74,7 @@ class TestEndToEnd:
             assert m["frequency"].value == pytest.approx(tb3.unit.steady_frequency(), rel=1e-4)
             assert 0.6 < m["amplitude"].value < 1.4  # the interfaces' figures for a good TB-3
             assert m["thd"].value < 5.0
-            assert m["dc_offset"].value == pytest.approx(1.65, abs=0.05)  # ADC mid-rail
+            assert m["dc_offset"].value == pytest.approx(2.5, abs=0.05)  # ADC mid-rail (vref 5 V)
             current = bench["supply"].measure_current().value
             assert 2e-3 < current < 8e-3
             assert bench["dmm"].measure_dc_voltage().value == pytest.approx(9.0, abs=0.01)

@@ -21,6 +21,10 @@ from benchgate.sim.backend import BenchState, BoardBackend
 from benchgate.sim.boards import Unit, draw_unit, get_board
 
 ADC_IDENTITY = "Owl Hollow Kits,OH-ADC2,VB-0001,1.0"
+# The serial ADC is the reference board (ATmega328P: 10 bits, AVcc = 5 V, 2 Mbaud) whichever
+# device serves it, so one station file fits both.
+ADC_BITS, ADC_VREF, ADC_BAUD = 10, 5.0, 2_000_000
+ADC_DEVICES = ("python", "firmware", "auto")
 
 
 class BenchFaults:
@@ -62,20 +66,34 @@ class UnderstudyBench:
         Where the station file goes (a temporary folder, removed on close, when not given).
     serial, defect : str, optional
         The first unit loaded (see :meth:`load_unit`).
+    adc_device : {"python", "firmware", "auto"}
+        Who serves the serial ADC: the Python device model, or the reference firmware running
+        on simavr (``sim.firmware``; ``speed`` is then a ceiling, the bench clock is the AVR's);
+        "auto" takes the firmware when its harness is built. The station file is the same.
     """
 
     def __init__(self, board: str = "tb3", *, speed: float = 1.0, protocol: str = "framed",
-                 workdir: str | Path | None = None, serial: str = "SIM-0001", defect: str | None = None):
+                 workdir: str | Path | None = None, serial: str = "SIM-0001", defect: str | None = None,
+                 adc_device: str = "python"):
         from benchgate.sim.scpi_server import ScpiBench
         from benchgate.sim.serial_device import PtyAdcDevice
 
         if protocol not in ("framed", "lines"):
             raise ValueError(f"protocol must be 'framed' or 'lines', got {protocol!r}")
+        if adc_device not in ADC_DEVICES:
+            raise ValueError(f"adc_device must be one of {', '.join(ADC_DEVICES)}, got {adc_device!r}")
         self.board = get_board(board)
-        self.clock = ScaledClock(speed)
+        firmware = None
+        if adc_device != "python":
+            from benchgate.sim import firmware as fw
+
+            if adc_device == "firmware" or fw.find_build() is not None:
+                firmware = fw.FirmwareAdcDevice(speed=speed, protocol=protocol)
+        self.adc_device = "firmware" if firmware is not None else "python"
+        self.clock = firmware.clock if firmware is not None else ScaledClock(speed)
         self.protocol = protocol
         self.state = BenchState(self._draw(serial, defect), self.clock)
-        self.adc = VirtualAdc(self.state)
+        self.adc = VirtualAdc(self.state, bits=ADC_BITS, vref=ADC_VREF)
         self.backend = BoardBackend(self.state)
         self.faults = BenchFaults(self)
         self._tmp = None
@@ -84,8 +102,11 @@ class UnderstudyBench:
             workdir = self._tmp
         self.workdir = Path(workdir)
         self.workdir.mkdir(parents=True, exist_ok=True)
-        self.device = PtyAdcDevice(self.adc, protocol=protocol, clock=self.clock,
-                                   faults=self.faults.adc, identity=ADC_IDENTITY)
+        if firmware is not None:
+            self.device = firmware.attach(self.state, self.adc)
+        else:
+            self.device = PtyAdcDevice(self.adc, protocol=protocol, clock=self.clock, faults=self.faults.adc,
+                                       identity=ADC_IDENTITY, vref=ADC_VREF)
         self.server = ScpiBench(self.backend, clock=self.clock, faults=self.faults.scpi)
         self._closed = False
         try:
@@ -140,11 +161,11 @@ class UnderstudyBench:
             "  adc:",
             "    kind: serial-adc",
             f"    port: {_q(self.serial_port)}",
-            "    baudrate: 115200",
+            f"    baudrate: {ADC_BAUD}",
             f"    protocol: {self.protocol}",
             "    channels: [out, rail]",
-            "    bits: 12",
-            "    vref: 3.3 V",
+            f"    bits: {ADC_BITS}",
+            f"    vref: {ADC_VREF:g} V",
             "    clock_ppm: 50",
             "    dtr_low: true",
             "    identify_timeout: 2 s",

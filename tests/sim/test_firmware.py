@@ -1,0 +1,147 @@
+"""The reference firmware itself on simavr: its build, exact timer-paced sampling, the time base
+in the frames, the ADC clock it picks, and the harness's clock and lockstep with the circuit.
+"""
+
+from __future__ import annotations
+
+import re
+import shutil
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+import pytest
+from firmware_support import RawPort, bench, need_firmware
+
+from benchgate.instruments.framing import FrameDecoder
+from benchgate.sim.firmware import F_AVR, build_dir, find_build
+
+pytestmark = pytest.mark.skipif(sys.platform == "win32", reason="needs POSIX pseudo-terminals")
+
+FIRMWARE = Path(__file__).resolve().parents[2] / "firmware"
+PS_PER_CYCLE = 62_500  # 1e12 ps / 16 MHz
+# Cycles a conversion start may move around its tick: the interrupt response (4 cycles plus the
+# current instruction's completion, or a short interrupts-off section of the main loop). The
+# real ADC adds up to one ADC clock (1 us at 1 MHz) of its own when it syncs the start.
+JITTER = 16
+
+
+@pytest.fixture(autouse=True)
+def _built():
+    need_firmware()
+
+
+def idn_fields(reply: str) -> dict[str, str]:
+    return dict(kv.split("=", 1) for kv in reply.split(";")[1:])
+
+
+def run_sets(port: RawPort, start: str) -> tuple[FrameDecoder, list]:
+    port.send(start)
+    decoder = FrameDecoder()
+    return decoder, port.frames_until_end(decoder)
+
+
+def test_build_reports_flash_and_ram_within_the_chip(tmp_path):
+    if shutil.which("avr-gcc") is None:
+        pytest.skip("avr-gcc is not installed")
+    out = subprocess.run(["make", "-C", str(FIRMWARE), f"BUILD={tmp_path}", "firmware"], capture_output=True,
+                         text=True, check=True).stdout
+    program = int(re.search(r"Program:\s+(\d+) bytes", out).group(1))
+    data = int(re.search(r"Data:\s+(\d+) bytes", out).group(1))
+    assert 0 < program <= 32 * 1024 - 512  # ATmega328P flash, less the bootloader's 512 bytes
+    assert 0 < data <= 2048 - 256  # its RAM, with room left for the stack
+    assert (tmp_path / "adc328p.hex").read_text().startswith(":")
+    assert "-Werror" in out
+
+
+def steady_start_stats(vb, port: RawPort, rate: int, mask: int, starts: int = 2000):
+    """Stream until ``starts`` conversion starts on A0 have been counted after the first frame
+    (the steady state), then stop; returns the harness's statistics of them."""
+    port.command(f"RATE {rate}", "OK RATE")
+    port.send(f"START 0 {mask}")
+    port.until(bytes([0xA5, 0x5A]))
+    vb.device.restart_start_stats()
+    deadline = time.monotonic() + 30
+    while vb.device.start_stats_restarting or vb.device.start_stats()[0] < starts:
+        assert time.monotonic() < deadline, "the firmware stopped converting"
+        port.read_more()
+        port.buf.clear()
+    stats = vb.device.start_stats()  # before STOP: a command arriving moves a few starts
+    port.send("STOP")                # by the length of the receive interrupt
+    port.until(b"OK STOP\n")
+    return stats
+
+
+@pytest.mark.parametrize("rate, cycles", [(50_000, 320), (44_100, 363), (20_000, 800)])
+def test_conversions_start_at_exactly_the_timer_rate(rate, cycles):
+    with bench("firmware") as vb, RawPort(vb) as port:
+        count, span, shortest, longest = steady_start_stats(vb, port, rate, 1)
+    # On average the timer's period to the cycle (no drift: the rate is exact). Each start
+    # trails its tick by the interrupt latency, which the instruction being executed changes
+    # by a few cycles (AVR interrupt response: 4 cycles plus the instruction's completion).
+    assert count >= 2000
+    assert abs(span - (count - 1) * cycles) <= JITTER
+    assert cycles - JITTER <= shortest <= longest <= cycles + JITTER
+
+
+def test_two_channels_start_sets_at_the_timer_rate():
+    with bench("firmware") as vb, RawPort(vb) as port:
+        count, span, shortest, longest = steady_start_stats(vb, port, 10_000, 3, starts=500)
+    assert abs(span - (count - 1) * 1600) <= JITTER
+    assert 1600 - JITTER <= shortest <= longest <= 1600 + JITTER
+
+
+@pytest.mark.parametrize("rate, adc_clock, enob", [
+    (2_000, 125_000, 10),   # /128: the datasheet's 50-200 kHz for full accuracy
+    (7_000, 125_000, 10),
+    (9_000, 250_000, 9),    # 13.5 ADC clocks of 128 cycles do not fit into 1778 cycles
+    (15_000, 250_000, 9),   # /64
+    (50_000, 1_000_000, 8),  # /16
+    (90_000, 4_000_000, 6),  # /4
+])
+def test_rate_picks_the_adc_clock_and_the_frames_keep_the_timer_period(rate, adc_clock, enob):
+    with bench("firmware") as vb, RawPort(vb) as port:
+        achieved = float(port.command(f"RATE {rate}", "OK RATE").split()[2])
+        fields = idn_fields(port.command("IDN?", "IDN "))
+        assert int(fields["adc_clock"]) == adc_clock and int(fields["enob"]) == enob
+        decoder, results = run_sets(port, "START 200 1")
+    cycles = round(F_AVR / rate)
+    assert achieved == pytest.approx(F_AVR / cycles, abs=1e-6)
+    periods = {p for r in results for p in r.periods_ps}
+    # the period comes from the timer (cycles x 62.5 ns), whatever ADC clock was picked
+    assert periods == {cycles * PS_PER_CYCLE}
+    assert decoder.end_total == 200
+
+
+def test_low_rates_use_the_timer_prescaler():
+    with bench("firmware") as vb, RawPort(vb) as port:
+        assert port.command("RATE 100", "OK RATE") == "OK RATE 100.000000"  # 8 x 20000 cycles
+        assert port.command("RATE 1", "OK RATE") == "OK RATE 1.000000"  # 256 x 62500 cycles
+        assert port.command("RATE 100001", "ERR").startswith("ERR")
+
+
+def test_six_channels_fit_only_at_lower_rates():
+    with bench("firmware") as vb, RawPort(vb) as port:
+        port.command("RATE 50000", "OK RATE")
+        assert port.command("START 10 63", "ERR") == "ERR rate too high for that many channels"
+        port.command("RATE 5000", "OK RATE")
+        decoder, results = run_sets(port, "START 100 63")
+    codes = np.concatenate([r.samples for r in results])
+    assert codes.shape == (100, 6) and decoder.end_total == 100
+    assert np.all(codes[:, 2:] == 0)  # A2..A5 are not wired on the understudy bench
+
+
+def test_harness_clock_is_the_avrs_time():
+    with bench("firmware") as vb:
+        a = vb.clock.monotonic()
+        vb.clock.sleep(0.05)
+        b = vb.clock.monotonic()
+        assert 0.05 <= b - a < 0.2
+        assert vb.device.running
+        assert vb.clock.measured_speed() > 0
+
+
+def test_build_dir_is_found():
+    assert find_build() is not None and (build_dir() / "avr-harness").is_file()
