@@ -123,14 +123,27 @@ def test_roles_subset_and_unknown_role():
         open_station(station(), registry=registry(log), roles=["digitizer"])
 
 
-def test_records_carry_identity_and_calibration_status():
+def test_facts_carry_identity_and_calibration():
     cal = Calibration(date=dt.date(2025, 1, 1), due=dt.date(2026, 1, 1))
     with open_station(station(supply=cal), registry=registry(Log())) as bench:
-        recs = {r.role: r for r in bench.records(today=dt.date(2026, 6, 1))}
-    assert recs["supply"].identity == "fake supply"
-    assert recs["supply"].calibration == {"date": "2025-01-01", "due": "2026-01-01", "status": "expired",
-                                          "gain": 1.0, "offset": 0.0}
-    assert recs["adc"].calibration is None
+        facts = {f.role: f for f in bench.facts()}
+    assert facts["supply"].identity == "fake supply" and facts["supply"].kind == "scpi-supply"
+    assert facts["supply"].calibration is cal
+    assert facts["supply"].calibration.to_dict(dt.date(2026, 6, 1)) == {
+        "date": "2025-01-01", "due": "2026-01-01", "status": "expired", "gain": 1.0, "offset": 0.0}
+    assert facts["adc"].calibration is None
+
+
+def test_instruments_layer_builds_no_run_records():
+    import ast
+    from pathlib import Path
+
+    import benchgate.instruments as pkg
+
+    for path in Path(pkg.__file__).parent.glob("*.py"):
+        for node in ast.walk(ast.parse(path.read_text())):
+            if isinstance(node, ast.ImportFrom):
+                assert node.module not in ("benchgate.record", "benchgate.runner"), path.name
 
 
 class TestRegistry:

@@ -15,8 +15,8 @@ import numpy as np
 from benchgate.analysis.capture import AdcInfo, Capture
 from benchgate.analysis.measurement import Measurement
 from benchgate.errors import InstrumentDisconnected
+from benchgate.instruments.facts import InstrumentFacts
 from benchgate.plan.limits import Window
-from benchgate.record import InstrumentRecord
 
 # ---------------------------------------------------------------- plan
 
@@ -232,8 +232,8 @@ class FakeBench:
     def supply(self):
         return self.instruments["supply"]
 
-    def records(self):
-        return [InstrumentRecord(role=r, address=i.address, identity=i.identity, calibration=None)
+    def facts(self):
+        return [InstrumentFacts(role=r, kind="fake", address=i.address, identity=i.identity, calibration=None)
                 for r, i in self.instruments.items()]
 
     def __enter__(self):

@@ -8,23 +8,23 @@ everything else is closed.
 
 from __future__ import annotations
 
-import datetime as _dt
 from collections.abc import Iterable
 from typing import Any
 
 from benchgate.errors import BenchgateError, InstrumentError
+from benchgate.instruments.facts import InstrumentFacts
 
-__all__ = ["Bench", "load_station", "open_station"]
+__all__ = ["Bench", "InstrumentFacts", "load_station", "open_station"]
 
 #: the supply is opened first (and switched off at once), so a later failure finds it safe
 _OPEN_ORDER = ("supply", "adc", "dmm", "counter", "digitizer")
 
 
-def load_station(path):
+def load_station(path, registry=None):
     """Read a station file (see ``docs/stations.md``); raises PlanErrors with positions."""
     from benchgate.instruments.station import load_station as _load
 
-    return _load(path)
+    return _load(path, registry)
 
 
 class Bench:
@@ -58,17 +58,15 @@ class Bench:
     def supply(self):
         return self._instruments.get("supply")
 
-    def records(self, today: _dt.date | None = None) -> list:
-        """One InstrumentRecord per open instrument (identity and calibration status)."""
-        from benchgate.record import InstrumentRecord
-
+    def facts(self) -> list[InstrumentFacts]:
+        """Role, kind, address, identity and calibration of each open instrument, in open order."""
         out = []
         for role, inst in self._instruments.items():
             cfg = self.station.instruments.get(role)
-            cal = cfg.calibration if cfg is not None else None
-            out.append(InstrumentRecord(role=role, address=getattr(inst, "address", cfg.address if cfg else ""),
-                                        identity=getattr(inst, "identity", None),
-                                        calibration=None if cal is None else cal.to_dict(today)))
+            out.append(InstrumentFacts(role=role, kind=cfg.kind if cfg else "",
+                                       address=getattr(inst, "address", None) or (cfg.address if cfg else ""),
+                                       identity=inst.identity,
+                                       calibration=cfg.calibration if cfg is not None else None))
         return out
 
     def safe(self) -> None:

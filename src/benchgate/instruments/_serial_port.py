@@ -121,7 +121,7 @@ class SerialPort:
         self.alive = False
         detail = f"{type(exc).__name__}: {exc}"
         err = InstrumentDisconnected(self.role, f"adc on {self.path} disconnected ({detail})")
-        err.detail = detail
+        err.detail = detail  # type: ignore[attr-defined]  # read back by the capture's message
         return err
 
     def read_available(self) -> bytes:

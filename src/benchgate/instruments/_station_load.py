@@ -28,8 +28,9 @@ _ADC_DEFAULTS: dict[str, Any] = {
 
 
 class StationReader:
-    def __init__(self, path: str):
+    def __init__(self, path: str, registry: Any = None):
         self.path = path
+        self.registry = registry  # where each driver's own option spec comes from
         self.errors: list[PlanError] = []
 
     def err(self, message: str, node: YNode | None = None, pos: tuple[int, int] | None = None) -> None:
@@ -94,7 +95,7 @@ class StationReader:
             options = self.adc_options(entry)
             calibration = self.calibration(cal_node, channels=options["channels"])
         else:
-            options = {k: self.generic(k, v) for k, v in entry.items()}
+            options = self.driver_options(role, kind, entry, node)
             calibration = self.calibration(cal_node, channels=None)
         if len(self.errors) > n_before or kind is None or address is None:
             return None
@@ -289,6 +290,29 @@ class StationReader:
             return None
         return q.value / 100.0 if q.unit == "%" else q.value
 
+    def driver_options(self, role: str, kind: str | None, entry: dict[str, YNode], node: YNode) -> dict[str, Any]:
+        """The entry's other keys, units parsed, checked by the driver's own option spec."""
+        options = {k: self.generic(k, v) for k, v in entry.items()}
+        if kind is None:
+            return options
+        from benchgate.errors import InstrumentError
+        from benchgate.instruments.registry import Registry
+
+        try:
+            driver = (self.registry or Registry()).driver(kind, role)
+        except InstrumentError as exc:
+            self.err(exc.message, node)
+            return options
+        n_before = len(self.errors)
+        for key, spec in driver.station_options().items():
+            if spec.kind == "quantity" and key in entry and isinstance(entry[key].value, str):
+                options[key] = self.quantity(entry[key], spec.unit, options[key])  # its unit checked
+        if len(self.errors) > n_before:
+            return options
+        for path, message in driver.check_options(options):
+            self.err(f"{role}: {message}", pos=_position(node, path))
+        return options
+
     def generic(self, key: str, node: YNode) -> Any:
         """SCPI entries: quantities with units become SI numbers (``%`` a fraction); text stays text."""
         if key == "commands":
@@ -312,3 +336,14 @@ class StationReader:
                 return q.value / 100.0
             return q.value if q.unit else node.value
         return node.value
+
+
+def _position(entry: YNode, path: tuple[str, ...]) -> tuple[int, int]:
+    """Line and column of the key at ``path`` inside ``entry`` (as deep as the file goes)."""
+    node, pos = entry, (entry.line, entry.column)
+    for key in path:
+        if not node.is_map or key not in node.value:
+            break
+        pos = node.key_pos[key]
+        node = node.value[key]
+    return pos

@@ -88,7 +88,8 @@ def _positional_tables() -> tuple[np.ndarray, np.ndarray]:
             step = step[step]  # f^(2m)
             m *= 2
         _positional, _zero_init = tp, z
-    return _positional, _zero_init
+        return tp, z
+    return _positional, _zero_init  # type: ignore[return-value]  # both set together above
 
 
 def crc16(data: bytes | np.ndarray) -> int:

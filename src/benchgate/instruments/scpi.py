@@ -131,7 +131,7 @@ class ScpiSession:
         session = cls(role, config.address, res, timeout=timeout, templates=templates,
                       resync_timeout=config.option("resync_timeout"))
         try:
-            res.chunk_size = CHUNK_SIZE
+            res.chunk_size = CHUNK_SIZE  # type: ignore[attr-defined]  # on message-based resources
             _tune_socket_session(role, config.address, res)
             session.identity = session.query(templates["identify"])
             session.stale_errors = session.read_errors()  # left by whoever used it before: kept

@@ -61,32 +61,45 @@ def _fields(template: str) -> set[str]:
     return {name for _lit, name, _spec, _conv in string.Formatter().parse(template) if name}
 
 
-def command_templates(config, defaults: Mapping[str, str]) -> dict[str, str]:
-    """Driver defaults merged with the station's ``commands`` option.
+def template_problems(overrides: Any, defaults: Mapping[str, str]) -> list[tuple[tuple[str, ...], str]]:
+    """Problems with a ``commands`` option, as (key path, message) pairs.
 
     Unknown template names, non-text templates and placeholders the driver does not supply
-    are station errors.
+    are refused.
     """
     templates = {**COMMON_COMMANDS, **defaults}
-    overrides = config.option("commands") or {}
     if not isinstance(overrides, Mapping):
-        raise station_error(config, "'commands' must be a mapping of template name -> text")
+        return [(("commands",), "'commands' must be a mapping of template name -> text")]
+    problems: list[tuple[tuple[str, ...], str]] = []
     for name, text in overrides.items():
+        at = ("commands", str(name))
         if name not in templates:
             known = ", ".join(sorted(templates))
-            raise station_error(config, f"unknown command template {name!r} (known: {known})")
+            problems.append((at, f"unknown command template {name!r} (known: {known})"))
+            continue
         if not isinstance(text, str) or not text.strip():
-            raise station_error(config, f"command template {name!r} must be non-empty text")
+            problems.append((at, f"command template {name!r} must be non-empty text"))
+            continue
         try:
             extra = _fields(text) - _fields(templates[name])
         except ValueError as exc:
-            raise station_error(config, f"command template {name!r}: {exc}") from None
+            problems.append((at, f"command template {name!r}: {exc}"))
+            continue
         if extra:
             allowed = ", ".join(sorted(_fields(templates[name]))) or "none"
-            raise station_error(config, f"command template {name!r} uses {{{', '.join(sorted(extra))}}}"
-                                        f" (placeholders allowed: {allowed})")
-        templates[name] = text.strip()
-    return templates
+            problems.append((at, f"command template {name!r} uses {{{', '.join(sorted(extra))}}}"
+                                 f" (placeholders allowed: {allowed})"))
+    return problems
+
+
+def command_templates(config, defaults: Mapping[str, str]) -> dict[str, str]:
+    """Driver defaults merged with the station's ``commands`` option (checked again here, for
+    entries built in code rather than read from a station file)."""
+    overrides = config.option("commands") or {}
+    problems = template_problems(overrides, defaults)
+    if problems:
+        raise station_error(config, problems[0][1])
+    return {**COMMON_COMMANDS, **defaults, **{k: v.strip() for k, v in overrides.items()}}
 
 
 def _format_arg(value: Any) -> str:

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from benchgate.analysis.measurement import Measurement
 from benchgate.instruments.scpi_instrument import ScpiInstrument
 
 
@@ -10,5 +11,5 @@ class ScpiCounter(ScpiInstrument):
 
     DEFAULT_COMMANDS = {"measure_frequency": "MEAS:FREQ?"}
 
-    def measure_frequency(self):
+    def measure_frequency(self) -> Measurement:
         return self.reading("frequency", "measure_frequency", "Hz")

@@ -16,6 +16,7 @@ import numpy as np
 
 from benchgate.analysis.capture import Capture
 from benchgate.errors import InstrumentError
+from benchgate.instruments.options import OptionSpec
 from benchgate.instruments.scpi import station_error
 from benchgate.instruments.scpi_instrument import ScpiInstrument
 
@@ -38,6 +39,13 @@ class ScpiDigitizer(ScpiInstrument):
         "arm": "INIT",
         "wait": "*OPC?",
         "fetch": "FETC:WAV?",
+    }
+
+    OPTIONS = {
+        "rate": OptionSpec("quantity", "default sample rate", unit="Hz", positive=True),
+        "channels": OptionSpec("list_or_mapping", "plan channel names, or plan name -> instrument channel"),
+        "clock_ppm": OptionSpec("number", "time-base tolerance, ± ppm", minimum=0.0),
+        "range": OptionSpec("quantity", "default input range", unit="V", positive=True),
     }
 
     def __init__(self, config, session, *, clock=None):

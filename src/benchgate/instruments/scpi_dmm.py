@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from benchgate.analysis.measurement import Measurement
 from benchgate.instruments.scpi_instrument import ScpiInstrument
 
 
@@ -14,11 +15,11 @@ class ScpiDmm(ScpiInstrument):
         "measure_dc_current": "MEAS:CURR:DC?",
     }
 
-    def measure_dc_voltage(self):
+    def measure_dc_voltage(self) -> Measurement:
         return self.reading("dc_voltage", "measure_dc_voltage", "V")
 
-    def measure_ac_voltage(self):
+    def measure_ac_voltage(self) -> Measurement:
         return self.reading("ac_voltage", "measure_ac_voltage", "V")
 
-    def measure_dc_current(self):
+    def measure_dc_current(self) -> Measurement:
         return self.reading("dc_current", "measure_dc_current", "A")

@@ -12,40 +12,80 @@ from typing import Any
 
 import numpy as np
 
+from benchgate.analysis.measurement import Measurement
+from benchgate.instruments.options import OptionSpec, check_all
 from benchgate.instruments.scpi import ScpiQueueError, ScpiSession, station_error
+from benchgate.instruments.scpi_commands import template_problems
 
 
-def _accuracy_table(config) -> dict[str, tuple[float, float]]:
-    """The ``accuracy`` option as {reading name or "*": (gain, offset)}.
+def accuracy_table(spec: Any) -> tuple[dict[str, tuple[float, float]], list[tuple[tuple[str, ...], str]]]:
+    """The ``accuracy`` option as {reading name or "*": (gain, offset)}, and its problems.
 
     ``{gain: 0.0005, offset: 0.002}`` applies to every reading; ``{dc_voltage: {...}, ...}``
     gives one bound per reading. ``gain`` is a fraction of the reading, ``offset`` in the
     reading's unit.
     """
-    spec = config.option("accuracy")
     if spec is None:
-        return {}
+        return {}, []
     if not isinstance(spec, Mapping):
-        raise station_error(config, "'accuracy' must be {gain: .., offset: ..} or one per reading")
+        return {}, [(("accuracy",), "'accuracy' must be {gain: .., offset: ..} or one per reading")]
     entries = {"*": spec} if set(spec) <= {"gain", "offset"} else dict(spec)
-    table = {}
+    table: dict[str, tuple[float, float]] = {}
+    problems: list[tuple[tuple[str, ...], str]] = []
     for name, entry in entries.items():
+        at = ("accuracy",) if name == "*" else ("accuracy", str(name))
         if not isinstance(entry, Mapping) or not set(entry) <= {"gain", "offset"}:
-            raise station_error(config, f"accuracy entry {name!r} must have only 'gain' and 'offset'")
+            problems.append((at, f"accuracy entry {name!r} must have only 'gain' and 'offset'"))
+            continue
         try:
             gain, offset = float(entry.get("gain", 0.0)), float(entry.get("offset", 0.0))
         except (TypeError, ValueError):
-            raise station_error(config, f"accuracy entry {name!r}: gain and offset must be numbers") from None
+            problems.append((at, f"accuracy entry {name!r}: gain and offset must be numbers"))
+            continue
         if not (gain >= 0 and offset >= 0 and np.isfinite(gain) and np.isfinite(offset)):
-            raise station_error(config, f"accuracy entry {name!r}: gain and offset must be >= 0")
+            problems.append((at, f"accuracy entry {name!r}: gain and offset must be >= 0"))
+            continue
         table[str(name)] = (gain, offset)
+    return table, problems
+
+
+def _accuracy_table(config) -> dict[str, tuple[float, float]]:
+    table, problems = accuracy_table(config.option("accuracy"))
+    if problems:
+        raise station_error(config, problems[0][1])
     return table
+
+
+#: options every SCPI driver takes
+COMMON_OPTIONS: Mapping[str, OptionSpec] = {
+    "reset": OptionSpec("bool", "send *RST and *CLS after connecting"),
+    "visa_library": OptionSpec("text", "pyvisa backend (default '@py', pyvisa-py)"),
+    "resync_timeout": OptionSpec("quantity", "how long to drain stale replies after a timeout",
+                                 unit="s", positive=True),
+    "commands": OptionSpec("mapping", "command templates replacing the driver's defaults"),
+    "accuracy": OptionSpec("mapping", "accuracy bound {gain, offset}, or one per reading"),
+}
 
 
 class ScpiInstrument:
     """Shared part of the SCPI drivers: session, identity, readings, context manager."""
 
     DEFAULT_COMMANDS: Mapping[str, str] = {}
+    OPTIONS: Mapping[str, OptionSpec] = {}  # a driver's own options, besides COMMON_OPTIONS
+
+    @classmethod
+    def station_options(cls) -> Mapping[str, OptionSpec]:
+        return {**COMMON_OPTIONS, **cls.OPTIONS}
+
+    @classmethod
+    def check_options(cls, options: Mapping[str, Any]) -> list[tuple[tuple[str, ...], str]]:
+        """Unknown keys, wrong types, bad templates and accuracy entries (see base.DriverClass)."""
+        problems = check_all(cls.station_options(), options)
+        if "commands" in options:
+            problems += template_problems(options["commands"], cls.DEFAULT_COMMANDS)
+        if "accuracy" in options:
+            problems += accuracy_table(options["accuracy"])[1]
+        return problems
 
     def __init__(self, config, session: ScpiSession, *, clock=None):
         self.config = config
@@ -70,15 +110,13 @@ class ScpiInstrument:
     def identity(self) -> str | None:
         return self.session.identity
 
-    def reading(self, name: str, template: str, unit: str, **params: Any):
+    def reading(self, name: str, template: str, unit: str, **params: Any) -> Measurement:
         """Query template ``template`` and return Measurement ``name`` with its uncertainty.
 
         Expanded uncertainty from the accuracy bound a = gain·|x| + offset taken as a
         rectangular distribution: u = a/√3, U = 2u (JCGM 100:2008). SCPI's overload value
         (9.9E37) gives an invalid measurement.
         """
-        from benchgate.analysis.measurement import Measurement
-
         command = self.session.command(template, **params)
         value = self.session.query_float(command)
         try:

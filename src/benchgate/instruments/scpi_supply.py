@@ -6,6 +6,7 @@ first and checks that it is off.
 
 from __future__ import annotations
 
+from benchgate.analysis.measurement import Measurement
 from benchgate.errors import InstrumentError
 from benchgate.instruments.scpi_instrument import ScpiInstrument
 
@@ -43,10 +44,10 @@ class ScpiSupply(ScpiInstrument):
             return False
         raise InstrumentError(self.name, f"output state query returned {reply[:30]!r}, not 0/1")
 
-    def measure_voltage(self):
+    def measure_voltage(self) -> Measurement:
         return self.reading("supply_voltage", "measure_voltage", "V")
 
-    def measure_current(self):
+    def measure_current(self) -> Measurement:
         return self.reading("supply_current", "measure_current", "A")
 
     def safe_state(self) -> None:

@@ -200,7 +200,10 @@ class SerialAdc:
             if not self.free_running:
                 port.stop_stream()
             raise
-        return self._build(channel, state, actual, decoder, n, complete=True)
+        capture = self._build(channel, state, actual, decoder, n, complete=True)
+        if capture is None:  # only a partial record can be empty
+            raise InstrumentError(self.name, f"adc on {self.address} delivered no samples")
+        return capture
 
     def _receive(self, decoder, state: _Progress, n: int, duration: float, progress) -> None:
         """Read until the device has sent ``n`` samples (or END), within the deadlines.
@@ -285,7 +288,7 @@ class SerialAdc:
         wall = span / (getattr(self.clock, "speed", 1.0) or 1.0)
         checkable = measured is not None and wall >= MIN_CHECK_WALL and len(state.points) >= MIN_CHECK_POINTS
         warnings: list[str] = []
-        if checkable and complete and abs(measured / declared - 1) > RATE_TOLERANCE:
+        if measured is not None and checkable and complete and abs(measured / declared - 1) > RATE_TOLERANCE:
             raise InstrumentError(self.name, f"adc on {self.address} declares {declared:.6g} Hz but samples "
                                              f"arrived at {measured:.6g} Hz by the host clock "
                                              f"({100 * (measured / declared - 1):+.1f} %, limit "

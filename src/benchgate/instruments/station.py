@@ -120,8 +120,10 @@ class Station:
         return frozenset(self.instruments)
 
 
-def load_station(path) -> Station:
+def load_station(path, registry=None) -> Station:
     """Read a station file (format in ``docs/stations.md``).
+
+    ``registry`` (default: the built-in drivers) supplies each driver's own option spec.
 
     Raises
     ------
@@ -130,4 +132,4 @@ def load_station(path) -> Station:
     """
     from benchgate.instruments._station_load import StationReader
 
-    return StationReader(str(path)).read()
+    return StationReader(str(path), registry).read()

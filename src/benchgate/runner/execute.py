@@ -20,19 +20,10 @@ from typing import Any
 
 from benchgate.analysis.measurement import Measurement
 from benchgate.errors import BenchgateError, InstrumentDisconnected
+from benchgate.instruments.base import Digitizer, take_reading
 from benchgate.judge.rules import Verdict, combine, judge
 from benchgate.record import CaptureRecord, CheckRecord, StepRecord
 from benchgate.runner.safety import as_stop
-
-#: reading quantity -> name of the instrument method that takes it
-READING_METHODS = {
-    "dc_voltage": "measure_dc_voltage",
-    "ac_voltage": "measure_ac_voltage",
-    "dc_current": "measure_dc_current",
-    "frequency": "measure_frequency",
-    "supply_voltage": "measure_voltage",
-    "supply_current": "measure_current",
-}
 
 #: how long (clock seconds) a unit is left unpowered before a repeated start-up capture
 POWER_CYCLE_OFF_S = 0.5
@@ -210,8 +201,7 @@ class Executor:
         instrument = self.bench[step.instrument]
         if step.settle:
             self.sleep(step.settle, f"settle {step.settle:g} s")
-        method = getattr(instrument, READING_METHODS[step.quantity])
-        measurement = method()
+        measurement = take_reading(instrument, step.quantity)
         for check in step.checks:
             m = measurement if measurement.name == check.measurement else _renamed(measurement, check.measurement)
             self._judge(step, srec, check, m)
@@ -260,7 +250,7 @@ class Executor:
         # driver's first progress call means samples are arriving; only then is the supply
         # switched on (never before, which could hide a slow start behind the record's start).
         self._power_down_first(srec)
-        if hasattr(instrument, "arm"):  # a triggered recorder: its record starts when armed
+        if isinstance(instrument, Digitizer):  # a triggered recorder: its record starts when armed
             return self._acquire_armed(step, instrument, srec, kwargs)
         result: dict[str, Any] = {}
 

@@ -18,7 +18,7 @@ from benchgate import __version__
 from benchgate.analysis.context import NO_OSCILLATION
 from benchgate.errors import BenchgateError
 from benchgate.judge.rules import Verdict, combine
-from benchgate.record import UnitRecord
+from benchgate.record import InstrumentRecord, UnitRecord
 from benchgate.runner.events import EventLog, Hooks
 from benchgate.runner.execute import Executor, error_reason, utc_now
 from benchgate.runner.lock import StationLock
@@ -176,7 +176,7 @@ class Runner:
                 bench_cm = s.open_bench(self.station, clock=self.clock, roles=self.pre.roles)
                 bench = bench_cm.__enter__()
                 executor.bench = bench
-                record.instruments = list(bench.records())
+                record.instruments = instrument_records(bench.facts())
                 executor.run()
             except BaseException as exc:  # noqa: B036 - every way out is recorded, then handled
                 caught = exc
@@ -240,9 +240,16 @@ class Runner:
         return outcome
 
 
+def instrument_records(facts: Any) -> list[InstrumentRecord]:
+    """The record's instrument entries, from the facts the bench reports."""
+    return [InstrumentRecord(role=f.role, address=f.address, identity=f.identity,
+                             calibration=None if f.calibration is None else f.calibration.to_dict())
+            for f in facts]
+
+
 def _records_or_empty(bench: Any) -> list:
     try:
-        return list(bench.records())
+        return instrument_records(bench.facts())
     except Exception:
         return []
 

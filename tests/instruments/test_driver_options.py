@@ -1,0 +1,94 @@
+"""Each driver declares its station options; the loader asks it through the registry."""
+
+from __future__ import annotations
+
+import textwrap
+
+import pytest
+
+from benchgate.errors import PlanErrors
+from benchgate.instruments import load_station
+from benchgate.instruments.options import OptionSpec
+from benchgate.instruments.registry import Registry
+from benchgate.instruments.scpi_digitizer import ScpiDigitizer
+from benchgate.instruments.scpi_dmm import ScpiDmm
+from benchgate.instruments.scpi_supply import ScpiSupply
+
+
+def errors_of(tmp_path, text: str) -> list[str]:
+    path = tmp_path / "station.yaml"
+    path.write_text(textwrap.dedent(text))
+    with pytest.raises(PlanErrors) as info:
+        load_station(path)
+    return info.value.lines()
+
+
+def test_misspelt_scpi_option_is_refused_at_its_key(tmp_path):
+    # the issue's case: `reest: true` used to be passed to the driver and ignored
+    lines = errors_of(tmp_path, """\
+        station: b
+        instruments:
+          supply:
+            kind: scpi-supply
+            resource: "TCPIP0::127.0.0.1::5025::SOCKET"
+            reest: true
+        """)
+    path = tmp_path / "station.yaml"
+    assert len(lines) == 1
+    assert lines[0].startswith(f"{path}:6:5: supply: unknown option 'reest' (expected: accuracy, commands, ")
+    assert "reset" in lines[0]
+
+
+@pytest.mark.parametrize("body, where, message", [
+    ("reset: maybe", "5:5", "'reset' must be true or false"),
+    ("resync_timeout: 2 V", "5:21", "expected a time"),  # units are parsed before the driver sees them
+    ("resync_timeout: -1 s", "5:5", "'resync_timeout' must be greater than zero"),
+    ("commands: {set_voltge: 'VOLT {value}'}", "5:16", "unknown command template 'set_voltge'"),
+    ("commands: {set_voltage: 'VOLT {volts}'}", "5:16", "uses {volts}"),
+    ("accuracy: {supply_voltage: {gain: 1 %, ofset: 2 mV}}", "5:16", "must have only 'gain' and 'offset'"),
+    ("rate: 10 kHz", "5:5", "unknown option 'rate'"),  # a digitizer option, not a supply's
+])
+def test_supply_option_problems_with_positions(tmp_path, body, where, message):
+    lines = errors_of(tmp_path, f"""\
+        station: b
+        instruments:
+          supply:
+            kind: scpi-supply
+            {body}
+            resource: x
+        """)
+    hits = [line for line in lines if message in line]
+    assert hits, lines
+    assert f"station.yaml:{where}:" in hits[0]
+
+
+def test_digitizer_declares_its_own_options(tmp_path):
+    assert {"rate", "channels", "clock_ppm", "range"} <= set(ScpiDigitizer.station_options())
+    assert "rate" not in ScpiDmm.station_options() and "reset" in ScpiDmm.station_options()
+    path = tmp_path / "station.yaml"
+    path.write_text("station: b\ninstruments:\n  digitizer: {kind: scpi-digitizer, resource: x, "
+                    "rate: 50 kHz, channels: [out], clock_ppm: 20, range: 5 V}\n")
+    cfg = load_station(path).instruments["digitizer"]
+    assert cfg.option("rate") == 50_000.0 and cfg.option("range") == 5.0
+    lines = errors_of(tmp_path, "station: b\ninstruments:\n  digitizer: {kind: scpi-digitizer, "
+                                "resource: x, rate: fast}\n")
+    assert any("got 'fast'" in line for line in lines), lines
+    lines = errors_of(tmp_path, "station: b\ninstruments:\n  digitizer: {kind: scpi-digitizer, "
+                                "resource: x, range: 2 kHz, clock_ppm: -3}\n")
+    assert any("expected a voltage in V" in line for line in lines), lines
+    lines = errors_of(tmp_path, "station: b\ninstruments:\n  digitizer: {kind: scpi-digitizer, "
+                                "resource: x, channels: out, clock_ppm: -3}\n")
+    assert any("'clock_ppm' must be at least 0" in line for line in lines), lines
+    assert any("'channels' must be a list or a mapping" in line for line in lines), lines
+
+
+def test_the_loader_asks_the_registry(tmp_path):
+    class StrictSupply(ScpiSupply):
+        OPTIONS = {"rail": OptionSpec("text", "which rail")}
+
+    path = tmp_path / "station.yaml"
+    path.write_text("station: b\ninstruments:\n  supply: {kind: scpi-supply, resource: x, rail: V1}\n")
+    with pytest.raises(PlanErrors):
+        load_station(path)  # the built-in supply has no 'rail'
+    station = load_station(path, Registry({"scpi-supply": StrictSupply}))
+    assert station.instruments["supply"].option("rail") == "V1"
