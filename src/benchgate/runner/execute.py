@@ -242,7 +242,7 @@ class Executor:
 
         started = threading.Event()
         kwargs: dict[str, Any] = {"duration": step.duration, "rate": step.rate, "progress": progress}
-        if getattr(step, "range", None) is not None and step.instrument == "digitizer":
+        if getattr(step, "range", None) is not None and isinstance(instrument, Digitizer):
             kwargs["range"] = step.range  # an ADC's range is fixed by its reference
         if not step.power_on:
             return instrument.capture(step.channel, **kwargs)
