@@ -184,3 +184,25 @@ def test_understudy_bench_supply_is_off_after_an_exception(tmp_path):
                 assert bench["adc"].identity
                 raise RuntimeError("abort")
         assert vb.supply_output is False
+
+
+def test_typed_accessors_check_the_face():
+    from scpi_testbench import config_for, make_bench
+
+    from benchgate.instruments.base import Supply
+    from benchgate.instruments.scpi_dmm import ScpiDmm
+    from benchgate.instruments.scpi_supply import ScpiSupply
+
+    sim = make_bench()
+    try:
+        supply, dmm = ScpiSupply.open(config_for(sim, "supply")), ScpiDmm.open(config_for(sim, "dmm"))
+        with Bench(station(), {"supply": supply, "adc": dmm}) as bench:
+            assert isinstance(bench.require_supply(), Supply)
+            with pytest.raises(InstrumentError, match="the adc of station 'bench-x' cannot record"):
+                bench.recorder("adc")  # a DMM put in the ADC's place
+        with Bench(station(), {"supply": dmm}) as bench:
+            with pytest.raises(InstrumentError, match="is not a supply"):
+                bench.require_supply()
+            bench._instruments.clear()  # nothing to switch off: the DMM has no output
+    finally:
+        sim.stop()

@@ -9,10 +9,14 @@ everything else is closed.
 from __future__ import annotations
 
 from collections.abc import Iterable
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from benchgate.errors import BenchgateError, InstrumentError
 from benchgate.instruments.facts import InstrumentFacts
+
+if TYPE_CHECKING:
+    from benchgate.instruments.base import Instrument, Recorder, Supply
+    from benchgate.instruments.station import Station
 
 __all__ = ["Bench", "InstrumentFacts", "load_station", "open_station"]
 
@@ -30,13 +34,13 @@ def load_station(path, registry=None):
 class Bench:
     """The open instruments of one station, by role. Use as a context manager."""
 
-    def __init__(self, station, instruments: dict[str, Any]):
+    def __init__(self, station: Station, instruments: dict[str, Instrument]):
         self.station = station
         self._instruments = dict(instruments)
         self.close_errors: list[BaseException] = []
         self._closed = False
 
-    def __getitem__(self, role: str):
+    def __getitem__(self, role: str) -> Any:
         try:
             return self._instruments[role]
         except KeyError:
@@ -47,16 +51,36 @@ class Bench:
     def __contains__(self, role: str) -> bool:
         return role in self._instruments
 
-    def get(self, role: str, default=None):
+    def get(self, role: str, default: Any = None) -> Any:
         return self._instruments.get(role, default)
+
+    def require_supply(self) -> Supply:
+        """The open supply, typed; InstrumentError when the bench has none (or it is no supply)."""
+        from benchgate.instruments.base import Supply
+
+        inst = self["supply"]
+        if not isinstance(inst, Supply):
+            raise InstrumentError("supply", f"the supply of station {self.station.id!r} is not a supply "
+                                            f"(it is a {type(inst).__name__})")
+        return inst
+
+    def recorder(self, role: str) -> Recorder:
+        """The instrument open as ``role``, checked to record waveforms (an ADC or a digitizer)."""
+        from benchgate.instruments.base import Recorder
+
+        inst = self[role]
+        if not isinstance(inst, Recorder):
+            raise InstrumentError(role, f"the {role} of station {self.station.id!r} cannot record a "
+                                        f"waveform (it is a {type(inst).__name__})")
+        return inst
 
     @property
     def roles(self) -> tuple[str, ...]:
         return tuple(self._instruments)
 
     @property
-    def supply(self):
-        return self._instruments.get("supply")
+    def supply(self) -> Supply | None:
+        return self._instruments.get("supply")  # type: ignore[return-value]  # the supply role
 
     def facts(self) -> list[InstrumentFacts]:
         """Role, kind, address, identity and calibration of each open instrument, in open order."""
