@@ -109,9 +109,11 @@ def test_disconnect_fails_the_host_read():
 def test_missing_identify_never_replies():
     with PtyAdcDevice(SineSource(), clock=ScaledClock(SPEED), faults=DeviceFaults(identify_missing=True)) as dev:
         port = open_port(dev)
-        port.write(b"IDN?\n")
-        time.sleep(0.1)
-        assert port.read(100) == b""
+        port.write(b"IDN?\nPOWER ON\n")
+        # the device handles commands in order: the first line back answers POWER ON, so the
+        # IDN? before it got nothing (an event to wait for, not a fixed sleep)
+        assert read_reply(port) == "OK POWER ON"
+        assert dev.commands == ["IDN?", "POWER ON"] and dev._pending_idn is None
         port.close()
 
 

@@ -62,6 +62,12 @@ def arrival_rate(points: list[tuple[float, int]], declared: float) -> float | No
     judged against ``declared``); the rate is the median of the five segment-to-segment
     rates. A stall of the host, and the catch-up after it, moves one or two of the five;
     a device clock that disagrees with its declaration moves all of them.
+
+    References
+    ----------
+    Keeping the least-delayed observation of each interval is the minimum-delay clock filter
+    of NTP: D. L. Mills, "Internet time synchronization: the Network Time Protocol", IEEE
+    Transactions on Communications 39(10), 1482-1493, 1991.
     """
     if len(points) < 12:
         return None

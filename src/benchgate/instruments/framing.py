@@ -18,6 +18,18 @@ header's CRC (frames of equal length together, two bytes per table lookup), keep
 non-overlapping frames that pass, and counts sequence gaps as lost samples. Bytes that belong
 to no valid frame are counted as garbage; a decoded sample is therefore always one the device
 sent, at the position its sequence number gives.
+
+References
+----------
+CRC by table look-up (one table entry per input byte, the register shifted by eight bits per
+step): D. V. Sarwate, "Computation of cyclic redundancy checks via table look-up",
+*Communications of the ACM* 31(8), 1008-1013, 1988. The two-byte (16-bit index) table and the
+per-position tables extend the same method: the CRC is linear over GF(2), so the contribution
+of each byte at each distance from the end can be tabulated and XOR-ed (R. N. Williams, "A
+painless guide to CRC error detection algorithms", 1993, on table-driven and parametrised
+CRCs). CRC-16/CCITT-FALSE parameters and its check value 0x29B1 for ``123456789``: the
+parametrised CRC model of the same guide (width 16, poly 0x1021, init 0xFFFF, no reflection,
+xorout 0), as listed in the published CRC catalogues.
 """
 
 from __future__ import annotations
