@@ -112,3 +112,37 @@ def test_digitizer_fetch_error_is_the_fetch(bench):
             dig.fetch()
     assert info.value.command == "FETC:WAV?" and info.value.code == -230
 
+
+
+# every command the digitizer driver sends for one capture
+DIGITIZER_COMMANDS = ["ACQ:CHAN", "FORM:DATA", "FORM:BORD", "ACQ:SRAT", "ACQ:POIN", "VOLT:RANG", "ACQ:SRAT?",
+                      "INIT", "*OPC?", "FETC:WAV?"]
+
+
+@pytest.mark.parametrize("target", DIGITIZER_COMMANDS)
+def test_systematic_trial_each_digitizer_command(bench, target):
+    with ScpiDigitizer.open(config_for(bench, "digitizer")) as dig:
+        bench.faults.error_on("digitizer", target, *CONFLICT)
+        with pytest.raises(ScpiQueueError) as info:
+            dig.capture("ch1", duration=0.01, rate=1e4, range=5.0)
+        assert info.value.command.upper().startswith(target) and info.value.suspects == [info.value.command]
+        dig.capture("ch1", duration=0.01, rate=1e4, range=5.0)  # the next capture is clean
+
+
+@pytest.mark.parametrize("role, header, call", [
+    ("dmm", "MEAS:VOLT:DC?", lambda d: d.measure_dc_voltage()),
+    ("dmm", "MEAS:VOLT:AC?", lambda d: d.measure_ac_voltage()),
+    ("dmm", "MEAS:CURR:DC?", lambda d: d.measure_dc_current()),
+    ("counter", "MEAS:FREQ?", lambda c: c.measure_frequency()),
+])
+def test_systematic_trial_each_reading(bench, role, header, call):
+    from benchgate.instruments.scpi_counter import ScpiCounter
+    from benchgate.instruments.scpi_dmm import ScpiDmm
+
+    driver = {"dmm": ScpiDmm, "counter": ScpiCounter}[role]
+    with driver.open(config_for(bench, role)) as inst:
+        bench.faults.error_on(role, header, *CONFLICT)
+        flagged = call(inst)
+        clean = call(inst)
+    assert flagged.valid is False and f"'{header}' rejected: -221" in flagged.reason
+    assert clean.valid is True  # the entry went with the reading that caused it
