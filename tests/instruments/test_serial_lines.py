@@ -48,6 +48,15 @@ class TestDecoder:
         res = decode(b"100\n2\n00\n300\nEND 3\n", 3)
         assert res.extra == 1 and res.slots == 4
 
+    def test_without_end_the_count_asked_for_is_the_check(self):
+        dec = LinesDecoder(12)
+        dec.feed(b"100\n2\n00\n300\n")  # a split line, and the END line lost
+        assert dec.result(3).extra == 1
+        dec = LinesDecoder(12, expect_end=False)  # a free-running device streams on past n
+        dec.feed(b"100\n200\n300\n400\n")
+        res = dec.result(3)
+        assert res.extra == 0 and res.codes[:, 0].tolist() == [100, 200, 300]
+
     def test_fewer_lines_than_end_count_is_an_unlocated_loss(self):
         res = decode(b"10\n11\nEND 5\n", 5)
         assert res.unlocated == 3 and res.lost == 3 and res.gaps == [(2, 3)]

@@ -156,6 +156,10 @@ def damage_lines(lines: list[str], ops: int, rng: np.random.Generator) -> tuple[
     return "".join(f"{t}\n" for _i, t in items).encode("latin-1"), touched
 
 
+def lines_text_bytes(truth: np.ndarray) -> bytes:
+    return "".join(f"{v}\n" for v in truth.tolist()).encode()
+
+
 def check_lines(res, truth: np.ndarray, touched: set[int]) -> str:
     """The outcome class; asserts the no-silent-shift property for what was accepted."""
     n = truth.size
@@ -179,9 +183,15 @@ def test_lines_decoder_one_fault_never_shifts_silently(seed):
     for _trial in range(150):
         n = int(rng.integers(20, 400))
         truth = rng.integers(0, 4096, n).astype(np.uint16)
-        data, touched = damage_lines(lines_text(truth, False, 0), 1, rng)
+        end = f"END {n}\n".encode()
+        if rng.random() < 0.2:  # the one fault hits the END line instead
+            end = [b"", b"EN %d\n" % n, b"END %dx\n" % n, b"END\n", b"END %d\n" % (n + 1),
+                   b"END %d\n" % (n - 1)][int(rng.integers(6))]
+            data, touched = lines_text_bytes(truth), set()
+        else:
+            data, touched = damage_lines(lines_text(truth, False, 0), 1, rng)
         dec = LinesDecoder(12)
-        feed_in_chunks(dec, data + f"END {n}\n".encode(), rng)
+        feed_in_chunks(dec, data + end, rng)
         kind = check_lines(dec.result(n), truth, touched)
         outcomes[kind] = outcomes.get(kind, 0) + 1
     assert outcomes.get("refused") and outcomes.get("accepted") and outcomes.get("unlocated")

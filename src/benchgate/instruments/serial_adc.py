@@ -178,7 +178,7 @@ class SerialAdc:
         n = max(1, int(round(duration * actual)))
         mask = 1 << self.channels.index(channel)
         decoder = FrameDecoder(mask=mask) if self.protocol == "framed" else LinesDecoder(
-            self.bits, timestamps=timestamps, skip_first=self.free_running)
+            self.bits, timestamps=timestamps, skip_first=self.free_running, expect_end=not self.free_running)
         state = _Progress(n)
         t_start = self.clock.monotonic()
         if self.free_running:
@@ -272,10 +272,11 @@ class SerialAdc:
         else:
             res = decoder.result(n, complete=complete)
             if res.extra and complete:
-                raise InstrumentError(self.name, f"adc on {self.address} says it sent {res.end_total} samples "
-                                                 f"but {res.slots} lines arrived: lines were split or repeated, "
-                                                 "so samples may sit at the wrong index; capture refused "
-                                                 "(lines mode has no framing)")
+                said = (f"says it sent {res.end_total} samples" if res.end_total is not None else
+                        f"sent no readable END line for the {n} samples asked for")
+                raise InstrumentError(self.name, f"adc on {self.address} {said} but {res.slots} lines "
+                                                 "arrived: lines were split or repeated, so samples may sit "
+                                                 "at the wrong index; capture refused (lines mode has no framing)")
             codes, gaps, lost = res.codes, res.gaps, res.lost
             declared = res.rate or float(self.config.options.get("rate") or actual)
             rejected, garbage, end_total = len(res.bad_lines), 0, res.end_total
@@ -303,7 +304,10 @@ class SerialAdc:
                             f"joined at those points")
         if extra.get("unlocated"):
             warnings.append(f"{extra['unlocated']} of the samples the device sent are missing at places "
-                            "lines mode cannot locate (no time stamps); the record is joined at its end")
+                            "lines mode cannot locate; the record is joined at its end")
+        if self.protocol == "lines" and not self.free_running and end_total is None and complete:
+            warnings.append("the device sent no readable END line; the lines were counted against the "
+                            f"{n} samples asked for")
         if extra.get("time_outliers"):
             warnings.append(f"{len(extra['time_outliers'])} samples with an implausible time stamp were "
                             "counted as lost")

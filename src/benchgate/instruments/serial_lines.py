@@ -66,9 +66,11 @@ class LinesDecoder:
     :attr:`next_index` counts them all, for progress and for knowing when ``n`` have come.
     """
 
-    def __init__(self, bits: int, *, timestamps: bool = False, skip_first: bool = False):
+    def __init__(self, bits: int, *, timestamps: bool = False, skip_first: bool = False,
+                 expect_end: bool = True):
         self.bits = int(bits)
         self.timestamps = timestamps
+        self.expect_end = expect_end  # False: a free-running device, which sends no END
         self._skip = skip_first  # joining a running stream: the first line may be cut
         self._tail = b""
         self.codes: list[int] = []  # -1: not a valid sample line
@@ -145,11 +147,14 @@ class LinesDecoder:
         res = LinesResult(codes=np.empty((0, 1), np.uint16), indices=np.empty(0, np.int64), slots=slots,
                           end_total=self.end_total, repeats=int(repeats.sum()), fit=fit)
         res.rate = fit.get("rate")
-        if self.end_total is not None:
-            if slots > self.end_total:
-                res.extra = slots - self.end_total
-            elif slots < self.end_total:
-                res.unlocated = self.end_total - slots
+        # the count the lines are checked against: END's, or (END missing or unreadable) the n
+        # asked for, which a device with commands sends exactly
+        total = self.end_total if self.end_total is not None else (n if self.expect_end and complete else None)
+        if total is not None:
+            if slots > total:
+                res.extra = slots - total
+            elif slots < total:
+                res.unlocated = total - slots
         acc_idx = index[accepted]
         keep = acc_idx < n
         res.indices = acc_idx[keep]
