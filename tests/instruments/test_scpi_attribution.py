@@ -89,6 +89,20 @@ def test_output_off_goes_out_first_and_names_every_suspect(bench):
         assert bench.supply_output is False  # switched off before the queue was read
     assert info.value.suspects == ["VOLT?", "OUTP OFF"]
     assert "one of 'VOLT?', 'OUTP OFF'" in info.value.message
+    assert info.value.message.endswith("; the output is confirmed off")
+
+
+def test_rejected_output_off_says_the_output_is_still_on(bench):
+    cfg = config_for(bench, "supply", commands={"output": "OUTP:PROT {state}"})  # a wrong template
+    supply = ScpiSupply.open(cfg)
+    try:
+        bench.instruments["supply"].output = True
+        with pytest.raises(ScpiQueueError) as info:
+            supply.output(False)
+        assert info.value.code == -113 and info.value.message.endswith("; the output is still ON")
+    finally:
+        bench.instruments["supply"].output = False
+        supply.session.close()
 
 
 def test_setting_error_names_its_own_command_and_both_entries(bench):

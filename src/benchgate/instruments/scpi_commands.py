@@ -40,7 +40,7 @@ class ScpiQueueError(InstrumentError):
     """
 
     def __init__(self, instrument: str, entries: list[tuple[int, str]], suspects: list[str], *,
-                 found_before: str | None = None):
+                 found_before: str | None = None, note: str | None = None):
         code, text = entries[0]
         more = f" (and {len(entries) - 1} more: " + "; ".join(
             f"{c},{t!r}" for c, t in entries[1:]) + ")" if len(entries) > 1 else ""
@@ -50,6 +50,7 @@ class ScpiQueueError(InstrumentError):
             cause = ("one of " + ", ".join(repr(c) for c in suspects[-4:])
                      + (f" (and {len(suspects) - 4} earlier)" if len(suspects) > 4 else "") + " rejected")
         where = f"; found in the queue before sending {found_before!r}" if found_before else ""
+        where += f"; {note}" if note else ""
         super().__init__(instrument, f"{cause}: {code},\"{text}\"{more}{where}", code=code, code_text=text)
         self.entries = list(entries)
         self.suspects = list(suspects)

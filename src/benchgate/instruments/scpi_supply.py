@@ -8,6 +8,7 @@ from __future__ import annotations
 
 from benchgate.analysis.measurement import Measurement
 from benchgate.errors import InstrumentError
+from benchgate.instruments.scpi_commands import ScpiQueueError
 from benchgate.instruments.scpi_instrument import ScpiInstrument
 
 
@@ -30,8 +31,23 @@ class ScpiSupply(ScpiInstrument):
         self.configure("set_current_limit", value=float(amps))
 
     def output(self, on: bool) -> None:
-        """Switch the output; "off" is sent at once, before earlier queue entries are read."""
-        self.session.write(self.session.command("output", state=bool(on)), urgent=not on)
+        """Switch the output; "off" is sent at once, before earlier queue entries are read.
+
+        When the queue holds entries after "off", the output state is read back and the error
+        says whether the output is confirmed off (the entries are still reported).
+        """
+        command = self.session.command("output", state=bool(on))
+        if on:
+            self.session.write(command)
+            return
+        try:
+            self.session.write(command, urgent=True)
+        except ScpiQueueError as exc:
+            try:
+                state = "the output is still ON" if self._output_state(check=False) else "the output is confirmed off"
+            except InstrumentError:
+                state = "the output state could not be read back"
+            raise ScpiQueueError(self.name, exc.entries, exc.suspects, note=state) from exc
 
     def output_state(self) -> bool:
         return self._output_state(check=True)
