@@ -66,7 +66,7 @@ def test_serial_adc_streams_and_is_never_taken_for_a_digitizer():
     if sys.platform == "win32":
         pytest.skip("needs POSIX pseudo-terminals")
     from benchgate.clock import ScaledClock
-    from benchgate.instruments._station_load import _ADC_DEFAULTS
+    from benchgate.instruments.serial_options import ADC_DEFAULTS as _ADC_DEFAULTS
     from benchgate.instruments.station import InstrumentConfig
     from benchgate.sim.serial_device import PtyAdcDevice, SineSource
 

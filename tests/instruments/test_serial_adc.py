@@ -14,8 +14,8 @@ import serial
 from benchgate.clock import ScaledClock, SystemClock
 from benchgate.errors import InstrumentDisconnected, InstrumentError
 from benchgate.instruments import _serial_port
-from benchgate.instruments._station_load import _ADC_DEFAULTS
 from benchgate.instruments.serial_adc import SerialAdc
+from benchgate.instruments.serial_options import ADC_DEFAULTS as _ADC_DEFAULTS
 from benchgate.instruments.station import Calibration, InstrumentConfig
 from benchgate.sim.serial_device import DeviceFaults, PtyAdcDevice, SineSource
 

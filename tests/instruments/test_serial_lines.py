@@ -9,9 +9,9 @@ import pytest
 
 from benchgate.clock import ScaledClock
 from benchgate.errors import InstrumentError
-from benchgate.instruments._station_load import _ADC_DEFAULTS
 from benchgate.instruments.serial_adc import SerialAdc
 from benchgate.instruments.serial_lines import LinesDecoder
+from benchgate.instruments.serial_options import ADC_DEFAULTS as _ADC_DEFAULTS
 from benchgate.instruments.station import InstrumentConfig
 from benchgate.sim.serial_device import PtyAdcDevice, SineSource
 

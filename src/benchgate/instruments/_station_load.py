@@ -9,6 +9,7 @@ import datetime as dt
 from typing import Any
 
 from benchgate.errors import PlanError, PlanErrors
+from benchgate.instruments.options import OptionSpec, check_value
 from benchgate.instruments.registry import KIND_ROLES
 from benchgate.instruments.station import ROLES, Calibration, InstrumentConfig, Station
 from benchgate.plan.yamlpos import YNode, load_file
@@ -19,12 +20,7 @@ _TOP_KEYS = {"station", "description", "instruments"}
 _ADDRESS_KEYS = ("port", "url", "usb", "resource")
 _MAX_TIMEOUT = 3600.0  # s; longer is a typo, and would overflow some OS timeouts
 _CAL_KEYS = {"date", "due", "gain", "offset"}
-# ADC keys with their reader; anything else in an ADC entry is an error (a typo must not pass)
-_ADC_DEFAULTS: dict[str, Any] = {
-    "baudrate": 115200, "protocol": "framed", "channels": ("ch0",), "bits": 12, "vref": 3.3,
-    "clock_ppm": None, "dtr_low": False, "rts_low": None, "identify_timeout": 2.0,
-    "max_loss": 0.0, "rate": None, "timestamps": False, "exclusive": True, "handshake": True,
-}
+_BAD = object()  # an option value that was refused (the error is already recorded)
 
 
 class StationReader:
@@ -91,12 +87,10 @@ class StationReader:
         address = self.address(role, kind, entry, node)
         timeout = self.quantity(entry.pop("timeout", None), "s", 1.0, positive=True, hi=_MAX_TIMEOUT)
         cal_node = entry.pop("calibration", None)
-        if kind == "serial-adc":
-            options = self.adc_options(entry)
-            calibration = self.calibration(cal_node, channels=options["channels"])
-        else:
-            options = self.driver_options(role, kind, entry, node)
-            calibration = self.calibration(cal_node, channels=None)
+        options = self.driver_options(kind, entry, node)
+        # an ADC is calibrated per channel (or as a whole); other instruments as a whole
+        channels = options.get("channels") if kind == "serial-adc" else None
+        calibration = self.calibration(cal_node, channels=channels)
         if len(self.errors) > n_before or kind is None or address is None:
             return None
         return InstrumentConfig(role=role, kind=kind, address=address, timeout=timeout, options=options,
@@ -154,65 +148,6 @@ class StationReader:
         if serial is not None:
             addr += f":{serial.value}"
         return addr
-
-    def adc_options(self, entry: dict[str, YNode]) -> dict[str, Any]:
-        opts = dict(_ADC_DEFAULTS)
-        for key, v in entry.items():
-            if key not in _ADC_DEFAULTS:
-                self.err(f"unknown key {key!r} for a serial-adc "
-                         f"(expected: {', '.join(sorted([*_ADC_DEFAULTS, 'timeout', 'calibration']))})", v)
-                continue
-            if key in ("baudrate", "bits"):
-                lo, hi = (50, 10_000_000) if key == "baudrate" else (1, 16)
-                if isinstance(v.value, bool) or not isinstance(v.value, int) or not lo <= v.value <= hi:
-                    self.err(f"'{key}' must be a whole number from {lo} to {hi}, got {v.value!r}", v)
-                else:
-                    opts[key] = v.value
-            elif key == "protocol":
-                if v.value not in ("framed", "lines"):
-                    self.err(f"'protocol' must be 'framed' or 'lines', got {v.value!r}", v)
-                else:
-                    opts[key] = v.value
-            elif key == "channels":
-                names = [c.value for c in v.value] if v.is_list else None
-                if not names or not all(isinstance(c, str) and c for c in names) or len(set(names)) != len(names):
-                    self.err("'channels' must be a list of distinct channel names, e.g. [out, rail]", v)
-                elif len(names) > 8:
-                    self.err(f"at most 8 channels (the frame's channel mask is 8 bits), got {len(names)}", v)
-                else:
-                    opts[key] = tuple(names)
-            elif key in ("dtr_low", "rts_low", "timestamps", "exclusive", "handshake"):
-                if not isinstance(v.value, bool):
-                    self.err(f"'{key}' must be true or false, got {v.value!r}", v)
-                else:
-                    opts[key] = v.value
-            elif key == "vref":
-                opts[key] = self.quantity(v, "V", 3.3, positive=True, hi=1000.0)
-            elif key == "identify_timeout":
-                opts[key] = self.quantity(v, "s", 2.0, positive=True, hi=_MAX_TIMEOUT)
-            elif key == "rate":
-                opts[key] = self.quantity(v, "Hz", None, positive=True, hi=1e10)
-            elif key == "clock_ppm":
-                ppm = self.quantity(v, None, None, hi=1e6)
-                if ppm is not None and ppm < 0:
-                    self.err("'clock_ppm' must be >= 0", v)
-                opts[key] = ppm
-            elif key == "max_loss":
-                loss = self.fraction(v)
-                if loss is not None and not 0 <= loss < 1:
-                    self.err(f"'max_loss' must be a fraction from 0 to below 1, got {v.value!r}", v)
-                opts[key] = loss if loss is not None else 0.0
-        if opts["rts_low"] is None:
-            opts["rts_low"] = opts["dtr_low"]
-        if not opts["handshake"]:
-            where = entry["handshake"]
-            if opts["protocol"] != "lines":
-                self.err("'handshake: false' (a device without commands) needs 'protocol: lines'", where)
-            elif opts["rate"] is None:
-                self.err("a device without commands needs its sample 'rate' in the station", where)
-            elif len(opts["channels"]) != 1:
-                self.err("a device without commands streams one channel: give exactly one in 'channels'", where)
-        return opts
 
     def calibration(self, node: YNode | None, *, channels: tuple[str, ...] | None) -> Calibration | None:
         if node is None:
@@ -290,28 +225,65 @@ class StationReader:
             return None
         return q.value / 100.0 if q.unit == "%" else q.value
 
-    def driver_options(self, role: str, kind: str | None, entry: dict[str, YNode], node: YNode) -> dict[str, Any]:
-        """The entry's other keys, units parsed, checked by the driver's own option spec."""
-        options = {k: self.generic(k, v) for k, v in entry.items()}
+    def driver_options(self, kind: str | None, entry: dict[str, YNode], node: YNode) -> dict[str, Any]:
+        """The entry's other keys, read and checked by the driver's own option spec.
+
+        The driver (from the registry) declares each key's kind; the value is read by it (a
+        quantity with its unit, a fraction, a choice …), then the driver checks what depends
+        on several keys and fills in its defaults. Unknown keys are errors at their value.
+        """
         if kind is None:
-            return options
+            return {}
         from benchgate.errors import InstrumentError
         from benchgate.instruments.registry import Registry
 
         try:
-            driver = (self.registry or Registry()).driver(kind, role)
+            driver = (self.registry or Registry()).driver(kind)
         except InstrumentError as exc:
             self.err(exc.message, node)
-            return options
+            return {}
+        specs = driver.station_options()
         n_before = len(self.errors)
-        for key, spec in driver.station_options().items():
-            if spec.kind == "quantity" and key in entry and isinstance(entry[key].value, str):
-                options[key] = self.quantity(entry[key], spec.unit, options[key])  # its unit checked
-        if len(self.errors) > n_before:
-            return options
-        for path, message in driver.check_options(options):
-            self.err(f"{role}: {message}", pos=_position(node, path))
-        return options
+        options: dict[str, Any] = {}
+        for key, v in entry.items():
+            spec = specs.get(key)
+            if spec is None:
+                expected = ", ".join(sorted([*specs, "timeout", "calibration"]))
+                self.err(f"unknown key {key!r} for a {kind} (expected: {expected})", v)
+                continue
+            value = self.option_value(key, spec, v)
+            if value is not _BAD:
+                options[key] = value
+        if len(self.errors) == n_before:
+            for path, message in driver.check_options(options):
+                self.err(message, pos=_position(node, path))
+        return driver.complete_options(options)
+
+    def option_value(self, key: str, spec: OptionSpec, node: YNode) -> Any:
+        """One option's value read as its spec says; _BAD (error recorded) when refused."""
+        if spec.kind in ("quantity", "number"):
+            if isinstance(node.value, bool):
+                self.err(f"'{key}' must be a number, got {node.value!r}", node)
+                return _BAD
+            unit = spec.unit if spec.kind == "quantity" else None
+            return self.quantity(node, unit, _BAD, positive=spec.positive, lo=spec.minimum, hi=spec.maximum)
+        value: Any
+        if spec.kind == "fraction":
+            value = self.fraction(node)
+            if value is None:
+                return _BAD
+        elif spec.kind == "names":
+            value = tuple(c.value for c in node.value) if node.is_list else node.value
+        elif spec.kind in ("mapping", "list_or_mapping"):
+            value = self.generic(key, node)
+        else:
+            value = node.value
+        problem = check_value(key, spec, value)
+        if problem:
+            shown = node.value if spec.kind == "fraction" else value
+            self.err(problem.replace(f"got {value!r}", f"got {shown!r}"), node)
+            return _BAD
+        return value
 
     def generic(self, key: str, node: YNode) -> Any:
         """SCPI entries: quantities with units become SI numbers (``%`` a fraction); text stays text."""

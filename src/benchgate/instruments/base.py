@@ -120,7 +120,14 @@ class DriverClass(Protocol):
 
     @classmethod
     def check_options(cls, options: Mapping[str, Any]) -> list[tuple[tuple[str, ...], str]]:
-        """Problems with option values: (key path, message) pairs; empty when all is well."""
+        """Problems with option values: (key path, message) pairs; empty when all is well.
+
+        The loader has already read each value as its spec says; this checks the rest (keys
+        that depend on each other, command templates, accuracy tables …)."""
+
+    @classmethod
+    def complete_options(cls, options: Mapping[str, Any]) -> dict[str, Any]:
+        """The options with the driver's defaults filled in (what ``InstrumentConfig`` holds)."""
 
 
 # ----------------------------------------------------------------------------- readings

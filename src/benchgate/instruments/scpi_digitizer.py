@@ -42,10 +42,10 @@ class ScpiDigitizer(ScpiInstrument):
     }
 
     OPTIONS = {
-        "rate": OptionSpec("quantity", "default sample rate", unit="Hz", positive=True),
+        "rate": OptionSpec("quantity", "default sample rate", unit="Hz", positive=True, maximum=1e10),
         "channels": OptionSpec("list_or_mapping", "plan channel names, or plan name -> instrument channel"),
-        "clock_ppm": OptionSpec("number", "time-base tolerance, ± ppm", minimum=0.0),
-        "range": OptionSpec("quantity", "default input range", unit="V", positive=True),
+        "clock_ppm": OptionSpec("number", "time-base tolerance, ± ppm", minimum=0.0, maximum=1e6),
+        "range": OptionSpec("quantity", "default input range", unit="V", positive=True, maximum=1000.0),
     }
 
     def __init__(self, config, session, *, clock=None):

@@ -13,7 +13,7 @@ from typing import Any
 import numpy as np
 
 from benchgate.analysis.measurement import Measurement
-from benchgate.instruments.options import OptionSpec, check_all
+from benchgate.instruments.options import OptionSpec, check_all, with_defaults
 from benchgate.instruments.scpi import ScpiQueueError, ScpiSession, station_error
 from benchgate.instruments.scpi_commands import template_problems
 
@@ -61,7 +61,7 @@ COMMON_OPTIONS: Mapping[str, OptionSpec] = {
     "reset": OptionSpec("bool", "send *RST and *CLS after connecting"),
     "visa_library": OptionSpec("text", "pyvisa backend (default '@py', pyvisa-py)"),
     "resync_timeout": OptionSpec("quantity", "how long to drain stale replies after a timeout",
-                                 unit="s", positive=True),
+                                 unit="s", positive=True, maximum=3600.0),
     "commands": OptionSpec("mapping", "command templates replacing the driver's defaults"),
     "accuracy": OptionSpec("mapping", "accuracy bound {gain, offset}, or one per reading"),
 }
@@ -76,6 +76,10 @@ class ScpiInstrument:
     @classmethod
     def station_options(cls) -> Mapping[str, OptionSpec]:
         return {**COMMON_OPTIONS, **cls.OPTIONS}
+
+    @classmethod
+    def complete_options(cls, options: Mapping[str, Any]) -> dict[str, Any]:
+        return with_defaults(cls.station_options(), options)  # SCPI drivers default in code
 
     @classmethod
     def check_options(cls, options: Mapping[str, Any]) -> list[tuple[tuple[str, ...], str]]:

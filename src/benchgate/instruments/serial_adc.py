@@ -13,16 +13,20 @@ from __future__ import annotations
 
 import threading
 import time
+from collections.abc import Mapping
 from concurrent.futures import ThreadPoolExecutor
 from concurrent.futures import TimeoutError as FutureTimeout
+from typing import Any
 
 import numpy as np
 
 from benchgate.analysis.capture import AdcInfo, Capture
 from benchgate.clock import Clock, SystemClock
 from benchgate.errors import InstrumentDisconnected, InstrumentError
+from benchgate.instruments import serial_options
 from benchgate.instruments._serial_port import SerialPort, arrival_rate
 from benchgate.instruments.framing import FrameDecoder, encode_frame
+from benchgate.instruments.options import OptionSpec
 from benchgate.instruments.serial_lines import LinesDecoder
 
 RATE_TOLERANCE = 0.05  # declared vs host-measured arrival rate
@@ -55,6 +59,19 @@ class SerialAdc:
         self._lock = threading.Lock()
         # the one thread that touches the port
         self._owner = ThreadPoolExecutor(max_workers=1, thread_name_prefix=f"serial-adc {port.path}")
+
+    # ------------------------------------------------------------------ station options
+    @classmethod
+    def station_options(cls) -> Mapping[str, OptionSpec]:
+        return serial_options.ADC_OPTIONS
+
+    @classmethod
+    def check_options(cls, options: Mapping[str, Any]) -> list[tuple[tuple[str, ...], str]]:
+        return serial_options.check(options, cls.station_options())
+
+    @classmethod
+    def complete_options(cls, options: Mapping[str, Any]) -> dict[str, Any]:
+        return serial_options.complete(options, cls.station_options())
 
     # ------------------------------------------------------------------ life cycle
     @classmethod
