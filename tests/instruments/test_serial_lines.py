@@ -173,3 +173,43 @@ def test_dropped_line_without_time_stamps_is_counted_and_flagged():
             cap = adc.capture("out", duration=0.25, rate=2000)
     assert cap.metadata["loss"]["unlocated"] == 1 and cap.metadata["loss"]["lost_samples"] == 1
     assert any("cannot locate" in w for w in cap.metadata["warnings"])
+
+
+@posix
+@pytest.mark.parametrize("timestamps", [False, True])
+def test_driver_under_random_line_faults_never_shifts_a_sample(timestamps):
+    """Random link faults through the real port: refused, or every sample at its true index."""
+    rng = np.random.default_rng(77 if timestamps else 78)
+    kinds = ["drop", "repeat", "split", "garble"] + (["bad_time"] if timestamps else [])
+    clock = ScaledClock(4.0)
+    n, rate = 400, 2000
+    truth = true_codes(n, rate)
+    outcomes = []
+    with PtyAdcDevice(SineSource(frequency=50.0, channels=("out",)), protocol="lines",
+                      lines_timestamps=timestamps, clock=clock) as dev:
+        with SerialAdc.open(lines_config(dev.port, timestamps=timestamps, max_loss=0.05), clock=clock) as adc:
+            for _trial in range(6):
+                # without time stamps one fault per capture (two can cancel out: documented);
+                # with time stamps several
+                count = int(rng.integers(1, 4)) if timestamps else 1
+                faults = {int(i): str(rng.choice(kinds)) for i in rng.choice(np.arange(5, n - 5), count, False)}
+                dev.faults.line_faults = faults
+                try:
+                    cap = adc.capture("out", duration=n / rate, rate=rate)
+                except InstrumentError as exc:
+                    assert "split or repeated" in exc.message, (faults, exc.message)
+                    outcomes.append("refused")
+                    continue
+                loss = cap.metadata["loss"]
+                got = np.round(cap.samples / (3.3 / 4096)).astype(int)
+                assert got.size + loss["lost_samples"] == n
+                if loss["unlocated"]:
+                    outcomes.append("unlocated")
+                    continue
+                lost = np.zeros(n, dtype=bool)
+                for start, length in loss["gaps"]:
+                    lost[start:start + length] = True
+                index = np.flatnonzero(~lost)
+                np.testing.assert_array_equal(got, truth[index], err_msg=str(faults))
+                outcomes.append("accepted")
+    assert "accepted" in outcomes, outcomes
