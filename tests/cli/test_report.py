@@ -69,8 +69,19 @@ def test_pdf_without_a_browser_says_so(stored, tmp_path, monkeypatch, capsys):
     assert not (tmp_path / "r.pdf").exists()
 
 
+def test_pdf_without_playwright_says_what_to_install(stored, tmp_path, monkeypatch, capsys):
+    import sys
+
+    monkeypatch.setitem(sys.modules, "playwright", None)  # as if the browser extra were not installed
+    monkeypatch.setitem(sys.modules, "playwright.sync_api", None)
+    assert main(["report", str(stored["json"]), "--pdf", str(tmp_path / "r.pdf")]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "pip install 'benchgate[browser]'" in err[0] and "Playwright" in err[0]
+    assert not (tmp_path / "r.pdf").exists()
+
+
 @pytest.mark.browser
-@pytest.mark.skipif(browser.find_chromium() is None, reason="no Chromium installed (Debian package: chromium)")
+@pytest.mark.skipif(browser.unavailable() is not None, reason=str(browser.unavailable()))
 @pytest.mark.parametrize("paper", ["a4", "letter"])
 def test_pdf_with_the_browser(stored, tmp_path, capsys, paper):
     pdf = tmp_path / f"r-{paper}.pdf"

@@ -1,7 +1,8 @@
 """``benchgate report REPORT.json [--html FILE] [--pdf FILE]``: re-render a stored unit report.
 
 The HTML is rebuilt from the JSON report and the captures stored beside it (no hardware);
-``--pdf`` prints it with headless Chromium when one is installed.
+``--pdf`` prints it with the system's headless Chromium, driven by Playwright (the ``browser``
+extra), and says in one line what is missing when either is not installed.
 """
 
 from __future__ import annotations
@@ -21,7 +22,8 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     )
     p.add_argument("report", metavar="REPORT.json", help="a JSON unit report written by benchgate")
     p.add_argument("--html", metavar="FILE", help="write the HTML report here")
-    p.add_argument("--pdf", metavar="FILE", help="print the report to this PDF (needs Chromium)")
+    p.add_argument("--pdf", metavar="FILE",
+                   help="print the report to this PDF (needs Chromium and benchgate[browser])")
     p.add_argument("--paper", choices=("a4", "letter"), default="a4", help="PDF paper size (default a4)")
     p.set_defaults(func=run)
     return p
@@ -55,8 +57,9 @@ def run(args: argparse.Namespace) -> int:
 
     src = Path(args.report)
     # say so before doing any work when the PDF cannot be made
-    if args.pdf and browser.find_chromium() is None:
-        print(f"benchgate: {browser.NO_BROWSER}", file=sys.stderr)
+    why = browser.unavailable() if args.pdf else None
+    if why:
+        print(f"benchgate: {why}", file=sys.stderr)
         return 2
     record = read_json(src)
     captures, problems = _load_captures(record, src.parent)
