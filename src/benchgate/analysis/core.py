@@ -13,6 +13,7 @@ from benchgate.analysis.distortion import harmonic_analysis, levels_dbc
 from benchgate.analysis.measurement import Measurement
 from benchgate.analysis.names import MEASUREMENT_NAMES
 from benchgate.analysis.registry import MEASUREMENTS, measure
+from benchgate.analysis.views import CaptureViews, capture_views
 
 
 @dataclass(frozen=True)
@@ -21,7 +22,8 @@ class Analysis:
 
     ``steady_start`` is the time (s from the record start) where the steady part begins;
     ``fundamental`` the fitted frequency (Hz) or None; ``harmonics`` holds
-    ``(order, frequency Hz, level dBc)`` for each harmonic considered.
+    ``(order, frequency Hz, level dBc)`` for each harmonic considered; ``views`` the plot data
+    of the capture (:class:`~benchgate.analysis.views.CaptureViews`) when asked for.
     """
 
     warnings: tuple[str, ...]
@@ -33,6 +35,7 @@ class Analysis:
     sample_rate: float = math.nan
     duration: float = 0.0
     extra: dict[str, Any] = field(default_factory=dict)
+    views: CaptureViews | None = None
 
     def to_dict(self) -> dict[str, Any]:
         """The shape ``benchgate analyze --json`` prints (docs/analyze-output.schema.json)."""
@@ -59,7 +62,8 @@ def _finite(obj: Any) -> Any:
     return obj
 
 
-def analyze(capture: Capture, names: Iterable[str] | None = None, *, harmonics: int = 10) -> Analysis:
+def analyze(capture: Capture, names: Iterable[str] | None = None, *, harmonics: int = 10,
+            views: bool = False) -> Analysis:
     """Measure a capture.
 
     Parameters
@@ -70,6 +74,9 @@ def analyze(capture: Capture, names: Iterable[str] | None = None, *, harmonics: 
         Measurement names (default: all of ``MEASUREMENT_NAMES``, in that order).
     harmonics : int
         Highest harmonic order summed for THD (and listed in ``Analysis.harmonics``).
+    views : bool
+        Also gather the plot data of the capture (``Analysis.views``) from the same context,
+        with the start-up instant (measured for it when not asked for among ``names``).
 
     Returns
     -------
@@ -89,6 +96,11 @@ def analyze(capture: Capture, names: Iterable[str] | None = None, *, harmonics: 
     tone = ctx.tone
     fundamental = tone.frequency if tone.ok else None
     harm = levels_dbc(harmonic_analysis(ctx)) if tone.ok else ()
+    drawn = None
+    if views:
+        start = results.get("startup_time") or measure("startup_time", capture, ctx)
+        drawn = capture_views(capture, ctx, startup=start.value if start.valid and math.isfinite(start.value)
+                              else None)
     return Analysis(
         warnings=ctx.warnings,
         measurements=results,
@@ -98,4 +110,5 @@ def analyze(capture: Capture, names: Iterable[str] | None = None, *, harmonics: 
         samples=capture.n,
         sample_rate=capture.sample_rate,
         duration=capture.duration,
+        views=drawn,
     )

@@ -1,6 +1,7 @@
 """``benchgate report REPORT.json [--html FILE] [--pdf FILE]``: re-render a stored unit report.
 
-The HTML is rebuilt from the JSON report and the captures stored beside it (no hardware);
+The HTML is rebuilt from the JSON report: its plots from the views the run's analysis kept (older
+reports: from the captures stored beside it), each capture file checked against its SHA-256;
 ``--pdf`` prints it with the system's headless Chromium, driven by Playwright (the ``browser``
 extra), and says in one line what is missing when either is not installed.
 """
@@ -35,8 +36,8 @@ def _load_captures(record, folder: Path) -> tuple[dict, list[str]]:
 
     captures, problems = {}, []
     for step in record.steps:
-        if step.capture is None:
-            continue
+        if step.capture is None or step.capture.views is not None:
+            continue  # the record's own views are drawn; only older records need the capture
         path = folder / step.capture.file
         if not path.is_file():
             problems.append(f"{path}: capture file missing; its plots are left out")
@@ -68,11 +69,11 @@ def run(args: argparse.Namespace) -> int:
     html_path = Path(args.html) if args.html else (None if args.pdf else src.with_suffix(".html"))
     with tempfile.TemporaryDirectory(prefix="benchgate-report-") as tmp:
         if html_path is not None:
-            write_html(record, html_path, captures, folder=src.parent)
+            write_html(record, html_path, captures, verify=src.parent)
             print(f"html: {html_path}")
             source = html_path
         else:
-            source = write_html(record, Path(tmp) / "report.html", captures, folder=src.parent)
+            source = write_html(record, Path(tmp) / "report.html", captures, verify=src.parent)
         if args.pdf:
             browser.print_pdf(source, args.pdf, paper=args.paper)
             print(f"pdf: {args.pdf}")

@@ -8,14 +8,11 @@ lists, so a measurement's ``details`` never break the file.
 from __future__ import annotations
 
 import json
-import math
-import os
-import tempfile
-from collections.abc import Mapping
 from pathlib import Path
 from typing import Any
 
 from benchgate.errors import BenchgateError, Position
+from benchgate.present import json_safe, write_atomic
 from benchgate.record import UnitRecord
 
 SCHEMA_FILE = "unit-report.schema.json"
@@ -35,31 +32,13 @@ class ReportError(BenchgateError):
         return str(Position(self.file, self.line, self.column))
 
 
-def jsonable(value: Any) -> Any:
-    """``value`` with everything JSON cannot hold made plain (NaN/inf -> None, numpy -> Python)."""
-    if value is None or isinstance(value, (bool, str)):
-        return value
-    if isinstance(value, int):
-        return value
-    if isinstance(value, float):
-        return value if math.isfinite(value) else None
-    if isinstance(value, Mapping):
-        return {str(k): jsonable(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple, set, frozenset)):
-        return [jsonable(v) for v in value]
-    if isinstance(value, os.PathLike):
-        return os.fspath(value)
-    tolist = getattr(value, "tolist", None)  # numpy scalars and arrays
-    if callable(tolist):
-        return jsonable(tolist())
-    if hasattr(value, "value") and isinstance(value.value, str):  # enums such as Verdict
-        return value.value
-    return str(value)
+#: kept for callers of the old name: the one JSON-safe conversion is :func:`benchgate.present.json_safe`.
+jsonable = json_safe
 
 
 def report_dict(record: UnitRecord) -> dict[str, Any]:
     """The JSON body of ``record``'s report."""
-    return jsonable(record.to_dict())
+    return json_safe(record.to_dict())
 
 
 def write_json(record: UnitRecord, path: str | Path) -> Path:
@@ -70,18 +49,8 @@ def write_json(record: UnitRecord, path: str | Path) -> Path:
     Path
         ``path``.
     """
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
     text = json.dumps(report_dict(record), indent=2, ensure_ascii=False, allow_nan=False)
-    fd, tmp = tempfile.mkstemp(prefix=".tmp-", suffix=".json", dir=path.parent)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as f:
-            f.write(text + "\n")
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
-    return path
+    return write_atomic(path, text + "\n")
 
 
 def read_json(path: str | Path) -> UnitRecord:

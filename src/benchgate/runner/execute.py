@@ -227,16 +227,18 @@ class Executor:
             raise
         names = [c.measurement for c in step.checks]
         warnings: list[str] = []
+        views = None
         try:
             analysis = self.analyze(capture, names, harmonics=step.harmonics)
             measurements = analysis.measurements
             warnings = list(analysis.warnings)
+            views = getattr(analysis, "views", None)  # the report draws these: no second analysis
         except (BenchgateError, ValueError) as exc:
             reason = f"analysis failed: {exc}"
             measurements = {c.measurement: Measurement.invalid(c.measurement, c.window.unit, reason)
                             for c in step.checks}
             warnings = [reason]
-        self._keep(step, srec, key, capture, warnings)
+        self._keep(step, srec, key, capture, warnings, views)
         for check in step.checks:
             self._judge(step, srec, check, measurements.get(check.measurement))
 
@@ -339,7 +341,8 @@ class Executor:
             self.sleep(POWER_CYCLE_OFF_S, "power off before the start-up capture")
 
     # ------------------------------------------------------------------ helpers
-    def _keep(self, step: Any, srec: StepRecord, key: str, capture: Any, warnings: list[str]) -> None:
+    def _keep(self, step: Any, srec: StepRecord, key: str, capture: Any, warnings: list[str],
+              views: Any = None) -> None:
         path = Path(self.layout.capture_path(key))
         path.parent.mkdir(parents=True, exist_ok=True)
         sha = self.save_capture(capture, path)
@@ -348,7 +351,7 @@ class Executor:
         srec.capture = CaptureRecord(
             file=os.path.relpath(path, self.layout.folder), sha256=sha, channel=capture.channel,
             sample_rate=capture.sample_rate, samples=capture.n, instrument=step.instrument,
-            warnings=list(warnings))
+            warnings=list(warnings), metadata=dict(capture.metadata), views=views)
 
     def _judge(self, step: Any, srec: StepRecord, check: Any, measurement: Measurement | None) -> None:
         cv = judge(measurement, check.window, self.plan.decision)

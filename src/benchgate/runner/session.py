@@ -11,6 +11,7 @@ from __future__ import annotations
 import uuid
 from collections.abc import Callable
 from dataclasses import dataclass
+from functools import partial
 from pathlib import Path
 from typing import Any
 
@@ -59,7 +60,8 @@ class Services:
         open_bench = options.open_bench
         if open_bench is None:
             from benchgate.instruments import open_station as open_bench
-        return cls(open_bench=open_bench, save_capture=save_capture, analyze=analyze,
+        # the views (plot data) come from the same analysis as the measurements: computed once
+        return cls(open_bench=open_bench, save_capture=save_capture, analyze=partial(analyze, views=True),
                    write_reports=write_reports, layout=ReportLayout, open_db=ResultsDB.open)
 
 

@@ -1,0 +1,145 @@
+"""How benchgate states and keeps its evidence: one place for the small texts and file habits
+that reports, the runner's messages, the verdict reasons, the database and the CLI share.
+
+- :func:`window_text` — an acceptance window as text: ``880.0 Hz … 1.030 kHz``, ``≥ 600.0 mV``.
+- :func:`value_text` — a value with its expanded uncertainty: ``951.2 Hz ± 400.0 mHz``.
+- :func:`finite` and :func:`json_safe` — NaN and infinities become None (JSON has no NaN), numpy
+  values plain Python.
+- :func:`utc_now` — the current UTC time as ISO 8601 with milliseconds.
+- :func:`write_atomic` — write a file so that a reader never sees half of it (temporary file in
+  the same folder, then an atomic rename; the temporary file is removed on any failure).
+- :func:`file_sha256` and :func:`sha256_hex` — the SHA-256 of a file or of bytes, in hex.
+
+Imports only the standard library and :mod:`benchgate.units`, so every layer may use it.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import hashlib
+import math
+import os
+import tempfile
+from collections.abc import Callable, Mapping
+from pathlib import Path
+from typing import IO, Any
+
+from benchgate.units.format import format_quantity
+
+__all__ = ["file_sha256", "finite", "json_safe", "sha256_hex", "utc_now", "value_text", "window_text",
+           "write_atomic"]
+
+
+def window_text(low: float | None, high: float | None, unit: str, digits: int = 4) -> str:
+    """An acceptance window as text: ``low … high``, ``≥ low`` or ``≤ high`` (SI prefixes).
+
+    A window with neither limit is ``any value``.
+    """
+    if low is not None and high is not None:
+        return f"{format_quantity(low, unit, digits)} … {format_quantity(high, unit, digits)}"
+    if low is not None:
+        return f"≥ {format_quantity(low, unit, digits)}"
+    if high is not None:
+        return f"≤ {format_quantity(high, unit, digits)}"
+    return "any value"
+
+
+def value_text(value: float, uncertainty: float | None, unit: str, digits: int = 4,
+               u_digits: int | None = None) -> str:
+    """``value ± U`` with SI prefixes; just the value when ``uncertainty`` is None.
+
+    ``u_digits`` significant digits for U (default: as many as the value's; GUM, JCGM
+    100:2008, 7.2.6, suggests at most two).
+    """
+    text = format_quantity(value, unit, digits)
+    if uncertainty is None:
+        return text
+    return f"{text} ± {format_quantity(uncertainty, unit, digits if u_digits is None else u_digits)}"
+
+
+def finite(x: float | None) -> float | None:
+    """``x`` when it is a finite number, else None (NaN and infinities cannot go into JSON)."""
+    return x if x is not None and math.isfinite(x) else None
+
+
+def json_safe(value: Any) -> Any:
+    """``value`` with everything JSON cannot hold made plain.
+
+    NaN and infinities become None; numpy scalars and arrays Python numbers and lists; tuples
+    and sets lists; mapping keys strings; paths strings; enums their value; anything else its
+    ``str``.
+    """
+    if value is None or isinstance(value, (bool, str, int)):
+        return value
+    if isinstance(value, float):  # numpy's float64 too (a float subclass): made a plain float
+        return float(value) if math.isfinite(value) else None
+    if isinstance(value, Mapping):
+        return {str(k): json_safe(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple, set, frozenset)):
+        return [json_safe(v) for v in value]
+    if isinstance(value, os.PathLike):
+        return os.fspath(value)
+    tolist = getattr(value, "tolist", None)  # numpy scalars and arrays
+    if callable(tolist):
+        return json_safe(tolist())
+    if hasattr(value, "value") and isinstance(value.value, str):  # enums such as Verdict
+        return value.value
+    return str(value)
+
+
+def utc_now() -> str:
+    """The current time, UTC, ISO 8601 with milliseconds: ``2026-12-01T10:00:00.123+00:00``."""
+    return _dt.datetime.now(_dt.UTC).isoformat(timespec="milliseconds")
+
+
+def write_atomic(path: str | os.PathLike[str], data: str | bytes | Callable[[IO[bytes]], None], *,
+                 encoding: str = "utf-8") -> Path:
+    """Write ``data`` to ``path`` so that a reader sees the old file or the whole new one.
+
+    Parameters
+    ----------
+    path : path
+        The file to write (its folder is created when missing).
+    data : str, bytes or callable
+        Text (encoded with ``encoding``), bytes, or a function that writes into the open binary
+        temporary file.
+
+    Returns
+    -------
+    Path
+        ``path``.
+    """
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    try:
+        with os.fdopen(fd, "wb") as f:
+            if callable(data):
+                data(f)
+            else:
+                f.write(data.encode(encoding) if isinstance(data, str) else data)
+        os.replace(tmp, path)
+    except BaseException:
+        Path(tmp).unlink(missing_ok=True)
+        raise
+    return path
+
+
+def sha256_hex(data: bytes) -> str:
+    """The SHA-256 of ``data`` in hex (FIPS 180-4)."""
+    return hashlib.sha256(data).hexdigest()
+
+
+def file_sha256(path: str | os.PathLike[str]) -> str:
+    """The SHA-256 of the file at ``path`` in hex, read in 1 MiB blocks.
+
+    Raises
+    ------
+    OSError
+        When the file cannot be read.
+    """
+    h = hashlib.sha256()
+    with open(path, "rb") as f:
+        for block in iter(lambda: f.read(1 << 20), b""):
+            h.update(block)
+    return h.hexdigest()
