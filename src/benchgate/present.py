@@ -93,7 +93,7 @@ def utc_now() -> str:
 
 
 def write_atomic(path: str | os.PathLike[str], data: str | bytes | Callable[[IO[bytes]], None], *,
-                 encoding: str = "utf-8") -> Path:
+                 encoding: str = "utf-8", sync: bool = False) -> Path:
     """Write ``data`` to ``path`` so that a reader sees the old file or the whole new one.
 
     Parameters
@@ -103,6 +103,9 @@ def write_atomic(path: str | os.PathLike[str], data: str | bytes | Callable[[IO[
     data : str, bytes or callable
         Text (encoded with ``encoding``), bytes, or a function that writes into the open binary
         temporary file.
+    sync : bool
+        Flush the data to the disk before the rename (for raw evidence such as captures, which
+        must survive a power cut once the run has named them).
 
     Returns
     -------
@@ -118,6 +121,9 @@ def write_atomic(path: str | os.PathLike[str], data: str | bytes | Callable[[IO[
                 data(f)
             else:
                 f.write(data.encode(encoding) if isinstance(data, str) else data)
+            if sync:
+                f.flush()
+                os.fsync(f.fileno())
         os.replace(tmp, path)
     except BaseException:
         Path(tmp).unlink(missing_ok=True)

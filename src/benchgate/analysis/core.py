@@ -13,7 +13,6 @@ from benchgate.analysis.distortion import harmonic_analysis, levels_dbc
 from benchgate.analysis.measurement import Measurement
 from benchgate.analysis.names import MEASUREMENT_NAMES
 from benchgate.analysis.registry import MEASUREMENTS, measure
-from benchgate.analysis.views import CaptureViews, capture_views
 
 
 @dataclass(frozen=True)
@@ -35,7 +34,7 @@ class Analysis:
     sample_rate: float = math.nan
     duration: float = 0.0
     extra: dict[str, Any] = field(default_factory=dict)
-    views: CaptureViews | None = None
+    views: Any = None  # benchgate.analysis.views.CaptureViews, when asked for
 
     def to_dict(self) -> dict[str, Any]:
         """The shape ``benchgate analyze --json`` prints (docs/analyze-output.schema.json)."""
@@ -53,13 +52,9 @@ class Analysis:
 
 def _finite(obj: Any) -> Any:
     """JSON-safe copy: NaN and infinities (e.g. inside details) become None."""
-    if isinstance(obj, dict):
-        return {k: _finite(v) for k, v in obj.items()}
-    if isinstance(obj, (list, tuple)):
-        return [_finite(v) for v in obj]
-    if isinstance(obj, float) and not math.isfinite(obj):
-        return None
-    return obj
+    from benchgate.present import json_safe  # the one conversion, shared with the reports
+
+    return json_safe(obj)
 
 
 def analyze(capture: Capture, names: Iterable[str] | None = None, *, harmonics: int = 10,
@@ -98,6 +93,8 @@ def analyze(capture: Capture, names: Iterable[str] | None = None, *, harmonics: 
     harm = levels_dbc(harmonic_analysis(ctx)) if tone.ok else ()
     drawn = None
     if views:
+        from benchgate.analysis.views import capture_views
+
         start = results.get("startup_time") or measure("startup_time", capture, ctx)
         drawn = capture_views(capture, ctx, startup=start.value if start.valid and math.isfinite(start.value)
                               else None)

@@ -11,7 +11,6 @@ the session, which makes the bench safe and writes the reports.
 
 from __future__ import annotations
 
-import datetime as _dt
 import os
 import threading
 from collections.abc import Callable
@@ -56,7 +55,9 @@ class StepError(BenchgateError):
 
 
 def utc_now() -> str:
-    return _dt.datetime.now(_dt.UTC).isoformat(timespec="milliseconds")
+    from benchgate.present import utc_now as now  # the one UTC clock text of the records
+
+    return now()
 
 
 class Executor:
