@@ -211,6 +211,7 @@ def render_summary_html(summary: Any, *, title: str | None = None,
         "s": summary,
         "fpy": _pct(summary.first_pass_yield),
         "untested": getattr(summary, "units_untested", 0),
+        "cut_short": getattr(summary, "cut_short", 0),
         "final": _pct(summary.final_yield),
         "pareto_checks": [{"p": p, "fail_bar": bar_svg(p.fail, top_check),
                            "other_bar": bar_svg(p.error + p.inconclusive, top_check, kind="error")}
