@@ -74,3 +74,15 @@ def test_write_atomic_failure_keeps_the_old_file_and_leaves_no_temporary(tmp_pat
         present.write_atomic(p, broken)
     assert p.read_text(encoding="utf-8") == "old"
     assert [x.name for x in tmp_path.iterdir()] == ["r.json"]
+
+
+def test_write_atomic_gives_the_usual_permissions(tmp_path):
+    import os
+
+    old = os.umask(0o022)
+    try:
+        p = present.write_atomic(tmp_path / "report.html", "x")
+    finally:
+        os.umask(old)
+    # common practice: a new file is 0666 less the umask, readable by the web server or a colleague
+    assert p.stat().st_mode & 0o777 == 0o644

@@ -19,7 +19,7 @@ import datetime as _dt
 import hashlib
 import math
 import os
-import tempfile
+import secrets
 from collections.abc import Callable, Mapping
 from pathlib import Path
 from typing import IO, Any
@@ -114,7 +114,10 @@ def write_atomic(path: str | os.PathLike[str], data: str | bytes | Callable[[IO[
     """
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    # a fresh, unguessable name opened exclusively, with the usual permissions (0666 less the
+    # umask), so the file reads like any other once renamed (mkstemp would leave it 0600)
+    tmp = path.parent / f".{path.name}.{secrets.token_hex(6)}.tmp"
+    fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL | getattr(os, "O_BINARY", 0), 0o666)
     try:
         with os.fdopen(fd, "wb") as f:
             if callable(data):

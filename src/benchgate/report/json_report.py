@@ -8,6 +8,7 @@ lists, so a measurement's ``details`` never break the file.
 from __future__ import annotations
 
 import json
+import re
 from pathlib import Path
 from typing import Any
 
@@ -50,7 +51,16 @@ def write_json(record: UnitRecord, path: str | Path) -> Path:
         ``path``.
     """
     text = json.dumps(report_dict(record), indent=2, ensure_ascii=False, allow_nan=False)
-    return write_atomic(path, text + "\n")
+    return write_atomic(path, _one_line_arrays(text) + "\n")
+
+
+#: an indented JSON array of numbers only (a raw newline never occurs inside a JSON string).
+_NUMBER_ARRAY = re.compile(r"\[\n(?:\s*(?:-?[0-9][0-9.eE+-]*|null),\n)*\s*(?:-?[0-9][0-9.eE+-]*|null)\n\s*\]")
+
+
+def _one_line_arrays(text: str) -> str:
+    """Arrays of numbers (plot views) on one line each, the rest indented for reading."""
+    return _NUMBER_ARRAY.sub(lambda m: "[" + ", ".join(m.group(0)[1:-1].split()).replace(",,", ",") + "]", text)
 
 
 def read_json(path: str | Path) -> UnitRecord:
