@@ -7,12 +7,19 @@ each line, so a watcher (``tail -f``) sees progress at once and several units sh
 
 from __future__ import annotations
 
+import datetime as _dt
 import json
+import math
 from pathlib import Path
 from typing import Any, TextIO
 
-from benchgate.present import finite as _num
-from benchgate.present import utc_now as _now
+
+def _now() -> str:
+    return _dt.datetime.now(_dt.UTC).isoformat(timespec="milliseconds")
+
+
+def _num(x: float | None) -> float | None:
+    return x if x is not None and math.isfinite(x) else None
 
 
 class EventLog:

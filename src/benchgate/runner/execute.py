@@ -11,6 +11,7 @@ the session, which makes the bench safe and writes the reports.
 
 from __future__ import annotations
 
+import datetime as _dt
 import os
 import threading
 from collections.abc import Callable
@@ -55,9 +56,7 @@ class StepError(BenchgateError):
 
 
 def utc_now() -> str:
-    from benchgate.present import utc_now as now  # the one UTC clock text of the records
-
-    return now()
+    return _dt.datetime.now(_dt.UTC).isoformat(timespec="milliseconds")
 
 
 class Executor:
@@ -230,16 +229,18 @@ class Executor:
         warnings: list[str] = []
         views = None
         try:
-            analysis = self.analyze(capture, names, harmonics=step.harmonics)
+            # the views (plot data) come from this one analysis: the report does not analyse again
+            analysis = self.analyze(capture, names, harmonics=step.harmonics, views=True)
             measurements = analysis.measurements
             warnings = list(analysis.warnings)
-            views = getattr(analysis, "views", None)  # the report draws these: no second analysis
+            views = analysis.views
         except (BenchgateError, ValueError) as exc:
             reason = f"analysis failed: {exc}"
             measurements = {c.measurement: Measurement.invalid(c.measurement, c.window.unit, reason)
                             for c in step.checks}
             warnings = [reason]
-        self._keep(step, srec, key, capture, warnings, views)
+        self._keep(step, srec, key, capture, warnings)
+        srec.capture.views = views
         for check in step.checks:
             self._judge(step, srec, check, measurements.get(check.measurement))
 
@@ -342,8 +343,7 @@ class Executor:
             self.sleep(POWER_CYCLE_OFF_S, "power off before the start-up capture")
 
     # ------------------------------------------------------------------ helpers
-    def _keep(self, step: Any, srec: StepRecord, key: str, capture: Any, warnings: list[str],
-              views: Any = None) -> None:
+    def _keep(self, step: Any, srec: StepRecord, key: str, capture: Any, warnings: list[str]) -> None:
         path = Path(self.layout.capture_path(key))
         path.parent.mkdir(parents=True, exist_ok=True)
         sha = self.save_capture(capture, path)
@@ -352,7 +352,7 @@ class Executor:
         srec.capture = CaptureRecord(
             file=os.path.relpath(path, self.layout.folder), sha256=sha, channel=capture.channel,
             sample_rate=capture.sample_rate, samples=capture.n, instrument=step.instrument,
-            warnings=list(warnings), metadata=dict(capture.metadata), views=views)
+            warnings=list(warnings), metadata=dict(capture.metadata))
 
     def _judge(self, step: Any, srec: StepRecord, check: Any, measurement: Measurement | None) -> None:
         cv = judge(measurement, check.window, self.plan.decision)

@@ -11,7 +11,6 @@ from __future__ import annotations
 import uuid
 from collections.abc import Callable
 from dataclasses import dataclass
-from functools import partial
 from pathlib import Path
 from typing import Any
 
@@ -60,8 +59,7 @@ class Services:
         open_bench = options.open_bench
         if open_bench is None:
             from benchgate.instruments import open_station as open_bench
-        # the views (plot data) come from the same analysis as the measurements: computed once
-        return cls(open_bench=open_bench, save_capture=save_capture, analyze=partial(analyze, views=True),
+        return cls(open_bench=open_bench, save_capture=save_capture, analyze=analyze,
                    write_reports=write_reports, layout=ReportLayout, open_db=ResultsDB.open)
 
 
