@@ -184,3 +184,36 @@ def test_a_browser_that_cannot_start_is_one_clear_error(tmp_path):
     with pytest.raises(browser.BrowserError, match="did not start"):
         with browser.session(timeout=20, chromium=str(fake)):
             pass
+
+
+@needs_chromium
+def test_a_missing_local_file_is_a_request_and_an_error(tmp_path):
+    # what the browser itself logs (a failed load) counts as a console error, as any script error
+    page = tmp_path / "missing.html"
+    page.write_text('<!DOCTYPE html><html><body><img src="nothere.png"><p>x</p></body></html>',
+                    encoding="utf-8")
+    got = browser.check_page(page)
+    assert [u.rsplit("/", 1)[1] for u in got.requests] == ["nothere.png"]
+    assert any("ERR_FILE_NOT_FOUND" in e for e in got.console_errors), got.console_errors
+
+
+@needs_chromium
+def test_a_network_request_is_seen_but_never_sent(tmp_path):
+    import socket
+
+    server = socket.socket()
+    server.bind(("127.0.0.1", 0))
+    server.listen(4)
+    port = server.getsockname()[1]
+    page = tmp_path / "net.html"
+    page.write_text(f'<!DOCTYPE html><html><body><img src="http://127.0.0.1:{port}/x.png"></body></html>',
+                    encoding="utf-8")
+    try:
+        got = browser.check_page(page)
+        # a connection the browser had made would wait in the listen backlog now
+        server.setblocking(False)
+        with pytest.raises(BlockingIOError):
+            server.accept()
+    finally:
+        server.close()
+    assert got.requests == [f"http://127.0.0.1:{port}/x.png"]

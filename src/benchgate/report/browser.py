@@ -8,8 +8,8 @@ saying what to install (:func:`unavailable` says so before any work is done).
 
 - :func:`check_page` loads an HTML file and returns a :class:`PageCheck`: console errors and
   uncaught exceptions, every request other than the file itself and ``data:`` URIs (and those
-  requests are refused, so a check never reaches the network), the size of each ``<svg>``, and
-  the page text.
+  requests are refused and the page is kept offline, so a check never reaches the network),
+  the size of each ``<svg>``, and the page text.
 - :func:`overflow` lists what does not fit a window of a given width.
 - :func:`screenshot` writes a PNG, :func:`print_pdf` a PDF (A4 or Letter, print styles).
 """
