@@ -28,8 +28,8 @@ from typing import Any
 import numpy as np
 
 from benchgate.analysis.capture import AdcInfo, Capture
+from benchgate.common.evidence import json_safe, sha256_hex, write_atomic
 from benchgate.errors import CaptureError
-from benchgate.present import json_safe, sha256_hex, write_atomic
 
 FORMATS = (".csv", ".txt", ".wav", ".npz")
 _RATE_COMMENT = re.compile(r"^#\s*sample[_ ]rate\s*[:=]\s*([0-9.eE+-]+)\s*(hz)?\s*$", re.IGNORECASE)

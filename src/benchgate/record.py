@@ -76,7 +76,7 @@ class CaptureRecord:
     views: CaptureViews | None = None
 
     def to_dict(self) -> dict[str, Any]:
-        from benchgate.present import json_safe
+        from benchgate.common.evidence import json_safe
 
         d = {k: v for k, v in self.__dict__.items() if k not in ("metadata", "views")}
         d["warnings"] = list(self.warnings)

@@ -52,7 +52,7 @@ class Analysis:
 
 def _finite(obj: Any) -> Any:
     """JSON-safe copy: NaN and infinities (e.g. inside details) become None."""
-    from benchgate.present import json_safe  # the one conversion, shared with the reports
+    from benchgate.common.evidence import json_safe  # the one conversion, shared with the reports
 
     return json_safe(obj)
 

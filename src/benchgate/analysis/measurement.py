@@ -60,7 +60,7 @@ class Measurement:
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-ready form (NaN and infinities become null)."""
-        from benchgate.present import finite as clean  # NaN and infinities become null
+        from benchgate.common.evidence import finite as clean  # NaN and infinities become null
 
         out: dict[str, Any] = {
             "value": clean(self.value),

@@ -14,13 +14,13 @@ from typing import Any
 
 from benchgate.analysis.capture import Capture
 from benchgate.analysis.names import MEASUREMENT_TITLES
-from benchgate.present import file_sha256, window_text, write_atomic
+from benchgate.common.evidence import file_sha256, write_atomic
 from benchgate.record import CheckRecord, StepRecord, UnitRecord
 from benchgate.report import plots
 from benchgate.report.cautions import GENERAL_CAUTIONS
 from benchgate.report.derivation import derivation_rows, value_text
 from benchgate.report.svg import esc
-from benchgate.units.format import format_quantity
+from benchgate.units.format import format_quantity, window_text
 
 SAFETY = "Bench work can hurt people and boards; follow local codes and licensed practice."
 

@@ -12,8 +12,8 @@ import re
 from pathlib import Path
 from typing import Any
 
+from benchgate.common.evidence import json_safe, write_atomic
 from benchgate.errors import BenchgateError, Position
-from benchgate.present import json_safe, write_atomic
 from benchgate.record import UnitRecord
 
 SCHEMA_FILE = "unit-report.schema.json"
@@ -33,7 +33,7 @@ class ReportError(BenchgateError):
         return str(Position(self.file, self.line, self.column))
 
 
-#: kept for callers of the old name: the one JSON-safe conversion is :func:`benchgate.present.json_safe`.
+#: kept for callers of the old name: the one JSON-safe conversion is :func:`benchgate.common.evidence.json_safe`.
 jsonable = json_safe
 
 

@@ -31,8 +31,8 @@ from collections.abc import Iterable, Mapping
 from pathlib import Path
 from typing import Any
 
-from benchgate.present import value_text, write_atomic
-from benchgate.units.format import format_quantity
+from benchgate.common.evidence import write_atomic
+from benchgate.units.format import format_quantity, value_text
 
 _NOT_XML = re.compile("[^\x09\x0a\x0d\x20-\ud7ff\ue000-\ufffd\U00010000-\U0010ffff]")
 

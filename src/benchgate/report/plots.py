@@ -14,7 +14,7 @@ from dataclasses import dataclass
 
 from benchgate.analysis.capture import Capture
 from benchgate.analysis.views import VIEW_CYCLES, CaptureViews
-from benchgate.present import finite
+from benchgate.common.evidence import finite
 from benchgate.record import CheckRecord
 from benchgate.report import svg
 

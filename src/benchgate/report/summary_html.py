@@ -19,10 +19,10 @@ from urllib.parse import quote
 
 from markupsafe import Markup, escape
 
-from benchgate.present import window_text, write_atomic
+from benchgate.common.evidence import write_atomic
 from benchgate.report.bounds import clip_axis
 from benchgate.report.cautions import GENERAL_CAUTIONS
-from benchgate.units.format import format_quantity
+from benchgate.units.format import format_quantity, window_text
 
 SAFETY = ("Bench work can hurt people and boards: mains-powered instruments, charged capacitors "
           "and hot parts. Follow the plan's cautions, local rules and licensed practice; read the "

@@ -13,8 +13,7 @@ from html import escape
 
 import numpy as np
 
-from benchgate.present import value_text
-from benchgate.units.format import format_quantity
+from benchgate.units.format import format_quantity, value_text
 
 INK = "#1f2933"
 GRID = "#d9dee3"

@@ -18,8 +18,8 @@ from typing import Any
 
 from benchgate import __version__
 from benchgate.analysis.measurement import Measurement
+from benchgate.common.evidence import file_sha256, utc_now
 from benchgate.judge.rules import judge
-from benchgate.present import file_sha256, utc_now
 from benchgate.record import CaptureRecord, CheckRecord, StepRecord, UnitRecord
 from benchgate.runner.execute import step_status
 from benchgate.runner.options import RunOutcome, exit_code_for

@@ -1,4 +1,5 @@
-"""The one module for evidence texts and file habits (``benchgate.present``)."""
+"""How evidence is kept (``benchgate.common.evidence``): JSON-safe values, UTC time, atomic
+files, SHA-256."""
 
 from __future__ import annotations
 
@@ -8,21 +9,7 @@ import math
 import numpy as np
 import pytest
 
-from benchgate import present
-
-
-def test_window_text_all_shapes():
-    assert present.window_text(880.0, 1030.0, "Hz") == "880.0 Hz … 1.030 kHz"
-    assert present.window_text(0.6, None, "V") == "≥ 600.0 mV"
-    assert present.window_text(None, 5.0, "%") == "≤ 5.000 %"
-    assert present.window_text(None, None, "V") == "any value"
-
-
-def test_value_text_with_and_without_u():
-    assert present.value_text(951.2, 0.4, "Hz") == "951.2 Hz ± 400.0 mHz"
-    # GUM (JCGM 100:2008) 7.2.6: U stated with at most two significant digits when asked
-    assert present.value_text(951.2, 0.4, "Hz", u_digits=2) == "951.2 Hz ± 400 mHz"
-    assert present.value_text(1.5, None, "V") == "1.500 V"
+from benchgate.common import evidence as present
 
 
 def test_finite_and_json_safe():

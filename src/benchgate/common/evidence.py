@@ -1,8 +1,7 @@
-"""How benchgate states and keeps its evidence: one place for the small texts and file habits
-that reports, the runner's messages, the verdict reasons, the database and the CLI share.
+"""How benchgate keeps its evidence: one place for the habits that reports, capture files, the
+runner's records, the database and the CLI share. (The texts of a window and of value ± U are
+:func:`benchgate.units.format.window_text` and :func:`~benchgate.units.format.value_text`.)
 
-- :func:`window_text` — an acceptance window as text: ``880.0 Hz … 1.030 kHz``, ``≥ 600.0 mV``.
-- :func:`value_text` — a value with its expanded uncertainty: ``951.2 Hz ± 400.0 mHz``.
 - :func:`finite` and :func:`json_safe` — NaN and infinities become None (JSON has no NaN), numpy
   values plain Python.
 - :func:`utc_now` — the current UTC time as ISO 8601 with milliseconds.
@@ -10,7 +9,7 @@ that reports, the runner's messages, the verdict reasons, the database and the C
   the same folder, then an atomic rename; the temporary file is removed on any failure).
 - :func:`file_sha256` and :func:`sha256_hex` — the SHA-256 of a file or of bytes, in hex.
 
-Imports only the standard library and :mod:`benchgate.units`, so every layer may use it.
+Part of the shared bottom layer: it imports nothing of benchgate, so every layer may use it.
 """
 
 from __future__ import annotations
@@ -24,37 +23,7 @@ from collections.abc import Callable, Mapping
 from pathlib import Path
 from typing import IO, Any
 
-from benchgate.units.format import format_quantity
-
-__all__ = ["file_sha256", "finite", "json_safe", "sha256_hex", "utc_now", "value_text", "window_text",
-           "write_atomic"]
-
-
-def window_text(low: float | None, high: float | None, unit: str, digits: int = 4) -> str:
-    """An acceptance window as text: ``low … high``, ``≥ low`` or ``≤ high`` (SI prefixes).
-
-    A window with neither limit is ``any value``.
-    """
-    if low is not None and high is not None:
-        return f"{format_quantity(low, unit, digits)} … {format_quantity(high, unit, digits)}"
-    if low is not None:
-        return f"≥ {format_quantity(low, unit, digits)}"
-    if high is not None:
-        return f"≤ {format_quantity(high, unit, digits)}"
-    return "any value"
-
-
-def value_text(value: float, uncertainty: float | None, unit: str, digits: int = 4,
-               u_digits: int | None = None) -> str:
-    """``value ± U`` with SI prefixes; just the value when ``uncertainty`` is None.
-
-    ``u_digits`` significant digits for U (default: as many as the value's; GUM, JCGM
-    100:2008, 7.2.6, suggests at most two).
-    """
-    text = format_quantity(value, unit, digits)
-    if uncertainty is None:
-        return text
-    return f"{text} ± {format_quantity(uncertainty, unit, digits if u_digits is None else u_digits)}"
+__all__ = ["file_sha256", "finite", "json_safe", "sha256_hex", "utc_now", "write_atomic"]
 
 
 def finite(x: float | None) -> float | None:
