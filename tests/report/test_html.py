@@ -192,6 +192,7 @@ def test_reanalysis_reports_are_named_and_headlined_as_such(tmp_path, capture):
     banner = html[html.index('<header class="banner"'):html.index("</header>")]
     assert "Reanalysis — not a test run" in banner and "Reanalysis without hardware" in banner
     assert "<title>REANALYSIS · FAIL" in html
+    assert "<span>Re-judged</span>" in banner and "<span>Tested</span>" not in banner
     # an ordinary run keeps the plain name and no reanalysis mark
     plain = write_reports(make_record("TB3-0098"), ReportLayout(tmp_path, "tb3", "TB3-0098",
                                                                 "2026-12-02T08:00:00Z"), {})
