@@ -33,10 +33,6 @@ class ReportError(BenchgateError):
         return str(Position(self.file, self.line, self.column))
 
 
-#: kept for callers of the old name: the one JSON-safe conversion is :func:`benchgate.common.evidence.json_safe`.
-jsonable = json_safe
-
-
 def report_dict(record: UnitRecord) -> dict[str, Any]:
     """The JSON body of ``record``'s report."""
     return json_safe(record.to_dict())
