@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import shutil
 import uuid
-from collections.abc import Callable
+from collections.abc import Callable, Mapping
 from functools import partial
 from pathlib import Path
 from typing import Any
@@ -25,7 +25,7 @@ from benchgate.runner.execute import step_status
 from benchgate.runner.options import RunOutcome, exit_code_for
 
 
-def _judge_all(step: Any, srec: StepRecord, plan: Any, measurements: dict[str, Measurement | None]) -> None:
+def _judge_all(step: Any, srec: StepRecord, plan: Any, measurements: Mapping[str, Measurement | None]) -> None:
     for check in step.checks:
         m = measurements.get(check.measurement)
         cv = judge(m, check.window, plan.decision)
@@ -39,7 +39,7 @@ def _invalid_all(step: Any, reason: str) -> dict[str, Measurement]:
 
 def reanalyze(report: str | Path, plan: Any, *, reports_dir: str | Path | None = None,
               read_report: Callable[..., UnitRecord] | None = None, load_capture: Callable[..., Any] | None = None,
-              analyze: Callable[..., Any] | None = None, write_reports: Callable[..., dict] | None = None,
+              analyze: Callable[..., Any] | None = None, write_reports: Callable[..., dict[str, Path]] | None = None,
               layout_factory: Callable[..., Any] | None = None) -> RunOutcome:
     """Re-judge the run stored in ``report`` (a unit JSON report) against ``plan``.
 
@@ -47,17 +47,25 @@ def reanalyze(report: str | Path, plan: Any, *, reports_dir: str | Path | None =
     under the new plan's id; captures are copied beside it when that is another folder.
     """
     if read_report is None:
-        from benchgate.report.json_report import read_json as read_report
-    if load_capture is None:
-        from benchgate.capfile import load_capture
-    if analyze is None:
-        from benchgate.analysis import analyze as _analyze
+        from benchgate.report.json_report import read_json
 
-        analyze = partial(_analyze, views=True)  # the report draws this analysis's views
+        read_report = read_json
+    if load_capture is None:
+        from benchgate.capfile import load_capture as load
+
+        load_capture = load
+    if analyze is None:
+        from benchgate.analysis import analyze as analyse_once
+
+        analyze = partial(analyse_once, views=True)  # the report draws this analysis's views
     if write_reports is None:
-        from benchgate.report import write_reports
+        from benchgate.report import write_reports as write
+
+        write_reports = write
     if layout_factory is None:
-        from benchgate.report.layout import ReportLayout as layout_factory
+        from benchgate.report.layout import ReportLayout
+
+        layout_factory = ReportLayout
 
     report = Path(report)
     old = read_report(report)
