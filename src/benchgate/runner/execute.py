@@ -240,7 +240,8 @@ class Executor:
                             for c in step.checks}
             warnings = [reason]
         self._keep(step, srec, key, capture, warnings)
-        srec.capture.views = views
+        if srec.capture is not None:
+            srec.capture.views = views
         for check in step.checks:
             self._judge(step, srec, check, measurements.get(check.measurement))
 
