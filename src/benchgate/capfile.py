@@ -16,20 +16,19 @@ Every problem raises :class:`benchgate.errors.CaptureError` naming the file (and
 
 from __future__ import annotations
 
-import hashlib
 import io
 import json
 import math
 import os
 import re
 import struct
-import tempfile
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
 from benchgate.analysis.capture import AdcInfo, Capture
+from benchgate.common.evidence import json_safe, sha256_hex, write_atomic
 from benchgate.errors import CaptureError
 
 FORMATS = (".csv", ".txt", ".wav", ".npz")
@@ -135,30 +134,14 @@ def save_capture(capture: Capture, path: str | os.PathLike) -> str:
         "channel": capture.channel,
         "adc": capture.adc.to_dict() if capture.adc is not None else None,
         "clock_ppm": capture.clock_ppm,
-        "metadata": _jsonable(dict(capture.metadata)),
+        "metadata": json_safe(dict(capture.metadata)),
     }
     buf = io.BytesIO()
     np.savez_compressed(buf, samples=np.asarray(capture.samples, dtype=np.float64),
                         sample_rate=np.float64(capture.sample_rate), meta=np.array(json.dumps(meta)))
     payload = buf.getvalue()
-    target = Path(path)
-    target.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=".capture-", suffix=".tmp", dir=target.parent)
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(payload)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, target)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
-    return hashlib.sha256(payload).hexdigest()
-
-
-def _jsonable(obj: Any) -> Any:
-    return json.loads(json.dumps(obj, default=str))
+    write_atomic(path, payload, sync=True)
+    return sha256_hex(payload)  # the writer's digest: nobody needs to read the file back for it
 
 
 def _is_wav(p: Path, data: bytes) -> bool:

@@ -12,6 +12,7 @@ from dataclasses import dataclass, field
 from typing import Any
 
 from benchgate.analysis.measurement import Measurement
+from benchgate.analysis.views import CaptureViews
 from benchgate.judge.rules import Verdict
 from benchgate.plan.limits import Window
 
@@ -57,7 +58,12 @@ class CheckRecord:
 
 @dataclass
 class CaptureRecord:
-    """A capture kept as a file beside the report."""
+    """A capture kept as a file beside the report.
+
+    ``sha256`` is the digest the writer returned when it saved the file; ``metadata`` the
+    capture's own metadata (instrument, framing, losses…, JSON-safe); ``views`` the plot data
+    from the one analysis the checks were judged on (None in records from before they were kept).
+    """
 
     file: str  # file name, relative to the report's folder
     sha256: str
@@ -66,14 +72,24 @@ class CaptureRecord:
     samples: int
     instrument: str
     warnings: list[str] = field(default_factory=list)
+    metadata: dict[str, Any] = field(default_factory=dict)
+    views: CaptureViews | None = None
 
     def to_dict(self) -> dict[str, Any]:
-        return dict(self.__dict__)
+        from benchgate.common.evidence import json_safe
+
+        d = {k: v for k, v in self.__dict__.items() if k not in ("metadata", "views")}
+        d["warnings"] = list(self.warnings)
+        d["metadata"] = json_safe(dict(self.metadata))
+        d["views"] = None if self.views is None else self.views.to_dict()
+        return d
 
     @classmethod
     def from_dict(cls, d: dict[str, Any]) -> CaptureRecord:
+        views = d.get("views")
         return cls(**{k: d[k] for k in ("file", "sha256", "channel", "sample_rate", "samples", "instrument")},
-                   warnings=list(d.get("warnings", [])))
+                   warnings=list(d.get("warnings", [])), metadata=dict(d.get("metadata") or {}),
+                   views=None if not views else CaptureViews.from_dict(views))
 
 
 @dataclass

@@ -95,3 +95,16 @@ def test_reanalysis_files_say_so_in_their_names_and_headline(stored, tmp_path, c
     assert report.exists() and report.with_suffix(".html").exists()
     html = Path(out["report"]["html"]).read_text(encoding="utf-8")
     assert "Reanalysis without hardware" in html and "the original run was pass under plan v1.0" in html
+
+
+def test_a_run_keeps_its_views_and_capture_metadata_in_the_record(stored):
+    _, report = stored
+    data = json.loads(report.read_text())
+    caps = [s["capture"] for s in data["steps"] if s["capture"]]
+    assert caps
+    for cap in caps:
+        views = cap["views"]
+        assert views is not None and views["fundamental"] is not None
+        assert len(views["spectrum"]["f"]) == len(views["spectrum"]["db"]) > 100
+        assert len(views["envelope"]["t"]) == len(views["envelope"]["low"]) > 10
+        assert cap["metadata"]["instrument"]["role"] == "adc"

@@ -69,8 +69,19 @@ def test_pdf_without_a_browser_says_so(stored, tmp_path, monkeypatch, capsys):
     assert not (tmp_path / "r.pdf").exists()
 
 
+def test_pdf_without_playwright_says_what_to_install(stored, tmp_path, monkeypatch, capsys):
+    import sys
+
+    monkeypatch.setitem(sys.modules, "playwright", None)  # as if the browser extra were not installed
+    monkeypatch.setitem(sys.modules, "playwright.sync_api", None)
+    assert main(["report", str(stored["json"]), "--pdf", str(tmp_path / "r.pdf")]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "pip install 'benchgate[browser]'" in err[0] and "Playwright" in err[0]
+    assert not (tmp_path / "r.pdf").exists()
+
+
 @pytest.mark.browser
-@pytest.mark.skipif(browser.find_chromium() is None, reason="no Chromium installed (Debian package: chromium)")
+@pytest.mark.skipif(browser.unavailable() is not None, reason=str(browser.unavailable()))
 @pytest.mark.parametrize("paper", ["a4", "letter"])
 def test_pdf_with_the_browser(stored, tmp_path, capsys, paper):
     pdf = tmp_path / f"r-{paper}.pdf"
@@ -84,3 +95,20 @@ def test_pdf_with_the_browser(stored, tmp_path, capsys, paper):
     for w, h in boxes:
         assert float(w) == pytest.approx(want[0], abs=1.0) and float(h) == pytest.approx(want[1], abs=1.0)
     assert capsys.readouterr().out.strip() == f"pdf: {pdf}"
+
+
+def test_rerender_draws_the_stored_views_and_still_checks_the_files(tmp_path, capsys):
+    from benchgate.analysis import analyze
+
+    capture = tone_capture()
+    layout = ReportLayout(tmp_path / "reports", "tb3", "TB3-0101", "2026-12-01T10:00:00Z")
+    layout.ensure()
+    cap = layout.capture_path("capture-tone")
+    rec = make_record("TB3-0101", capture_file=layout.relative(cap), sha256=save_npz(capture, cap))
+    rec.steps[1].capture.views = analyze(capture, ["frequency"], views=True).views
+    paths = write_reports(rec, layout, {})
+    cap.write_bytes(cap.read_bytes() + b"\0")  # tampered after the run
+    assert main(["report", str(paths["json"])]) == 0
+    html = paths["html"].read_text(encoding="utf-8")
+    assert "has changed since the run (SHA-256 differs)" in html
+    assert 'aria-label="spectrum, channel out"' in html  # drawn from the record's views

@@ -1,9 +1,13 @@
-"""Unit reports in a real browser (issue 6): banner, drawn plots, no console errors, no requests."""
+"""Unit reports in a real browser: the system Chromium driven by Playwright (issues 6 and 13).
+
+Banner, drawn plots, no console errors, no requests; the checks themselves are shown able to fail.
+"""
 
 from __future__ import annotations
 
-import socket
+import re
 import struct
+import sys
 
 import pytest
 from report_samples import HOSTILE_SERIAL, make_record, save_npz, tone_capture
@@ -11,8 +15,8 @@ from report_samples import HOSTILE_SERIAL, make_record, save_npz, tone_capture
 from benchgate.report import browser, write_reports
 from benchgate.report.layout import ReportLayout
 
-_skip = pytest.mark.skipif(browser.find_chromium() is None,
-                           reason="no Chromium installed (Debian package: chromium); .ci/run installs it")
+_skip = pytest.mark.skipif(browser.unavailable() is not None,
+                           reason=f"{browser.unavailable()} (.ci/run installs Chromium; the test extra Playwright)")
 
 
 def needs_chromium(f):
@@ -99,90 +103,6 @@ def test_screenshot_png(report, tmp_path_factory):
     assert width == 1000 and height > 1500
 
 
-# --- the stdlib WebSocket client, against RFC 6455 directly (no browser needed) ---
-
-
-def test_accept_key_known_answer():
-    # RFC 6455, 1.3: the worked example of the opening handshake
-    assert browser.accept_key("dGhlIHNhbXBsZSBub25jZQ==") == "s3pPLMBiTxaQ9kYGzzhZRbK+xOo="
-
-
-def _server_frame(opcode: int, payload: bytes, fin: bool = True) -> bytes:
-    # RFC 6455, 5.2: server frames are not masked; 7-bit, 16-bit or 64-bit length
-    head = bytes([(0x80 if fin else 0) | opcode])
-    n = len(payload)
-    if n < 126:
-        head += bytes([n])
-    elif n < 65536:
-        head += bytes([126]) + struct.pack("!H", n)
-    else:
-        head += bytes([127]) + struct.pack("!Q", n)
-    return head + payload
-
-
-def _read_client_frame(sock: socket.socket) -> tuple[int, bytes]:
-    def need(k):
-        buf = b""
-        while len(buf) < k:
-            buf += sock.recv(k - len(buf))
-        return buf
-
-    b0, b1 = need(2)
-    assert b1 & 0x80, "RFC 6455, 5.3: every client frame is masked"
-    n = b1 & 0x7F
-    if n == 126:
-        n = struct.unpack("!H", need(2))[0]
-    elif n == 127:
-        n = struct.unpack("!Q", need(8))[0]
-    mask = need(4)
-    data = need(n)
-    return b0 & 0x0F, bytes(b ^ mask[i % 4] for i, b in enumerate(data))
-
-
-def test_frames_of_every_length_fragments_and_ping():
-    client, server = socket.socketpair()
-    client.settimeout(5)
-    server.settimeout(5)
-    try:
-        ws = browser._WebSocket(client)
-        big = ("x" * 70_000).encode()
-        server.sendall(_server_frame(1, b"hello") + _server_frame(1, b"m" * 300) + _server_frame(1, big))
-        assert ws.recv() == "hello"
-        assert ws.recv() == "m" * 300
-        assert ws.recv() == "x" * 70_000
-        # a fragmented message with a ping between the fragments (RFC 6455, 5.4 and 5.5.2)
-        server.sendall(_server_frame(1, b"frag", fin=False) + _server_frame(9, b"p!") +
-                       _server_frame(0, "ment ✓".encode(), fin=True))
-        assert ws.recv() == "fragment ✓"
-        assert _read_client_frame(server) == (0xA, b"p!")  # pong echoes the ping's data
-        ws.send('{"id": 1}')
-        assert _read_client_frame(server) == (1, b'{"id": 1}')
-        ws.send("y" * 5000)
-        assert _read_client_frame(server) == (1, b"y" * 5000)
-        server.sendall(_server_frame(8, struct.pack("!H", 1000)))
-        with pytest.raises(browser.BrowserError, match="closed"):
-            ws.recv()
-    finally:
-        client.close()
-        server.close()
-
-
-def test_a_timeout_mid_frame_loses_nothing():
-    client, server = socket.socketpair()
-    try:
-        client.settimeout(0.05)
-        ws = browser._WebSocket(client)
-        frame = _server_frame(1, b"a" * 1000)
-        server.sendall(frame[:500])
-        with pytest.raises(TimeoutError):
-            ws.recv()
-        server.sendall(frame[500:])
-        assert ws.recv() == "a" * 1000
-    finally:
-        client.close()
-        server.close()
-
-
 @needs_chromium
 def test_unit_report_fits_700_px(tmp_path):
     # a real demo-sized report: long measurement names, derivation details, long reasons
@@ -211,3 +131,89 @@ def test_the_overflow_check_can_fail(tmp_path):
     found = browser.overflow(page, width=700)
     assert any(f.startswith("td") and "content" in f for f in found), found
     assert any(f.startswith("page:") for f in found), found
+
+
+@needs_chromium
+def test_print_pdf_a4_and_letter(report, tmp_path):
+    sizes = {}
+    for paper in ("a4", "letter"):
+        out = browser.print_pdf(report, tmp_path / f"r-{paper}.pdf", paper=paper)
+        data = out.read_bytes()
+        assert data.startswith(b"%PDF-")  # ISO 32000-1, 7.5.2: the file header
+        box = re.search(rb"/MediaBox\s*\[\s*0 0 ([0-9.]+) ([0-9.]+)\s*\]", data)
+        sizes[paper] = (float(box.group(1)), float(box.group(2)))
+        assert len(re.findall(rb"/Type\s*/Page(?![a-z])", data)) >= 2  # the report runs over pages
+    # ISO 216 A4 = 210 mm x 297 mm = 595.3 x 841.9 pt; ANSI Letter = 8.5 in x 11 in = 612 x 792 pt
+    # (Chromium rounds the page to whole CSS pixels, so allow 1.5 pt)
+    assert sizes["a4"] == (pytest.approx(595.3, abs=1.5), pytest.approx(841.9, abs=1.5))
+    assert sizes["letter"] == (pytest.approx(612.0, abs=1.5), pytest.approx(792.0, abs=1.5))
+
+
+@needs_chromium
+def test_one_browser_serves_several_checks(report, tmp_path):
+    with browser.session() as b:
+        first = browser.check_page(report, browser=b)
+        second = browser.overflow(report, width=1000, browser=b)
+    assert first.requests == [] and second == []
+
+
+def test_without_playwright_the_message_says_what_to_install(monkeypatch):
+    monkeypatch.setitem(sys.modules, "playwright", None)  # import fails as if not installed
+    monkeypatch.setitem(sys.modules, "playwright.sync_api", None)
+    assert browser.unavailable() == browser.NO_PLAYWRIGHT
+    with pytest.raises(browser.BrowserError, match=r"pip install 'benchgate\[browser\]'"):
+        with browser.session():
+            pass
+
+
+def test_without_chromium_the_message_names_the_package(monkeypatch):
+    pytest.importorskip("playwright.sync_api")
+    monkeypatch.setattr(browser.shutil, "which", lambda name: None)
+    monkeypatch.setattr(browser.os, "access", lambda path, mode: False)
+    assert browser.find_chromium() is None
+    assert browser.unavailable() == browser.NO_BROWSER
+    with pytest.raises(browser.BrowserError, match="install Debian's chromium package"):
+        browser.check_page(__file__)
+
+
+def test_a_browser_that_cannot_start_is_one_clear_error(tmp_path):
+    pytest.importorskip("playwright.sync_api")
+    fake = tmp_path / "chromium"
+    fake.write_text("#!/bin/sh\necho 'cannot open display' >&2\nexit 3\n")
+    fake.chmod(0o755)
+    with pytest.raises(browser.BrowserError, match="did not start"):
+        with browser.session(timeout=20, chromium=str(fake)):
+            pass
+
+
+@needs_chromium
+def test_a_missing_local_file_is_a_request_and_an_error(tmp_path):
+    # what the browser itself logs (a failed load) counts as a console error, as any script error
+    page = tmp_path / "missing.html"
+    page.write_text('<!DOCTYPE html><html><body><img src="nothere.png"><p>x</p></body></html>',
+                    encoding="utf-8")
+    got = browser.check_page(page)
+    assert [u.rsplit("/", 1)[1] for u in got.requests] == ["nothere.png"]
+    assert any("ERR_FILE_NOT_FOUND" in e for e in got.console_errors), got.console_errors
+
+
+@needs_chromium
+def test_a_network_request_is_seen_but_never_sent(tmp_path):
+    import socket
+
+    server = socket.socket()
+    server.bind(("127.0.0.1", 0))
+    server.listen(4)
+    port = server.getsockname()[1]
+    page = tmp_path / "net.html"
+    page.write_text(f'<!DOCTYPE html><html><body><img src="http://127.0.0.1:{port}/x.png"></body></html>',
+                    encoding="utf-8")
+    try:
+        got = browser.check_page(page)
+        # a connection the browser had made would wait in the listen backlog now
+        server.setblocking(False)
+        with pytest.raises(BlockingIOError):
+            server.accept()
+    finally:
+        server.close()
+    assert got.requests == [f"http://127.0.0.1:{port}/x.png"]

@@ -134,11 +134,11 @@ def test_fail_and_reanalysis(tmp_path, capture):
 
 def test_missing_and_changed_captures_are_noted(tmp_path, capture):
     rec = make_record(capture_file="gone.npz")
-    html = render_html(rec, {}, folder=tmp_path)
+    html = render_html(rec, {}, verify=tmp_path)
     assert "capture file gone.npz is not beside the report" in html
     assert "capture not available: plots not drawn" in html
     save_npz(capture, tmp_path / "gone.npz")
-    html = render_html(rec, {"capture-tone": capture}, folder=tmp_path)
+    html = render_html(rec, {"capture-tone": capture}, verify=tmp_path)
     assert "has changed since the run (SHA-256 differs)" in html
 
 
@@ -154,6 +154,7 @@ def test_empty_serial_is_stated():
 
 def test_hostile_channel_name_is_escaped_inside_svg(capture):
     rec = make_record()
+    rec.steps[1].capture.channel = '"><svg onload=x>'  # the figures are labelled with the record's channel
     evil = capture.__class__(capture.samples, capture.sample_rate, channel='"><svg onload=x>', adc=capture.adc)
     html = render_html(rec, {"capture-tone": evil})
     assert "onload=x>" not in html and "&quot;&gt;&lt;svg onload=x&gt;" in html
@@ -191,6 +192,7 @@ def test_reanalysis_reports_are_named_and_headlined_as_such(tmp_path, capture):
     banner = html[html.index('<header class="banner"'):html.index("</header>")]
     assert "Reanalysis — not a test run" in banner and "Reanalysis without hardware" in banner
     assert "<title>REANALYSIS · FAIL" in html
+    assert "<span>Re-judged</span>" in banner and "<span>Tested</span>" not in banner
     # an ordinary run keeps the plain name and no reanalysis mark
     plain = write_reports(make_record("TB3-0098"), ReportLayout(tmp_path, "tb3", "TB3-0098",
                                                                 "2026-12-02T08:00:00Z"), {})
@@ -269,3 +271,64 @@ def test_general_cautions_and_plan_cautions_in_the_safety_section():
     for words in ("current limit", "emergency stop", "isolation transformer", "ESD-safe workstation",
                   "charged after power-off"):
         assert words in safety, words
+
+
+# --- issue 10: evidence computed once (views from the run's analysis, digests from the writer) ---
+
+
+def _with_views(tmp_path, capture):
+    from benchgate.analysis import analyze
+
+    layout = ReportLayout(tmp_path, "tb3", "TB3-0100", "2026-12-01T10:00:00Z")
+    layout.ensure()
+    cap_path = layout.capture_path("capture-tone")
+    sha = save_npz(capture, cap_path)
+    rec = make_record("TB3-0100", capture_file=layout.relative(cap_path), sha256=sha)
+    analysis = analyze(capture, ["frequency", "amplitude", "thd", "startup_time"], views=True)
+    rec.steps[1].capture.views = analysis.views
+    rec.steps[1].capture.metadata = dict(capture.metadata)
+    return rec, layout, cap_path
+
+
+def test_reports_draw_the_runs_views_without_analysing_again(tmp_path, capture, monkeypatch):
+    rec, layout, _ = _with_views(tmp_path, capture)
+
+    def no_second_analysis(*args, **kwargs):
+        raise AssertionError("the report analysed the capture again")
+
+    import benchgate.analysis
+    import benchgate.analysis.core
+
+    monkeypatch.setattr(benchgate.analysis, "analyze", no_second_analysis)
+    monkeypatch.setattr(benchgate.analysis.core, "analyze", no_second_analysis)
+    monkeypatch.setattr(plots, "views_of", no_second_analysis)
+    html = write_reports(rec, layout, {})["html"].read_text(encoding="utf-8")  # no capture given at all
+    for kind in ("waveform", "envelope", "spectrum"):
+        assert f'aria-label="{kind}, channel out"' in html
+    assert "could not draw" not in html and "plots not drawn" not in html
+    assert html.count("<polyline") >= 2 and "f₀ 955.0 Hz" in html
+
+
+def test_views_survive_the_json_report(tmp_path, capture):
+    from benchgate.report.json_report import read_json
+
+    rec, layout, _ = _with_views(tmp_path, capture)
+    paths = write_reports(rec, layout, {})
+    back = read_json(paths["json"]).steps[1].capture
+    v = rec.steps[1].capture.views
+    assert back.views is not None and back.views.fundamental == pytest.approx(v.fundamental)
+    assert back.views.spectrum_db.size == v.spectrum_db.size and back.views.cycles_v.size == v.cycles_v.size
+    assert back.metadata == {"source": "synthetic"}
+    again = render_html(read_json(paths["json"]), {})
+    assert 'aria-label="spectrum, channel out"' in again and "plots not drawn" not in again
+
+
+def test_a_fresh_report_trusts_the_writers_digest(tmp_path, capture):
+    # the runner's writer returned the SHA-256 as it saved the file; writing the report does
+    # not read the file back (a stored report re-rendered later does check it)
+    rec, layout, cap_path = _with_views(tmp_path, capture)
+    cap_path.unlink()
+    html = write_reports(rec, layout, {})["html"].read_text(encoding="utf-8")
+    assert "not beside the report" not in html and rec.steps[1].capture.sha256 in html
+    checked = render_html(rec, {}, verify=layout.folder)
+    assert "capture file " in checked and "is not beside the report" in checked

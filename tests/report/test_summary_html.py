@@ -211,3 +211,16 @@ def test_summary_carries_the_bench_cautions(db):
     footer = page[page.index("<footer>"):]
     for words in ("emergency stop", "isolation transformer", "ESD-safe workstation", "charged after power-off"):
         assert words in footer, words
+
+
+def test_the_stores_unit_and_run_counts_are_shown_with_their_definitions(db):
+    from dataclasses import replace
+
+    s = replace(db.summary(lot="TB3-2612"), cut_short=2, units_untested=3, incomplete=1)
+    page = render_summary_html(s)
+    cards = page[page.index('<section id="yield">'):page.index('<section id="units">')]
+    # docs/results.md: units tested have a complete run; the others are counted apart
+    assert "3 more units never completed a run" in cards
+    assert "1 never finished, 2 cut short (aborted or station error)" in cards
+    assert "passed their latest complete run" in cards and "passed their first complete run" in cards
+    assert "latest complete run" in page[page.index('<p class="notes">'):]

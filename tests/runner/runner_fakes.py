@@ -259,7 +259,7 @@ def make_bench(frequency=1000.0, current=0.004):
 # ---------------------------------------------------------------- services
 
 
-def fake_analyze(capture, names, *, harmonics=10):
+def fake_analyze(capture, names, *, harmonics=10, views=False):
     """Frequency from zero crossings of the mean-removed record (enough for these stand-ins)."""
     from types import SimpleNamespace
 
@@ -272,7 +272,7 @@ def fake_analyze(capture, names, *, harmonics=10):
             out[name] = Measurement("frequency", f, "Hz", 0.5)
         else:
             out[name] = Measurement.invalid(name, "Hz", "not computed by the stand-in")
-    return SimpleNamespace(measurements=out, warnings=())
+    return SimpleNamespace(measurements=out, warnings=(), views=None)
 
 
 def fake_save_capture(capture, path):

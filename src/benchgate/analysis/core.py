@@ -21,7 +21,8 @@ class Analysis:
 
     ``steady_start`` is the time (s from the record start) where the steady part begins;
     ``fundamental`` the fitted frequency (Hz) or None; ``harmonics`` holds
-    ``(order, frequency Hz, level dBc)`` for each harmonic considered.
+    ``(order, frequency Hz, level dBc)`` for each harmonic considered; ``views`` the plot data
+    of the capture (:class:`~benchgate.analysis.views.CaptureViews`) when asked for.
     """
 
     warnings: tuple[str, ...]
@@ -33,6 +34,7 @@ class Analysis:
     sample_rate: float = math.nan
     duration: float = 0.0
     extra: dict[str, Any] = field(default_factory=dict)
+    views: Any = None  # benchgate.analysis.views.CaptureViews, when asked for
 
     def to_dict(self) -> dict[str, Any]:
         """The shape ``benchgate analyze --json`` prints (docs/analyze-output.schema.json)."""
@@ -50,16 +52,13 @@ class Analysis:
 
 def _finite(obj: Any) -> Any:
     """JSON-safe copy: NaN and infinities (e.g. inside details) become None."""
-    if isinstance(obj, dict):
-        return {k: _finite(v) for k, v in obj.items()}
-    if isinstance(obj, (list, tuple)):
-        return [_finite(v) for v in obj]
-    if isinstance(obj, float) and not math.isfinite(obj):
-        return None
-    return obj
+    from benchgate.common.evidence import json_safe  # the one conversion, shared with the reports
+
+    return json_safe(obj)
 
 
-def analyze(capture: Capture, names: Iterable[str] | None = None, *, harmonics: int = 10) -> Analysis:
+def analyze(capture: Capture, names: Iterable[str] | None = None, *, harmonics: int = 10,
+            views: bool = False) -> Analysis:
     """Measure a capture.
 
     Parameters
@@ -70,6 +69,9 @@ def analyze(capture: Capture, names: Iterable[str] | None = None, *, harmonics: 
         Measurement names (default: all of ``MEASUREMENT_NAMES``, in that order).
     harmonics : int
         Highest harmonic order summed for THD (and listed in ``Analysis.harmonics``).
+    views : bool
+        Also gather the plot data of the capture (``Analysis.views``) from the same context,
+        with the start-up instant (measured for it when not asked for among ``names``).
 
     Returns
     -------
@@ -89,6 +91,13 @@ def analyze(capture: Capture, names: Iterable[str] | None = None, *, harmonics: 
     tone = ctx.tone
     fundamental = tone.frequency if tone.ok else None
     harm = levels_dbc(harmonic_analysis(ctx)) if tone.ok else ()
+    drawn = None
+    if views:
+        from benchgate.analysis.views import capture_views
+
+        start = results.get("startup_time") or measure("startup_time", capture, ctx)
+        drawn = capture_views(capture, ctx, startup=start.value if start.valid and math.isfinite(start.value)
+                              else None)
     return Analysis(
         warnings=ctx.warnings,
         measurements=results,
@@ -98,4 +107,5 @@ def analyze(capture: Capture, names: Iterable[str] | None = None, *, harmonics: 
         samples=capture.n,
         sample_rate=capture.sample_rate,
         duration=capture.duration,
+        views=drawn,
     )

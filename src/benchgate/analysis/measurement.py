@@ -60,8 +60,7 @@ class Measurement:
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-ready form (NaN and infinities become null)."""
-        def clean(x: float | None) -> float | None:
-            return x if x is not None and math.isfinite(x) else None
+        from benchgate.common.evidence import finite as clean  # NaN and infinities become null
 
         out: dict[str, Any] = {
             "value": clean(self.value),

@@ -1,7 +1,9 @@
 """``benchgate report REPORT.json [--html FILE] [--pdf FILE]``: re-render a stored unit report.
 
-The HTML is rebuilt from the JSON report and the captures stored beside it (no hardware);
-``--pdf`` prints it with headless Chromium when one is installed.
+The HTML is rebuilt from the JSON report: its plots from the views the run's analysis kept (older
+reports: from the captures stored beside it), each capture file checked against its SHA-256;
+``--pdf`` prints it with the system's headless Chromium, driven by Playwright (the ``browser``
+extra), and says in one line what is missing when either is not installed.
 """
 
 from __future__ import annotations
@@ -21,7 +23,8 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     )
     p.add_argument("report", metavar="REPORT.json", help="a JSON unit report written by benchgate")
     p.add_argument("--html", metavar="FILE", help="write the HTML report here")
-    p.add_argument("--pdf", metavar="FILE", help="print the report to this PDF (needs Chromium)")
+    p.add_argument("--pdf", metavar="FILE",
+                   help="print the report to this PDF (needs Chromium and benchgate[browser])")
     p.add_argument("--paper", choices=("a4", "letter"), default="a4", help="PDF paper size (default a4)")
     p.set_defaults(func=run)
     return p
@@ -33,8 +36,8 @@ def _load_captures(record, folder: Path) -> tuple[dict, list[str]]:
 
     captures, problems = {}, []
     for step in record.steps:
-        if step.capture is None:
-            continue
+        if step.capture is None or step.capture.views is not None:
+            continue  # the record's own views are drawn; only older records need the capture
         path = folder / step.capture.file
         if not path.is_file():
             problems.append(f"{path}: capture file missing; its plots are left out")
@@ -55,8 +58,9 @@ def run(args: argparse.Namespace) -> int:
 
     src = Path(args.report)
     # say so before doing any work when the PDF cannot be made
-    if args.pdf and browser.find_chromium() is None:
-        print(f"benchgate: {browser.NO_BROWSER}", file=sys.stderr)
+    why = browser.unavailable() if args.pdf else None
+    if why:
+        print(f"benchgate: {why}", file=sys.stderr)
         return 2
     record = read_json(src)
     captures, problems = _load_captures(record, src.parent)
@@ -65,11 +69,11 @@ def run(args: argparse.Namespace) -> int:
     html_path = Path(args.html) if args.html else (None if args.pdf else src.with_suffix(".html"))
     with tempfile.TemporaryDirectory(prefix="benchgate-report-") as tmp:
         if html_path is not None:
-            write_html(record, html_path, captures, folder=src.parent)
+            write_html(record, html_path, captures, verify=src.parent)
             print(f"html: {html_path}")
             source = html_path
         else:
-            source = write_html(record, Path(tmp) / "report.html", captures, folder=src.parent)
+            source = write_html(record, Path(tmp) / "report.html", captures, verify=src.parent)
         if args.pdf:
             browser.print_pdf(source, args.pdf, paper=args.paper)
             print(f"pdf: {args.pdf}")

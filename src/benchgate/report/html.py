@@ -8,21 +8,19 @@ figures (built by :mod:`benchgate.report.svg`, which escapes its own text) are i
 from __future__ import annotations
 
 import datetime as _dt
-import hashlib
-import os
-import tempfile
 from collections.abc import Mapping
 from pathlib import Path
 from typing import Any
 
 from benchgate.analysis.capture import Capture
 from benchgate.analysis.names import MEASUREMENT_TITLES
+from benchgate.common.evidence import file_sha256, write_atomic
 from benchgate.record import CheckRecord, StepRecord, UnitRecord
 from benchgate.report import plots
 from benchgate.report.cautions import GENERAL_CAUTIONS
 from benchgate.report.derivation import derivation_rows, value_text
 from benchgate.report.svg import esc
-from benchgate.units.format import format_quantity
+from benchgate.units.format import format_quantity, window_text
 
 SAFETY = "Bench work can hurt people and boards; follow local codes and licensed practice."
 
@@ -65,11 +63,7 @@ def _q(x: float | None, unit: str, digits: int = 4) -> str:
 
 def limits_text(check: CheckRecord) -> str:
     w = check.window
-    if w.low is not None and w.high is not None:
-        return f"{_q(w.low, w.unit)} … {_q(w.high, w.unit)}"
-    if w.low is not None:
-        return f"≥ {_q(w.low, w.unit)}"
-    return f"≤ {_q(w.high, w.unit)}"
+    return window_text(w.low, w.high, w.unit)
 
 
 def _short(text: str, limit: int = 800) -> str:
@@ -117,11 +111,7 @@ def _duration(a: str | None, b: str | None) -> str:
 
 def _file_sha256(path: Path) -> str | None:
     try:
-        h = hashlib.sha256()
-        with open(path, "rb") as f:
-            for block in iter(lambda: f.read(1 << 20), b""):
-                h.update(block)
-        return h.hexdigest()
+        return file_sha256(path)
     except OSError:
         return None
 
@@ -155,7 +145,7 @@ def metadata_rows(metadata: Mapping[str, Any], *, limit: int = 24) -> list[tuple
     return rows
 
 
-def _step_view(step: StepRecord, captures: Mapping[str, Capture], folder: Path | None) -> dict[str, Any]:
+def _step_view(step: StepRecord, captures: Mapping[str, Capture], verify: Path | None) -> dict[str, Any]:
     figures: list[plots.Figure] = []
     notes: list[str] = []
     cap = step.capture
@@ -163,19 +153,20 @@ def _step_view(step: StepRecord, captures: Mapping[str, Capture], folder: Path |
     no_framing = False
     if cap is not None:
         capture = captures.get(step.id)
-        if capture is not None:
-            meta_rows = metadata_rows(capture.metadata)
-            no_framing = unframed(capture.metadata)
-        if folder is not None:
-            found = _file_sha256(folder / cap.file)
+        metadata = cap.metadata or (capture.metadata if capture is not None else {})
+        meta_rows = metadata_rows(metadata)
+        no_framing = unframed(metadata)
+        if verify is not None:  # a stored report re-rendered: are its capture files still the ones judged?
+            found = _file_sha256(verify / cap.file)
             if found is None:
                 notes.append(f"capture file {cap.file} is not beside the report")
             elif found != cap.sha256:
                 notes.append(f"capture file {cap.file} has changed since the run (SHA-256 differs)")
-        if capture is None:
+        source = cap.views if cap.views is not None else capture
+        if source is None:
             notes.append("capture not available: plots not drawn")
         else:
-            figures, more = plots.capture_figures(capture, step.checks)
+            figures, more = plots.capture_figures(source, step.checks, channel=cap.channel)
             notes.extend(n for n in more if n not in cap.warnings and n not in notes)
     bars = [plots.check_figure(c) for c in step.checks]
     return {
@@ -189,12 +180,16 @@ def _step_view(step: StepRecord, captures: Mapping[str, Capture], folder: Path |
     }
 
 
-def context(record: UnitRecord, captures: Mapping[str, Capture], folder: Path | None = None) -> dict[str, Any]:
-    """Everything the template shows, as plain values (strings escaped by the template)."""
+def context(record: UnitRecord, captures: Mapping[str, Capture], verify: Path | None = None) -> dict[str, Any]:
+    """Everything the template shows, as plain values (strings escaped by the template).
+
+    ``verify`` is the folder of a stored report being re-rendered: each capture file named in
+    the record is checked there against its SHA-256.
+    """
     from markupsafe import Markup
 
     verdict = record.verdict.value
-    steps = [_step_view(s, captures, folder) for s in record.steps]
+    steps = [_step_view(s, captures, verify) for s in record.steps]
     for s in steps:
         s["figures"] = [{"caption": f.caption, "svg": Markup(f.svg), "kind": f.kind} for f in s["figures"]]
         s["bars"] = [{"caption": f.caption, "svg": Markup(f.svg)} for f in s["bars"]]
@@ -234,37 +229,26 @@ def context(record: UnitRecord, captures: Mapping[str, Capture], folder: Path | 
 
 
 def render_html(record: UnitRecord, captures: Mapping[str, Capture] | None = None, *,
-                folder: str | Path | None = None) -> str:
+                verify: str | Path | None = None) -> str:
     """The HTML report of ``record`` as a string.
 
     Parameters
     ----------
     record : UnitRecord
+        The run; its captures' plots are drawn from the views the run's analysis kept.
     captures : mapping of step id to Capture, optional
-        The captured records the plots are drawn from (missing ones are noted, not fatal).
-    folder : path, optional
-        The report's folder; when given, each capture file named in the record is checked
-        against its stored SHA-256 and a mismatch is noted in the report.
+        Captures to draw from when the record kept no views (reports from before views were
+        kept); missing ones are noted, not fatal.
+    verify : path, optional
+        The folder of a stored report being re-rendered: each capture file named in the record
+        is checked against its SHA-256 and a mismatch is noted. A report written by the run
+        itself is not re-hashed (the writer's digest is in the record).
     """
-    ctx = context(record, captures or {}, None if folder is None else Path(folder))
+    ctx = context(record, captures or {}, None if verify is None else Path(verify))
     return _environment().get_template("unit.html.j2").render(**ctx)
 
 
 def write_html(record: UnitRecord, path: str | Path, captures: Mapping[str, Capture] | None = None, *,
-               folder: str | Path | None = None) -> Path:
-    """Render and write the HTML report atomically; returns ``path``.
-
-    ``folder`` is where the record's capture files live (default: beside ``path``).
-    """
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    text = render_html(record, captures, folder=path.parent if folder is None else folder)
-    fd, tmp = tempfile.mkstemp(prefix=".tmp-", suffix=".html", dir=path.parent)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as f:
-            f.write(text)
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
-    return path
+               verify: str | Path | None = None) -> Path:
+    """Render and write the HTML report atomically; returns ``path``."""
+    return write_atomic(path, render_html(record, captures, verify=verify))

@@ -8,13 +8,11 @@ lists, so a measurement's ``details`` never break the file.
 from __future__ import annotations
 
 import json
-import math
-import os
-import tempfile
-from collections.abc import Mapping
+import re
 from pathlib import Path
 from typing import Any
 
+from benchgate.common.evidence import json_safe, write_atomic
 from benchgate.errors import BenchgateError, Position
 from benchgate.record import UnitRecord
 
@@ -35,31 +33,9 @@ class ReportError(BenchgateError):
         return str(Position(self.file, self.line, self.column))
 
 
-def jsonable(value: Any) -> Any:
-    """``value`` with everything JSON cannot hold made plain (NaN/inf -> None, numpy -> Python)."""
-    if value is None or isinstance(value, (bool, str)):
-        return value
-    if isinstance(value, int):
-        return value
-    if isinstance(value, float):
-        return value if math.isfinite(value) else None
-    if isinstance(value, Mapping):
-        return {str(k): jsonable(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple, set, frozenset)):
-        return [jsonable(v) for v in value]
-    if isinstance(value, os.PathLike):
-        return os.fspath(value)
-    tolist = getattr(value, "tolist", None)  # numpy scalars and arrays
-    if callable(tolist):
-        return jsonable(tolist())
-    if hasattr(value, "value") and isinstance(value.value, str):  # enums such as Verdict
-        return value.value
-    return str(value)
-
-
 def report_dict(record: UnitRecord) -> dict[str, Any]:
     """The JSON body of ``record``'s report."""
-    return jsonable(record.to_dict())
+    return json_safe(record.to_dict())
 
 
 def write_json(record: UnitRecord, path: str | Path) -> Path:
@@ -70,18 +46,17 @@ def write_json(record: UnitRecord, path: str | Path) -> Path:
     Path
         ``path``.
     """
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
     text = json.dumps(report_dict(record), indent=2, ensure_ascii=False, allow_nan=False)
-    fd, tmp = tempfile.mkstemp(prefix=".tmp-", suffix=".json", dir=path.parent)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as f:
-            f.write(text + "\n")
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
-    return path
+    return write_atomic(path, _one_line_arrays(text) + "\n")
+
+
+#: an indented JSON array of numbers only (a raw newline never occurs inside a JSON string).
+_NUMBER_ARRAY = re.compile(r"\[\n(?:\s*(?:-?[0-9][0-9.eE+-]*|null),\n)*\s*(?:-?[0-9][0-9.eE+-]*|null)\n\s*\]")
+
+
+def _one_line_arrays(text: str) -> str:
+    """Arrays of numbers (plot views) on one line each, the rest indented for reading."""
+    return _NUMBER_ARRAY.sub(lambda m: "[" + ", ".join(m.group(0)[1:-1].split()).replace(",,", ",") + "]", text)
 
 
 def read_json(path: str | Path) -> UnitRecord:

@@ -24,16 +24,15 @@ A step that ended in error without any check (a lost instrument, a prompt with n
 from __future__ import annotations
 
 import datetime as _dt
-import os
 import re
 import socket
-import tempfile
 import xml.etree.ElementTree as ET
 from collections.abc import Iterable, Mapping
 from pathlib import Path
 from typing import Any
 
-from benchgate.units.format import format_quantity
+from benchgate.common.evidence import write_atomic
+from benchgate.units.format import format_quantity, value_text
 
 _NOT_XML = re.compile("[^\x09\x0a\x0d\x20-\ud7ff\ue000-\ufffd\U00010000-\U0010ffff]")
 
@@ -84,11 +83,13 @@ def _check_message(check: Any) -> str:
     m = check.result
     w = check.window
     unit = w.unit
-    value = "no value" if m is None or m.value != m.value else format_quantity(m.value, m.unit)
-    u = "" if m is None or m.uncertainty is None else f" ± {format_quantity(m.uncertainty, m.unit)} (U, k=2)"
+    if m is None or m.value != m.value:
+        value = "no value"
+    else:
+        value = value_text(m.value, m.uncertainty, m.unit) + ("" if m.uncertainty is None else " (U, k=2)")
     lo = "-inf" if w.low is None else format_quantity(w.low, unit)
     hi = "+inf" if w.high is None else format_quantity(w.high, unit)
-    return f"{check.verdict.value}: {check.reason} [value {value}{u}; limits {lo} … {hi}; rule {check.rule}]"
+    return f"{check.verdict.value}: {check.reason} [value {value}; limits {lo} … {hi}; rule {check.rule}]"
 
 
 def _report_text(paths: Mapping[str, Any]) -> str:
@@ -177,17 +178,6 @@ def build_junit(units: Iterable[tuple[Any, Mapping[str, Any]]], *, name: str = "
 def write_junit(units: Iterable[tuple[Any, Mapping[str, Any]]], path: str | Path, *,
                 name: str = "benchgate") -> Path:
     """Write JUnit XML for the units to ``path`` (atomically: a reader never sees half a file)."""
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
     root = build_junit(units, name=name)
     ET.indent(root)
-    fd, tmp = tempfile.mkstemp(prefix=".junit-", suffix=".xml", dir=path.parent)
-    try:
-        with os.fdopen(fd, "wb") as f:
-            ET.ElementTree(root).write(f, encoding="utf-8", xml_declaration=True)
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
-    return path
+    return write_atomic(path, lambda f: ET.ElementTree(root).write(f, encoding="utf-8", xml_declaration=True))

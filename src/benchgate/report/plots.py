@@ -1,22 +1,25 @@
-"""The figures of one unit report, recomputed from the stored captures.
+"""The figures of one unit report, drawn from the views the run's analysis kept.
 
-Plot data comes from ``benchgate.analysis.views`` (spectrum, envelope, cycles) and
-``benchgate.analysis.analyze`` (fundamental, harmonics, steady part, start-up time); drawing is
-:mod:`benchgate.report.svg`. A figure that cannot be drawn says why instead of breaking the report.
+Plot data (cycles, envelope, spectrum, fundamental, harmonics, steady part, start-up instant)
+comes from :class:`benchgate.analysis.views.CaptureViews`, computed once with the measurements
+and carried in the run record; drawing is :mod:`benchgate.report.svg`. Only a record from before
+views were kept is analysed again (:func:`views_of`). A figure that cannot be drawn says why
+instead of breaking the report.
 """
 
 from __future__ import annotations
 
-import math
 from collections.abc import Iterable
 from dataclasses import dataclass
 
 from benchgate.analysis.capture import Capture
+from benchgate.analysis.views import VIEW_CYCLES, CaptureViews
+from benchgate.common.evidence import finite
 from benchgate.record import CheckRecord
 from benchgate.report import svg
 
 #: how many cycles of waveform a report shows.
-CYCLES = 4
+CYCLES = VIEW_CYCLES
 #: harmonics marked on the spectrum (2nd … HARMONICS-th).
 HARMONICS = 10
 
@@ -30,52 +33,61 @@ class Figure:
     svg: str
 
 
-def _analyse(capture: Capture):
+def views_of(capture: Capture) -> tuple[CaptureViews | None, list[str]]:
+    """Views of a capture whose record kept none (a report from before views were kept).
+
+    Returns the views (None when the analysis failed) and the analysis warnings or failure.
+    """
     from benchgate.analysis import analyze
 
-    return analyze(capture, ("frequency", "startup_time"), harmonics=HARMONICS)
+    try:
+        analysis = analyze(capture, ("frequency",), harmonics=HARMONICS, views=True)
+    except Exception as exc:  # the report must still be written: say what went wrong
+        return None, [f"analysis for the plots failed: {exc}"]
+    return analysis.views, list(analysis.warnings)
 
 
 def _valid_value(check: CheckRecord | None) -> float | None:
     if check is None or check.result is None or not check.result.valid:
         return None
-    v = check.result.value
-    return v if math.isfinite(v) else None
+    return finite(check.result.value)
 
 
-def capture_figures(capture: Capture, checks: Iterable[CheckRecord] = ()) -> tuple[list[Figure], list[str]]:
+def capture_figures(views: CaptureViews | Capture | None, checks: Iterable[CheckRecord] = (), *,
+                    channel: str = "") -> tuple[list[Figure], list[str]]:
     """Waveform, envelope and spectrum of one capture, plus notes on anything left out.
 
-    The start-up instant comes from the step's ``startup_time`` check when it has a valid one
-    (the value that was judged), else from the analysis; the fundamental from the analysis of
-    the drawn record, else from a valid ``frequency`` check.
+    Parameters
+    ----------
+    views : CaptureViews
+        The capture's plot data from its analysis (a bare ``Capture`` is analysed here, for
+        records that kept no views).
+    checks : iterable of CheckRecord
+        The step's checks: a valid ``startup_time`` check gives the start-up instant drawn
+        (the value that was judged), a valid ``frequency`` check the fundamental when the
+        views have none.
+    channel : str
+        The channel's name, for the figures' labels.
     """
+    notes: list[str] = []
+    if isinstance(views, Capture):
+        channel = channel or views.channel
+        views, notes = views_of(views)
     checks = list(checks)
     by_name = {c.measurement: c for c in checks}
-    notes: list[str] = []
     figures: list[Figure] = []
-    from benchgate.analysis import views
-
-    try:
-        analysis = _analyse(capture)
-    except Exception as exc:  # the report must still be written: say what went wrong
-        analysis = None
-        notes.append(f"analysis for the plots failed: {exc}")
-    else:
-        notes.extend(analysis.warnings)
+    label = f"channel {channel}" if channel else "capture"
+    if views is None:
+        for kind in ("waveform", "envelope", "spectrum"):
+            figures.append(Figure(kind, f"{kind.capitalize()}: not drawn", svg.empty(kind, "no plot data")))
+        return figures, notes
     # the plotted record's own fundamental first, so the marks sit on the drawn peaks
-    fundamental = float(analysis.fundamental) if analysis is not None and analysis.fundamental else None
-    if fundamental is None:
-        fundamental = _valid_value(by_name.get("frequency"))
-    steady = float(analysis.steady_start) if analysis is not None else 0.0
+    fundamental = views.fundamental or _valid_value(by_name.get("frequency"))
     startup = _valid_value(by_name.get("startup_time"))
-    if startup is None and analysis is not None:
-        m = analysis.measurements.get("startup_time")
-        if m is not None and m.valid:
-            startup = m.value
-    label = f"channel {capture.channel}"
+    if startup is None:
+        startup = views.startup
     # least voltage span drawn: a tenth of the converter's range, else 50 mV (common practice)
-    min_span = capture.adc.full_scale / 10 if capture.adc is not None else 0.05
+    min_span = views.full_scale / 10 if views.full_scale else 0.05
 
     def draw(kind: str, caption: str, make) -> None:
         try:
@@ -84,21 +96,19 @@ def capture_figures(capture: Capture, checks: Iterable[CheckRecord] = ()) -> tup
             figures.append(Figure(kind, caption, svg.empty(caption, f"could not draw: {exc}")))
 
     def wave() -> str:
-        t, v = views.cycles(capture, fundamental, n_cycles=CYCLES)
-        return svg.waveform(t, v, label=f"waveform, {label}", min_span=min_span)
+        return svg.waveform(views.cycles_t, views.cycles_v, label=f"waveform, {label}", min_span=min_span)
 
     def env() -> str:
-        # each min/max bucket must span a couple of cycles, or the band shows the waveform
-        points = 600 if not fundamental else int(min(600, max(40, capture.duration * fundamental / 2)))
-        t, lo, hi = views.envelope(capture, points=points)
-        return svg.envelope([x - capture.start_time for x in t], lo, hi, startup=startup,
-                            steady_start=steady, min_span=min_span, label=f"envelope, {label}")
+        return svg.envelope(views.envelope_t, views.envelope_low, views.envelope_high, startup=startup,
+                            steady_start=views.steady_start, min_span=min_span, label=f"envelope, {label}")
 
     def spec() -> str:
-        f, db = views.spectrum_db(capture, steady_start=steady, max_points=2048)
-        f_max = min(capture.sample_rate / 2, (HARMONICS + 1) * fundamental) if fundamental else None
-        harmonics = analysis.harmonics if analysis is not None else ()
-        return svg.spectrum(f, db, harmonics=harmonics if fundamental else (), fundamental=fundamental,
+        nyquist = float(views.spectrum_f[-1]) if views.spectrum_f.size else None
+        f_max = None
+        if fundamental:
+            f_max = (HARMONICS + 1) * fundamental if nyquist is None else min(nyquist, (HARMONICS + 1) * fundamental)
+        return svg.spectrum(views.spectrum_f, views.spectrum_db,
+                            harmonics=views.harmonics if fundamental else (), fundamental=fundamental,
                             f_max=f_max, label=f"spectrum, {label}",
                             y_label="level re fundamental" if fundamental else "level re largest bin")
 

@@ -19,9 +19,10 @@ from urllib.parse import quote
 
 from markupsafe import Markup, escape
 
+from benchgate.common.evidence import write_atomic
 from benchgate.report.bounds import clip_axis
 from benchgate.report.cautions import GENERAL_CAUTIONS
-from benchgate.units.format import format_quantity
+from benchgate.units.format import format_quantity, window_text
 
 SAFETY = ("Bench work can hurt people and boards: mains-powered instruments, charged capacitors "
           "and hot parts. Follow the plan's cautions, local rules and licensed practice; read the "
@@ -122,9 +123,7 @@ def _pct(x: float | None) -> str:
 
 
 def _window(low: float | None, high: float | None, unit: str) -> str:
-    if low is not None and high is not None:
-        return f"{_q(low, unit)} … {_q(high, unit)}"
-    return f"≥ {_q(low, unit)}" if low is not None else f"≤ {_q(high, unit)}"
+    return window_text(low, high, unit)
 
 
 def _field(item: Any, name: str, default: Any = None) -> Any:
@@ -212,6 +211,7 @@ def render_summary_html(summary: Any, *, title: str | None = None,
         "s": summary,
         "fpy": _pct(summary.first_pass_yield),
         "untested": getattr(summary, "units_untested", 0),
+        "cut_short": getattr(summary, "cut_short", 0),
         "final": _pct(summary.final_yield),
         "pareto_checks": [{"p": p, "fail_bar": bar_svg(p.fail, top_check),
                            "other_bar": bar_svg(p.error + p.inconclusive, top_check, kind="error")}
@@ -234,9 +234,5 @@ def render_summary_html(summary: Any, *, title: str | None = None,
 def write_summary_html(summary: Any, path: str | os.PathLike[str], **kwargs: Any) -> Path:
     """Write the lot summary page to ``path`` (folders created); returns the path."""
     p = Path(path)
-    p.parent.mkdir(parents=True, exist_ok=True)
     kwargs.setdefault("page_dir", p.parent)
-    tmp = p.with_name(p.name + ".part")
-    tmp.write_text(render_summary_html(summary, **kwargs), encoding="utf-8")
-    os.replace(tmp, p)
-    return p
+    return write_atomic(p, render_summary_html(summary, **kwargs))

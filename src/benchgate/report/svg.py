@@ -13,7 +13,7 @@ from html import escape
 
 import numpy as np
 
-from benchgate.units.format import format_quantity
+from benchgate.units.format import format_quantity, value_text
 
 INK = "#1f2933"
 GRID = "#d9dee3"
@@ -315,7 +315,7 @@ def check_bar(value: float | None, uncertainty: float | None, low: float | None,
                 ax.add(f'<line x1="{e:.1f}" y1="{mid - 6}" x2="{e:.1f}" y2="{mid + 6}" stroke="{colour}" stroke-width="2"/>')
         ax.add(f'<circle cx="{p:.1f}" cy="{mid}" r="5" fill="{colour}" stroke="#ffffff" stroke-width="1.5"/>')
         # GUM (JCGM 100:2008) 7.2.6: U with at most two significant digits
-        text = format_quantity(value, unit) + (f" ± {format_quantity(u, unit, 2)}" if u is not None else " (no U)")
+        text = value_text(value, u, unit, u_digits=2) + ("" if u is not None else " (no U)")
         anchor = "end" if p > (ax.x0 + ax.x1) / 2 else "start"
         ax.add(f'<text x="{p:.1f}" y="{yb - 5}" text-anchor="{anchor}" fill="{colour}" font-weight="600">{esc(text)}</text>')
     else:

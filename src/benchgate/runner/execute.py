@@ -217,16 +217,21 @@ class Executor:
             raise
         names = [c.measurement for c in step.checks]
         warnings: list[str] = []
+        views = None
         try:
-            analysis = self.analyze(capture, names, harmonics=step.harmonics)
+            # the views (plot data) come from this one analysis: the report does not analyse again
+            analysis = self.analyze(capture, names, harmonics=step.harmonics, views=True)
             measurements = analysis.measurements
             warnings = list(analysis.warnings)
+            views = analysis.views
         except (BenchgateError, ValueError) as exc:
             reason = f"analysis failed: {exc}"
             measurements = {c.measurement: Measurement.invalid(c.measurement, c.window.unit, reason)
                             for c in step.checks}
             warnings = [reason]
         self._keep(step, srec, key, capture, warnings)
+        if srec.capture is not None:
+            srec.capture.views = views
         for check in step.checks:
             self._judge(step, srec, check, measurements.get(check.measurement))
 
@@ -338,7 +343,7 @@ class Executor:
         srec.capture = CaptureRecord(
             file=os.path.relpath(path, self.layout.folder), sha256=sha, channel=capture.channel,
             sample_rate=capture.sample_rate, samples=capture.n, instrument=step.instrument,
-            warnings=list(warnings))
+            warnings=list(warnings), metadata=dict(capture.metadata))
 
     def _judge(self, step: Any, srec: StepRecord, check: Any, measurement: Measurement | None) -> None:
         cv = judge(measurement, check.window, self.plan.decision)

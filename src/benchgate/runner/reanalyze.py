@@ -9,30 +9,23 @@ wait, prompt) keep their recorded outcome. The new report says it is a reanalysi
 
 from __future__ import annotations
 
-import hashlib
 import shutil
 import uuid
-from collections.abc import Callable
+from collections.abc import Callable, Mapping
+from functools import partial
 from pathlib import Path
 from typing import Any
 
 from benchgate import __version__
 from benchgate.analysis.measurement import Measurement
+from benchgate.common.evidence import file_sha256, utc_now
 from benchgate.judge.rules import judge
 from benchgate.record import CaptureRecord, CheckRecord, StepRecord, UnitRecord
-from benchgate.runner.execute import step_status, utc_now
+from benchgate.runner.execute import step_status
 from benchgate.runner.options import RunOutcome, exit_code_for
 
 
-def _sha256(path: Path) -> str:
-    h = hashlib.sha256()
-    with open(path, "rb") as f:
-        for block in iter(lambda: f.read(1 << 20), b""):
-            h.update(block)
-    return h.hexdigest()
-
-
-def _judge_all(step: Any, srec: StepRecord, plan: Any, measurements: dict[str, Measurement | None]) -> None:
+def _judge_all(step: Any, srec: StepRecord, plan: Any, measurements: Mapping[str, Measurement | None]) -> None:
     for check in step.checks:
         m = measurements.get(check.measurement)
         cv = judge(m, check.window, plan.decision)
@@ -46,7 +39,7 @@ def _invalid_all(step: Any, reason: str) -> dict[str, Measurement]:
 
 def reanalyze(report: str | Path, plan: Any, *, reports_dir: str | Path | None = None,
               read_report: Callable[..., UnitRecord] | None = None, load_capture: Callable[..., Any] | None = None,
-              analyze: Callable[..., Any] | None = None, write_reports: Callable[..., dict] | None = None,
+              analyze: Callable[..., Any] | None = None, write_reports: Callable[..., dict[str, Path]] | None = None,
               layout_factory: Callable[..., Any] | None = None) -> RunOutcome:
     """Re-judge the run stored in ``report`` (a unit JSON report) against ``plan``.
 
@@ -54,15 +47,25 @@ def reanalyze(report: str | Path, plan: Any, *, reports_dir: str | Path | None =
     under the new plan's id; captures are copied beside it when that is another folder.
     """
     if read_report is None:
-        from benchgate.report.json_report import read_json as read_report
+        from benchgate.report.json_report import read_json
+
+        read_report = read_json
     if load_capture is None:
-        from benchgate.capfile import load_capture
+        from benchgate.capfile import load_capture as load
+
+        load_capture = load
     if analyze is None:
-        from benchgate.analysis import analyze
+        from benchgate.analysis import analyze as analyse_once
+
+        analyze = partial(analyse_once, views=True)  # the report draws this analysis's views
     if write_reports is None:
-        from benchgate.report import write_reports
+        from benchgate.report import write_reports as write
+
+        write_reports = write
     if layout_factory is None:
-        from benchgate.report.layout import ReportLayout as layout_factory
+        from benchgate.report.layout import ReportLayout
+
+        layout_factory = ReportLayout
 
     report = Path(report)
     old = read_report(report)
@@ -131,7 +134,7 @@ def _recapture(step: Any, srec: StepRecord, was: StepRecord, plan: Any, folder: 
     if not source.exists():
         _judge_all(step, srec, plan, _invalid_all(step, f"stored capture {was.capture.file} is missing"))
         return
-    digest = _sha256(source)
+    digest = file_sha256(source)  # the stored file must be the one the original run judged
     if digest != was.capture.sha256:
         _judge_all(step, srec, plan, _invalid_all(
             step, f"stored capture {was.capture.file} does not match its SHA-256 in the report"))
@@ -139,13 +142,17 @@ def _recapture(step: Any, srec: StepRecord, was: StepRecord, plan: Any, folder: 
     target = new_folder / Path(was.capture.file).name
     if target.resolve() != source.resolve():
         shutil.copy2(source, target)
+    # a byte-for-byte copy (or the file itself): its digest is the one just checked
+    capture = load_capture(target)
     srec.capture = CaptureRecord(file=target.name, sha256=digest, channel=was.capture.channel,
                                  sample_rate=was.capture.sample_rate, samples=was.capture.samples,
-                                 instrument=was.capture.instrument)
-    capture = load_capture(target)
+                                 instrument=was.capture.instrument,
+                                 metadata={k: v for k, v in dict(getattr(capture, "metadata", {})).items()
+                                           if k not in ("file", "format")} or dict(was.capture.metadata))
     captures[step.id] = capture
     try:
         analysis = analyze(capture, [c.measurement for c in step.checks], harmonics=step.harmonics)
+        srec.capture.views = getattr(analysis, "views", None)
         srec.capture.warnings = list(analysis.warnings)
         measurements = dict(analysis.measurements)
     except Exception as exc:  # any analysis failure makes the checks error, never pass

@@ -41,3 +41,30 @@ def _sig(x: float, digits: int) -> str:
     mag = math.floor(math.log10(abs(x)))
     decimals = max(0, digits - 1 - mag)
     return f"{x:.{decimals}f}"
+
+
+def window_text(low: float | None, high: float | None, unit: str, digits: int = 4) -> str:
+    """An acceptance window as text: ``low … high``, ``≥ low`` or ``≤ high`` (SI prefixes).
+
+    A window with neither limit is ``any value``.
+    """
+    if low is not None and high is not None:
+        return f"{format_quantity(low, unit, digits)} … {format_quantity(high, unit, digits)}"
+    if low is not None:
+        return f"≥ {format_quantity(low, unit, digits)}"
+    if high is not None:
+        return f"≤ {format_quantity(high, unit, digits)}"
+    return "any value"
+
+
+def value_text(value: float, uncertainty: float | None, unit: str, digits: int = 4,
+               u_digits: int | None = None) -> str:
+    """``value ± U`` with SI prefixes; just the value when ``uncertainty`` is None.
+
+    ``u_digits`` significant digits for U (default: as many as the value's; GUM, JCGM
+    100:2008, 7.2.6, suggests at most two).
+    """
+    text = format_quantity(value, unit, digits)
+    if uncertainty is None:
+        return text
+    return f"{text} ± {format_quantity(uncertainty, unit, digits if u_digits is None else u_digits)}"
