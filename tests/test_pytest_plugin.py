@@ -187,7 +187,7 @@ def test_outcomes_map_to_pytest(plan_dir, pytester, fake_runner, plan):
 
 def test_a_run_that_cannot_start_errors_every_item(plan_dir, pytester, monkeypatch, plan):
     import benchgate.runner as runner
-    from benchgate.runner.options import PreflightError
+    from benchgate.errors import PreflightError
 
     def refuse(*a, **k):
         raise PreflightError("plan has hazards: pass --accept-hazards for an unattended run")

@@ -10,9 +10,10 @@ import pytest
 from _analysis_signals import harmonic_series, tone
 from numpy.testing import assert_allclose
 
-from benchgate.analysis import MEASUREMENT_NAMES, MEASUREMENT_UNITS, Analysis, Capture, analyze
+from benchgate.analysis import Analysis, Capture, analyze
 from benchgate.analysis.context import Context, get_context
 from benchgate.analysis.registry import MEASUREMENTS
+from benchgate.common.names import MEASUREMENT_NAMES, MEASUREMENT_UNITS
 
 
 class TestAnalyze:

@@ -10,7 +10,8 @@ import numpy as np
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from benchgate.analysis import MEASUREMENT_NAMES, Capture, analyze
+from benchgate.analysis import Capture, analyze
+from benchgate.common.names import MEASUREMENT_NAMES
 
 SETTINGS = settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 

@@ -22,7 +22,7 @@ def bench():
 
 
 def test_every_plan_reading_has_a_typed_call():
-    from benchgate.analysis.names import READING_SOURCES
+    from benchgate.common.names import READING_SOURCES
 
     assert set(READINGS) == set(READING_SOURCES)
 

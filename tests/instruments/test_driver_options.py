@@ -6,7 +6,7 @@ import textwrap
 
 import pytest
 
-from benchgate.errors import PlanErrors
+from benchgate.errors import StationErrors
 from benchgate.instruments import load_station
 from benchgate.instruments.options import OptionSpec
 from benchgate.instruments.registry import Registry
@@ -18,7 +18,7 @@ from benchgate.instruments.scpi_supply import ScpiSupply
 def errors_of(tmp_path, text: str) -> list[str]:
     path = tmp_path / "station.yaml"
     path.write_text(textwrap.dedent(text))
-    with pytest.raises(PlanErrors) as info:
+    with pytest.raises(StationErrors) as info:
         load_station(path)
     return info.value.lines()
 
@@ -88,7 +88,7 @@ def test_the_loader_asks_the_registry(tmp_path):
 
     path = tmp_path / "station.yaml"
     path.write_text("station: b\ninstruments:\n  supply: {kind: scpi-supply, resource: x, rail: V1}\n")
-    with pytest.raises(PlanErrors):
+    with pytest.raises(StationErrors):
         load_station(path)  # the built-in supply has no 'rail'
     station = load_station(path, Registry({"scpi-supply": StrictSupply}))
     assert station.instruments["supply"].option("rail") == "V1"
@@ -107,7 +107,7 @@ def test_the_serial_adc_declares_its_options_too(tmp_path):
 
     path = tmp_path / "station.yaml"
     path.write_text("station: b\ninstruments:\n  adc: {kind: serial-adc, port: /dev/x, front_gain: 2}\n")
-    with pytest.raises(PlanErrors):
+    with pytest.raises(StationErrors):
         load_station(path)
     cfg = load_station(path, Registry({"serial-adc": AdcWithGain})).instruments["adc"]
     assert cfg.option("front_gain") == 2 and cfg.option("baudrate") == 115200  # defaults filled in

@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 from scpi_testbench import config_for, make_bench
 
-from benchgate.errors import InstrumentError, PlanError
+from benchgate.errors import InstrumentError, StationError
 from benchgate.instruments.scpi import ERROR_QUEUE_CAP, ScpiSession
 from benchgate.instruments.scpi_dmm import ScpiDmm
 from benchgate.instruments.scpi_supply import ScpiSupply
@@ -189,14 +189,14 @@ class TestCommandTemplates:
 
     def test_unknown_template_is_a_station_error(self, bench):
         cfg = config_for(bench, "supply", commands={"set_voltge": "VOLT {value}"})
-        with pytest.raises(PlanError) as info:
+        with pytest.raises(StationError) as info:
             ScpiSupply.open(cfg)
         assert info.value.line == 7 and info.value.file == "station.yaml"
         assert "set_voltge" in info.value.message and "set_voltage" in info.value.message
 
     def test_unknown_placeholder_is_a_station_error(self, bench):
         cfg = config_for(bench, "supply", commands={"set_voltage": "VOLT {volts}"})
-        with pytest.raises(PlanError) as info:
+        with pytest.raises(StationError) as info:
             ScpiSupply.open(cfg)
         assert "{volts}" in info.value.message
 

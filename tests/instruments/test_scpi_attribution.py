@@ -5,8 +5,7 @@ from __future__ import annotations
 import pytest
 from scpi_testbench import config_for, make_bench
 
-from benchgate.errors import InstrumentError
-from benchgate.instruments.scpi import ScpiQueueError
+from benchgate.errors import InstrumentError, ScpiQueueError
 from benchgate.instruments.scpi_digitizer import ScpiDigitizer
 from benchgate.instruments.scpi_supply import ScpiSupply
 

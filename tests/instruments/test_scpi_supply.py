@@ -7,7 +7,7 @@ import math
 import pytest
 from scpi_testbench import config_for, make_bench
 
-from benchgate.errors import InstrumentError, PlanError
+from benchgate.errors import InstrumentError, StationError
 from benchgate.instruments.base import Supply
 from benchgate.instruments.scpi_supply import ScpiSupply
 
@@ -55,7 +55,7 @@ def test_uncertainty_from_accuracy_bound(bench):
 
 
 def test_bad_accuracy_is_a_station_error(bench):
-    with pytest.raises(PlanError) as info:
+    with pytest.raises(StationError) as info:
         ScpiSupply.open(config_for(bench, "supply", accuracy={"gain": "a lot"}))
     assert "accuracy" in info.value.message and info.value.line == 7
 

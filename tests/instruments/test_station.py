@@ -7,7 +7,7 @@ import textwrap
 
 import pytest
 
-from benchgate.errors import PlanErrors
+from benchgate.errors import StationErrors
 from benchgate.instruments import load_station
 from benchgate.instruments.station import Calibration
 
@@ -47,7 +47,7 @@ def write(tmp_path, text: str, name: str = "station.yaml") -> str:
 
 
 def errors_of(tmp_path, text: str) -> list[str]:
-    with pytest.raises(PlanErrors) as info:
+    with pytest.raises(StationErrors) as info:
         load_station(write(tmp_path, text))
     return [e.one_line() for e in info.value.errors]
 
@@ -149,7 +149,7 @@ def test_duplicate_key_is_an_error(tmp_path):
 
 
 def test_missing_file(tmp_path):
-    with pytest.raises(PlanErrors, match="no such file"):
+    with pytest.raises(StationErrors, match="no such file"):
         load_station(str(tmp_path / "nope.yaml"))
 
 

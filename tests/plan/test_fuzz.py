@@ -161,7 +161,7 @@ NUMBERS = [-1e308, -150.0, -5.0, -1e-9, -0.0, 0.0, 1e-320, 1e-9, 0.5, 1.0, 5.0, 
 @st.composite
 def windows(draw):
     """A plan with one given window replaced by random limits in the measurement's unit."""
-    from benchgate.analysis.names import MEASUREMENT_UNITS, READING_UNITS
+    from benchgate.common.names import MEASUREMENT_UNITS, READING_UNITS
 
     text = draw(st.sampled_from(TEXTS))
     lines = text.split("\n")
@@ -185,7 +185,7 @@ def windows(draw):
 def _assert_trustworthy(plan) -> None:
     import math
 
-    from benchgate.analysis.bounds import bounds_of
+    from benchgate.common.bounds import bounds_of
     from benchgate.plan.limits import window_problem
 
     for s in plan.steps:

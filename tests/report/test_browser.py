@@ -12,6 +12,7 @@ import sys
 import pytest
 from report_samples import HOSTILE_SERIAL, make_record, save_npz, tone_capture
 
+from benchgate.errors import BrowserError
 from benchgate.report import browser, write_reports
 from benchgate.report.layout import ReportLayout
 
@@ -161,7 +162,7 @@ def test_without_playwright_the_message_says_what_to_install(monkeypatch):
     monkeypatch.setitem(sys.modules, "playwright", None)  # import fails as if not installed
     monkeypatch.setitem(sys.modules, "playwright.sync_api", None)
     assert browser.unavailable() == browser.NO_PLAYWRIGHT
-    with pytest.raises(browser.BrowserError, match=r"pip install 'benchgate\[browser\]'"):
+    with pytest.raises(BrowserError, match=r"pip install 'benchgate\[browser\]'"):
         with browser.session():
             pass
 
@@ -172,7 +173,7 @@ def test_without_chromium_the_message_names_the_package(monkeypatch):
     monkeypatch.setattr(browser.os, "access", lambda path, mode: False)
     assert browser.find_chromium() is None
     assert browser.unavailable() == browser.NO_BROWSER
-    with pytest.raises(browser.BrowserError, match="install Debian's chromium package"):
+    with pytest.raises(BrowserError, match="install Debian's chromium package"):
         browser.check_page(__file__)
 
 
@@ -181,7 +182,7 @@ def test_a_browser_that_cannot_start_is_one_clear_error(tmp_path):
     fake = tmp_path / "chromium"
     fake.write_text("#!/bin/sh\necho 'cannot open display' >&2\nexit 3\n")
     fake.chmod(0o755)
-    with pytest.raises(browser.BrowserError, match="did not start"):
+    with pytest.raises(BrowserError, match="did not start"):
         with browser.session(timeout=20, chromium=str(fake)):
             pass
 

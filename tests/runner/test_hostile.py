@@ -72,7 +72,7 @@ def test_database_rows_are_correct(lot):
 def test_blank_serial_is_refused_before_anything(tmp_path, serial):
     from runner_fakes import services
 
-    from benchgate.runner.options import PreflightError
+    from benchgate.errors import PreflightError
 
     bench = make_bench()
     svc, db = services(bench)

@@ -8,7 +8,8 @@ import sys
 import pytest
 from runner_fakes import InstrumentConfig, Station
 
-from benchgate.runner.lock import StationBusy, StationLock
+from benchgate.errors import StationBusy
+from benchgate.runner.lock import StationLock
 
 
 def test_second_lock_is_refused_until_the_first_is_released(tmp_path):

@@ -17,7 +17,8 @@ from runner_fakes import (
 )
 
 from benchgate.clock import ManualClock
-from benchgate.runner.options import PreflightError, RunOptions
+from benchgate.errors import PreflightError
+from benchgate.runner.options import RunOptions
 from benchgate.runner.preflight import ACK_PHRASE, preflight, roles_used
 from benchgate.runner.session import Runner
 

@@ -316,7 +316,7 @@ def test_unexpected_exception_still_leaves_evidence(tmp_path):
 
 
 def test_unwritable_events_file_is_one_clear_error(tmp_path):
-    from benchgate.runner.options import PreflightError
+    from benchgate.errors import PreflightError
 
     blocker = tmp_path / "file"
     blocker.write_text("x")

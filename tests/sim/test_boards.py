@@ -7,8 +7,8 @@ import math
 import numpy as np
 import pytest
 
-from benchgate.errors import BenchgateError
-from benchgate.sim.boards import BOARDS, DEFECTS, OPEN_CAPACITOR, SimError, draw_unit, get_board
+from benchgate.errors import BenchgateError, SimError
+from benchgate.sim.boards import BOARDS, DEFECTS, OPEN_CAPACITOR, draw_unit, get_board
 
 
 class TestBoards:

@@ -11,8 +11,9 @@ from pathlib import Path
 
 import pytest
 
+from benchgate.errors import StoreError
 from benchgate.judge.rules import Verdict
-from benchgate.store import ResultsDB, StoreError
+from benchgate.store import ResultsDB
 from benchgate.store.db import MIGRATIONS, SCHEMA_VERSION, migrate, schema_version
 from synthetic_runs import CheckSpec, make_record
 

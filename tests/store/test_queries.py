@@ -10,8 +10,9 @@ from datetime import timedelta
 import numpy as np
 import pytest
 
+from benchgate.errors import StoreError
 from benchgate.judge.rules import Verdict
-from benchgate.store import ResultsDB, StoreError
+from benchgate.store import ResultsDB
 from benchgate.store.queries import HISTOGRAM_BINS, cpk
 from synthetic_runs import EPOCH, CheckSpec, make_record
 

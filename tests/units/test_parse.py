@@ -6,8 +6,9 @@ import math
 
 import pytest
 
-from benchgate.units import UnitError, parse_quantity, parse_value
-from benchgate.units.parse import NotFiniteError, parse_rate
+from benchgate.errors import NotFiniteError, UnitError
+from benchgate.units import parse_quantity, parse_value
+from benchgate.units.parse import parse_rate
 
 
 class TestPrefixes:

@@ -6,7 +6,8 @@ import math
 
 import pytest
 
-from benchgate.units import UnitError, parse_part, parse_tolerance
+from benchgate.errors import UnitError
+from benchgate.units import parse_part, parse_tolerance
 
 
 class TestTolerance:

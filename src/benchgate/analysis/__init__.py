@@ -6,15 +6,11 @@ one capture and returns them with the capture's warnings.
 
 from benchgate.analysis.capture import AdcInfo, Capture
 from benchgate.analysis.measurement import Measurement
-from benchgate.analysis.names import MEASUREMENT_NAMES, MEASUREMENT_TITLES, MEASUREMENT_UNITS
 
 __all__ = [
     "AdcInfo",
     "Capture",
     "Measurement",
-    "MEASUREMENT_NAMES",
-    "MEASUREMENT_TITLES",
-    "MEASUREMENT_UNITS",
     "analyze",
     "Analysis",
 ]

@@ -11,8 +11,8 @@ from benchgate.analysis.capture import Capture
 from benchgate.analysis.context import Context
 from benchgate.analysis.distortion import harmonic_analysis, levels_dbc
 from benchgate.analysis.measurement import Measurement
-from benchgate.analysis.names import MEASUREMENT_NAMES
 from benchgate.analysis.registry import MEASUREMENTS, measure
+from benchgate.common.names import MEASUREMENT_NAMES
 
 
 @dataclass(frozen=True)

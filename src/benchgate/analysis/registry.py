@@ -1,5 +1,5 @@
 """Measurement name -> function. Adding a measurement: write one function, add one entry here
-(and its name and unit in :mod:`benchgate.analysis.names`)."""
+(and its name and unit in :mod:`benchgate.common.names`)."""
 
 from __future__ import annotations
 

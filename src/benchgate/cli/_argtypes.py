@@ -10,7 +10,7 @@ def positive_quantity(unit: str) -> Callable[[str], float]:
     """An argparse type: a finite value above zero in ``unit`` (``250ms``, ``9 V``, ``50mA``)."""
 
     def parse(text: str) -> float:
-        from benchgate.units import UnitError
+        from benchgate.errors import UnitError
         from benchgate.units.parse import parse_positive
 
         try:
@@ -24,7 +24,7 @@ def positive_quantity(unit: str) -> Callable[[str], float]:
 
 def rate(text: str) -> float:
     """An argparse type for sample rates: ``48k``, ``48 kHz``, ``50 kS/s``, ``48000``."""
-    from benchgate.units import UnitError
+    from benchgate.errors import UnitError
     from benchgate.units.parse import parse_rate
 
     try:

@@ -67,7 +67,7 @@ def _json_default(obj):
 
 
 def _rows(result, math) -> list[tuple[str, str, str, str]]:
-    from benchgate.analysis.names import MEASUREMENT_UNITS
+    from benchgate.common.names import MEASUREMENT_UNITS
     from benchgate.units.format import format_quantity
 
     rows = []

@@ -57,8 +57,8 @@ def run(args) -> int:
     import sys
     from pathlib import Path
 
+    from benchgate.errors import PreflightError
     from benchgate.runner.demo import run_demo
-    from benchgate.runner.options import PreflightError
 
     if args.units < 1:
         raise PreflightError(f"--units must be at least 1, got {args.units}")

@@ -70,10 +70,11 @@ def run(args) -> int:
 
 
 def _run(args, signals) -> int:
+    from benchgate.errors import PreflightError
     from benchgate.instruments.station import load_station
     from benchgate.plan import load_plan
     from benchgate.runner.batch import read_serial, run_batch
-    from benchgate.runner.options import PreflightError, RunOptions, check_serial, worst_exit_code
+    from benchgate.runner.options import RunOptions, check_serial, worst_exit_code
     from benchgate.runner.session import Runner
 
     plan = load_plan(args.plan)

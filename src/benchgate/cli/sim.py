@@ -36,8 +36,8 @@ def run(args) -> int:
     import sys
     import threading
 
+    from benchgate.errors import SimError
     from benchgate.sim.bench import UnderstudyBench
-    from benchgate.sim.boards import SimError
 
     if not (math.isfinite(args.speed) and args.speed > 0):
         raise SimError(f"--speed must be a positive number, got {args.speed!r}")

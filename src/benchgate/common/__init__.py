@@ -7,5 +7,6 @@ and any layer may import it.
 - :mod:`.names`: measurement names and units, reading sources, instrument roles;
 - :mod:`.bounds`: the values each measurement or reading can physically take;
 - :mod:`.yamlpos`: the safe YAML reader that keeps line and column of every value;
-- :mod:`.fields`: reading typed fields out of that tree, every error with its place.
+- :mod:`.fields`: reading typed fields out of that tree, every error with its place;
+- :mod:`.evidence`: habits of writing evidence (atomic writes, SHA-256, UTC time, JSON-safe values).
 """

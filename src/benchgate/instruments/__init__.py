@@ -25,7 +25,7 @@ _OPEN_ORDER = ("supply", "adc", "dmm", "counter", "digitizer")
 
 
 def load_station(path, registry=None):
-    """Read a station file (see ``docs/stations.md``); raises PlanErrors with positions."""
+    """Read a station file (see ``docs/stations.md``); raises StationErrors with positions."""
     from benchgate.instruments.station import load_station as _load
 
     return _load(path, registry)

@@ -1,6 +1,6 @@
 """Reading a station YAML file into :class:`~benchgate.instruments.station.Station`.
 
-Every problem is collected with its file:line:column and raised together as PlanErrors.
+Every problem is collected with its file:line:column and raised together as StationErrors.
 """
 
 from __future__ import annotations
@@ -8,13 +8,12 @@ from __future__ import annotations
 import datetime as dt
 from typing import Any
 
-from benchgate.errors import PlanError, PlanErrors
+from benchgate.common.yamlpos import YNode, load_file
+from benchgate.errors import NotFiniteError, StationError, StationErrors, UnitError
 from benchgate.instruments.options import OptionSpec, check_value
 from benchgate.instruments.registry import KIND_ROLES
 from benchgate.instruments.station import ROLES, Calibration, InstrumentConfig, Station
-from benchgate.plan.yamlpos import YNode, load_file
-from benchgate.units import UnitError, parse_quantity
-from benchgate.units.parse import NotFiniteError
+from benchgate.units import parse_quantity
 
 _TOP_KEYS = {"station", "description", "instruments"}
 _ADDRESS_KEYS = ("port", "url", "usb", "resource")
@@ -27,16 +26,16 @@ class StationReader:
     def __init__(self, path: str, registry: Any = None):
         self.path = path
         self.registry = registry  # where each driver's own option spec comes from
-        self.errors: list[PlanError] = []
+        self.errors: list[StationError] = []
 
     def err(self, message: str, node: YNode | None = None, pos: tuple[int, int] | None = None) -> None:
         line, col = pos if pos else ((node.line, node.column) if node is not None else (None, None))
-        self.errors.append(PlanError(message, self.path, line, col))
+        self.errors.append(StationError(message, self.path, line, col))
 
     def read(self) -> Station:
-        root, _text = load_file(self.path)
+        root, _text = load_file(self.path, StationErrors)
         if not root.is_map:
-            raise PlanErrors([PlanError("a station file is a mapping with 'station' and 'instruments'",
+            raise StationErrors([StationError("a station file is a mapping with 'station' and 'instruments'",
                                         self.path, root.line, root.column)])
         top = root.value
         for key in top:
@@ -60,7 +59,7 @@ class StationReader:
                 if cfg is not None:
                     instruments[role] = cfg
         if self.errors:
-            raise PlanErrors(self.errors)
+            raise StationErrors(self.errors)
         return Station(id=str(sid.value).strip(), path=self.path, instruments=instruments)
 
     # ------------------------------------------------------------------ instruments

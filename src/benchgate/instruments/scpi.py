@@ -32,16 +32,15 @@ from typing import Any
 
 import numpy as np
 
-from benchgate.errors import InstrumentDisconnected, InstrumentError
+from benchgate.errors import InstrumentDisconnected, InstrumentError, ScpiQueueError
 from benchgate.instruments.scpi_commands import (
     COMMON_COMMANDS,
-    ScpiQueueError,
     _format_arg,
     command_templates,
     station_error,
 )
 
-__all__ = ["COMMON_COMMANDS", "ScpiQueueError", "ScpiSession", "command_templates", "station_error"]
+__all__ = ["COMMON_COMMANDS", "ScpiSession", "command_templates", "station_error"]
 
 DEFAULT_VISA_LIBRARY = "@py"
 ERROR_QUEUE_CAP = 20  # SYSTem:ERRor? reads before we give up on an instrument's queue

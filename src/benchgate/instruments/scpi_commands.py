@@ -1,4 +1,4 @@
-"""SCPI command templates, station-entry errors and the error-queue error of the SCPI drivers.
+"""SCPI command templates and station-entry errors of the SCPI drivers.
 
 Each driver has SCPI-99 style default templates; a station overrides any of them with the
 instrument option ``commands: {name: "TEMPLATE {value}"}`` (see ``docs/scpi.md``).
@@ -12,7 +12,7 @@ from typing import Any
 
 import numpy as np
 
-from benchgate.errors import InstrumentError, PlanError
+from benchgate.errors import StationError
 
 COMMON_COMMANDS: dict[str, str] = {
     "identify": "*IDN?",
@@ -24,38 +24,10 @@ COMMON_COMMANDS: dict[str, str] = {
 
 
 
-def station_error(config, message: str) -> PlanError:
+def station_error(config, message: str) -> StationError:
     """A problem with a station entry, at the entry's position when known."""
-    return PlanError(f"{config.role}: {message}", getattr(config, "file", None) or "<station>",
-                     getattr(config, "line", None))
-
-
-class ScpiQueueError(InstrumentError):
-    """Entries of an instrument's SCPI error queue, attributed to the command(s) that caused them.
-
-    ``code``/``code_text`` are the first entry; ``entries`` all of them; ``command`` the command
-    they are attributed to (or, when the queue had not been read since several commands, the
-    last of them, with ``suspects`` listing all); ``found_before`` the command that was about to
-    be sent when they were found (None when found right after ``command``).
-    """
-
-    def __init__(self, instrument: str, entries: list[tuple[int, str]], suspects: list[str], *,
-                 found_before: str | None = None, note: str | None = None):
-        code, text = entries[0]
-        more = f" (and {len(entries) - 1} more: " + "; ".join(
-            f"{c},{t!r}" for c, t in entries[1:]) + ")" if len(entries) > 1 else ""
-        if len(suspects) == 1:
-            cause = f"{suspects[0]!r} rejected"
-        else:
-            cause = ("one of " + ", ".join(repr(c) for c in suspects[-4:])
-                     + (f" (and {len(suspects) - 4} earlier)" if len(suspects) > 4 else "") + " rejected")
-        where = f"; found in the queue before sending {found_before!r}" if found_before else ""
-        where += f"; {note}" if note else ""
-        super().__init__(instrument, f"{cause}: {code},\"{text}\"{more}{where}", code=code, code_text=text)
-        self.entries = list(entries)
-        self.suspects = list(suspects)
-        self.command = suspects[-1] if suspects else None
-        self.found_before = found_before
+    return StationError(f"{config.role}: {message}", getattr(config, "file", None) or "<station>",
+                        getattr(config, "line", None))
 
 
 def _fields(template: str) -> set[str]:

@@ -13,8 +13,9 @@ from typing import Any
 import numpy as np
 
 from benchgate.analysis.measurement import Measurement
+from benchgate.errors import ScpiQueueError
 from benchgate.instruments.options import OptionSpec, check_all, with_defaults
-from benchgate.instruments.scpi import ScpiQueueError, ScpiSession, station_error
+from benchgate.instruments.scpi import ScpiSession, station_error
 from benchgate.instruments.scpi_commands import template_problems
 
 

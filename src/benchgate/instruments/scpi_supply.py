@@ -7,8 +7,7 @@ first and checks that it is off.
 from __future__ import annotations
 
 from benchgate.analysis.measurement import Measurement
-from benchgate.errors import InstrumentError
-from benchgate.instruments.scpi_commands import ScpiQueueError
+from benchgate.errors import InstrumentError, ScpiQueueError
 from benchgate.instruments.scpi_instrument import ScpiInstrument
 
 

@@ -1,7 +1,7 @@
 """The station file: what is on this bench, instrument by role.
 
 ``load_station(path)`` reads the YAML (format in ``docs/stations.md``) into a :class:`Station`;
-every problem is reported with its file:line:column, all at once, as :class:`PlanErrors`.
+every problem is reported with its file:line:column, all at once, as :class:`~benchgate.errors.StationErrors`.
 """
 
 from __future__ import annotations
@@ -12,7 +12,7 @@ from dataclasses import dataclass, field
 from types import MappingProxyType
 from typing import Any
 
-from benchgate.analysis.names import CAPABILITIES
+from benchgate.common.names import CAPABILITIES
 
 ROLES: tuple[str, ...] = CAPABILITIES  # adc, supply, dmm, counter, digitizer
 
@@ -127,7 +127,7 @@ def load_station(path, registry=None) -> Station:
 
     Raises
     ------
-    PlanErrors
+    StationErrors
         Every problem found, each with file:line:column.
     """
     from benchgate.instruments._station_load import StationReader

@@ -4,15 +4,15 @@ from __future__ import annotations
 
 from typing import Any
 
-from benchgate.analysis.bounds import bounds_of
+from benchgate.common.bounds import bounds_of
+from benchgate.common.yamlpos import YNode
+from benchgate.errors import UnitError
 from benchgate.plan import derive
-from benchgate.plan.fields import Collector
+from benchgate.plan.fields import PlanCollector
 from benchgate.plan.limits import Window
 from benchgate.plan.model import DECISIONS
-from benchgate.plan.yamlpos import YNode
 from benchgate.units.eseries import is_preferred, nearest_preferred, series_for_tolerance
 from benchgate.units.format import format_quantity
-from benchgate.units.parse import UnitError
 from benchgate.units.tolerance import Part, Tolerance, parse_part, parse_tolerance
 
 LIMIT_KEYS = ("min", "max", "nominal", "tolerance", "from_circuit", "margin", "decision")
@@ -24,12 +24,12 @@ _CACHE: dict[Any, derive.Derivation] = {}
 _CACHE_MAX = 256
 
 
-def parse_limit(c: Collector, node: YNode, path: str, measurement: str, unit: str,
+def parse_limit(c: PlanCollector, node: YNode, path: str, measurement: str, unit: str,
                 mc_defaults: dict[str, Any], budget: derive.WorkBudget | None = None) -> Window | None:
     """The window of one check, or None after recording errors.
 
     Every window that comes out is a proper finite interval that some possible value of the
-    quantity can fall in (see :mod:`benchgate.analysis.bounds`).
+    quantity can fall in (see :mod:`benchgate.common.bounds`).
     """
     try:
         w = _parse_window(c, node, path, measurement, unit, mc_defaults,
@@ -42,7 +42,7 @@ def parse_limit(c: Collector, node: YNode, path: str, measurement: str, unit: st
     return _passable(c, node, path, measurement, w)
 
 
-def _passable(c: Collector, node: YNode, path: str, measurement: str, w: Window) -> Window | None:
+def _passable(c: PlanCollector, node: YNode, path: str, measurement: str, w: Window) -> Window | None:
     """``w`` when some value can pass it; an error at the limit otherwise."""
     text = _window_text(w)
     if w.low is not None and w.high is not None and w.low == w.high:
@@ -65,7 +65,7 @@ def _window_text(w: Window) -> str:
     return f"≤ {format_quantity(w.high, w.unit)}"
 
 
-def _parse_window(c: Collector, node: YNode, path: str, measurement: str, unit: str,
+def _parse_window(c: PlanCollector, node: YNode, path: str, measurement: str, unit: str,
                   mc_defaults: dict[str, Any], budget: derive.WorkBudget) -> Window | None:
     m = c.mapping(node, path, LIMIT_KEYS)
     if m is None:
@@ -136,7 +136,7 @@ def _parse_window(c: Collector, node: YNode, path: str, measurement: str, unit: 
     return w
 
 
-def _tolerance(c: Collector, node: YNode, path: str, unit: str) -> Tolerance | None:
+def _tolerance(c: PlanCollector, node: YNode, path: str, unit: str) -> Tolerance | None:
     try:
         return parse_tolerance(node.plain(), unit, field=path)
     except UnitError as exc:
@@ -163,7 +163,7 @@ def _analyse(circuit: derive.Circuit, measurement: str, unit: str, mc: dict[str,
     return _CACHE[key]
 
 
-def parse_monte_carlo(c: Collector, node: YNode | None, path: str, base: dict[str, Any]) -> dict[str, Any]:
+def parse_monte_carlo(c: PlanCollector, node: YNode | None, path: str, base: dict[str, Any]) -> dict[str, Any]:
     out = dict(base)
     m = c.mapping(node, path, MC_KEYS)
     if not m:
@@ -177,7 +177,7 @@ def parse_monte_carlo(c: Collector, node: YNode | None, path: str, base: dict[st
     return out
 
 
-def parse_circuit(c: Collector, node: YNode, path: str, measurement: str,
+def parse_circuit(c: PlanCollector, node: YNode, path: str, measurement: str,
                   mc_defaults: dict[str, Any]) -> tuple[derive.Circuit | None, dict[str, Any]]:
     mc = dict(mc_defaults)
     if not node.is_map:
@@ -245,7 +245,7 @@ def parse_circuit(c: Collector, node: YNode, path: str, measurement: str,
     return derive.Circuit(topology, options, parts), mc
 
 
-def _ladder_parts(c: Collector, node: YNode, path: str, key: str, n: int, parts: dict[str, Part]) -> None:
+def _ladder_parts(c: PlanCollector, node: YNode, path: str, key: str, n: int, parts: dict[str, Part]) -> None:
     unit = "Ω" if key == "R" else "F"
     if node.is_list:
         if len(node.value) != n:
@@ -262,7 +262,7 @@ def _ladder_parts(c: Collector, node: YNode, path: str, key: str, n: int, parts:
             parts[f"{key}{i + 1}"] = p
 
 
-def _part(c: Collector, node: YNode, path: str, unit: str, *, note: bool = True) -> Part | None:
+def _part(c: PlanCollector, node: YNode, path: str, unit: str, *, note: bool = True) -> Part | None:
     try:
         p = parse_part(node.plain(), unit, field=path)
     except UnitError as exc:

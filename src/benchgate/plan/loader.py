@@ -10,11 +10,13 @@ from __future__ import annotations
 import dataclasses
 from typing import Any
 
-from benchgate.analysis.names import CAPABILITIES, MEASUREMENT_UNITS, READING_SOURCES, READING_UNITS
+from benchgate.common.fields import described
+from benchgate.common.names import CAPABILITIES, MEASUREMENT_UNITS, READING_SOURCES, READING_UNITS
+from benchgate.common.yamlpos import YNode, load_file, load_text
 from benchgate.errors import PlanErrors
 from benchgate.plan import derive
 from benchgate.plan.checks import parse_limit, parse_monte_carlo
-from benchgate.plan.fields import Collector, described
+from benchgate.plan.fields import PlanCollector
 from benchgate.plan.hashing import content_hash
 from benchgate.plan.model import (
     CAPTURE_DEFAULT_KEYS,
@@ -33,7 +35,6 @@ from benchgate.plan.model import (
     SupplyStep,
 )
 from benchgate.plan.validate import validate_steps
-from benchgate.plan.yamlpos import YNode, load_file, load_text
 
 MC_DEFAULTS = {"draws": derive.DEFAULT_DRAWS, "seed": 1, "distribution": "uniform"}
 
@@ -51,17 +52,17 @@ def load_plan(path: str) -> Plan:
     PlanErrors
         Every problem found, each with file, line and column.
     """
-    root, _ = load_file(str(path))
+    root, _ = load_file(str(path), PlanErrors)
     return build_plan(root, str(path))
 
 
 def loads_plan(text: str, file: str = "<plan>") -> Plan:
     """Like :func:`load_plan` for text already in memory."""
-    return build_plan(load_text(text, file), file)
+    return build_plan(load_text(text, file, PlanErrors), file)
 
 
 def build_plan(root: YNode, file: str) -> Plan:
-    c = Collector(file)
+    c = PlanCollector(file)
     keys = _yaml_keys(Plan)
     m = c.mapping(root, "plan file", [*keys, "defaults"], required=[k for k, f in keys.items()
                                                                      if f.metadata["required"]])
@@ -110,7 +111,7 @@ def build_plan(root: YNode, file: str) -> Plan:
                 steps=tuple(steps), hash=content_hash(root.plain()), path=file, notes=tuple(c.notes))
 
 
-def _hazards(c: Collector, node: YNode | None) -> tuple[Hazard, ...]:
+def _hazards(c: PlanCollector, node: YNode | None) -> tuple[Hazard, ...]:
     if node is None:
         return ()
     if not node.is_list:
@@ -128,7 +129,7 @@ def _hazards(c: Collector, node: YNode | None) -> tuple[Hazard, ...]:
     return tuple(out)
 
 
-def _defaults(c: Collector, node: YNode | None) -> dict[str, Any]:
+def _defaults(c: PlanCollector, node: YNode | None) -> dict[str, Any]:
     d: dict[str, Any] = {"on_fail": None, "retries": 0, "capture": {}, "monte_carlo": dict(MC_DEFAULTS)}
     m = c.mapping(node, "defaults", DEFAULTS_SPEC)
     if not m:
@@ -147,7 +148,7 @@ def _defaults(c: Collector, node: YNode | None) -> dict[str, Any]:
     return d
 
 
-def _field(c: Collector, f: dataclasses.Field, node: YNode, path: str) -> Any:
+def _field(c: PlanCollector, f: dataclasses.Field, node: YNode, path: str) -> Any:
     md = f.metadata
     kind = md["kind"]
     if kind in ("str",):
@@ -166,7 +167,7 @@ def _field(c: Collector, f: dataclasses.Field, node: YNode, path: str) -> Any:
     raise AssertionError(f"unhandled field kind {kind}")  # a model/loader mismatch, not user input
 
 
-def _step(c: Collector, node: YNode, path: str, defaults: dict[str, Any],
+def _step(c: PlanCollector, node: YNode, path: str, defaults: dict[str, Any],
           budget: derive.WorkBudget) -> tuple[Step, dict[str, tuple[int, int]]] | None:
     if not node.is_map:
         c.error(node, f"{path}: expected a step (a mapping with id, title, kind …), got {described(node.value)}")
@@ -246,7 +247,7 @@ def _step(c: Collector, node: YNode, path: str, defaults: dict[str, Any],
     return step, {k: c.key_pos(node, k) for k in node.value} | {"": (node.line, node.column)}
 
 
-def _capture_extras(c: Collector, m: dict[str, YNode], node: YNode, path: str, values: dict[str, Any]) -> None:
+def _capture_extras(c: PlanCollector, m: dict[str, YNode], node: YNode, path: str, values: dict[str, Any]) -> None:
     if "samples" in m:
         n = c.integer(m["samples"], f"{path}.samples", 16, MAX_SAMPLES)
         if "duration" in m:
@@ -276,7 +277,7 @@ def _capture_extras(c: Collector, m: dict[str, YNode], node: YNode, path: str, v
         c.error(node, f"{path}: missing required key 'channel' (here or in defaults.capture)")
 
 
-def _checks(c: Collector, node: YNode | None, path: str, defaults: dict[str, Any],
+def _checks(c: PlanCollector, node: YNode | None, path: str, defaults: dict[str, Any],
             budget: derive.WorkBudget) -> list[Check]:
     if node is None:
         return []

@@ -10,7 +10,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any
 
-from benchgate.analysis.names import CAPABILITIES, MEASUREMENT_NAMES, READING_UNITS
+from benchgate.common.names import CAPABILITIES, MEASUREMENT_NAMES, READING_UNITS
 from benchgate.plan.limits import Window
 
 STEP_KINDS = ("supply", "wait", "prompt", "capture", "reading")

@@ -12,7 +12,7 @@ import dataclasses
 import json
 from typing import Any
 
-from benchgate.analysis.names import CAPABILITIES, MEASUREMENT_UNITS, READING_UNITS
+from benchgate.common.names import CAPABILITIES, MEASUREMENT_UNITS, READING_UNITS
 from benchgate.plan.checks import LIMIT_KEYS
 from benchgate.plan.derive import DISTRIBUTIONS, LC_PARTS, MAX_DRAWS, MIN_DRAWS, TOPOLOGIES
 from benchgate.plan.model import (

@@ -10,7 +10,7 @@
 
 from __future__ import annotations
 
-from benchgate.plan.fields import Collector
+from benchgate.plan.fields import PlanCollector
 from benchgate.plan.model import CaptureStep, ReadingStep, Step, SupplyStep
 from benchgate.units.format import format_quantity
 
@@ -39,7 +39,7 @@ def _frequency_window(step: Step):
     return None
 
 
-def validate_steps(c: Collector, steps: list[Step], positions: list[Pos], requires: set[str],
+def validate_steps(c: PlanCollector, steps: list[Step], positions: list[Pos], requires: set[str],
                    complete: bool = True) -> None:
     """Cross-step checks; ``complete`` is False when some steps had errors of their own (then
     the supply sequence is not judged, to avoid errors that only follow from those)."""
@@ -80,7 +80,7 @@ def validate_steps(c: Collector, steps: list[Step], positions: list[Pos], requir
             _capture_timing(c, step, pos, plan_freq)
 
 
-def _capture_timing(c: Collector, step: CaptureStep, pos: Pos, plan_freq) -> None:
+def _capture_timing(c: PlanCollector, step: CaptureStep, pos: Pos, plan_freq) -> None:
     where = pos.get("checks", pos[""])
     fcheck = _frequency_window(step)
     windows = [fcheck] if fcheck is not None else plan_freq

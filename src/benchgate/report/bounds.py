@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import math
 
-from benchgate.analysis.bounds import UNBOUNDED, bounds_of
+from benchgate.common.bounds import UNBOUNDED, bounds_of
 
 #: by unit, for names the vocabulary does not bound: no negative frequencies or durations.
 _UNIT_BOUNDS: dict[str, tuple[float | None, float | None]] = {"Hz": (0.0, None), "s": (0.0, None)}
@@ -21,7 +21,7 @@ def physical_bounds(name: str, unit: str = "") -> tuple[float | None, float | No
     """``(low, high)`` physical bounds of quantity ``name`` measured in ``unit`` (None: unbounded).
 
     One table serves the plan loader (impossible windows) and the plots:
-    :data:`benchgate.analysis.bounds.PHYSICAL_BOUNDS`.
+    :data:`benchgate.common.bounds.PHYSICAL_BOUNDS`.
     """
     b = bounds_of(name)
     if b is UNBOUNDED:

@@ -26,7 +26,7 @@ from pathlib import Path
 from typing import Any
 from urllib.parse import unquote
 
-from benchgate.errors import BenchgateError
+from benchgate.errors import BrowserError
 
 CANDIDATES = ("chromium", "chromium-browser", "google-chrome")
 #: command-line switches for the system browser: headless, no sandbox (containers, CI as
@@ -40,12 +40,6 @@ NO_PLAYWRIGHT = ("Playwright for Python is not installed; install it with "
 #: requests a page may make while being checked: its own file, and inline data.
 _NETWORK = re.compile(r"^(?!file:|data:|about:|blob:)[a-z][a-z0-9+.-]*:", re.I)
 
-
-class BrowserError(BenchgateError):
-    """Chromium or Playwright missing, Chromium failing to start, or a page failing to load."""
-
-    def where(self) -> str:
-        return "chromium"
 
 
 def find_chromium() -> str | None:

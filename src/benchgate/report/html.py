@@ -13,8 +13,8 @@ from pathlib import Path
 from typing import Any
 
 from benchgate.analysis.capture import Capture
-from benchgate.analysis.names import MEASUREMENT_TITLES
 from benchgate.common.evidence import file_sha256, write_atomic
+from benchgate.common.names import MEASUREMENT_TITLES
 from benchgate.record import CheckRecord, StepRecord, UnitRecord
 from benchgate.report import plots
 from benchgate.report.cautions import GENERAL_CAUTIONS

@@ -13,24 +13,11 @@ from pathlib import Path
 from typing import Any
 
 from benchgate.common.evidence import json_safe, write_atomic
-from benchgate.errors import BenchgateError, Position
+from benchgate.errors import ReportError
 from benchgate.record import UnitRecord
 
 SCHEMA_FILE = "unit-report.schema.json"
 
-
-class ReportError(BenchgateError):
-    """A stored report that cannot be read, with the file and (for bad JSON) line and column."""
-
-    def __init__(self, message: str, file: str, line: int | None = None, column: int | None = None):
-        super().__init__(message)
-        self.message = message
-        self.file = file
-        self.line = line
-        self.column = column
-
-    def where(self) -> str:
-        return str(Position(self.file, self.line, self.column))
 
 
 def report_dict(record: UnitRecord) -> dict[str, Any]:

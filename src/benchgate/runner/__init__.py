@@ -10,7 +10,6 @@ from benchgate.runner.options import (
     EXIT_PASS,
     EXIT_UNDECIDED,
     EXIT_USAGE,
-    PreflightError,
     RunOptions,
     RunOutcome,
     exit_code_for,
@@ -18,7 +17,7 @@ from benchgate.runner.options import (
 
 __all__ = [
     "EXIT_ABORTED", "EXIT_FAIL", "EXIT_PASS", "EXIT_UNDECIDED", "EXIT_USAGE",
-    "PreflightError", "RunOptions", "RunOutcome", "Runner", "exit_code_for", "run_unit",
+    "RunOptions", "RunOutcome", "Runner", "exit_code_for", "run_unit",
 ]
 
 

@@ -29,7 +29,7 @@ def find_plan(name: str = PLAN_NAME) -> Path:
     for candidate in (here.parent.parent / "testplans" / name, here / "demo" / name):
         if candidate.is_file():
             return candidate
-    from benchgate.runner.options import PreflightError
+    from benchgate.errors import PreflightError
 
     raise PreflightError(f"demo plan {name} not found (looked in testplans/ and the package)")
 

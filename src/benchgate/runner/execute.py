@@ -19,7 +19,7 @@ from pathlib import Path
 from typing import Any
 
 from benchgate.analysis.measurement import Measurement
-from benchgate.errors import BenchgateError, InstrumentDisconnected
+from benchgate.errors import BenchgateError, InstrumentDisconnected, StepError
 from benchgate.instruments.base import Digitizer, take_reading
 from benchgate.judge.rules import Verdict, combine, judge
 from benchgate.record import CaptureRecord, CheckRecord, StepRecord
@@ -31,19 +31,6 @@ POWER_CYCLE_OFF_S = 0.5
 _YES = ("y", "yes")
 _NO = ("n", "no")
 
-
-class StepError(BenchgateError):
-    """A step that cannot go on (no operator answer, unusable instrument reply); the unit is error."""
-
-    exit_code = 3
-
-    def __init__(self, step_id: str, message: str):
-        super().__init__(message)
-        self.step_id = step_id
-        self.message = message
-
-    def where(self) -> str:
-        return f"step {self.step_id}"
 
 
 def utc_now() -> str:

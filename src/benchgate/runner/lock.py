@@ -20,14 +20,10 @@ import tempfile
 from pathlib import Path
 from typing import IO, Any
 
-from benchgate.runner.options import PreflightError
+from benchgate.errors import PreflightError, StationBusy
 
 #: exit code of a run refused because the station is busy (nothing was touched: a usage error)
 EXIT_STATION_BUSY = 2
-
-
-class StationBusy(PreflightError):
-    """Another process holds the station's lock; nothing was touched."""
 
 
 def runtime_dir() -> Path:

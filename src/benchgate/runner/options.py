@@ -23,7 +23,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from benchgate.errors import BenchgateError
+from benchgate.errors import PreflightError
 from benchgate.judge.rules import Verdict
 
 EXIT_PASS = 0
@@ -71,20 +71,6 @@ def check_serial(serial: str | None) -> str:
     if serial is None or not str(serial).strip():
         raise PreflightError("the serial number is empty; give the unit's serial number")
     return str(serial)
-
-
-class PreflightError(BenchgateError):
-    """The run was refused before anything was touched (station, calibration, hazards)."""
-
-    exit_code = EXIT_USAGE
-
-    def __init__(self, message: str, where: str | None = None):
-        super().__init__(message)
-        self.message = message
-        self._where = where
-
-    def where(self) -> str | None:
-        return self._where
 
 
 @dataclass

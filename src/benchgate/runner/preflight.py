@@ -13,7 +13,8 @@ from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import Any
 
-from benchgate.runner.options import PreflightError, RunOptions
+from benchgate.errors import PreflightError
+from benchgate.runner.options import RunOptions
 
 ACK_PHRASE = "yes I understand"
 

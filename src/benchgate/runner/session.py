@@ -16,14 +16,13 @@ from typing import Any
 
 from benchgate import __version__
 from benchgate.analysis.context import NO_OSCILLATION
-from benchgate.errors import BenchgateError
+from benchgate.errors import BenchgateError, PreflightError
 from benchgate.judge.rules import Verdict, combine
 from benchgate.record import InstrumentRecord, UnitRecord
 from benchgate.runner.events import EventLog, Hooks
 from benchgate.runner.execute import Executor, error_reason, utc_now
 from benchgate.runner.lock import StationLock
 from benchgate.runner.options import (
-    PreflightError,
     RunOptions,
     RunOutcome,
     check_serial,
@@ -71,7 +70,7 @@ class Runner:
     """Runs ``plan`` on ``station`` for one unit after another, sharing one database and display.
 
     Preflight (station, calibration, cautions, hazards) happens once, when the runner is made,
-    before anything is touched; it raises :class:`~benchgate.runner.options.PreflightError`.
+    before anything is touched; it raises :class:`~benchgate.errors.PreflightError`.
     """
 
     def __init__(self, plan: Any, station: Any, options: RunOptions, *, services: Services | None = None,

@@ -17,7 +17,7 @@ from types import MappingProxyType
 
 import numpy as np
 
-from benchgate.errors import BenchgateError
+from benchgate.errors import SimError
 from benchgate.sim.circuits import astable, rc_ladder, wien
 from benchgate.sim.circuits.trace import LoopTrace
 
@@ -28,9 +28,6 @@ SIM_RATE = 100_000.0
 OPEN_CAPACITOR = 2e-12  # an open capacitor leaves its stray capacitance
 OPEN_RESISTOR = 1e9
 
-
-class SimError(BenchgateError):
-    """A understudy-bench request that cannot be met (unknown board or defect)."""
 
 
 @dataclass(frozen=True)

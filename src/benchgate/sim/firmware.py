@@ -36,7 +36,7 @@ from pathlib import Path
 
 import numpy as np
 
-from benchgate.sim.boards import SimError
+from benchgate.errors import SimError
 
 F_AVR = 16_000_000  # the firmware's F_CPU
 DEFAULT_BAUD = 2_000_000

@@ -4,6 +4,6 @@
 writing runs and :mod:`.queries` for history and lot summaries.
 """
 
-from benchgate.store.db import ResultsDB, StoreError
+from benchgate.store.db import ResultsDB
 
-__all__ = ["ResultsDB", "StoreError"]
+__all__ = ["ResultsDB"]

@@ -18,7 +18,7 @@ from datetime import UTC, datetime
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from benchgate.errors import BenchgateError
+from benchgate.errors import StoreError
 from benchgate.store.outcome import cut_short
 
 if TYPE_CHECKING:
@@ -28,19 +28,6 @@ if TYPE_CHECKING:
 #: seconds a writer waits for another writer's lock before giving up.
 BUSY_TIMEOUT_S = 30.0
 
-
-class StoreError(BenchgateError):
-    """A results database that cannot be opened, read or written."""
-
-    exit_code = 2
-
-    def __init__(self, message: str, path: str | os.PathLike[str] | None = None):
-        super().__init__(message)
-        self.message = message
-        self.path = None if path is None else str(path)
-
-    def where(self) -> str | None:
-        return self.path
 
 
 # --------------------------------------------------------------------------- schema

@@ -230,7 +230,7 @@ def cpk(mean: float, std: float | None, low: float | None, high: float | None) -
 
 def parse_since(since: str) -> float:
     """Seconds since the epoch for ``--since`` (a date, or an ISO time; UTC unless stated)."""
-    from benchgate.store.db import StoreError
+    from benchgate.errors import StoreError
 
     try:
         t = datetime.fromisoformat(since.strip().replace("Z", "+00:00"))

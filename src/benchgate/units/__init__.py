@@ -2,14 +2,13 @@
 
 from benchgate.units.eseries import is_preferred, nearest_preferred, series, series_for_tolerance
 from benchgate.units.format import format_quantity
-from benchgate.units.parse import Quantity, UnitError, parse_quantity, parse_value
+from benchgate.units.parse import Quantity, parse_quantity, parse_value
 from benchgate.units.tolerance import Part, Tolerance, parse_part, parse_tolerance
 
 __all__ = [
     "Part",
     "Quantity",
     "Tolerance",
-    "UnitError",
     "format_quantity",
     "is_preferred",
     "nearest_preferred",

@@ -17,6 +17,8 @@ import math
 import re
 from dataclasses import dataclass
 
+from benchgate.errors import NotFiniteError, UnitError
+
 #: SI prefix letter -> factor. ``u`` is accepted for micro; both micro signs are accepted.
 PREFIXES: dict[str, float] = {
     "p": 1e-12,
@@ -102,12 +104,6 @@ _RKM_LETTERS: dict[str, tuple[float, tuple[str, ...] | None]] = {
 _NONFINITE_RE = re.compile(r"^\s*[+-]?(?:nan|inf(?:inity)?)\b", re.IGNORECASE)
 
 
-class UnitError(ValueError):
-    """A value that is not a number, has an unknown unit, or has the wrong dimension."""
-
-
-class NotFiniteError(UnitError):
-    """A number that is NaN or infinite (``.nan``, ``inf``, ``1e999``) where a finite one is meant."""
 
 
 def finite(value: float, text: object, where: str = "") -> float:

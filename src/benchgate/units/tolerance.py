@@ -9,15 +9,8 @@ from __future__ import annotations
 import re
 from dataclasses import dataclass
 
-from benchgate.units.parse import (
-    PREFIXES,
-    NotFiniteError,
-    UnitError,
-    canonical_unit,
-    dimension_name,
-    finite,
-    parse_quantity,
-)
+from benchgate.errors import NotFiniteError, UnitError
+from benchgate.units.parse import PREFIXES, canonical_unit, dimension_name, finite, parse_quantity
 
 #: IEC 60062 tolerance letters for resistors and capacitors -> ± percent
 #: (F, J, K and M: IEC 60062 via REFERENCES.md, J and M from memory; B, C, D, G from memory).

@@ -12,9 +12,9 @@ import math
 from dataclasses import dataclass, field
 from typing import Any
 
-from benchgate.errors import PlanError, PlanErrors
+from benchgate.errors import FileError, FileErrors
 
-_MAX_NODES = 50_000  # a large plan has a few thousand; the limit keeps every load fast
+_MAX_NODES = 50_000  # a large plan has a few thousand values; the limit keeps every load fast
 _MAX_DEPTH = 64
 _MAX_BYTES = 4_000_000
 
@@ -49,44 +49,49 @@ class YNode:
         return self.value
 
 
-def load_text(text: str, file: str) -> YNode:
-    """Parse one YAML document into :class:`YNode` values; raises PlanErrors with positions."""
+def load_text(text: str, file: str, kind: type[FileErrors] = FileErrors) -> YNode:
+    """Parse one YAML document into :class:`YNode` values.
+
+    Raises ``kind`` (PlanErrors, StationErrors …: the caller says what the file is) with the
+    position of every problem.
+    """
     import yaml
 
-    errors: list[PlanError] = []
-    _check_tabs(text, file, errors)
+    err = kind.item
+    errors: list[FileError] = []
+    _check_tabs(text, file, errors, err)
     if errors:
-        raise PlanErrors(errors)
+        raise kind(errors)
     if not text.strip() or all(
         not ln.strip() or ln.lstrip().startswith("#") for ln in text.splitlines()
     ):
-        raise PlanErrors([PlanError("the file is empty (no YAML content)", file, 1, 1)])
-    _prescan(text, file)
+        raise kind([err("the file is empty (no YAML content)", file, 1, 1)])
+    _prescan(text, file, kind)
     try:
         node = yaml.compose(text, Loader=yaml.SafeLoader)
     except yaml.MarkedYAMLError as exc:
         mark = exc.problem_mark or exc.context_mark
         problem = exc.problem or exc.context or "invalid YAML"
         line, col = (mark.line + 1, mark.column + 1) if mark else (1, 1)
-        raise PlanErrors([PlanError(f"YAML syntax error: {problem}", file, line, col)]) from None
+        raise kind([err(f"YAML syntax error: {problem}", file, line, col)]) from None
     except yaml.YAMLError as exc:  # reader errors: characters YAML does not allow
         pos = getattr(exc, "position", None)
         line, col = _line_col(text, pos) if isinstance(pos, int) else (1, 1)
         ch = getattr(exc, "character", None)
         what = f"character {ch!r} (U+{ord(ch):04X})" if isinstance(ch, str) and ch else "a character"
-        raise PlanErrors([PlanError(f"{what} is not allowed in YAML", file, line, col)]) from None
+        raise kind([err(f"{what} is not allowed in YAML", file, line, col)]) from None
     except RecursionError:
-        raise PlanErrors([PlanError("YAML nested too deeply", file, 1, 1)]) from None
+        raise kind([err("YAML nested too deeply", file, 1, 1)]) from None
     if node is None:
-        raise PlanErrors([PlanError("the file is empty (no YAML content)", file, 1, 1)])
-    conv = _Converter(file)
+        raise kind([err("the file is empty (no YAML content)", file, 1, 1)])
+    conv = _Converter(file, err)
     result = conv.convert(node, 0, set())
     if conv.errors:
-        raise PlanErrors(conv.errors)
+        raise kind(conv.errors)
     return result
 
 
-def _prescan(text: str, file: str) -> None:
+def _prescan(text: str, file: str, kind: type[FileErrors]) -> None:
     """Refuse a document with more than _MAX_NODES nodes before composing it.
 
     Composing is the slow part of reading (pure Python, about 20 µs a node); counting parser
@@ -105,25 +110,26 @@ def _prescan(text: str, file: str) -> None:
                 if count > _MAX_NODES:
                     m = event.start_mark
                     line, col = (m.line + 1, m.column + 1) if m else (1, 1)
-                    raise PlanErrors([PlanError(f"more than {_MAX_NODES} YAML values; a plan or "
-                                                "station file is far smaller", file, line, col)])
+                    raise kind([kind.item(f"more than {_MAX_NODES} YAML values; a plan or "
+                                          "station file is far smaller", file, line, col)])
     except yaml.YAMLError:
         return
 
 
-def load_file(path: str) -> tuple[YNode, str]:
-    """Read and parse ``path``; returns the tree and the text. Raises PlanErrors."""
+def load_file(path: str, kind: type[FileErrors] = FileErrors) -> tuple[YNode, str]:
+    """Read and parse ``path``; returns the tree and the text. Raises ``kind`` with positions."""
+    err = kind.item
     try:
         with open(path, "rb") as fh:
             raw = fh.read(_MAX_BYTES + 1)
     except FileNotFoundError:
-        raise PlanErrors([PlanError("no such file", path)]) from None
+        raise kind([err("no such file", path)]) from None
     except IsADirectoryError:
-        raise PlanErrors([PlanError("is a directory, not a plan file", path)]) from None
+        raise kind([err("is a directory, not a YAML file", path)]) from None
     except OSError as exc:
-        raise PlanErrors([PlanError(f"cannot read: {exc.strerror or exc}", path)]) from None
+        raise kind([err(f"cannot read: {exc.strerror or exc}", path)]) from None
     if len(raw) > _MAX_BYTES:
-        raise PlanErrors([PlanError(f"file larger than {_MAX_BYTES} bytes; not a plan", path, 1, 1)])
+        raise kind([err(f"file larger than {_MAX_BYTES} bytes; not a plan or station file", path, 1, 1)])
     if raw.startswith(b"\xef\xbb\xbf"):
         raw = raw[3:]
     try:
@@ -131,14 +137,14 @@ def load_file(path: str) -> tuple[YNode, str]:
     except UnicodeDecodeError as exc:
         good = raw[: exc.start].decode("utf-8", errors="replace")
         line, col = _line_col(good + "?", len(good))
-        raise PlanErrors([PlanError(
-            f"not UTF-8 text (byte 0x{raw[exc.start]:02X}); a plan is a UTF-8 YAML file",
+        raise kind([err(
+            f"not UTF-8 text (byte 0x{raw[exc.start]:02X}); expected a UTF-8 YAML file",
             path, line, col)]) from None
     nul = text.find("\x00")
     if nul >= 0:
         line, col = _line_col(text, nul)
-        raise PlanErrors([PlanError("binary data (NUL byte); a plan is a UTF-8 YAML file", path, line, col)])
-    return load_text(text, path), text
+        raise kind([err("binary data (NUL byte); expected a UTF-8 YAML file", path, line, col)])
+    return load_text(text, path, kind), text
 
 
 def _line_col(text: str, pos: int) -> tuple[int, int]:
@@ -148,20 +154,21 @@ def _line_col(text: str, pos: int) -> tuple[int, int]:
     return line, col
 
 
-def _check_tabs(text: str, file: str, errors: list[PlanError]) -> None:
+def _check_tabs(text: str, file: str, errors: list[FileError], err: type[FileError]) -> None:
     for i, ln in enumerate(text.splitlines(), start=1):
         indent = len(ln) - len(ln.lstrip(" \t"))
         j = ln.find("\t", 0, indent)
         if j >= 0:
-            errors.append(PlanError("tab character in indentation; YAML indents with spaces", file, i, j + 1))
+            errors.append(err("tab character in indentation; YAML indents with spaces", file, i, j + 1))
             if len(errors) >= 20:
                 return
 
 
 class _Converter:
-    def __init__(self, file: str):
+    def __init__(self, file: str, err: type[FileError]):
         self.file = file
-        self.errors: list[PlanError] = []
+        self.item = err
+        self.errors: list[FileError] = []
         self.count = 0
         import yaml
 
@@ -170,7 +177,7 @@ class _Converter:
 
     def _err(self, msg: str, node) -> None:
         m = node.start_mark
-        self.errors.append(PlanError(msg, self.file, m.line + 1, m.column + 1))
+        self.errors.append(self.item(msg, self.file, m.line + 1, m.column + 1))
 
     def convert(self, node, depth: int, active: set[int]) -> YNode:
         yaml = self._yaml
@@ -179,7 +186,7 @@ class _Converter:
         self.count += 1
         if self.count > _MAX_NODES:
             if self.count == _MAX_NODES + 1:
-                self._err("too many YAML nodes (alias expansion?); a plan is small", node)
+                self._err("too many YAML nodes (alias expansion?); a plan or station file is small", node)
             return YNode(None, *pos)
         if depth > _MAX_DEPTH or id(node) in active:
             self._err("YAML nested too deeply or refers to itself", node)
@@ -217,7 +224,7 @@ class _Converter:
     def _scalar(self, node) -> Any:
         tag = node.tag
         if tag not in _SCALAR_TAGS:
-            self._err(f"unsupported YAML tag {tag!r}; plans hold plain values only", node)
+            self._err(f"unsupported YAML tag {tag!r}; plan and station files hold plain values only", node)
             return None
         try:
             if tag == _T + "int":

@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import pytest
 
-from benchgate.errors import PlanErrors
-from benchgate.plan.yamlpos import load_file, load_text
+from benchgate.common.yamlpos import load_file, load_text
+from benchgate.errors import FileErrors
 
 
 def test_positions_of_values_and_keys():
@@ -43,7 +43,7 @@ def test_yaml11_scalars():
     ],
 )
 def test_errors_with_positions(text, where, what):
-    with pytest.raises(PlanErrors) as exc:
+    with pytest.raises(FileErrors) as exc:
         load_text(text, "f.yaml")
     e = exc.value.errors[0]
     assert (e.line, e.column) == where, exc.value.lines()
@@ -53,20 +53,20 @@ def test_errors_with_positions(text, where, what):
 def test_never_constructs_objects(tmp_path):
     marker = tmp_path / "ran"
     text = f"a: !!python/object/apply:os.system ['touch {marker}']\n"
-    with pytest.raises(PlanErrors):
+    with pytest.raises(FileErrors):
         load_text(text, "f")
     assert not marker.exists()
 
 
 def test_files(tmp_path):
-    with pytest.raises(PlanErrors, match="no such file"):
+    with pytest.raises(FileErrors, match="no such file"):
         load_file(str(tmp_path / "missing.yaml"))
-    with pytest.raises(PlanErrors, match="directory"):
+    with pytest.raises(FileErrors, match="directory"):
         load_file(str(tmp_path))
     p = tmp_path / "bom.yaml"
     p.write_bytes(b"\xef\xbb\xbfa: 1\n")
     assert load_file(str(p))[0].plain() == {"a": 1}
     p.write_bytes(b"a: 1\nb: \x00\n")
-    with pytest.raises(PlanErrors) as exc:
+    with pytest.raises(FileErrors) as exc:
         load_file(str(p))
     assert (exc.value.errors[0].line, exc.value.errors[0].column) == (2, 4)
