@@ -185,3 +185,20 @@ def test_non_finite_numbers(tmp_path, body, col, message):
     lines = errors_of(tmp_path, f"station: b\ninstruments:\n{body}\n")
     assert lines[0].startswith(f"{tmp_path / 'station.yaml'}:3:{col}: "), lines
     assert message in lines[0], lines
+
+
+def test_station_errors_are_their_own_class_printed_like_plan_errors(tmp_path, capsys):
+    # issue 10: a station file error is a StationError (not a PlanError), with file:line:col,
+    # and the CLI prints every one of them as "benchgate: <file>:<line>:<col>: <message>"
+    from benchgate.cli import main
+    from benchgate.errors import PlanError, StationError
+
+    path = write(tmp_path, "station: b\ninstruments:\n  adc: {kind: serial-adc, port: /dev/x, bits: 40, vref: nan}\n")
+    with pytest.raises(StationErrors) as info:
+        load_station(path)
+    assert all(type(e) is StationError and not isinstance(e, PlanError) for e in info.value.errors)
+    code = main(["station", path, "--no-open"])
+    err = capsys.readouterr().err.splitlines()
+    assert code == 2 and len(err) == 2, err
+    assert err[0].startswith(f"benchgate: {path}:3:") and "'bits'" in err[0]
+    assert err[1].startswith(f"benchgate: {path}:3:") and "finite" in err[1]

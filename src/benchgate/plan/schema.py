@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import dataclasses
 import json
+from pathlib import Path
 from typing import Any
 
 from benchgate.common.names import CAPABILITIES, MEASUREMENT_UNITS, READING_UNITS
@@ -195,5 +196,14 @@ def schema_text() -> str:
     return json.dumps(build_schema(), indent=2, ensure_ascii=False) + "\n"
 
 
-if __name__ == "__main__":
-    print(schema_text(), end="")
+SHIPPED = Path(__file__).resolve().parents[1] / "schemas" / "plan.schema.json"
+
+
+def write_schema(path: Path = SHIPPED) -> Path:
+    """Write the schema to ``path`` (the file shipped in the package by default)."""
+    path.write_text(schema_text(), encoding="utf-8")
+    return path
+
+
+if __name__ == "__main__":  # python -m benchgate.plan.schema: regenerate the shipped file
+    write_schema()
