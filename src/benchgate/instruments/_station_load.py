@@ -8,6 +8,7 @@ from __future__ import annotations
 import datetime as dt
 from typing import Any
 
+from benchgate.common.fields import Collector
 from benchgate.common.yamlpos import YNode, load_file
 from benchgate.errors import NotFiniteError, StationError, StationErrors, UnitError
 from benchgate.instruments.options import OptionSpec, check_value
@@ -22,15 +23,16 @@ _CAL_KEYS = {"date", "due", "gain", "offset"}
 _BAD = object()  # an option value that was refused (the error is already recorded)
 
 
-class StationReader:
+class StationReader(Collector):
+    """Reads one station file, collecting every error (a StationError) with its place."""
+
     def __init__(self, path: str, registry: Any = None):
+        super().__init__(path, StationErrors)
         self.path = path
         self.registry = registry  # where each driver's own option spec comes from
-        self.errors: list[StationError] = []
 
     def err(self, message: str, node: YNode | None = None, pos: tuple[int, int] | None = None) -> None:
-        line, col = pos if pos else ((node.line, node.column) if node is not None else (None, None))
-        self.errors.append(StationError(message, self.path, line, col))
+        self.error(pos if pos else node, message)
 
     def read(self) -> Station:
         root, _text = load_file(self.path, StationErrors)
@@ -58,8 +60,7 @@ class StationReader:
                 cfg = self.instrument(role, node, inst.key_pos[role])
                 if cfg is not None:
                     instruments[role] = cfg
-        if self.errors:
-            raise StationErrors(self.errors)
+        self.raise_errors()
         return Station(id=str(sid.value).strip(), path=self.path, instruments=instruments)
 
     # ------------------------------------------------------------------ instruments
