@@ -10,7 +10,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any
 
-from benchgate.common.names import CAPABILITIES, MEASUREMENT_NAMES, READING_UNITS
+from benchgate.common.names import CAPABILITIES, READING_UNITS
 from benchgate.plan.limits import Window
 
 STEP_KINDS = ("supply", "wait", "prompt", "capture", "reading")
@@ -219,5 +219,3 @@ DEFAULTS_SPEC: dict[str, dict[str, Any]] = {
 }
 
 CAPTURE_DEFAULT_KEYS = ("instrument", "channel", "rate", "duration", "range", "harmonics")
-
-MEASUREMENTS = MEASUREMENT_NAMES
