@@ -180,6 +180,7 @@ class TestCalibrationStatus:
     ("  adc: {kind: serial-adc, port: /dev/x, calibration: {gain: nan}}", 61, "finite"),
     ("  dmm: {kind: scpi-dmm, resource: x, accuracy: {gain: nan %}}", 55, "finite"),
     ("  dmm: {kind: scpi-dmm, resource: x, settle: 'inf s'}", 46, "finite"),
+    ("  dmm: {kind: scpi-dmm, resource: x, averages: 1" + "0" * 400 + "}", 48, "finite"),
 ])
 def test_non_finite_numbers(tmp_path, body, col, message):
     lines = errors_of(tmp_path, f"station: b\ninstruments:\n{body}\n")

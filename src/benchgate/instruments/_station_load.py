@@ -307,6 +307,12 @@ class StationReader(Collector):
             if q.unit == "%":
                 return q.value / 100.0
             return q.value if q.unit else node.value
+        if isinstance(node.value, int) and not isinstance(node.value, bool):
+            try:
+                parse_quantity(node.value)  # a whole number beyond any float is no setting
+            except NotFiniteError as exc:
+                self.err(f"{key}: {exc}", node)
+                return None
         return node.value
 
 
