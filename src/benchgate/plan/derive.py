@@ -32,7 +32,7 @@ MAX_DRAWS = 1_000_000
 #: circuit evaluations (corners + Monte Carlo draws, weighted by :func:`work_weight`) one plan
 #: may ask for, so that loading and `benchgate check` finish within a few seconds on any plan
 #: the loader accepts; one unit is about a microsecond on a small CI machine.
-MAX_PLAN_WORK = 2_500_000
+MAX_PLAN_WORK = 1_500_000
 DISTRIBUTIONS = ("uniform", "normal")
 
 #: topology -> (options with allowed values, parts: key -> unit, required parts, outputs)
