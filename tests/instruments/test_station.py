@@ -203,3 +203,45 @@ def test_station_errors_are_their_own_class_printed_like_plan_errors(tmp_path, c
     assert code == 2 and len(err) == 2, err
     assert err[0].startswith(f"benchgate: {path}:3:") and "'bits'" in err[0]
     assert err[1].startswith(f"benchgate: {path}:3:") and "finite" in err[1]
+
+
+# issue 9: mutated station files load with finite numbers everywhere or fail with positions
+_HOSTILE_STATION = [".nan", ".inf", "-.inf", "nan", "inf s", "1e999", "9" * 330, "-1", "0", "1e9 s",
+                    "nan %", "{gain: .nan}", "[.inf]", "'inf V'", "~", "yes", "*x", "&x 1", "1e-320 s"]
+
+
+def _all_numbers(value):
+    if isinstance(value, dict) or hasattr(value, "items"):
+        for v in value.values():
+            yield from _all_numbers(v)
+    elif isinstance(value, (list, tuple)):
+        for v in value:
+            yield from _all_numbers(v)
+    elif isinstance(value, (int, float)) and not isinstance(value, bool):
+        yield value
+
+
+def test_station_fuzz_finite_or_positioned(tmp_path):
+    import math
+    import random
+
+    rng = random.Random(9)  # fixed seed
+    lines = GOOD.splitlines()
+    targets = [i for i, ln in enumerate(lines) if ":" in ln and not ln.rstrip().endswith(":")]
+    path = tmp_path / "station.yaml"
+    for _ in range(150):
+        mutated = list(lines)
+        for i in rng.sample(targets, rng.randint(1, 2)):
+            key = mutated[i].split(":", 1)[0]
+            mutated[i] = f"{key}: {rng.choice(_HOSTILE_STATION)}"
+        path.write_text("\n".join(mutated) + "\n")
+        try:
+            st = load_station(str(path))
+        except StationErrors as exc:
+            assert all(e.file == str(path) and e.line and e.column for e in exc.errors), exc.lines()
+            continue
+        for cfg in st.instruments.values():
+            numbers = [cfg.timeout, *_all_numbers(dict(cfg.options))]
+            if cfg.calibration is not None:
+                numbers += [cfg.calibration.gain, cfg.calibration.offset]
+            assert all(math.isfinite(x) for x in numbers if x is not None), (mutated, numbers)
