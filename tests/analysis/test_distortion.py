@@ -16,12 +16,12 @@ N, CYCLES = 1 << 14, 101.37  # non-coherent on purpose
 
 
 def square(kmax):
-    # Fourier series of a 50 % square wave: odd harmonics 1/k (handbook, REFERENCES.md)
+    # Fourier series of a 50 % square wave: odd harmonics 1/k (handbook, docs/references.md)
     return {k: 1.0 / k for k in range(1, kmax + 1, 2)}
 
 
 def triangle(kmax):
-    # Fourier series of a triangle: odd harmonics ±1/k² (handbook, REFERENCES.md)
+    # Fourier series of a triangle: odd harmonics ±1/k² (handbook, docs/references.md)
     return {k: (-1) ** ((k - 1) // 2) / k ** 2 for k in range(1, kmax + 1, 2)}
 
 
@@ -39,7 +39,7 @@ class TestThd:
         assert m.details["harmonics_summed"] == list(range(2, 11))
 
     @pytest.mark.parametrize("series, harmonics, expected", [
-        (square, 10, 42.88), (square, 50, 47.30),     # REFERENCES.md, analytic THD table
+        (square, 10, 42.88), (square, 50, 47.30),     # docs/references.md, analytic THD table
         (triangle, 10, 12.05), (triangle, 50, 12.11),
         (sawtooth, 10, 74.15),
     ])
@@ -91,7 +91,7 @@ class TestSinadEnob:
         x = harmonic_series(N, CYCLES, {1: 1.0, 3: 0.02}).samples + rng.normal(0, 0.003, N)
         cap = Capture(x, 1000.0)
         s = sinad(cap).value
-        # REFERENCES.md: THD+N (linear) = 1/SINAD
+        # docs/references.md: THD+N (linear) = 1/SINAD
         assert_allclose(thd_n(cap).value, 100 * 10 ** (-s / 20), rtol=1e-12)
 
 

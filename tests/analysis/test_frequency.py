@@ -51,7 +51,7 @@ class TestFrequency:
     ])
     def test_reaches_crlb(self, n, cycles, snr_db, coherent):
         ratio, coverage = monte_carlo(n, cycles, snr_db, 200, seed=n + snr_db, coherent=coherent)
-        # REFERENCES.md: a four-parameter fit reaches ≈ 1.0× the CRLB; 200 trials give the RMS
+        # docs/references.md: a four-parameter fit reaches ≈ 1.0× the CRLB; 200 trials give the RMS
         # ratio a ±5 % (1σ) sampling spread, hence the band
         assert 0.85 < ratio < 1.15
         # JCGM 100:2008: U with k = 2 covers about 95 %

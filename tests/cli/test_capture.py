@@ -87,7 +87,7 @@ def test_capture_with_the_supply_powers_the_unit_then_switches_off(tmp_path, cap
         assert vb.supply_output is False  # asked of the SCPI server itself
     result = analyze(load_capture(out), ["frequency"])
     freq = result.measurements["frequency"]
-    # a powered TB-3 oscillates near 1/(2πRC√6) ≈ 955 Hz (handbook formula, REFERENCES.md);
+    # a powered TB-3 oscillates near 1/(2πRC√6) ≈ 955 Hz (handbook formula, docs/references.md);
     # loading and part tolerances move it by several percent
     assert freq.valid and 800.0 < freq.value < 1100.0
 

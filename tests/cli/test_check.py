@@ -41,7 +41,7 @@ def test_tb3_numbers(capsys):
     data = json.loads(capsys.readouterr().out)
     steady = next(s for s in data["steps"] if s["id"] == "steady")
     f = steady["checks"][0]
-    # handbook formula (REFERENCES.md): 1/(2πRC√6) = 955.5 Hz for R = 6k8, C = 10n; the
+    # handbook formula (docs/references.md): 1/(2πRC√6) = 955.5 Hz for R = 6k8, C = 10n; the
     # amplifier's source and load resistance pull the design value a little below it
     ideal = 1 / (2 * math.pi * 6800 * 10e-9 * math.sqrt(6))
     assert 0.95 * ideal < f["nominal"] < ideal

@@ -77,7 +77,7 @@ class TestGuarded:
 
     def test_false_accept_risk_at_the_limit(self):
         # ILAC-G8:09/2019 4.2.2: with guard band w = U (k = 2) the probability of accepting a
-        # unit whose true value sits exactly on the limit is Φ(-2) = 2.275 % (REFERENCES.md).
+        # unit whose true value sits exactly on the limit is Φ(-2) = 2.275 % (docs/references.md).
         # Simple acceptance gives about 50 % there. Reference: scipy.stats.norm.
         rng = np.random.default_rng(20261201)
         U = 2.0

@@ -62,14 +62,14 @@ def _nodal_180(R, C, form, source=0.0, load=math.inf):
 
 class TestRcLadder:
     def test_highpass_equal_sections(self):
-        # handbook formula (REFERENCES.md): f = 1/(2πRC√6), attenuation 1/29; 10k/10n -> 649.747 Hz
+        # handbook formula (docs/references.md): f = 1/(2πRC√6), attenuation 1/29; 10k/10n -> 649.747 Hz
         out = rc_ladder(np.full((1, 3), 10e3), np.full((1, 3), 10e-9), form="highpass")
         assert_allclose(out["frequency"], 1 / (2 * math.pi * 10e3 * 10e-9 * math.sqrt(6)), rtol=1e-12)
         assert_allclose(out["frequency"], 649.747, atol=5e-4)
         assert_allclose(out["gain_needed"], 29.0, rtol=1e-12)
 
     def test_lowpass_equal_sections(self):
-        # handbook formula (REFERENCES.md): f = √6/(2πRC), attenuation 1/29; 10k/10n -> 3898.48 Hz
+        # handbook formula (docs/references.md): f = √6/(2πRC), attenuation 1/29; 10k/10n -> 3898.48 Hz
         out = rc_ladder(np.full((1, 3), 10e3), np.full((1, 3), 10e-9), form="lowpass")
         assert_allclose(out["frequency"], math.sqrt(6) / (2 * math.pi * 10e3 * 10e-9), rtol=1e-12)
         assert_allclose(out["frequency"], 3898.48, atol=5e-3)
@@ -130,14 +130,14 @@ class TestRcLadder:
 
 class TestWien:
     def test_equal_parts(self):
-        # handbook formula (REFERENCES.md): f = 1/(2πRC), feedback 1/3 -> gain 3; 16k/10n -> 994.7 Hz
+        # handbook formula (docs/references.md): f = 1/(2πRC), feedback 1/3 -> gain 3; 16k/10n -> 994.7 Hz
         out = wien_bridge(16e3, 16e3, 10e-9, 10e-9)
         assert_allclose(out["frequency"], 1 / (2 * math.pi * 16e3 * 10e-9), rtol=1e-12)
         assert_allclose(out["frequency"], 994.718, atol=1e-3)
         assert_allclose(out["gain_needed"], 3.0, rtol=1e-12)
 
     def test_general(self):
-        # handbook formula (REFERENCES.md): f = 1/(2π√(R1R2C1C2)); gain 1 + R1/R2 + C2/C1
+        # handbook formula (docs/references.md): f = 1/(2π√(R1R2C1C2)); gain 1 + R1/R2 + C2/C1
         # (derived from the series/parallel network at its zero-phase frequency)
         R1, R2, C1, C2 = np.array([10e3, 33e3]), np.array([22e3, 4.7e3]), np.array([4.7e-9, 1e-9]), np.array([15e-9, 2.2e-9])
         out = wien_bridge(R1, R2, C1, C2)
@@ -147,13 +147,13 @@ class TestWien:
 
 class TestTimer:
     def test_check_values(self):
-        # REFERENCES.md check: R1 = 1k, R2 = 10k, C = 10n -> 6870 Hz, duty 52.38 %
+        # docs/references.md check: R1 = 1k, R2 = 10k, C = 10n -> 6870 Hz, duty 52.38 %
         out = timer_astable(1e3, 10e3, 10e-9)
         assert_allclose(out["frequency"], 6870, atol=0.5)
         assert_allclose(out["duty"] * 100, 52.38, atol=0.005)
 
     def test_formula(self):
-        # handbook formula (REFERENCES.md): f = 1/(ln2·(R1+2R2)·C), duty = (R1+R2)/(R1+2R2)
+        # handbook formula (docs/references.md): f = 1/(ln2·(R1+2R2)·C), duty = (R1+R2)/(R1+2R2)
         R1, R2, C = 1e3, 6.8e3, 100e-9
         out = timer_astable(R1, R2, C)
         assert_allclose(out["frequency"], 1 / (math.log(2) * (R1 + 2 * R2) * C), rtol=1e-12)
@@ -167,14 +167,14 @@ class TestTimer:
 
 class TestLcTank:
     def test_colpitts(self):
-        # handbook formula (REFERENCES.md): f = 1/(2π√(L·C1C2/(C1+C2)))
+        # handbook formula (docs/references.md): f = 1/(2π√(L·C1C2/(C1+C2)))
         L, C1, C2 = 1e-3, np.array([1e-9, 1e-9]), np.array([1e-9, 3.3e-9])
         out = colpitts(L, C1, C2)
         assert_allclose(out["frequency"], 1 / (2 * np.pi * np.sqrt(L * C1 * C2 / (C1 + C2))), rtol=1e-12)
         assert_allclose(out["gain_needed"], C2 / C1)
 
     def test_hartley(self):
-        # handbook formula (REFERENCES.md, from memory): f = 1/(2π√((L1+L2+2M)·C))
+        # handbook formula (docs/references.md, from memory): f = 1/(2π√((L1+L2+2M)·C))
         L1, L2, M, C = 1e-3, 2e-3, np.array([0.0, 0.3e-3]), 1e-9
         out = hartley(L1, L2, C, M)
         assert_allclose(out["frequency"], 1 / (2 * np.pi * np.sqrt((L1 + L2 + 2 * M) * C)), rtol=1e-12)

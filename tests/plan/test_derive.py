@@ -102,7 +102,7 @@ class TestMonteCarlo:
         axes = [np.linspace(p.low, p.high, k + 1) for p in (circ.parts["R1"], circ.parts["R2"], circ.parts["C"])]
         mids = [0.5 * (a[1:] + a[:-1]) for a in axes]
         r1, r2, c = np.meshgrid(*mids, indexing="ij", sparse=True)
-        f = 1 / (math.log(2) * (r1 + 2 * r2) * c)  # handbook formula (REFERENCES.md)
+        f = 1 / (math.log(2) * (r1 + 2 * r2) * c)  # handbook formula (docs/references.md)
         ref = float(np.mean((f >= window[0]) & (f <= window[1])))
         errors = []
         for n in (10_000, 40_000, 160_000):

@@ -68,7 +68,7 @@ class TestExamplePlans:
         assert p.decision == "simple"
         f = p.step("steady").checks[0]
         # independent nodal analysis (test_circuits) with the amplifier's 1k output and 47k input
-        # resistance as source and load; the ideal ladder, handbook 1/(2πRC√6) (REFERENCES.md),
+        # resistance as source and load; the ideal ladder, handbook 1/(2πRC√6) (docs/references.md),
         # is ≈ 955 Hz and the loading moves it down a little (interfaces.md)
         f_ref, g_ref, _ = _nodal_180([6800.0] * 3, [10e-9] * 3, "highpass", 1e3, 47e3)
         assert f.window.nominal == pytest.approx(f_ref, rel=1e-9)
@@ -90,14 +90,14 @@ class TestExamplePlans:
         p = load_plan(str(PLANS / "wo1.yaml"))
         assert p.decision == "guarded"
         w = p.step("steady").checks[0].window
-        assert w.nominal == pytest.approx(1 / (2 * math.pi * 16e3 * 10e-9), rel=1e-12)  # REFERENCES.md
+        assert w.nominal == pytest.approx(1 / (2 * math.pi * 16e3 * 10e-9), rel=1e-12)  # docs/references.md
         assert w.details["gain_needed"]["nominal"] == pytest.approx(3.0)
 
     def test_pf2_duty(self):
         p = load_plan(str(PLANS / "pf2.yaml"))
         duty = next(c for c in p.step("steady").checks if c.measurement == "duty_cycle")
         assert duty.window.unit == "%"
-        # REFERENCES.md timer formula: (R1+R2)/(R1+2R2) = 7.8/14.6
+        # docs/references.md timer formula: (R1+R2)/(R1+2R2) = 7.8/14.6
         assert duty.window.nominal == pytest.approx(100 * 7.8 / 14.6, rel=1e-12)
 
 

@@ -114,7 +114,7 @@ class TestEndToEnd:
             power_up(bench, tb3)
             cap = bench["adc"].capture("out", duration=0.3, rate=50_000)
         m = analyze(cap, ["frequency"]).measurements["frequency"]
-        handbook = 1 / (2 * math.pi * 10e3 * 10e-9 * math.sqrt(6))  # 649.7 Hz, REFERENCES.md
+        handbook = 1 / (2 * math.pi * 10e3 * 10e-9 * math.sqrt(6))  # 649.7 Hz, docs/references.md
         # within a few percent; the amplifier's loading and saturation move it +1.0 %
         # (see tests/sim/test_circuits.py for the breakdown)
         assert m.valid and m.value == pytest.approx(handbook, rel=0.03)
@@ -163,7 +163,7 @@ def test_lines_protocol_pf2():
     a = analyze(cap, ["frequency", "duty_cycle"])
     p = vb.unit.circuit()
     assert a.measurements["frequency"].value == pytest.approx(p.frequency, rel=2e-3)
-    # REFERENCES.md formula for the drawn parts, to the 20 µs sampling grid
+    # docs/references.md formula for the drawn parts, to the 20 µs sampling grid
     assert a.measurements["duty_cycle"].value == pytest.approx(100 * p.duty, abs=1.5)
 
 

@@ -65,12 +65,12 @@ class TestLadder:
         ideal = dict(r_out=1e-6, r_in=1e15)
         hp = rc_ladder.LadderParams(r=(10e3,) * 3, c=(10e-9,) * 3, **ideal)
         f, need = rc_ladder.linear_frequency(hp)
-        # handbook formula (REFERENCES.md): 1/(2πRC√6) = 649.747 Hz, attenuation 1/29
+        # handbook formula (docs/references.md): 1/(2πRC√6) = 649.747 Hz, attenuation 1/29
         assert f == pytest.approx(649.747, rel=1e-5)
         assert need == pytest.approx(29.0, rel=1e-5)
         lp = rc_ladder.LadderParams(r=(10e3,) * 3, c=(10e-9,) * 3, kind="low-pass", **ideal)
         f, need = rc_ladder.linear_frequency(lp)
-        # handbook formula (REFERENCES.md): √6/(2πRC) = 3898.48 Hz, attenuation 1/29
+        # handbook formula (docs/references.md): √6/(2πRC) = 3898.48 Hz, attenuation 1/29
         assert f == pytest.approx(3898.48, rel=1e-5)
         assert need == pytest.approx(29.0, rel=1e-5)
 
@@ -79,7 +79,7 @@ class TestLadder:
         v = rc_ladder.simulate(p, 0.6, RATE, seed=1)
         steady = v[int(0.3 * RATE):]
         f_zc = zero_crossing_frequency(steady, RATE)
-        handbook = 1.0 / (2 * math.pi * 10e3 * 10e-9 * math.sqrt(6))  # 649.747 Hz, REFERENCES.md
+        handbook = 1.0 / (2 * math.pi * 10e3 * 10e-9 * math.sqrt(6))  # 649.747 Hz, docs/references.md
         # Within a few percent of the handbook value. How far, and why: the amplifier's 47 kΩ
         # input resistance across the last 10 kΩ shunt (8.2 kΩ together) raises that section's
         # corner, moving the ladder's 180° point up; its 1 kΩ output resistance in series with
@@ -137,7 +137,7 @@ class TestWien:
         p = wien.WienParams()
         v = wien.simulate(p, 0.4, RATE)[int(0.2 * RATE):]
         f = zero_crossing_frequency(v, RATE)
-        # handbook formula (REFERENCES.md): 1/(2πRC) = 994.7 Hz for 16 kΩ, 10 nF
+        # handbook formula (docs/references.md): 1/(2πRC) = 994.7 Hz for 16 kΩ, 10 nF
         assert f == pytest.approx(1 / (2 * math.pi * 16e3 * 10e-9), rel=0.02)
         assert thd_percent(v, RATE, f) < 3.0
 
@@ -157,7 +157,7 @@ class TestWien:
 class TestAstable:
     def test_check_values(self):
         p = astable.AstableParams(r1=1e3, r2=10e3, c=10e-9)
-        # REFERENCES.md check: 1/(ln2·(R1+2R2)·C) = 6870 Hz, duty (R1+R2)/(R1+2R2) = 52.38 %
+        # docs/references.md check: 1/(ln2·(R1+2R2)·C) = 6870 Hz, duty (R1+R2)/(R1+2R2) = 52.38 %
         assert p.frequency == pytest.approx(6870, rel=1e-4)
         assert p.duty == pytest.approx(0.5238, abs=1e-4)
 
@@ -171,7 +171,7 @@ class TestAstable:
         falls = edges[high[edges]]
         period = np.mean(np.diff(rises)) / rate
         width = np.mean(falls[falls > rises[0]][: rises.size - 1] - rises[: -1]) / rate
-        # REFERENCES.md check values, to the sampling grid
+        # docs/references.md check values, to the sampling grid
         assert 1 / period == pytest.approx(6870, rel=1e-3)
         assert width / period == pytest.approx(0.5238, abs=1e-3)
 

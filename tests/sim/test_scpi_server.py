@@ -100,7 +100,7 @@ def test_several_units_in_one_message(bench, supply):
 
 
 def test_error_codes(bench, supply):
-    # SCPI-99 error numbers and texts (from memory where REFERENCES.md says so)
+    # SCPI-99 error numbers and texts (from memory where docs/references.md says so)
     cases = [("FOO:BAR 1", -113, "Undefined header"), ("VOLT 31", -222, "Data out of range"),
              ("VOLT", -109, "Missing parameter"), ("*RST 1", -108, "Parameter not allowed"),
              ("VOLT abc", -104, "Data type error"), ("OUTP MAYBE", -224, "Illegal parameter value")]

@@ -14,7 +14,7 @@ def test_sizes():
 
 
 def test_e24_irregular_values():
-    # IEC 60063 E24 (REFERENCES.md): these differ from 10^(i/24) rounded to two figures
+    # IEC 60063 E24 (docs/references.md): these differ from 10^(i/24) rounded to two figures
     e24 = series("E24")
     for v in (2.7, 3.0, 3.3, 3.6, 3.9, 4.3, 4.7, 5.1, 8.2, 9.1):
         assert v in e24
@@ -30,7 +30,7 @@ def test_e12_e6_are_subsets_of_e24():
 
 
 def test_e96_rounded_geometric():
-    # REFERENCES.md: E96 equals 10^(i/96) rounded to three significant figures
+    # docs/references.md: E96 equals 10^(i/96) rounded to three significant figures
     e96 = series("E96")
     assert e96[:6] == (1.0, 1.02, 1.05, 1.07, 1.1, 1.13)
     assert e96[-3:] == (9.31, 9.53, 9.76)

@@ -71,7 +71,7 @@ class TestPrefixes:
 
 
 class TestLetterCodes:
-    # IEC 60062 letter-and-digit code examples (REFERENCES.md)
+    # IEC 60062 letter-and-digit code examples (docs/references.md)
     @pytest.mark.parametrize(
         ("text", "value", "unit"),
         [

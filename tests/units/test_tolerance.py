@@ -37,7 +37,7 @@ class TestTolerance:
         with pytest.raises(UnitError, match="frequency"):
             parse_tolerance("±12 V", "Hz", field="tolerance")
 
-    # IEC 60062 tolerance letters: F ±1 %, J ±5 %, K ±10 %, M ±20 % (REFERENCES.md; J and M from memory)
+    # IEC 60062 tolerance letters: F ±1 %, J ±5 %, K ±10 %, M ±20 % (docs/references.md; J and M from memory)
     @pytest.mark.parametrize(("letter", "pct"), [("F", 1), ("J", 5), ("K", 10), ("M", 20)])
     def test_letters(self, letter, pct):
         t = parse_tolerance(letter)

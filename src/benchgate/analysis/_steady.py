@@ -47,6 +47,11 @@ def envelope(x: np.ndarray, period_samples: float, stride: int | None = None) ->
     4 samples, the fewest whole periods covering 4 samples): the cumulative
     sums are interpolated at the window's fractional end, which removes the ripple a whole
     number of samples would leave (it would bias the start-up crossing on slow envelopes).
+
+    References
+    ----------
+    Sliding rms over one period, √2 times it for a sine's peak: common practice, no source
+    (the rms of a sine over whole periods, handbook formula).
     """
     n = x.size
     period = float(period_samples)
@@ -136,6 +141,12 @@ def find_steady(env: Envelope, n: int, cycles: float, noise_var: float) -> Stead
     over M samples of sine plus noise has variance (4σ²S + 2σ⁴)/M, S = A²/2 (derived), so
     noise alone practically never trims a steady record. Records shorter than 8 cycles are
     taken as steady from their first sample.
+
+    References
+    ----------
+    IEEE Std 181-2011, settling: the instant after which a waveform stays within a stated band
+    around its final state level (applied here to the oscillation's envelope; from memory).
+    JCGM 100:2008 for the noise band. See docs/references.md.
     """
     level_all = env.level
     tail_from = n * (1.0 - TAIL_FRACTION)

@@ -199,7 +199,7 @@ def thd_n(capture: Capture, *, context: Context | None = None) -> Measurement:
 
     References
     ----------
-    IEEE Std 1241-2010; REFERENCES.md (THD+N = 1/SINAD, linear).
+    IEEE Std 1241-2010; docs/references.md (THD+N = 1/SINAD, linear).
     """
     ctx = get_context(capture, context)
     h = harmonic_analysis(ctx)

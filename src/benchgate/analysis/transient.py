@@ -43,8 +43,10 @@ def startup_time(capture: Capture, *, context: Context | None = None) -> Measure
 
     References
     ----------
-    Definition as in the project's issue (90 % of steady amplitude); envelope by sliding
-    rms, common practice. JCGM 100:2008 for the budget.
+    IEEE Std 181-2011: reference level crossing by linear interpolation, and settling to a band
+    around the final state (from memory), applied to the envelope; the 90 % reference level as
+    for a transition's 10 %–90 % duration. Envelope by sliding rms, common practice.
+    JCGM 100:2008 for the budget. See docs/references.md.
     """
     ctx = get_context(capture, context)
     if ctx.fatal:

@@ -3,7 +3,7 @@
 Every function takes numpy arrays of component values in SI units (Ω, F, H), all of the same
 shape (one element per corner or Monte Carlo draw), and returns arrays of the same shape.
 Oscillation frequencies are found as the root of the loop phase condition by bisection on
-the circuit's own network equations; the handbook shortcuts (REFERENCES.md) are what the tests
+the circuit's own network equations; the handbook shortcuts (docs/references.md) are what the tests
 compare with, not what the code uses.
 """
 
@@ -99,7 +99,7 @@ def rc_ladder(R: np.ndarray, C: np.ndarray, *, form: str = "highpass",
 
     References
     ----------
-    Handbook check (REFERENCES.md): three equal sections give 1/(2πRC√6) (high-pass) or
+    Handbook check (docs/references.md): three equal sections give 1/(2πRC√6) (high-pass) or
     √6/(2πRC) (low-pass) with attenuation 1/29.
     """
     R = np.atleast_2d(np.asarray(R, float))
@@ -162,7 +162,7 @@ def wien_bridge(R1, R2, C1, C2) -> dict[str, np.ndarray]:
 
     References
     ----------
-    Handbook formulas (REFERENCES.md): f = 1/(2π√(R1R2C1C2)); equal parts give β = 1/3.
+    Handbook formulas (docs/references.md): f = 1/(2π√(R1R2C1C2)); equal parts give β = 1/3.
     """
     R1, R2, C1, C2 = (np.asarray(x, float) for x in np.broadcast_arrays(R1, R2, C1, C2))
 
@@ -224,7 +224,7 @@ def colpitts(L, C1, C2) -> dict[str, np.ndarray]:
 
     References
     ----------
-    Handbook formula (REFERENCES.md): f = 1/(2π√(L·C1C2/(C1+C2))).
+    Handbook formula (docs/references.md): f = 1/(2π√(L·C1C2/(C1+C2))).
     """
     L, C1, C2 = (np.asarray(x, float) for x in np.broadcast_arrays(L, C1, C2))
 
@@ -244,7 +244,7 @@ def hartley(L1, L2, C, M=0.0) -> dict[str, np.ndarray]:
 
     References
     ----------
-    Handbook formula (REFERENCES.md, from memory): f = 1/(2π√((L1+L2+2M)·C)).
+    Handbook formula (docs/references.md, from memory): f = 1/(2π√((L1+L2+2M)·C)).
     """
     L1, L2, C, M = (np.asarray(x, float) for x in np.broadcast_arrays(L1, L2, C, M))
 

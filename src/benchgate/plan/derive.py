@@ -10,6 +10,13 @@ the timer's duty (R1+R2)/(R1+2R2) rises with R1 and falls with R2); for the RC l
 source and load, frequency falls as any part grows, which the tests check by perturbing every
 part of random ladders. As a safeguard the Monte Carlo draws are also compared with the corner
 window, and the window is widened to them (and says so) if one fell outside.
+
+References
+----------
+JCGM 101:2008, Evaluation of measurement data — Supplement 1 to the GUM: Propagation of
+distributions using a Monte Carlo method (draw the inputs from their distributions, evaluate
+the model per draw, read intervals off the output's distribution). The worst case at the
+corners of the tolerance box is common practice, no single source. See docs/references.md.
 """
 
 from __future__ import annotations
@@ -202,6 +209,11 @@ def draw(circuit: Circuit, draws: int, seed: int, distribution: str = "uniform")
 
     ``uniform``: rectangular over the band. ``normal``: centred on the nominal with the band's
     wider side as 3σ, clipped to the band.
+
+    References
+    ----------
+    JCGM 101:2008 (assigning probability density functions to the inputs: a rectangular one
+    for a quantity known only to lie within an interval).
     """
     rng = np.random.default_rng(seed)
     out: dict[str, np.ndarray] = {}
@@ -244,7 +256,7 @@ def analyse(circuit: Circuit, measurement: str, *, draws: int = DEFAULT_DRAWS, s
     distributions using a Monte Carlo method: the seeded draws through the circuit model and the
     0.135 % / 99.865 % points as a probabilistically symmetric coverage interval (from memory).
     The worst case over every tolerance corner (extreme-value analysis of a monotonic model) is
-    common practice, no single source.
+    common practice, no single source. See docs/references.md.
     """
     info = TOPOLOGIES[circuit.topology]
     if measurement not in info["outputs"]:

@@ -2,7 +2,7 @@
 
 E6, E12 and E24 are listed as the standard prints them: several E24 values (2.7, 3.0, 3.3,
 3.6, 3.9, 4.3, 4.7, 5.1, 8.2, 9.1) differ from 10^(i/24) rounded to two figures. E48 and E96
-are 10^(i/n) rounded to three significant figures (REFERENCES.md).
+are 10^(i/n) rounded to three significant figures (docs/references.md).
 """
 
 from __future__ import annotations

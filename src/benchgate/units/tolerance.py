@@ -13,7 +13,7 @@ from benchgate.errors import NotFiniteError, UnitError
 from benchgate.units.parse import PREFIXES, canonical_unit, dimension_name, finite, parse_quantity
 
 #: IEC 60062 tolerance letters for resistors and capacitors -> ± percent
-#: (F, J, K and M: IEC 60062 via REFERENCES.md, J and M from memory; B, C, D, G from memory).
+#: (F, J, K and M: IEC 60062 via docs/references.md, J and M from memory; B, C, D, G from memory).
 TOLERANCE_LETTERS: dict[str, float] = {
     "B": 0.1,
     "C": 0.25,

@@ -6,7 +6,7 @@ discharges through ``r2`` into the discharge pin while it is low; the two compar
 the switching instants follow in closed form and the waveform is computed event by event,
 vectorised over time (no integration error). From power-on the capacitor starts empty: the first
 high time (0 → 2/3) is ``ln 3·(r1 + r2)·C``, then ``t_high = ln 2·(r1 + r2)·C`` and
-``t_low = ln 2·r2·C`` alternate (REFERENCES.md: f = 1/(ln2·(R1+2R2)·C), duty (R1+R2)/(R1+2R2)).
+``t_low = ln 2·r2·C`` alternate (docs/references.md: f = 1/(ln2·(R1+2R2)·C), duty (R1+R2)/(R1+2R2)).
 """
 
 from __future__ import annotations

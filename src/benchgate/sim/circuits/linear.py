@@ -6,7 +6,8 @@ input varying linearly between the step's end points (a first-order hold), the s
     x[k+1] = Phi x[k] + (Gamma1 - Gamma2) u[k] + Gamma2 u[k+1]
 
 with Phi = exp(A h), Gamma1 = ∫0^h exp(A s) ds B and Gamma2 = ∫0^h exp(A s) (h - s)/h ds B, read
-off one block-matrix exponential (Van Loan's construction).
+off one block-matrix exponential (Van Loan's construction: C. F. Van Loan, "Computing integrals
+involving the matrix exponential", IEEE Trans. Autom. Control 23(3), 1978; docs/references.md).
 """
 
 from __future__ import annotations
@@ -28,6 +29,17 @@ def expm(a: np.ndarray) -> np.ndarray:
     -------
     ndarray, shape (n, n)
         exp(a), accurate to about 1e-13 relative for the small matrices used here.
+
+    Notes
+    -----
+    The matrix is halved s times until its 1-norm is at most 1/4, the Taylor series is summed
+    to 17 terms, and the result squared s times.
+
+    References
+    ----------
+    C. Moler and C. Van Loan, "Nineteen dubious ways to compute the exponential of a matrix",
+    SIAM Review 20(4), 1978, and "... twenty-five years later", SIAM Review 45(1), 2003
+    (scaling and squaring, here with a Taylor rather than a Padé approximant).
     """
     a = np.asarray(a, dtype=np.float64)
     if a.ndim != 2 or a.shape[0] != a.shape[1]:
