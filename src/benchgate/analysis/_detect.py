@@ -66,7 +66,7 @@ def local_floor(spec: Spectrum, cycles: float) -> float | None:
     Parameters
     ----------
     spec : Spectrum
-        Hann-windowed power spectrum of the residual (fitted sine removed); white noise of
+        Windowed power spectrum of the residual (fitted sine removed); white noise of
         variance σ² gives E[power_k] = 2σ²/N, so ``power_k·N/2`` is in units of σ².
     cycles : float
         The tone's frequency in bins (cycles per record).
@@ -80,18 +80,20 @@ def local_floor(spec: Spectrum, cycles: float) -> float | None:
     Notes
     -----
     The bins from max(1, k₀ − W) to k₀ + W, W = max(16, k₀/2) (below the second harmonic),
-    less the tone's own lobe (|k − k₀| < 3: the Hann main lobe, where removing the fitted sine
-    also removed noise), give the floor as their median divided by ln 2: for Gaussian noise
-    each bin is exponentially distributed about its mean, whose median is ln 2 times the mean.
-    The median is the ordered-statistic estimate of constant-false-alarm-rate detectors; it
-    ignores the odd spur or harmonic in the band. Coloured noise changes over the band (1/f
-    noise below a tone of a few cycles, where the band extends upward only, would be read too
-    low), so the floor is the larger of the band's median and the median of the nearest
-    bins (3 ≤ |k − k₀| < 3 + MIN_FLOOR_BINS); when the band is cut at bin 1 (a tone of a few
-    cycles), also the value at k₀ of a power law S ∝ k^−α (α ≤ 3) fitted by least squares to
-    the log bins (bins more than e³ above the line, such as harmonics, left out), each corrected by the Euler–Mascheroni constant (the mean of the log of an
-    exponential variable is ln(mean) − γ). The margin of :func:`detection_threshold` absorbs
-    the rest (the pink- and brown-noise tests in tests/analysis check it).
+    less the tone's own main lobe (|k − k₀| < half-width + 1 bins: 3 for Hann, 5 for
+    Blackman–Harris), where removing the fitted sine also removed noise, give the floor as
+    their median divided by ln 2: for Gaussian noise each bin is exponentially distributed
+    about its mean, whose median is ln 2 times the mean. The median is the ordered-statistic
+    estimate of constant-false-alarm-rate detectors; it ignores the odd spur or harmonic in
+    the band. Coloured noise changes over the band (1/f noise below a tone of a few cycles,
+    where the band extends upward only, would be read too low), so the floor is the larger of
+    the band's median and the median of the MIN_FLOOR_BINS nearest bins beyond the lobe; when
+    the band is cut at bin 1 (a tone of a few cycles), also the value at k₀ of a power law
+    S ∝ k^−α (α ≤ 3) fitted by least squares to the log bins (bins more than e³ above the
+    line, such as harmonics, left out), each corrected by the Euler–Mascheroni constant (the
+    mean of the log of an exponential variable is ln(mean) − γ). The margin of
+    :func:`detection_threshold` absorbs the rest (the pink- and brown-noise tests in
+    tests/analysis check it).
 
     References
     ----------
@@ -110,10 +112,11 @@ def local_floor(spec: Spectrum, cycles: float) -> float | None:
         return None
     k = np.arange(lo, hi + 1)
     dist = np.abs(k - k0)
-    use = dist >= 3.0
+    lobe = spec.half_width + 1.0  # the main lobe, where removing the fitted sine removed noise too
+    use = dist >= lobe
     if np.count_nonzero(use) < MIN_FLOOR_BINS:
         return None
-    near = use & (dist < 3.0 + MIN_FLOOR_BINS)
+    near = use & (dist < lobe + MIN_FLOOR_BINS)
     band = p[lo:hi + 1]
     level = max(float(np.median(band[use])), float(np.median(band[near])))
     if k0 - width < 1.0:

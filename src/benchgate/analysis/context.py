@@ -19,6 +19,9 @@ from benchgate.analysis.capture import Capture
 
 #: fewest cycles in the analysed part for frequency, amplitude and timing.
 MIN_CYCLES = 3.0
+#: tones of at least this many cycles have their noise floor read off the Blackman–Harris
+#: residual spectrum (shared with the distortion figures), shorter ones off a Hann spectrum.
+WIDE_LOBE_CYCLES = 64.0
 #: highest fundamental, as a fraction of the sample rate.
 MAX_FRACTION_OF_RATE = 0.45
 
@@ -152,7 +155,7 @@ class Context:
         w0 = 2.0 * math.pi * f0 / fs
         if f0 * n / fs < 20 and n <= 65536:
             w0 = sinefit.best_start(y, w0)
-        fit, work, track, chirp, floor, detection = self._model(y, w0)
+        fit, work, track, chirp, floor, detection, spec = self._model(y, w0)
         first_cycles = fit.omega * n / (2.0 * math.pi)
         if (detection < detection_threshold(n) or first_cycles < MIN_CYCLES) and n >= 64:
             # the strongest peak is no tone above its own floor, or too slow to be measured
@@ -165,8 +168,11 @@ class Context:
                 if second[5] >= detection_threshold(n) and steady_phase:
                     # (a tone found only this way must also keep its phase over the record: a
                     # ring-down at power-on is no oscillation of the steady part)
-                    fit, work, track, chirp, floor, detection = second
+                    fit, work, track, chirp, floor, detection, spec = second
         self.__dict__["_fit_work"] = work
+        if chirp is None and spec is not None:
+            if spec.window == "blackmanharris":  # the same residual: one transform, shared
+                self.__dict__["residual_spectrum"] = spec
         freq = fit.omega * fs / (2.0 * math.pi)
         cycles = freq * n / fs
         reason = None
@@ -195,23 +201,29 @@ class Context:
         if track is not None and track.followed and track.significant:
             chirp = _track.chirp_fit(y, fit, track, fs)
         amp = chirp.amplitude if chirp is not None else fit.amplitude
-        floor = self._detection_floor(fit, cycles, chirp)
+        floor, spec = self._detection_floor(fit, cycles, chirp)
         detection = n * amp ** 2 / (4.0 * floor) if floor > 0 else math.inf
-        return fit, work, track, chirp, floor, detection
+        return fit, work, track, chirp, floor, detection, spec
 
-    def _detection_floor(self, fit: sinefit.SineFit, cycles: float, chirp: _track.ChirpFit | None) -> float:
+    def _detection_floor(self, fit: sinefit.SineFit, cycles: float,
+                         chirp: _track.ChirpFit | None) -> tuple[float, spectrum.Spectrum | None]:
         """The larger of the residual variance and the residual's local floor at the fitted
         frequency (:func:`benchgate.analysis._detect.local_floor`): coloured noise is judged
         against its own level there. The residual is that of the drifting-phase fit when
         there is one (a drifting tone's own power would otherwise raise its floor)."""
         floor = chirp.residual_var if chirp is not None else fit.residual_var
+        spec = None
         if fit.n >= 64 and cycles >= 1.0:
             resid = chirp.residual if chirp is not None else sinefit.residual(self.y, fit)
-            spec = spectrum.power_spectrum(resid, self.capture.sample_rate, "hann")
+            # a tone of many cycles: the Blackman–Harris spectrum the distortion figures use
+            # too (its wider main lobe costs nothing there); of few: Hann, whose narrower lobe
+            # leaves more neighbouring bins below the tone
+            window = "blackmanharris" if cycles >= WIDE_LOBE_CYCLES else "hann"
+            spec = spectrum.power_spectrum(resid, self.capture.sample_rate, window)
             local = local_floor(spec, cycles)
             if local is not None:
                 floor = max(floor, local)
-        return floor
+        return floor, spec
 
     @cached_property
     def spectrum(self) -> spectrum.Spectrum:
