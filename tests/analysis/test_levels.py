@@ -309,3 +309,22 @@ class TestUnderTwoCycles:
         for cap in self._records(cycles, count=30):
             m = amplitude(cap)
             assert not m.valid or m.value + m.uncertainty >= 1.0, (cycles, m)
+
+
+class TestVppInNoise:
+    @pytest.mark.parametrize("shape", ["sine", "square"])
+    def test_noise_lift_is_inside_u(self, shape):
+        # regression: with 10 mV of noise the per-cycle peaks of a 2.9 V peak-to-peak waveform
+        # read about 15 mV (sine) to 50 mV (square, flat tops) high at U ≈ 1.4 mV. Truth by
+        # construction: 2.9 V (a sine's vpp is 2A, handbook formula)
+        fs, n = 10_000.0, 20_000
+        t = np.arange(n) / fs
+        inside = []
+        for seed in range(10):
+            rng = np.random.default_rng(seed)
+            s = np.sin(2 * np.pi * 100.3 * t + seed)
+            x = 1.45 * (s if shape == "sine" else np.sign(s)) + rng.normal(0, 0.01, n)
+            m = vpp(Capture(x, fs))
+            assert m.valid
+            inside.append(abs(m.value - 2.9) <= m.uncertainty)
+        assert all(inside)

@@ -102,7 +102,8 @@ def vpp(capture: Capture, *, context: Context | None = None) -> Measurement:
     Measurement
         With a trusted tone, the mean over whole cycles and a type A uncertainty (standard
         deviation of the mean, k = 2) plus the resolution of two readings and a rectangular
-        bound for the peaks falling between samples (:func:`_sampling_bound`); without one, the
+        bound for the peaks falling between samples (:func:`_sampling_bound`), plus, in full,
+        the most noise can lift the per-cycle peaks (2σ√(2 ln M), M samples a cycle); without one, the
         span of the steady part with the resolution term only. Invalid when clipped.
 
     References
@@ -129,9 +130,28 @@ def vpp(capture: Capture, *, context: Context | None = None) -> Measurement:
     k = ptp.size
     u_a = float(np.std(ptp, ddof=1)) / math.sqrt(k) if k > 1 else 0.0
     u_s = _sampling_bound(ctx) / math.sqrt(3.0)
-    return Measurement("vpp", float(np.mean(ptp)), "V", expand(u_a, q, q, u_s),
+    # noise lifts each cycle's highest sample and lowers its lowest: max(s + n) ≤ max(s) + max(n),
+    # and the mean of the largest of M Gaussian values of deviation σ is at most σ√(2 ln M)
+    # (derived bound), so the per-cycle peak-to-peak is at most 2σ√(2 ln M) high on average;
+    # that one-sided bound is added to U in full, not in quadrature
+    m = max(float(np.mean(np.diff(bounds))), 2.0)
+    noise_lift = 2.0 * _noise_sd(ctx) * math.sqrt(2.0 * math.log(m))
+    return Measurement("vpp", float(np.mean(ptp)), "V", expand(u_a, q, q, u_s) + noise_lift,
                        details={"method": "mean per-cycle peak-to-peak, peaks interpolated",
-                                "cycles": k, "sampling_bound_v": _sampling_bound(ctx)})
+                                "cycles": k, "sampling_bound_v": _sampling_bound(ctx),
+                                "noise_lift_bound_v": noise_lift})
+
+
+def _noise_sd(ctx: Context) -> float:
+    """Standard deviation (V) of the noise on the steady part: the smaller of the sine fit's
+    residual (which also holds a distorted waveform's harmonics) and a robust estimate from
+    the first differences (1.4826·MAD/√2, which also holds a sine's slope), both upper bounds
+    of the white noise (common practice, no source)."""
+    tone = ctx.tone
+    d = np.diff(ctx.y)
+    robust = 1.4826 * float(np.median(np.abs(d - np.median(d)))) / math.sqrt(2.0) if d.size else 0.0
+    fit = math.sqrt(tone.noise_var) if tone.fit is not None and math.isfinite(tone.noise_var) else math.inf
+    return min(robust, fit)
 
 
 def _cycle_extremes(whole: np.ndarray, starts: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
