@@ -35,7 +35,9 @@ def frequency(capture: Capture, *, context: Context | None = None) -> Measuremen
     (after start-up). The standard uncertainty combines the Cramér–Rao bound evaluated with
     the fit's amplitude and the noise at the tone's frequency (the larger of the residual
     variance and the local floor used for detection, so coloured noise is not taken for
-    white), and the sample-clock tolerance (rectangular).
+    white), and the sample-clock tolerance (rectangular). When the frequency drifts
+    significantly, the value is the frequency at the middle of the record from the tracked
+    phase (:mod:`benchgate.analysis._track`), the mean over the record for a linear drift.
 
     References
     ----------
@@ -62,4 +64,14 @@ def frequency(capture: Capture, *, context: Context | None = None) -> Measuremen
     if not math.isfinite(u_fit):
         return Measurement.invalid("frequency", "Hz", "no noise estimate for the uncertainty",
                                    value=tone.frequency, **details)
-    return Measurement("frequency", tone.frequency, "Hz", expand(u_fit, u_clock), details=details)
+    value = tone.frequency
+    if tone.chirp is not None and tone.track is not None:
+        # a significant drift: the fixed-frequency fit settles on no particular instant, the
+        # tracked phase gives the frequency at the middle of the record (the mean over the
+        # record for a linear drift) and its own least-squares uncertainty
+        value = tone.frequency + float(tone.track.coef[1]) / (2.0 * math.pi)
+        u_fit = math.hypot(u_fit, math.sqrt(max(float(tone.track.cov[1, 1]), 0.0)) / (2.0 * math.pi))
+        details.update(method="phase tracked over the record (linear drift), frequency at its middle",
+                       u_fit_hz=u_fit, drift_hz_per_s=tone.track.drift)
+    return Measurement("frequency", value, "Hz", expand(u_fit, clock_std(value, capture.clock_ppm)),
+                       details=details)
