@@ -14,7 +14,7 @@ import math
 
 import numpy as np
 
-from benchgate.analysis.spectrum import Spectrum, interpolated_peak, power_spectrum
+from benchgate.analysis.spectrum import Spectrum, interpolated_peak, mean_square, power_spectrum
 
 #: detection margin m (natural-log units): P_FA ≈ e^(−m) per record for a known floor.
 DETECTION_MARGIN = 25.0
@@ -58,6 +58,21 @@ def detection_threshold(n: int) -> float:
     alarm probability); D. C. Rife and R. R. Boorstyn, IEEE Trans. Inf. Theory 20(5), 1974.
     """
     return math.log(max(n, 2)) + DETECTION_MARGIN
+
+
+def beyond_any_local_floor(n: int, cycles: float, window: str) -> float:
+    """A detection statistic N·A²/(4σ²_r) (σ²_r the residual variance) at or above this value
+    passes against any floor :func:`local_floor` can return, so that floor need not be computed.
+
+    At least half of M bins lie at or above their median, so a median is at most 2/M of their
+    sum; the bins of a windowed spectrum sum to at most 1/mean(w²) times the residual's
+    variance (all of it where the window is 1); M ≥ MIN_FLOOR_BINS. Hence
+    local floor ≤ σ²_r·N/(M·ln 2·mean(w²)) (derived). Tones of fewer than 17 cycles, whose
+    floor may also be extrapolated along a power law, are always checked (returns inf).
+    """
+    if cycles < 17.0:
+        return math.inf
+    return detection_threshold(n) * n / (MIN_FLOOR_BINS * math.log(2.0) * mean_square(window))
 
 
 def local_floor(spec: Spectrum, cycles: float) -> float | None:

@@ -213,12 +213,15 @@ class Context:
         there is one (a drifting tone's own power would otherwise raise its floor)."""
         floor = chirp.residual_var if chirp is not None else fit.residual_var
         spec = None
+        window = "blackmanharris" if cycles >= WIDE_LOBE_CYCLES else "hann"
+        amp = chirp.amplitude if chirp is not None else fit.amplitude
+        if floor > 0 and fit.n * amp ** 2 / (4.0 * floor) >= _detect.beyond_any_local_floor(fit.n, cycles, window):
+            return floor, None  # no local floor could undo this detection: skip the transform
         if fit.n >= 64 and cycles >= 1.0:
             resid = chirp.residual if chirp is not None else sinefit.residual(self.y, fit)
             # a tone of many cycles: the Blackman–Harris spectrum the distortion figures use
             # too (its wider main lobe costs nothing there); of few: Hann, whose narrower lobe
             # leaves more neighbouring bins below the tone
-            window = "blackmanharris" if cycles >= WIDE_LOBE_CYCLES else "hann"
             spec = spectrum.power_spectrum(resid, self.capture.sample_rate, window)
             local = local_floor(spec, cycles)
             if local is not None:

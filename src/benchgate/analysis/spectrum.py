@@ -102,6 +102,12 @@ def window_enbw(name: str) -> float:
     return (a[0] ** 2 + 0.5 * sum(x * x for x in a[1:])) / a[0] ** 2
 
 
+def mean_square(name: str) -> float:
+    """Mean of w² over a periodic cosine-sum window: a₀² + ½Σaₖ² (Parseval; derived)."""
+    a = _coefficients(name)
+    return a[0] ** 2 + 0.5 * sum(x * x for x in a[1:])
+
+
 def variance_factor(name: str) -> float:
     """Σ_L ρ_L: how much the correlation between neighbouring bins of a windowed periodogram
     of white noise inflates the variance of a sum of bins (1 for the rectangular window).
