@@ -180,3 +180,14 @@ class TestColouredNoise:
         found = sum(frequency(tone(4096, 301.3, snr_db=snr_db, rng=rng, phase=rng.uniform(0, 6.3))[0]).valid
                     for _ in range(30))
         assert found == 30
+
+
+class TestFewCyclesOfADistortedWave:
+    @pytest.mark.parametrize("n", [4000, 20_000])
+    def test_never_reported_at_a_harmonic(self, n):
+        # regression: a 2.4-cycle triangle (too few cycles to measure) was reported valid at
+        # its 3rd harmonic, 7 cycles, by the search for the most prominent peak
+        t = np.arange(n)
+        s = np.sin(2 * np.pi * 2.4 * t / n + 0.3)
+        x = 2 / np.pi * np.arcsin(s) + np.random.default_rng(0).normal(0, 0.01, n)
+        assert not frequency(Capture(x, 1000.0)).valid

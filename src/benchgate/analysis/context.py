@@ -162,7 +162,12 @@ class Context:
             # (coloured noise is strongest at low frequencies): try the peak that stands highest
             # above its local floor
             alt = _detect.most_prominent_peak(y)
-            if alt is not None and abs(alt - fit.omega) * n / (2.0 * math.pi) > 2.0:
+            bins = n / (2.0 * math.pi)
+            harmonic = round(alt / fit.omega) if alt is not None and fit.omega > 0 else 0
+            if (alt is not None and abs(alt - fit.omega) * bins > 2.0
+                    and not (harmonic >= 2 and abs(alt - harmonic * fit.omega) * bins <= 1.5)):
+                # (never a harmonic of the first candidate: a distorted waveform of too few
+                # cycles must not be reported at a multiple of its frequency)
                 second = self._model(y, alt)
                 steady_phase = second[2] is None or second[2].followed
                 if second[5] >= detection_threshold(n) and steady_phase:
