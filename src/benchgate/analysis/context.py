@@ -162,17 +162,14 @@ class Context:
             # (coloured noise is strongest at low frequencies): try the peak that stands highest
             # above its local floor
             alt = _detect.most_prominent_peak(y)
-            bins = n / (2.0 * math.pi)
-            harmonic = round(alt / fit.omega) if alt is not None and fit.omega > 0 else 0
-            if (alt is not None and abs(alt - fit.omega) * bins > 2.0
-                    and not (harmonic >= 2 and abs(alt - harmonic * fit.omega) * bins <= 1.5)):
-                # (never a harmonic of the first candidate: a distorted waveform of too few
-                # cycles must not be reported at a multiple of its frequency)
+            if alt is not None and abs(alt - fit.omega) * n / (2.0 * math.pi) > 2.0:
                 second = self._model(y, alt)
                 steady_phase = second[2] is None or second[2].followed
-                if second[5] >= detection_threshold(n) and steady_phase:
-                    # (a tone found only this way must also keep its phase over the record: a
-                    # ring-down at power-on is no oscillation of the steady part)
+                if (second[5] >= detection_threshold(n) and steady_phase
+                        and not _is_harmonic(second[0].omega, fit.omega, n)):
+                    # (a tone found only this way must keep its phase over the record, a
+                    # ring-down at power-on is no oscillation of the steady part; and it must
+                    # not be a harmonic of a distorted waveform of too few cycles)
                     fit, work, track, chirp, floor, detection, spec = second
         self.__dict__["_fit_work"] = work
         if chirp is None and spec is not None:
@@ -287,6 +284,14 @@ class Context:
         if k < 1:
             return None
         return np.round(np.arange(k + 1) * period).astype(np.int64).clip(0, self.y.size)
+
+
+def _is_harmonic(omega: float, fundamental: float, n: int) -> bool:
+    """``omega`` lies within a quarter of a bin of the 2nd to 10th multiple of ``fundamental``."""
+    if not fundamental > 0:
+        return False
+    h = round(omega / fundamental)
+    return 2 <= h <= 10 and abs(omega - h * fundamental) * n / (2.0 * math.pi) <= 0.25
 
 
 def get_context(capture: Capture, context: Context | None, *, harmonics: int = 10) -> Context:
