@@ -165,8 +165,8 @@ class Context:
             if alt is not None and abs(alt - fit.omega) * n / (2.0 * math.pi) > 2.0:
                 second = self._model(y, alt)
                 steady_phase = second[2] is None or second[2].followed
-                if (second[5] >= detection_threshold(n) and steady_phase
-                        and not _is_harmonic(second[0].omega, fit.omega, n)):
+                harmonic = _is_harmonic(second[0].omega, fit.omega, n)
+                if second[5] >= detection_threshold(n) and steady_phase and not harmonic:
                     # (a tone found only this way must keep its phase over the record, a
                     # ring-down at power-on is no oscillation of the steady part; and it must
                     # not be a harmonic of a distorted waveform of too few cycles)
@@ -287,11 +287,12 @@ class Context:
 
 
 def _is_harmonic(omega: float, fundamental: float, n: int) -> bool:
-    """``omega`` lies within a quarter of a bin of the 2nd to 10th multiple of ``fundamental``."""
+    """``omega`` lies within one bin of the 2nd to 10th multiple of ``fundamental`` (a fit to a
+    harmonic of a waveform of few cycles is pulled off the exact multiple by the fundamental)."""
     if not fundamental > 0:
         return False
     h = round(omega / fundamental)
-    return 2 <= h <= 10 and abs(omega - h * fundamental) * n / (2.0 * math.pi) <= 0.25
+    return 2 <= h <= 10 and abs(omega - h * fundamental) * n / (2.0 * math.pi) <= 1.0
 
 
 def get_context(capture: Capture, context: Context | None, *, harmonics: int = 10) -> Context:
