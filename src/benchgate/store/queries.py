@@ -29,13 +29,13 @@ Definitions used by :func:`summary` (docs/results.md gives them in full, with th
 from __future__ import annotations
 
 import math
-import sqlite3
 from dataclasses import asdict, dataclass, field
 from datetime import UTC, datetime
 from typing import Any
 
 import numpy as np
 
+from benchgate.store.backend import wrap
 from benchgate.store.outcome import COMPLETE_SQL, is_complete
 
 #: histogram bins per numeric check.
@@ -99,8 +99,9 @@ class HistoryRun:
         return d
 
 
-def history(conn: sqlite3.Connection, serial: str) -> list[HistoryRun]:
+def history(conn: Any, serial: str) -> list[HistoryRun]:
     """Every run of ``serial`` (exact match), newest first."""
+    conn = wrap(conn)
     runs = conn.execute(
         "SELECT id, run_id, serial, plan_id, plan_version, station_id, operator, lot, started,"
         " ended, complete, verdict, reason, report_path, accept_hazards,"
@@ -262,12 +263,13 @@ def _filters(plan: str | None, lot: str | None, since: str | None
     return "".join(f" AND {x}" for x in runs), "".join(f" AND {x}" for x in checks), params
 
 
-def summary(conn: sqlite3.Connection, *, plan: str | None = None, lot: str | None = None,
+def summary(conn: Any, *, plan: str | None = None, lot: str | None = None,
             since: str | None = None) -> Summary:
     """The lot summary over the runs selected by plan id, lot and start time (all when None).
 
     Definitions: docs/results.md and the module docstring.
     """
+    conn = wrap(conn)
     rf, cf, params = _filters(plan, lot, since)
     # one row per unit: attempts, complete runs, complete runs that did not pass, and whether
     # the latest complete run passed (window function: latest first within the complete runs)
@@ -367,12 +369,18 @@ def _latest_complete(rf: str) -> str:
 def _check_stats(conn, defs, rf, params) -> tuple[CheckStats, ...]:
     """Statistics per check over the Cpk inputs: the valid values of each unit's latest complete
     run (one value per unit and check; see docs/results.md)."""
-    valid = "c.valid = 1 AND c.value IS NOT NULL"
-    with_latest = _latest_complete(rf)
-    rows = conn.execute(
-        f"{with_latest} SELECT c.def, COUNT(*), AVG(c.value), MIN(c.value), MAX(c.value)"
-        f" FROM checks c WHERE {valid} AND c.run IN (SELECT id FROM latest) GROUP BY c.def",
-        params).fetchall()
+    pick = (f"{_latest_complete(rf)} SELECT c.def, c.value FROM checks c"
+            " WHERE c.valid = 1 AND c.value IS NOT NULL AND c.run IN (SELECT id FROM latest)")
+    if conn.dialect == "sqlite":
+        # SQLite sorts for every GROUP BY it cannot read from an index: pick the values once
+        # into a temporary table (gone with the read transaction) instead of twice
+        conn.execute("DROP TABLE IF EXISTS temp.cpk_values")
+        conn.execute(f"CREATE TEMP TABLE cpk_values AS {pick}", params)
+        src, src_params = "temp.cpk_values", []
+    else:
+        src, src_params = f"({pick})", params
+    rows = conn.execute(f"SELECT v.def, COUNT(*), AVG(v.value), MIN(v.value), MAX(v.value)"
+                        f" FROM {src} v GROUP BY v.def", src_params).fetchall()
     if not rows:
         return ()
     ids = np.array([r[0] for r in rows], dtype=np.int64)
@@ -401,11 +409,11 @@ def _check_stats(conn, defs, rf, params) -> tuple[CheckStats, ...]:
     vparams: list[Any] = []
     for k in range(len(rows)):
         vparams += [int(ids[k]), float(lo[k]), float(width[k]), float(mean[k])]
-    sql = (f"{with_latest}, p (def, lo, width, mu) AS (VALUES {values})"
-           f" SELECT c.def, CAST((c.value - p.lo) / p.width AS INTEGER) AS b, COUNT(*),"
-           " SUM((c.value - p.mu) * (c.value - p.mu)) FROM checks c JOIN p ON p.def = c.def"
-           f" WHERE {valid} AND c.run IN (SELECT id FROM latest) GROUP BY c.def, b")
-    for d, b, cnt, s in conn.execute(sql, params + vparams):
+    sql = (f"WITH p (def, lo, width, mu) AS (VALUES {values})"
+           f" SELECT v.def, {conn.floor_int('(v.value - p.lo) / p.width')} AS b, COUNT(*),"
+           f" SUM((v.value - p.mu) * (v.value - p.mu)) FROM {src} v JOIN p ON p.def = v.def"
+           " GROUP BY v.def, b")
+    for d, b, cnt, s in conn.execute(sql, vparams + src_params):
         k = index[int(d)]
         counts[k, min(max(int(b), 0), HISTOGRAM_BINS - 1)] += cnt
         ssd[k] += s
