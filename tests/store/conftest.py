@@ -76,3 +76,16 @@ def target(request, tmp_path):
         yield str(tmp_path / "r.sqlite")
     else:
         yield request.getfixturevalue("pg_url")
+
+
+@pytest.fixture
+def own_server():
+    """A cluster of the test's own, so that stopping it disturbs no other test."""
+    try:
+        cluster = pg_cluster.start()
+    except pg_cluster.NoServer as exc:
+        if IN_CI:
+            pytest.fail(f"CI must test PostgreSQL, but no server could be started: {exc}")
+        pytest.skip(f"PostgreSQL tests skipped: {exc}")
+    yield cluster
+    cluster.destroy()
