@@ -271,6 +271,8 @@ class PostgresConn(Conn):
 
     def begin_read(self) -> None:
         self.execute("BEGIN ISOLATION LEVEL REPEATABLE READ READ ONLY")  # one snapshot
+        # the summary hashes and sorts a value per unit and check: in memory, not on disk
+        self.execute("SET LOCAL work_mem = '256MB'")
 
     def table_exists(self, name: str) -> bool:
         return self.execute("SELECT to_regclass(?)", (name,)).fetchone()[0] is not None

@@ -360,10 +360,15 @@ def _pareto_reasons(conn, rf, cf, params) -> tuple[ParetoReason, ...]:
 
 
 def _latest_complete(rf: str) -> str:
-    """A ``WITH`` clause naming ``latest``: the id of each unit's latest complete run in scope."""
-    return ("WITH latest AS (SELECT t.id FROM (SELECT r.id, ROW_NUMBER() OVER (PARTITION BY"
-            " r.plan_id, r.serial ORDER BY r.started_epoch DESC, r.run_id DESC) AS k FROM runs r"
-            f" WHERE {COMPLETE_SQL}{rf}) t WHERE t.k = 1)")
+    """A ``WITH`` clause naming ``latest``: the id of each unit's latest complete run in scope
+    (takes the filter parameters twice). An anti-join (no later complete run of the same unit
+    in scope), which both databases estimate well and run from the runs_latest index."""
+    return ("WITH latest AS (SELECT o.id FROM runs o WHERE"
+            f" {COMPLETE_SQL.replace('r.', 'o.')}{rf.replace(' r.', ' o.')}"
+            " AND NOT EXISTS (SELECT 1 FROM runs r WHERE r.plan_id = o.plan_id"
+            f" AND r.serial = o.serial AND {COMPLETE_SQL}{rf}"
+            " AND (r.started_epoch > o.started_epoch"
+            " OR (r.started_epoch = o.started_epoch AND r.run_id > o.run_id))))")
 
 
 def _check_stats(conn, defs, rf, params) -> tuple[CheckStats, ...]:
@@ -375,10 +380,10 @@ def _check_stats(conn, defs, rf, params) -> tuple[CheckStats, ...]:
         # SQLite sorts for every GROUP BY it cannot read from an index: pick the values once
         # into a temporary table (gone with the read transaction) instead of twice
         conn.execute("DROP TABLE IF EXISTS temp.cpk_values")
-        conn.execute(f"CREATE TEMP TABLE cpk_values AS {pick}", params)
+        conn.execute(f"CREATE TEMP TABLE cpk_values AS {pick}", params + params)
         src, src_params = "temp.cpk_values", []
     else:
-        src, src_params = f"({pick})", params
+        src, src_params = f"({pick})", params + params
     rows = conn.execute(f"SELECT v.def, COUNT(*), AVG(v.value), MIN(v.value), MAX(v.value)"
                         f" FROM {src} v GROUP BY v.def", src_params).fetchall()
     if not rows:
