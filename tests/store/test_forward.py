@@ -155,3 +155,11 @@ def test_cut_short_runs_travel(tmp_path, pg_url, cut):
     with ResultsDB.open(pg_url) as central:
         (h,) = central.history("C1")
         assert h.cut_short == cut and not h.counts and h.report_path == "reports/x.json"
+
+
+def test_sync_without_a_queue_creates_the_central_schema(tmp_path, pg_url, capsys):
+    assert main(["sync", "--db", pg_url, "--reports", str(tmp_path / "none")]) == 0
+    assert "results schema version" in capsys.readouterr().out
+    with ResultsDB.open(pg_url, create=False) as central:
+        assert central.summary().runs == 0
+    assert not (tmp_path / "none").exists()

@@ -17,6 +17,8 @@ def add_parser(subparsers) -> None:
         description="A station whose results database is a postgresql:// URL writes every run "
         "to its local file (REPORTS/results.sqlite) first and forwards it; runs it could not "
         "send while the server was down wait there. sync sends them now, each exactly once. "
+        "Without a local file it only creates or migrates the central schema (run it once with "
+        "the database owner's URL after installing or upgrading benchgate). "
         "Exit 0 when the queue is empty afterwards, 1 when runs are left, 2 when the server "
         "cannot be reached or the setting is not a URL.",
     )
@@ -37,6 +39,12 @@ def run(args: argparse.Namespace) -> int:
     if setting.central is None:
         raise StoreError("sync needs a postgresql:// URL (--db or BENCHGATE_DB); this station "
                          "writes only its own file", setting.local)
+    if not setting.local.is_file():  # no queue here: create or migrate the central schema only
+        with ResultsDB.open(setting.central) as central:
+            version = central.version
+        print(f"{setting.shown()}: results schema version {version}; no runs queued here "
+              f"({setting.local} does not exist)")
+        return 0
     with ResultsDB.open(setting.local, create=False) as local:
         result = sync(local, setting.central, resend=args.all)
     print(f"sent {result.sent} run update{'s' if result.sent != 1 else ''} to {setting.shown()}; "
