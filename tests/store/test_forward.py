@@ -163,3 +163,18 @@ def test_sync_without_a_queue_creates_the_central_schema(tmp_path, pg_url, capsy
     with ResultsDB.open(pg_url, create=False) as central:
         assert central.summary().runs == 0
     assert not (tmp_path / "none").exists()
+
+
+def test_a_forwarding_bug_never_breaks_a_run(tmp_path, pg_url, monkeypatch):
+    import benchgate.store.forward as fwd
+
+    def broken(*_a, **_k):
+        raise RuntimeError("boom")
+
+    monkeypatch.setattr(fwd, "send_pending", broken)
+    told = []
+    with ForwardingDB(ResultsDB.open(tmp_path / "q.sqlite"), pg_url, notify=told.append) as db:
+        db.finish_run(_rec("X1"), None)
+        db.finish_run(_rec("X2", 1), None)
+        assert db.local.count_pending() == 2 and db.local.history("X2")[0].status == "pass"
+    assert len(told) == 1 and "boom" in told[0]

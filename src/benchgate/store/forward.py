@@ -19,7 +19,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from benchgate.errors import StoreError
-from benchgate.store.backend import ServerUnreachable, redact
+from benchgate.store.backend import ServerUnreachable, redact, scrub
 from benchgate.store.db import ResultsDB
 
 #: runs per transaction on the server
@@ -120,6 +120,9 @@ class ForwardingDB:
             result = send_pending(self.local, self._central)
         except StoreError as exc:
             self._offline(exc)
+            return None
+        except Exception as exc:  # noqa: BLE001 - forwarding must never break a run: it is queued
+            self._offline(StoreError(scrub(f"forwarding failed: {type(exc).__name__}: {exc}", self.url)))
             return None
         if result.failed and not self._told_queued:
             self._told_queued = True
