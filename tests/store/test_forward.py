@@ -178,3 +178,21 @@ def test_a_forwarding_bug_never_breaks_a_run(tmp_path, pg_url, monkeypatch):
         db.finish_run(_rec("X2", 1), None)
         assert db.local.count_pending() == 2 and db.local.history("X2")[0].status == "pass"
     assert len(told) == 1 and "boom" in told[0]
+
+
+def test_the_runner_opens_the_setting(tmp_path, pg_url, monkeypatch):
+    from benchgate.runner.options import RunOptions
+    from benchgate.runner.session import Services
+
+    monkeypatch.delenv("BENCHGATE_DB", raising=False)
+    opts = RunOptions(reports_dir=tmp_path / "rep", db_path=pg_url)  # run --db, pytest --bench-db
+    assert opts.db_path == pg_url  # a URL stays text
+    with Services.default(opts).open_db(opts.database) as db:
+        assert isinstance(db, ForwardingDB) and db.local.path == str(tmp_path / "rep" / "results.sqlite")
+    monkeypatch.setenv("BENCHGATE_DB", pg_url)  # no option: the environment (demo, run, plugin)
+    opts = RunOptions(reports_dir=tmp_path / "rep2")
+    with Services.default(opts).open_db(opts.database) as db:
+        assert isinstance(db, ForwardingDB)
+    opts = RunOptions(reports_dir=tmp_path / "rep3", db_path=tmp_path / "own.sqlite")
+    with Services.default(opts).open_db(opts.database) as db:  # an explicit file wins
+        assert isinstance(db, ResultsDB) and db.path == str(tmp_path / "own.sqlite")
