@@ -129,3 +129,28 @@ def test_setting_resolution(tmp_path, monkeypatch):
 def test_reader_needs_the_schema(pg_url):
     with pytest.raises(StoreError, match="no benchgate results in this database"):
         open_results(pg_url, role="reader")
+
+
+def test_many_first_openers_migrate_once(target):
+    # stations starting together on a new database: one migrates, the others wait and find it
+    # done (on PostgreSQL this once failed: a stale "no such table" name cache after the lock)
+    import threading
+
+    errors: list[BaseException] = []
+    start = threading.Barrier(6)
+
+    def opener():
+        try:
+            start.wait(timeout=30)
+            ResultsDB.open(target).close()
+        except BaseException as exc:  # noqa: BLE001 - reported below
+            errors.append(exc)
+
+    threads = [threading.Thread(target=opener) for _ in range(6)]
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join(60)
+    assert not errors, errors
+    with ResultsDB.open(target) as db:
+        assert db.conn.execute("SELECT COUNT(*) FROM schema_version").fetchone()[0] == SCHEMA_VERSION

@@ -22,10 +22,12 @@ DEADLINE_S = 240.0
 
 
 def _station(reports: Path, url: str, lot: str, speed: float = 50.0) -> subprocess.Popen:
-    env = dict(os.environ, BENCHGATE_DB=url, NO_COLOR="1")
+    # each station is its own machine: its own runtime folder for the station lock
+    env = dict(os.environ, BENCHGATE_DB=url, NO_COLOR="1",
+               BENCHGATE_RUNTIME_DIR=str(reports.parent / f"{reports.name}-run"))
     env.pop("CI", None)
     return subprocess.Popen(
-        [sys.executable, "-m", "benchgate", "demo", "--units", "1", "--speed", str(speed),
+        [sys.executable, "-m", "benchgate", "demo", "--units", "7", "--speed", str(speed),
          "--lot", lot, "--reports", str(reports)],
         env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
         stdin=subprocess.DEVNULL)
@@ -79,7 +81,7 @@ def test_eight_stations_write_concurrently(tmp_path, pg_url):
     for p in procs:
         _, err = p.communicate(timeout=DEADLINE_S)
         assert p.returncode == 0, err[-2000:]
-        assert "queued" not in err
+        assert "queued" not in err, [x[80:400] for x in err.splitlines() if "queued" in x]
     local: dict[str, tuple[int, int]] = {}
     for d in stations:
         runs = _local_runs(d)

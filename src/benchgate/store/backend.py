@@ -13,7 +13,7 @@ row id column (``{pk}``)    ``INTEGER PRIMARY KEY``          ``BIGINT GENERATED 
 float column (``{real}``)   ``REAL`` (8 bytes)               ``DOUBLE PRECISION`` (REAL is 4)
 floor to an integer         ``CAST(x AS INTEGER)`` (x ≥ 0)   ``CAST(FLOOR(x) AS INTEGER)``
 null-safe equality          ``a IS b``                       ``a IS NOT DISTINCT FROM b``
-a table exists              ``sqlite_master``                ``to_regclass``
+a table exists              ``sqlite_master``                ``pg_class`` (current schema)
 writer lock                 ``BEGIN IMMEDIATE``              ``BEGIN`` + a transaction-scoped
                                                              advisory lock where needed
 NUL in text                 stored                           not storable: replaced by U+2400 ␀
@@ -275,7 +275,12 @@ class PostgresConn(Conn):
         self.execute("SET LOCAL work_mem = '256MB'")
 
     def table_exists(self, name: str) -> bool:
-        return self.execute("SELECT to_regclass(?)", (name,)).fetchone()[0] is not None
+        # read pg_class with the statement's snapshot, not through to_regclass: the name cache
+        # may still hold "no such table" from before another station's migration committed
+        return self.execute(
+            "SELECT EXISTS (SELECT 1 FROM pg_catalog.pg_class c JOIN pg_catalog.pg_namespace n"
+            " ON n.oid = c.relnamespace WHERE c.relname = ? AND n.nspname = current_schema())",
+            (name,)).fetchone()[0]
 
     def floor_int(self, expr: str) -> str:
         return f"CAST(FLOOR({expr}) AS INTEGER)"
