@@ -6,8 +6,9 @@ import sqlite3
 
 import pytest
 
-from benchgate.store import ResultsDB, StoreError, open_results, resolve
-from benchgate.store.backend import PostgresConn, SQLiteConn, redact, scrub
+from benchgate.errors import StoreError
+from benchgate.store import ResultsDB, open_results, resolve
+from benchgate.store.backend import PostgresConn, ServerUnreachable, SQLiteConn, redact, scrub
 from benchgate.store.schema import MIGRATIONS, SCHEMA_VERSION, migrate, schema_version
 from synthetic_runs import CheckSpec, make_record
 
@@ -105,7 +106,7 @@ def test_wrong_password_never_printed(pg_url, capsys):
     with pytest.raises(StoreError) as e:
         ResultsDB.open(bad)
     text = e.value.one_line()
-    assert e.value.offline and secret not in text and "Wr0ng" not in text
+    assert isinstance(e.value, ServerUnreachable) and secret not in text and "Wr0ng" not in text
     from benchgate.cli import main
 
     assert main(["summary", "--db", bad]) == 2
