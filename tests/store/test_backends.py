@@ -6,9 +6,9 @@ import sqlite3
 
 import pytest
 
-from benchgate.errors import StoreError
+from benchgate.errors import ServerUnreachable, StoreError
 from benchgate.store import ResultsDB, open_results, resolve
-from benchgate.store.backend import PostgresConn, ServerUnreachable, SQLiteConn, redact, scrub
+from benchgate.store.backend import PostgresConn, SQLiteConn, redact, scrub
 from benchgate.store.schema import MIGRATIONS, SCHEMA_VERSION, migrate, schema_version
 from synthetic_runs import CheckSpec, make_record
 

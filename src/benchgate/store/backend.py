@@ -34,7 +34,7 @@ from pathlib import Path
 from typing import Any
 from urllib.parse import parse_qsl, unquote, urlsplit, urlunsplit
 
-from benchgate.errors import StoreError
+from benchgate.errors import ServerUnreachable, StoreError
 
 #: seconds a SQLite writer waits for another writer's lock before giving up.
 BUSY_TIMEOUT_S = 30.0
@@ -44,13 +44,6 @@ URL_SCHEMES = ("postgresql://", "postgres://")
 #: advisory lock keys (PostgreSQL), arbitrary constants private to benchgate
 LOCK_MIGRATE = 0x62656E6368  # migrations: one migrator at a time
 LOCK_DEFS = 0x62656E6369  # check definitions: no duplicate definition rows
-
-
-class ServerUnreachable(StoreError):
-    """The PostgreSQL server could not be reached, or the connection to it broke: for a
-    station, a reason to queue the run, never to lose it."""
-
-    offline = True
 
 
 def is_url(target: object) -> bool:

@@ -18,8 +18,8 @@ from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
 
-from benchgate.errors import StoreError
-from benchgate.store.backend import ServerUnreachable, redact, scrub
+from benchgate.errors import ServerUnreachable, StoreError
+from benchgate.store.backend import redact, scrub
 from benchgate.store.db import ResultsDB
 
 #: runs per transaction on the server

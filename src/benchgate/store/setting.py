@@ -12,8 +12,8 @@ the central database, and says when the local queue holds runs not yet sent.
 
 from __future__ import annotations
 
+import logging
 import os
-import sys
 from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
@@ -58,8 +58,11 @@ def resolve(option: str | os.PathLike[str] | None = None, *,
     return Setting(None, Path(text), source)
 
 
-def _stderr(message: str) -> None:
-    print(f"benchgate: {message}", file=sys.stderr, flush=True)
+def _warn(message: str) -> None:
+    """The default way a station's store tells the operator something: a warning on the
+    ``benchgate.store`` logger (on standard error unless the program routes logging elsewhere;
+    the store itself never prints)."""
+    logging.getLogger("benchgate.store").warning("benchgate: %s", message)
 
 
 def open_results(option: str | os.PathLike[str] | None = None, *,
@@ -69,7 +72,7 @@ def open_results(option: str | os.PathLike[str] | None = None, *,
 
     A writer gets a :class:`~benchgate.store.db.ResultsDB` on its SQLite file, or with a URL a
     :class:`~benchgate.store.forward.ForwardingDB` (local first, then the server); ``notify``
-    receives the one-line messages for the operator (default: standard error). A reader gets
+    receives the one-line messages for the operator (default: a logged warning, on standard error). A reader gets
     the database to read (the file must exist, the server must have the schema).
     """
     from benchgate.store.db import ResultsDB
@@ -83,7 +86,7 @@ def open_results(option: str | os.PathLike[str] | None = None, *,
         return ResultsDB.open(setting.local)
     from benchgate.store.forward import ForwardingDB
 
-    return ForwardingDB(ResultsDB.open(setting.local), setting.central, notify=notify or _stderr)
+    return ForwardingDB(ResultsDB.open(setting.local), setting.central, notify=notify or _warn)
 
 
 def unsent_note(option: str | os.PathLike[str] | None = None, *,
