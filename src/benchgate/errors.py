@@ -293,6 +293,11 @@ class StoreError(BenchgateError):
         return self.path
 
 
+class ServerUnreachable(StoreError):
+    """The results database server could not be reached, or the connection to it broke: for a
+    station a reason to queue the run (it is safe in the local file), never to lose it."""
+
+
 class BrowserError(BenchgateError):
     """Chromium or Playwright missing, Chromium failing to start, or a page failing to load."""
 

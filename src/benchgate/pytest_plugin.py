@@ -34,8 +34,9 @@ def pytest_addoption(parser):
     group.addoption("--bench-serial", default=None, metavar="SN", help="serial number of the unit under test")
     group.addoption("--bench-reports", default="reports", metavar="DIR",
                     help="folder for unit reports (default: reports)")
-    group.addoption("--bench-db", default=None, metavar="PATH",
-                    help="results database (default: DIR/results.sqlite)")
+    group.addoption("--bench-db", default=None, metavar="PATH|URL",
+                    help="results database: SQLite file or postgresql:// URL "
+                    "(default: $BENCHGATE_DB, else DIR/results.sqlite)")
     group.addoption("--bench-accept-hazards", action="store_true", default=False,
                     help="accept the plan's hazards for this unattended run (recorded in the report)")
     group.addoption("--bench-lot", default=None, metavar="LOT", help="lot of the unit (recorded)")
@@ -153,7 +154,7 @@ def _run_plan(config, plan) -> PlanRun:
         options = runner.RunOptions(
             operator=config.getoption("bench_operator"), lot=config.getoption("bench_lot"),
             reports_dir=Path(config.getoption("bench_reports")),
-            db_path=None if config.getoption("bench_db") is None else Path(config.getoption("bench_db")),
+            db_path=config.getoption("bench_db"),
             unattended=True, accept_hazards=bool(config.getoption("bench_accept_hazards")),
             clock=clock, ui="quiet", extra_flags={"pytest": True})
         outcome = runner.run_unit(plan, station, config.getoption("bench_serial"), options)

@@ -22,8 +22,8 @@ DATA = [9.8, 10.1, 10.0, 10.3, 9.9, 10.2, 10.0, 9.7]
 
 
 @pytest.fixture
-def db(tmp_path):
-    with ResultsDB.open(tmp_path / "r.sqlite") as d:
+def db(target):  # each test on both back ends (conftest.py)
+    with ResultsDB.open(target) as d:
         yield d
 
 

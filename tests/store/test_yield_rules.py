@@ -7,12 +7,11 @@ The definitions are common practice with no published source; the Cpk formula is
 from __future__ import annotations
 
 import statistics
-import tempfile
+import uuid
 from datetime import timedelta
-from pathlib import Path
 
 import pytest
-from hypothesis import given, settings
+from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from benchgate.judge.rules import Verdict
@@ -42,8 +41,8 @@ def _store(db, rec):
 
 
 @pytest.fixture
-def db(tmp_path):
-    with ResultsDB.open(tmp_path / "r.sqlite") as d:
+def db(target):  # each test on both back ends (conftest.py)
+    with ResultsDB.open(target) as d:
         yield d
 
 
@@ -118,10 +117,10 @@ def test_cpk_inputs_are_each_units_latest_complete_run(db):
 KINDS = ("pass", "fail", "check-error", "aborted", "station error", "unfinished", "fail-aborted")
 
 
-def _attempt(serial, minute, kind):
+def _attempt(serial, minute, kind, lot):
     value = {"pass": 950.0, "fail": 1100.0, "fail-aborted": 1100.0}.get(kind, 951.0 + minute)
     k = {"pass": "run", "fail": "run", "fail-aborted": "aborted"}.get(kind, kind)
-    return _rec(serial, minute, value, kind=k)
+    return _rec(serial, minute, value, kind=k, lot=lot)
 
 
 def _model(histories):
@@ -142,18 +141,18 @@ def _model(histories):
     return tested, first, final, retests, values
 
 
-@settings(max_examples=40, deadline=None)
-@given(st.lists(st.lists(st.sampled_from(KINDS), min_size=1, max_size=4), min_size=1, max_size=6))
-def test_summary_follows_the_definitions(units):
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(units=st.lists(st.lists(st.sampled_from(KINDS), min_size=1, max_size=4), min_size=1, max_size=6))
+def test_summary_follows_the_definitions(db, units):
     histories, minute = {}, 0
-    with tempfile.TemporaryDirectory() as tmp, ResultsDB.open(Path(tmp) / "r.sqlite") as db:
-        for u, kinds in enumerate(units):
-            for kind in kinds:
-                rec = _attempt(f"U{u}", minute, kind)
-                minute += 1
-                histories.setdefault(u, []).append(rec)
-                _store(db, rec)
-        s = db.summary()
+    lot = uuid.uuid4().hex  # one database for all examples: each example is its own lot
+    for u, kinds in enumerate(units):
+        for kind in kinds:
+            rec = _attempt(f"U{u}", minute, kind, lot)
+            minute += 1
+            histories.setdefault(u, []).append(rec)
+            _store(db, rec)
+    s = db.summary(lot=lot)
     tested, first, final, retests, values = _model(histories)
     assert (s.units_tested, s.first_pass, s.final_pass, s.retests) == (tested, first, final, retests)
     assert s.units_tested + s.units_untested == len(units)

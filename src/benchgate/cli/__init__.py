@@ -25,6 +25,7 @@ COMMANDS = (
     "sim",
     "history",
     "summary",
+    "sync",
     "reanalyze",
     "report",
 )

@@ -19,8 +19,9 @@ def add_parser(subparsers) -> None:
         "1 when the unit has none, 2 when the database cannot be read.",
     )
     p.add_argument("serial", metavar="SERIAL", help="serial number of the unit")
-    p.add_argument("--db", metavar="PATH", default=DEFAULT_DB,
-                   help=f"results database (default: {DEFAULT_DB})")
+    p.add_argument("--db", metavar="PATH|URL", default=None,
+                   help=f"results database: a SQLite file or a postgresql:// URL (default: "
+                   f"$BENCHGATE_DB, else {DEFAULT_DB}); credentials are never printed")
     p.add_argument("--json", action="store_true", help="print one JSON object instead of a table")
     p.set_defaults(func=run)
 
@@ -32,16 +33,21 @@ def shown(text: object) -> str:
 
 
 def run(args: argparse.Namespace) -> int:
-    from benchgate.store import ResultsDB
+    from benchgate.store import open_results, resolve
+    from benchgate.store.setting import unsent_note
 
-    with ResultsDB.open(args.db, create=False) as db:
+    where = resolve(args.db, local_default=DEFAULT_DB).shown()
+    with open_results(args.db, local_default=DEFAULT_DB, role="reader") as db:
         runs = db.history(args.serial)
+    unsent, note = unsent_note(args.db, local_default=DEFAULT_DB)
+    if note:
+        print(f"benchgate: {note}", file=sys.stderr)
     if args.json:
-        print(json.dumps({"serial": args.serial, "db": str(args.db),
+        print(json.dumps({"serial": args.serial, "db": where, "unsent_elsewhere": unsent,
                           "runs": [r.to_dict() for r in runs]}, indent=2, ensure_ascii=False))
         return 0 if runs else 1
     if not runs:
-        print(f"benchgate: no runs of {shown(args.serial)!r} in {args.db}", file=sys.stderr)
+        print(f"benchgate: no runs of {shown(args.serial)!r} in {where}", file=sys.stderr)
         return 1
     print(f"{shown(args.serial)}: {len(runs)} run{'s' if len(runs) != 1 else ''}, newest first")
     rows = [("started", "verdict", "plan", "station", "lot", "operator", "reason")]

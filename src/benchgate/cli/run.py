@@ -33,7 +33,9 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     p.add_argument("--allow-expired-calibration", action="store_true",
                    help="run even if an instrument's calibration is past due (recorded)")
     p.add_argument("--reports", default="reports", metavar="DIR", help="report folder (default: reports)")
-    p.add_argument("--db", metavar="PATH", help="results database (default: DIR/results.sqlite)")
+    p.add_argument("--db", metavar="PATH|URL", help="results database: a SQLite file or a postgresql:// "
+                   "URL (default: $BENCHGATE_DB, else DIR/results.sqlite; with a URL every run is "
+                   "kept in DIR/results.sqlite first and forwarded)")
     p.add_argument("--events", metavar="FILE", help="append one JSON object per line as steps start and finish")
     p.add_argument("--junit", metavar="FILE", help="write JUnit XML (one testsuite per unit)")
     p.add_argument("--display", choices=("auto", "rich", "plain", "quiet"), default="auto",
@@ -95,7 +97,7 @@ def _run(args, signals) -> int:
         check_serial(args.serial)
     options = RunOptions(
         operator=args.operator, lot=args.lot, reports_dir=Path(args.reports),
-        db_path=None if args.db is None else Path(args.db), unattended=unattended,
+        db_path=args.db, unattended=unattended,
         accept_hazards=args.accept_hazards, allow_expired_calibration=args.allow_expired_calibration,
         events=None if args.events is None else Path(args.events),
         junit=None if args.junit is None else Path(args.junit), clock=clock,

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import sys
 
 DEFAULT_DB = "reports/results.sqlite"
 
@@ -21,8 +22,9 @@ def add_parser(subparsers) -> None:
     p.add_argument("--lot", metavar="L", help="only runs of this lot")
     p.add_argument("--since", metavar="DATE", help="only runs started at or after DATE "
                    "(2026-12-01, or an ISO time; UTC unless a zone is given)")
-    p.add_argument("--db", metavar="PATH", default=DEFAULT_DB,
-                   help=f"results database (default: {DEFAULT_DB})")
+    p.add_argument("--db", metavar="PATH|URL", default=None,
+                   help=f"results database: a SQLite file or a postgresql:// URL (default: "
+                   f"$BENCHGATE_DB, else {DEFAULT_DB}); credentials are never printed")
     p.add_argument("--html", metavar="FILE", help="also write the summary as an HTML page")
     p.add_argument("--json", action="store_true", help="print one JSON object instead of tables")
     p.set_defaults(func=run)
@@ -30,12 +32,17 @@ def add_parser(subparsers) -> None:
 
 def run(args: argparse.Namespace) -> int:
     from benchgate.cli.history import shown
-    from benchgate.store import ResultsDB
+    from benchgate.store import open_results, resolve
     from benchgate.store.queries import fmt_ratio
+    from benchgate.store.setting import unsent_note
     from benchgate.units.format import format_quantity as q
 
-    with ResultsDB.open(args.db, create=False) as db:
+    where = resolve(args.db, local_default=DEFAULT_DB).shown()
+    with open_results(args.db, local_default=DEFAULT_DB, role="reader") as db:
         s = db.summary(plan=args.plan, lot=args.lot, since=args.since)
+    unsent, note = unsent_note(args.db, local_default=DEFAULT_DB)
+    if note:
+        print(f"benchgate: {note}", file=sys.stderr)
     html_path = None
     if args.html:
         from benchgate.report.summary_html import write_summary_html
@@ -43,13 +50,14 @@ def run(args: argparse.Namespace) -> int:
         html_path = write_summary_html(s, args.html)
     if args.json:
         d = s.to_dict()
-        d["db"] = str(args.db)
+        d["db"] = where
+        d["unsent_elsewhere"] = unsent
         d["html"] = None if html_path is None else str(html_path)
         print(json.dumps(d, indent=2, ensure_ascii=False, allow_nan=False))
         return 0
     scope = ", ".join(f"{k} {shown(v)}" for k, v in (("plan", s.plan), ("lot", s.lot),
                                                      ("since", s.since)) if v is not None)
-    print(f"summary of {scope or 'all stored runs'} ({args.db})")
+    print(f"summary of {scope or 'all stored runs'} ({where})")
     print(f"  units tested     {s.units_tested}  (with a complete run; docs/results.md)")
     print(f"  attempts         {s.runs}  ({s.incomplete} never finished, {s.cut_short} cut short; "
           f"{s.units_untested} unit{'' if s.units_untested == 1 else 's'} without a complete run)")

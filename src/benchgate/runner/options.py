@@ -86,7 +86,7 @@ class RunOptions:
     operator: str | None = None
     lot: str | None = None
     reports_dir: Path = Path("reports")
-    db_path: Path | None = None
+    db_path: Path | str | None = None  # a SQLite file, or a postgresql:// URL (kept as text)
     unattended: bool = False
     accept_hazards: bool = False
     allow_expired_calibration: bool = False
@@ -101,7 +101,7 @@ class RunOptions:
 
     def __post_init__(self) -> None:
         self.reports_dir = Path(self.reports_dir)
-        if self.db_path is not None:
+        if self.db_path is not None and not str(self.db_path).lower().startswith(("postgresql://", "postgres://")):
             self.db_path = Path(self.db_path)
         if self.ui not in ("auto", "rich", "plain", "quiet"):
             raise ValueError(f"ui must be auto, rich, plain or quiet, got {self.ui!r}")

@@ -53,13 +53,16 @@ class Services:
         from benchgate.capfile import save_capture
         from benchgate.report import write_reports
         from benchgate.report.layout import ReportLayout
-        from benchgate.store import ResultsDB
+        from benchgate.store import open_results
 
         open_bench = options.open_bench
         if open_bench is None:
             from benchgate.instruments import open_station as open_bench
         return cls(open_bench=open_bench, save_capture=save_capture, analyze=analyze,
-                   write_reports=write_reports, layout=ReportLayout, open_db=ResultsDB.open)
+                   write_reports=write_reports, layout=ReportLayout,
+                   # the one setting (option, BENCHGATE_DB, default) decides; see store/setting.py
+                   open_db=lambda _: open_results(options.db_path,
+                                                  local_default=options.reports_dir / "results.sqlite"))
 
 
 def _default_ask(prompt: str) -> str:

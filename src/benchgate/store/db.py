@@ -1,165 +1,49 @@
-"""The results database: one row per run, one row per check, in SQLite.
+"""The results database: one row per run, one row per check, in SQLite or PostgreSQL.
 
 A run is inserted, marked incomplete, when it starts (:meth:`ResultsDB.begin_run`) and
 completed when it ends (:meth:`ResultsDB.finish_run`), so a crashed run stays visible as
-incomplete instead of going missing. The file is opened in WAL mode with a busy timeout so
-that two stations on one machine can write to it at the same time; every statement is
-parameterised. The schema carries its version in the ``schema_version`` table and is brought
-up to date by the ordered :data:`MIGRATIONS` when the file is opened.
+incomplete instead of going missing. A SQLite file is opened in WAL mode with a busy timeout so
+that two stations on one machine can write to it at the same time; a PostgreSQL database takes
+any number of stations. Every statement is parameterised. The schema and its migrations are in
+:mod:`.schema`; the differences between the back ends in :mod:`.backend`.
 """
 
 from __future__ import annotations
 
+import hashlib
 import math
 import os
-import sqlite3
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from datetime import UTC, datetime
-from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from benchgate.errors import StoreError
+from benchgate.store.backend import (
+    LOCK_DEFS,
+    Conn,
+    PostgresConn,
+    SQLiteConn,
+    is_url,
+)
 from benchgate.store.outcome import cut_short
+from benchgate.store.schema import MIGRATIONS, SCHEMA_VERSION, migrate, schema_version
 
 if TYPE_CHECKING:
     from benchgate.record import UnitRecord
     from benchgate.store.queries import HistoryRun, Summary
 
-#: seconds a writer waits for another writer's lock before giving up.
-BUSY_TIMEOUT_S = 30.0
+__all__ = ["MIGRATIONS", "SCHEMA_VERSION", "ResultsDB", "migrate", "schema_version",
+           "parse_time", "RUN_COLUMNS"]
 
-
-
-# --------------------------------------------------------------------------- schema
-
-_V1 = """
-CREATE TABLE runs (
-    id INTEGER PRIMARY KEY,
-    run_id TEXT NOT NULL UNIQUE,
-    serial TEXT NOT NULL,
-    plan_id TEXT NOT NULL,
-    plan_version TEXT NOT NULL,
-    plan_hash TEXT NOT NULL,
-    product TEXT,
-    station_id TEXT,
-    operator TEXT,
-    lot TEXT,
-    started TEXT NOT NULL,
-    started_epoch REAL NOT NULL,
-    ended TEXT,
-    complete INTEGER NOT NULL DEFAULT 0,
-    verdict TEXT,
-    reason TEXT,
-    decision_rule TEXT,
-    software_version TEXT,
-    accept_hazards INTEGER NOT NULL DEFAULT 0,
-    allow_expired_calibration INTEGER NOT NULL DEFAULT 0,
-    unattended INTEGER NOT NULL DEFAULT 0,
-    report_path TEXT
-);
-CREATE TABLE check_defs (
-    id INTEGER PRIMARY KEY,
-    plan_id TEXT NOT NULL,
-    step TEXT NOT NULL,
-    measurement TEXT NOT NULL,
-    unit TEXT NOT NULL,
-    low REAL,
-    high REAL
-);
-CREATE TABLE checks (
-    id INTEGER PRIMARY KEY,
-    run INTEGER NOT NULL REFERENCES runs(id) ON DELETE CASCADE,
-    seq INTEGER NOT NULL,
-    def INTEGER NOT NULL REFERENCES check_defs(id),
-    lot TEXT,
-    started_epoch REAL NOT NULL,
-    value REAL,
-    uncertainty REAL,
-    valid INTEGER NOT NULL,
-    verdict TEXT NOT NULL,
-    reason TEXT NOT NULL
-);
-"""
-
-_V2 = """
-CREATE INDEX runs_serial ON runs(serial, started_epoch);
-CREATE INDEX runs_units ON runs(plan_id, serial, started_epoch, verdict, complete, lot);
-CREATE INDEX checks_run ON checks(run);
-CREATE INDEX checks_values ON checks(def, value, lot, started_epoch) WHERE valid = 1;
-CREATE INDEX checks_not_pass ON checks(def, verdict, lot, started_epoch, value) WHERE verdict <> 'pass';
-CREATE INDEX check_defs_key ON check_defs(plan_id, step, measurement, unit);
-CREATE VIEW check_results AS
-    SELECT r.run_id, r.serial, c.seq, d.step, d.measurement, c.value, c.uncertainty,
-           d.low, d.high, d.unit, c.valid, c.verdict, c.reason
-    FROM checks c JOIN check_defs d ON d.id = c.def JOIN runs r ON r.id = c.run;
-"""
-
-# how a finished run ended (see store/outcome.py); rows written before version 3 are read from
-# their verdict and checks: aborted, or an error verdict that no check explains
-_V3 = """
-ALTER TABLE runs ADD COLUMN cut_short TEXT;
-UPDATE runs SET cut_short = 'aborted' WHERE complete = 1 AND verdict = 'aborted';
-UPDATE runs SET cut_short = 'station error' WHERE complete = 1 AND verdict = 'error'
-    AND NOT EXISTS (SELECT 1 FROM checks c WHERE c.run = runs.id AND c.verdict = 'error');
-CREATE INDEX runs_latest ON runs(plan_id, serial, started_epoch, run_id, complete, cut_short, verdict, lot)
-"""
-
-#: ordered migrations: (version reached, how to get there from the version before).
-MIGRATIONS: tuple[tuple[int, str | Callable[[sqlite3.Connection], None]], ...] = (
-    (1, _V1),
-    (2, _V2),
-    (3, _V3),
-)
-SCHEMA_VERSION = MIGRATIONS[-1][0]
-
-
-def _script(conn: sqlite3.Connection, sql: str) -> None:
-    for statement in sql.split(";"):
-        if statement.strip():
-            conn.execute(statement)
-
-
-def schema_version(conn: sqlite3.Connection) -> int:
-    """The schema version recorded in the file (0 for a new, empty file)."""
-    has = conn.execute(
-        "SELECT 1 FROM sqlite_master WHERE type = 'table' AND name = 'schema_version'"
-    ).fetchone()
-    if not has:
-        return 0
-    row = conn.execute("SELECT MAX(version) FROM schema_version").fetchone()
-    return int(row[0] or 0)
-
-
-def migrate(conn: sqlite3.Connection, target: int = SCHEMA_VERSION) -> int:
-    """Apply the migrations after the file's version up to ``target``, each in its own transaction.
-
-    Returns the version reached. Raises :class:`StoreError` for a file newer than this program.
-    """
-    current = schema_version(conn)
-    if current == min(target, SCHEMA_VERSION):
-        return current  # up to date: no write lock taken (read-only users, many stations)
-    conn.execute("BEGIN IMMEDIATE")  # one migrator at a time; others wait on the busy timeout
-    try:
-        current = schema_version(conn)  # again, under the lock: another process may have migrated
-        if current > SCHEMA_VERSION:
-            raise StoreError(f"database schema version {current} is newer than this benchgate "
-                             f"understands ({SCHEMA_VERSION}); upgrade benchgate")
-        if current == 0:
-            conn.execute("CREATE TABLE schema_version (version INTEGER NOT NULL, applied TEXT NOT NULL)")
-        for version, step in MIGRATIONS:
-            if current < version <= target:
-                if callable(step):
-                    step(conn)
-                else:
-                    _script(conn, step)
-                conn.execute("INSERT INTO schema_version (version, applied) VALUES (?, ?)",
-                             (version, datetime.now(UTC).isoformat(timespec="seconds")))
-                current = version
-        conn.execute("COMMIT")
-    except BaseException:
-        conn.execute("ROLLBACK")
-        raise
-    return current
+#: the columns of a run that travel with it from a station to a central database
+RUN_COLUMNS = ("run_id", "serial", "plan_id", "plan_version", "plan_hash", "product", "station_id",
+               "operator", "lot", "started", "started_epoch", "ended", "complete", "verdict",
+               "reason", "decision_rule", "software_version", "accept_hazards",
+               "allow_expired_calibration", "unattended", "report_path", "cut_short",
+               "report_sha256")
+#: the columns of a check that travel with it (its definition as values, not as an id)
+CHECK_COLUMNS = ("seq", "plan_id", "step", "measurement", "unit", "low", "high", "value",
+                 "uncertainty", "valid", "verdict", "reason")
 
 
 # --------------------------------------------------------------------------- helpers
@@ -168,7 +52,7 @@ def parse_time(text: str) -> float:
     """Seconds since the epoch for an ISO 8601 time; a time without zone is taken as UTC."""
     try:
         t = datetime.fromisoformat(text.replace("Z", "+00:00"))
-    except (TypeError, ValueError):
+    except (TypeError, ValueError, AttributeError):
         raise StoreError(f"run start time is not an ISO 8601 time: {text!r}") from None
     if t.tzinfo is None:
         t = t.replace(tzinfo=UTC)
@@ -186,46 +70,56 @@ def _flags(record: UnitRecord) -> tuple[int, int, int]:
             int(bool(flags.get("unattended"))))
 
 
+def file_sha256(path: str | os.PathLike[str] | None) -> str | None:
+    """SHA-256 of a report file, or None when there is no such file."""
+    if path is None:
+        return None
+    try:
+        h = hashlib.sha256()
+        with open(path, "rb") as f:
+            for block in iter(lambda: f.read(1 << 20), b""):
+                h.update(block)
+        return h.hexdigest()
+    except (OSError, ValueError):  # no such file, or not a usable path
+        return None
+
+
 # --------------------------------------------------------------------------- database
 
 class ResultsDB:
-    """A results database file. Use :meth:`open`; close with :meth:`close` or ``with``."""
+    """A results database. Use :meth:`open`; close with :meth:`close` or ``with``."""
 
-    def __init__(self, conn: sqlite3.Connection, path: str):
-        self._conn = conn
-        self.path = path
+    def __init__(self, conn: Conn):
+        self.conn = conn
+        self.path = conn.where  # what messages show: a file path, or a URL without password
         self._defs: dict[tuple[Any, ...], int] = {}
 
     @classmethod
-    def open(cls, path: str | os.PathLike[str], *, create: bool = True) -> ResultsDB:
-        """Open (creating and migrating when needed) the database at ``path``.
+    def open(cls, target: str | os.PathLike[str], *, create: bool = True,
+             connect_timeout: float | None = None) -> ResultsDB:
+        """Open (creating and migrating when needed) the database at ``target``: a file path
+        (SQLite) or a ``postgresql://`` URL.
 
-        With ``create=False`` a missing file is a :class:`StoreError` instead of a new database.
+        With ``create=False`` a missing file, or a PostgreSQL database without the schema, is a
+        :class:`StoreError` instead of a new database.
         """
-        p = Path(path)
-        if not create and not p.is_file():
-            raise StoreError("no results database here (run a plan first, or give --db)", p)
+        if is_url(target):
+            kw = {} if connect_timeout is None else {"connect_timeout": connect_timeout}
+            conn: Conn = PostgresConn.open(str(target), **kw)
+        else:
+            conn = SQLiteConn.open(target, create=create)
         try:
-            if create:
-                p.parent.mkdir(parents=True, exist_ok=True)
-            conn = sqlite3.connect(p, timeout=BUSY_TIMEOUT_S, isolation_level=None)
-        except (OSError, sqlite3.Error) as exc:
-            raise StoreError(f"cannot open results database: {exc}", p) from exc
-        try:
-            conn.execute(f"PRAGMA busy_timeout = {int(BUSY_TIMEOUT_S * 1000)}")
-            mode = conn.execute("PRAGMA journal_mode = WAL").fetchone()[0]
-            if str(mode).lower() != "wal":
-                raise StoreError(f"cannot switch the results database to WAL mode (got {mode})", p)
-            conn.execute("PRAGMA synchronous = NORMAL")
-            conn.execute("PRAGMA foreign_keys = ON")
+            if not create and conn.dialect == "postgresql" and not conn.table_exists("schema_version"):
+                raise StoreError("no benchgate results in this database yet (run a plan with it, "
+                                 "or send a station's runs with 'benchgate sync')", conn.where)
             migrate(conn)
-        except sqlite3.DatabaseError as exc:
+        except conn.errors as exc:
             conn.close()
-            raise StoreError(f"not a usable results database: {exc}", p) from exc
+            raise conn.fail("not a usable results database", exc) from None
         except BaseException:
             conn.close()
             raise
-        return cls(conn, str(p))
+        return cls(conn)
 
     # context manager
     def __enter__(self) -> ResultsDB:
@@ -235,33 +129,49 @@ class ResultsDB:
         self.close()
 
     def close(self) -> None:
-        self._conn.close()
+        self.conn.close()
 
     @property
-    def connection(self) -> sqlite3.Connection:
-        """The underlying connection (read-only use by queries and tests)."""
-        return self._conn
+    def connection(self) -> Any:
+        """The driver's own connection (``sqlite3`` or ``psycopg``), for tests and tools."""
+        return self.conn.raw
+
+    @property
+    def dialect(self) -> str:
+        return self.conn.dialect
 
     @property
     def version(self) -> int:
-        return schema_version(self._conn)
+        return schema_version(self.conn)
 
-    def _write(self, fn: Callable[[sqlite3.Connection], Any]) -> Any:
-        conn = self._conn
+    def _write(self, fn: Callable[[Conn], Any]) -> Any:
+        conn = self.conn
         try:
-            conn.execute("BEGIN IMMEDIATE")
-        except sqlite3.Error as exc:
-            raise StoreError(f"cannot write the results database: {exc}", self.path) from exc
+            conn.begin_write()
+        except conn.errors as exc:
+            raise conn.fail("cannot write the results database", exc) from None
         try:
             out = fn(conn)
-            conn.execute("COMMIT")
+            conn.commit()
             return out
         except BaseException as exc:
-            conn.execute("ROLLBACK")
+            conn.rollback()
             self._defs.clear()
-            if isinstance(exc, sqlite3.Error):
-                raise StoreError(f"cannot write the results database: {exc}", self.path) from exc
+            if isinstance(exc, conn.errors):
+                raise conn.fail("cannot write the results database", exc) from None
             raise
+
+    def read(self, fn: Callable[[Conn], Any]) -> Any:
+        """Run the queries of ``fn`` on one snapshot of the database."""
+        conn = self.conn
+        try:
+            conn.begin_read()
+            try:
+                return fn(conn)
+            finally:
+                conn.rollback()
+        except conn.errors as exc:
+            raise conn.fail("cannot read the results database", exc) from None
 
     # ------------------------------------------------------------------ writes
 
@@ -273,64 +183,153 @@ class ResultsDB:
                parse_time(record.started), record.decision_rule, record.software_version,
                hazards, expired, unattended)
         self._write(lambda c: c.execute(
-            "INSERT OR IGNORE INTO runs (run_id, serial, plan_id, plan_version, plan_hash, product,"
+            "INSERT INTO runs (run_id, serial, plan_id, plan_version, plan_hash, product,"
             " station_id, operator, lot, started, started_epoch, decision_rule, software_version,"
             " accept_hazards, allow_expired_calibration, unattended)"
-            " VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)", row))
+            " VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)"
+            " ON CONFLICT (run_id) DO NOTHING", row))
 
     def finish_run(self, record: UnitRecord, report_path: str | os.PathLike[str] | None) -> None:
         """Complete the run: verdict, reason, end time, flags, and one row per check.
 
-        A run that was never begun is inserted here; finishing twice replaces the checks.
+        A run that was never begun is inserted here; finishing twice replaces the checks. The
+        report's SHA-256 is stored beside its path, so the evidence can be verified later.
         """
         self.begin_run(record)
         hazards, expired, unattended = _flags(record)
         report = None if report_path is None else str(report_path)
+        sha = file_sha256(report_path)
         epoch = parse_time(record.started)
 
-        def work(c: sqlite3.Connection) -> None:
+        def work(c: Conn) -> None:
             pk = c.execute("SELECT id FROM runs WHERE run_id = ?", (record.run_id,)).fetchone()[0]
             c.execute(
                 "UPDATE runs SET complete = 1, verdict = ?, reason = ?, ended = ?, accept_hazards = ?,"
                 " allow_expired_calibration = ?, unattended = ?, report_path = ?, operator = ?,"
-                " lot = ?, cut_short = ? WHERE id = ?",
+                " lot = ?, cut_short = ?, report_sha256 = ?, sent = 0 WHERE id = ?",
                 (record.verdict.value, record.reason, record.ended, hazards, expired, unattended,
-                 report, record.operator, record.lot, cut_short(record), pk))
-            c.execute("DELETE FROM checks WHERE run = ?", (pk,))
+                 report, record.operator, record.lot, cut_short(record), sha, pk))
             rows = []
             for seq, check in enumerate(record.checks()):
                 w = check.window
-                d = self._def_id(c, record.plan_id, check.step_id, check.measurement, w.unit,
-                                 _finite(w.low), _finite(w.high))
                 m = check.result
-                valid = m is not None and m.valid
-                value = None if m is None else _finite(m.value)
-                u = None if m is None else _finite(m.uncertainty)
-                rows.append((pk, seq, d, record.lot, epoch, value, u, int(valid),
-                             check.verdict.value, check.reason))
-            # lot and start time are copied from the run so summaries filter without a join
-            c.executemany(
-                "INSERT INTO checks (run, seq, def, lot, started_epoch, value, uncertainty, valid,"
-                " verdict, reason) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)", rows)
+                rows.append((seq, record.plan_id, check.step_id, check.measurement, w.unit,
+                             _finite(w.low), _finite(w.high),
+                             None if m is None else _finite(m.value),
+                             None if m is None else _finite(m.uncertainty),
+                             int(m is not None and m.valid), check.verdict.value, check.reason))
+            self._put_checks(c, pk, record.lot, epoch, rows)
 
         self._write(work)
 
-    def _def_id(self, c: sqlite3.Connection, plan_id: str, step: str, measurement: str, unit: str,
+    def _put_checks(self, c: Conn, pk: int, lot: str | None, epoch: float,
+                    rows: Sequence[Sequence[Any]]) -> None:
+        """Replace the run's checks by ``rows`` (:data:`CHECK_COLUMNS` order)."""
+        c.execute("DELETE FROM checks WHERE run = ?", (pk,))
+        out = []
+        for seq, plan_id, step, meas, unit, low, high, value, u, valid, verdict, reason in rows:
+            d = self._def_id(c, plan_id, step, meas, unit, low, high)
+            # lot and start time are copied from the run so summaries filter without a join
+            out.append((pk, seq, d, lot, epoch, value, u, int(valid), verdict, reason))
+        if out:
+            c.executemany(
+                "INSERT INTO checks (run, seq, def, lot, started_epoch, value, uncertainty, valid,"
+                " verdict, reason) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)", out)
+
+    def _def_id(self, c: Conn, plan_id: str, step: str, measurement: str, unit: str,
                 low: float | None, high: float | None) -> int:
         key = (plan_id, step, measurement, unit, low, high)
         if key in self._defs:
             return self._defs[key]
-        row = c.execute(
-            "SELECT id FROM check_defs WHERE plan_id = ? AND step = ? AND measurement = ?"
-            " AND unit = ? AND low IS ? AND high IS ?", key).fetchone()
+        find = ("SELECT id FROM check_defs WHERE plan_id = ? AND step = ? AND measurement = ?"
+                f" AND unit = ? AND {c.same('low', '?')} AND {c.same('high', '?')}")
+        row = c.execute(find, key).fetchone()
+        if row is None and c.dialect == "postgresql":
+            # stations insert definitions concurrently: one at a time, then look again
+            c.execute("SELECT pg_advisory_xact_lock(?)", (LOCK_DEFS,))
+            row = c.execute(find, key).fetchone()
         if row is None:
-            cur = c.execute("INSERT INTO check_defs (plan_id, step, measurement, unit, low, high)"
-                            " VALUES (?, ?, ?, ?, ?, ?)", key)
-            def_id = int(cur.lastrowid)
-        else:
-            def_id = int(row[0])
+            row = c.execute("INSERT INTO check_defs (plan_id, step, measurement, unit, low, high)"
+                            " VALUES (?, ?, ?, ?, ?, ?) RETURNING id", key).fetchone()
+        def_id = int(row[0])
         self._defs[key] = def_id  # forgotten again if the transaction rolls back (see _write)
         return def_id
+
+    # ------------------------------------------------------------------ forwarding
+
+    def pending(self, limit: int | None = None) -> list[tuple[str, int]]:
+        """Runs whose latest state has not been sent to the central database, oldest first:
+        (run id, state to send: 1 begun, 2 finished)."""
+        sql = ("SELECT run_id, CASE WHEN complete = 1 THEN 2 ELSE 1 END FROM runs"
+               " WHERE sent < CASE WHEN complete = 1 THEN 2 ELSE 1 END ORDER BY id")
+        if limit is not None:
+            sql += f" LIMIT {int(limit)}"
+        return [(str(r), int(s)) for r, s in self.conn.execute(sql).fetchall()]
+
+    def count_pending(self) -> int:
+        return int(self.conn.execute(
+            "SELECT COUNT(*) FROM runs WHERE sent < CASE WHEN complete = 1 THEN 2 ELSE 1 END"
+        ).fetchone()[0])
+
+    def export_runs(self, run_ids: Sequence[str]) -> list[tuple[dict[str, Any], list[tuple]]]:
+        """The runs (as column dicts) with their checks (:data:`CHECK_COLUMNS` tuples)."""
+        out = []
+        cols = ", ".join(RUN_COLUMNS)
+        for run_id in run_ids:
+            row = self.conn.execute(f"SELECT id, {cols} FROM runs WHERE run_id = ?",
+                                    (run_id,)).fetchone()
+            if row is None:
+                continue
+            checks = self.conn.execute(
+                "SELECT c.seq, d.plan_id, d.step, d.measurement, d.unit, d.low, d.high, c.value,"
+                " c.uncertainty, c.valid, c.verdict, c.reason FROM checks c"
+                " JOIN check_defs d ON d.id = c.def WHERE c.run = ? ORDER BY c.seq",
+                (row[0],)).fetchall()
+            out.append((dict(zip(RUN_COLUMNS, row[1:], strict=True)), [tuple(x) for x in checks]))
+        return out
+
+    def import_runs(self, runs: Sequence[tuple[dict[str, Any], list[tuple]]]) -> int:
+        """Store runs sent by a station, in one transaction; idempotent by run id.
+
+        A finished run replaces what is stored (checks included); a begun-only run never
+        overwrites a finished one. Returns the number of runs written.
+        """
+        cols = [c for c in RUN_COLUMNS if c != "run_id"]
+
+        def work(c: Conn) -> int:
+            n = 0
+            for run, checks in runs:
+                row = c.execute("INSERT INTO runs (run_id, serial, plan_id, plan_version, plan_hash,"
+                                " started, started_epoch) VALUES (?, ?, ?, ?, ?, ?, ?)"
+                                " ON CONFLICT (run_id) DO NOTHING RETURNING id, complete",
+                                [run[k] for k in ("run_id", "serial", "plan_id", "plan_version",
+                                                  "plan_hash", "started", "started_epoch")]
+                                ).fetchone()
+                if row is None:
+                    row = c.execute("SELECT id, complete FROM runs WHERE run_id = ?",
+                                    (run["run_id"],)).fetchone()
+                pk, stored_complete = int(row[0]), int(row[1])
+                if stored_complete and not run["complete"]:
+                    continue  # the central copy is already finished: never go back
+                c.execute(f"UPDATE runs SET {', '.join(f'{k} = ?' for k in cols)} WHERE id = ?",
+                          [run[k] for k in cols] + [pk])
+                if run["complete"]:
+                    self._put_checks(c, pk, run["lot"], float(run["started_epoch"]), checks)
+                n += 1
+            return n
+
+        return self._write(work)
+
+    def mark_sent(self, sent: Sequence[tuple[str, int]]) -> None:
+        """Record that these (run id, state) were stored centrally. A run finished meanwhile
+        (state 1 sent, but complete now) stays pending."""
+        self._write(lambda c: c.executemany(
+            "UPDATE runs SET sent = ? WHERE run_id = ? AND complete = ? AND sent < ?",
+            [(state, run_id, int(state == 2), state) for run_id, state in sent]))
+
+    def mark_all_unsent(self) -> None:
+        """Send everything again at the next sync (after pointing a station at a new server)."""
+        self._write(lambda c: c.execute("UPDATE runs SET sent = 0"))
 
     # ------------------------------------------------------------------ reads
 
@@ -338,11 +337,12 @@ class ResultsDB:
         """Every run of ``serial``, newest first (incomplete runs included, marked as such)."""
         from benchgate.store.queries import history
 
-        return history(self._conn, serial)
+        return self.read(lambda c: history(c, serial))
 
     def summary(self, plan: str | None = None, lot: str | None = None,
                 since: str | None = None) -> Summary:
         """Lot statistics over the runs selected by plan id, lot and start time."""
         from benchgate.store.queries import summary
 
-        return summary(self._conn, plan=plan, lot=lot, since=since)
+        return self.read(lambda c: summary(c, plan=plan, lot=lot, since=since))
+

@@ -29,17 +29,20 @@ Definitions used by :func:`summary` (docs/results.md gives them in full, with th
 from __future__ import annotations
 
 import math
-import sqlite3
 from dataclasses import asdict, dataclass, field
 from datetime import UTC, datetime
 from typing import Any
 
-import numpy as np
-
+from benchgate.store.backend import wrap
+from benchgate.store.capability import (  # noqa: F401 - Histogram, cpk, HISTOGRAM_BINS re-exported
+    HISTOGRAM_BINS,
+    CheckStats,
+    Histogram,
+    check_stats,
+    cpk,
+)
 from benchgate.store.outcome import COMPLETE_SQL, is_complete
 
-#: histogram bins per numeric check.
-HISTOGRAM_BINS = 30
 #: Pareto lists keep this many entries; the rest are summed into "other".
 PARETO_TOP = 15
 
@@ -99,8 +102,9 @@ class HistoryRun:
         return d
 
 
-def history(conn: sqlite3.Connection, serial: str) -> list[HistoryRun]:
+def history(conn: Any, serial: str) -> list[HistoryRun]:
     """Every run of ``serial`` (exact match), newest first."""
+    conn = wrap(conn)
     runs = conn.execute(
         "SELECT id, run_id, serial, plan_id, plan_version, station_id, operator, lot, started,"
         " ended, complete, verdict, reason, report_path, accept_hazards,"
@@ -128,31 +132,6 @@ def history(conn: sqlite3.Connection, serial: str) -> list[HistoryRun]:
 
 
 # --------------------------------------------------------------------------- summary
-
-@dataclass(frozen=True)
-class Histogram:
-    edges: tuple[float, ...]  # HISTOGRAM_BINS + 1 bin edges
-    counts: tuple[int, ...]
-
-
-@dataclass(frozen=True)
-class CheckStats:
-    """Statistics of one numeric check (one window of one step of one plan)."""
-
-    plan_id: str
-    step: str
-    measurement: str
-    unit: str
-    low: float | None
-    high: float | None
-    n: int
-    mean: float
-    std: float | None  # sample standard deviation; None below two values
-    min: float
-    max: float
-    cpk: float | None  # None when σ is zero or unknown
-    histogram: Histogram
-
 
 @dataclass(frozen=True)
 class ParetoCheck:
@@ -213,21 +192,6 @@ class Summary:
         return d
 
 
-def cpk(mean: float, std: float | None, low: float | None, high: float | None) -> float | None:
-    """Process capability index Cpk = min(USL − μ, μ − LSL) / 3σ (ISO 22514-2).
-
-    One-sided when only one limit is given; None when σ is unknown or zero.
-    """
-    if std is None or not std > 0 or (low is None and high is None):
-        return None
-    sides = []
-    if high is not None:
-        sides.append(high - mean)
-    if low is not None:
-        sides.append(mean - low)
-    return min(sides) / (3.0 * std)
-
-
 def parse_since(since: str) -> float:
     """Seconds since the epoch for ``--since`` (a date, or an ISO time; UTC unless stated)."""
     from benchgate.errors import StoreError
@@ -262,12 +226,13 @@ def _filters(plan: str | None, lot: str | None, since: str | None
     return "".join(f" AND {x}" for x in runs), "".join(f" AND {x}" for x in checks), params
 
 
-def summary(conn: sqlite3.Connection, *, plan: str | None = None, lot: str | None = None,
+def summary(conn: Any, *, plan: str | None = None, lot: str | None = None,
             since: str | None = None) -> Summary:
     """The lot summary over the runs selected by plan id, lot and start time (all when None).
 
     Definitions: docs/results.md and the module docstring.
     """
+    conn = wrap(conn)
     rf, cf, params = _filters(plan, lot, since)
     # one row per unit: attempts, complete runs, complete runs that did not pass, and whether
     # the latest complete run passed (window function: latest first within the complete runs)
@@ -300,7 +265,7 @@ def summary(conn: sqlite3.Connection, *, plan: str | None = None, lot: str | Non
         units_retested=int(retested), verdicts=verdicts,
         pareto_checks=_pareto_checks(conn, defs, cf, params),
         pareto_reasons=_pareto_reasons(conn, rf, cf, params),
-        checks=_check_stats(conn, defs, rf, params),
+        checks=check_stats(conn, defs, _latest_complete(rf), params + params),
     )
 
 
@@ -358,71 +323,15 @@ def _pareto_reasons(conn, rf, cf, params) -> tuple[ParetoReason, ...]:
 
 
 def _latest_complete(rf: str) -> str:
-    """A ``WITH`` clause naming ``latest``: the id of each unit's latest complete run in scope."""
-    return ("WITH latest AS (SELECT t.id FROM (SELECT r.id, ROW_NUMBER() OVER (PARTITION BY"
-            " r.plan_id, r.serial ORDER BY r.started_epoch DESC, r.run_id DESC) AS k FROM runs r"
-            f" WHERE {COMPLETE_SQL}{rf}) t WHERE t.k = 1)")
-
-
-def _check_stats(conn, defs, rf, params) -> tuple[CheckStats, ...]:
-    """Statistics per check over the Cpk inputs: the valid values of each unit's latest complete
-    run (one value per unit and check; see docs/results.md)."""
-    valid = "c.valid = 1 AND c.value IS NOT NULL"
-    with_latest = _latest_complete(rf)
-    rows = conn.execute(
-        f"{with_latest} SELECT c.def, COUNT(*), AVG(c.value), MIN(c.value), MAX(c.value)"
-        f" FROM checks c WHERE {valid} AND c.run IN (SELECT id FROM latest) GROUP BY c.def",
-        params).fetchall()
-    if not rows:
-        return ()
-    ids = np.array([r[0] for r in rows], dtype=np.int64)
-    n = np.array([r[1] for r in rows], dtype=np.int64)
-    mean = np.array([r[2] for r in rows], dtype=float)
-    vmin = np.array([r[3] for r in rows], dtype=float)
-    vmax = np.array([r[4] for r in rows], dtype=float)
-    # histogram range: the data and the limits, so that both show
-    lows = np.array([np.nan if defs[i][4] is None else defs[i][4] for i in ids], dtype=float)
-    highs = np.array([np.nan if defs[i][5] is None else defs[i][5] for i in ids], dtype=float)
-    lo = np.fmin(vmin, lows)
-    hi = np.fmax(vmax, highs)
-    span = hi - lo
-    pad = np.where(span > 0, 0.04 * span, np.maximum(np.abs(lo) * 1e-3, 1e-12))
-    lo, hi = lo - pad, hi + pad
-    width = (hi - lo) / HISTOGRAM_BINS
-
-    # second pass, one query for all checks: bin counts and squared deviations about the mean
-    # of the first pass (two-pass variance, no cancellation). Every value lies above its lo, so
-    # truncation is the floor; the top bin is clamped against rounding.
-    counts = np.zeros((len(rows), HISTOGRAM_BINS), dtype=np.int64)
-    ssd = np.zeros(len(rows))
-    index = {int(d): k for k, d in enumerate(ids)}
-    values = ", ".join(["(CAST(? AS INTEGER), CAST(? AS DOUBLE PRECISION),"
-                        " CAST(? AS DOUBLE PRECISION), CAST(? AS DOUBLE PRECISION))"] * len(rows))
-    vparams: list[Any] = []
-    for k in range(len(rows)):
-        vparams += [int(ids[k]), float(lo[k]), float(width[k]), float(mean[k])]
-    sql = (f"{with_latest}, p (def, lo, width, mu) AS (VALUES {values})"
-           f" SELECT c.def, CAST((c.value - p.lo) / p.width AS INTEGER) AS b, COUNT(*),"
-           " SUM((c.value - p.mu) * (c.value - p.mu)) FROM checks c JOIN p ON p.def = c.def"
-           f" WHERE {valid} AND c.run IN (SELECT id FROM latest) GROUP BY c.def, b")
-    for d, b, cnt, s in conn.execute(sql, params + vparams):
-        k = index[int(d)]
-        counts[k, min(max(int(b), 0), HISTOGRAM_BINS - 1)] += cnt
-        ssd[k] += s
-    std = np.sqrt(ssd / np.maximum(n - 1, 1))
-
-    out = []
-    for k, d in enumerate(ids):
-        plan_id, step, meas, unit, low, high = defs[int(d)]
-        s = None if n[k] < 2 else float(std[k])
-        edges = tuple(float(x) for x in np.linspace(lo[k], hi[k], HISTOGRAM_BINS + 1))
-        out.append(CheckStats(
-            plan_id=plan_id, step=step, measurement=meas, unit=unit, low=low, high=high,
-            n=int(n[k]), mean=float(mean[k]), std=s, min=float(vmin[k]), max=float(vmax[k]),
-            cpk=cpk(float(mean[k]), s, low, high),
-            histogram=Histogram(edges, tuple(int(x) for x in counts[k]))))
-    out.sort(key=lambda c: (c.plan_id, c.step, c.measurement, c.low is None, c.low or 0.0))
-    return tuple(out)
+    """A ``WITH`` clause naming ``latest``: the id of each unit's latest complete run in scope
+    (takes the filter parameters twice). An anti-join (no later complete run of the same unit
+    in scope), which both databases estimate well and run from the runs_latest index."""
+    return ("WITH latest AS (SELECT o.id FROM runs o WHERE"
+            f" {COMPLETE_SQL.replace('r.', 'o.')}{rf.replace(' r.', ' o.')}"
+            " AND NOT EXISTS (SELECT 1 FROM runs r WHERE r.plan_id = o.plan_id"
+            f" AND r.serial = o.serial AND {COMPLETE_SQL}{rf}"
+            " AND (r.started_epoch > o.started_epoch"
+            " OR (r.started_epoch = o.started_epoch AND r.run_id > o.run_id))))")
 
 
 def fmt_ratio(x: float | None) -> str:

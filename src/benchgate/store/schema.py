@@ -1,0 +1,145 @@
+"""The results database schema, the same on SQLite and PostgreSQL, and its migrations.
+
+The version is kept in the ``schema_version`` table. Opening a database of an older version
+migrates it forward in order (:data:`MIGRATIONS`); a version newer than this program knows is a
+:class:`~benchgate.store.backend.StoreError`. ``{pk}`` and ``{real}`` in the texts are the only
+words that differ between the back ends (see :mod:`benchgate.store.backend`).
+"""
+
+from __future__ import annotations
+
+from datetime import UTC, datetime
+from typing import Any
+
+from benchgate.errors import StoreError
+from benchgate.store.backend import LOCK_MIGRATE, wrap
+
+_V1 = """
+CREATE TABLE runs (
+    id {pk},
+    run_id TEXT NOT NULL UNIQUE,
+    serial TEXT NOT NULL,
+    plan_id TEXT NOT NULL,
+    plan_version TEXT NOT NULL,
+    plan_hash TEXT NOT NULL,
+    product TEXT,
+    station_id TEXT,
+    operator TEXT,
+    lot TEXT,
+    started TEXT NOT NULL,
+    started_epoch {real} NOT NULL,
+    ended TEXT,
+    complete INTEGER NOT NULL DEFAULT 0,
+    verdict TEXT,
+    reason TEXT,
+    decision_rule TEXT,
+    software_version TEXT,
+    accept_hazards INTEGER NOT NULL DEFAULT 0,
+    allow_expired_calibration INTEGER NOT NULL DEFAULT 0,
+    unattended INTEGER NOT NULL DEFAULT 0,
+    report_path TEXT
+);
+CREATE TABLE check_defs (
+    id {pk},
+    plan_id TEXT NOT NULL,
+    step TEXT NOT NULL,
+    measurement TEXT NOT NULL,
+    unit TEXT NOT NULL,
+    low {real},
+    high {real}
+);
+CREATE TABLE checks (
+    id {pk},
+    run INTEGER NOT NULL REFERENCES runs(id) ON DELETE CASCADE,
+    seq INTEGER NOT NULL,
+    def INTEGER NOT NULL REFERENCES check_defs(id),
+    lot TEXT,
+    started_epoch {real} NOT NULL,
+    value {real},
+    uncertainty {real},
+    valid INTEGER NOT NULL,
+    verdict TEXT NOT NULL,
+    reason TEXT NOT NULL
+);
+"""
+
+_V2 = """
+CREATE INDEX runs_serial ON runs(serial, started_epoch);
+CREATE INDEX runs_units ON runs(plan_id, serial, started_epoch, verdict, complete, lot);
+CREATE INDEX checks_run ON checks(run);
+CREATE INDEX checks_values ON checks(def, value, lot, started_epoch) WHERE valid = 1;
+CREATE INDEX checks_not_pass ON checks(def, verdict, lot, started_epoch, value) WHERE verdict <> 'pass';
+CREATE INDEX check_defs_key ON check_defs(plan_id, step, measurement, unit);
+CREATE VIEW check_results AS
+    SELECT r.run_id, r.serial, c.seq, d.step, d.measurement, c.value, c.uncertainty,
+           d.low, d.high, d.unit, c.valid, c.verdict, c.reason
+    FROM checks c JOIN check_defs d ON d.id = c.def JOIN runs r ON r.id = c.run;
+"""
+
+# how a finished run ended (see store/outcome.py); rows written before version 3 are read from
+# their verdict and checks: aborted, or an error verdict that no check explains
+_V3 = """
+ALTER TABLE runs ADD COLUMN cut_short TEXT;
+UPDATE runs SET cut_short = 'aborted' WHERE complete = 1 AND verdict = 'aborted';
+UPDATE runs SET cut_short = 'station error' WHERE complete = 1 AND verdict = 'error'
+    AND NOT EXISTS (SELECT 1 FROM checks c WHERE c.run = runs.id AND c.verdict = 'error');
+CREATE INDEX runs_latest ON runs(plan_id, serial, started_epoch, run_id, complete, cut_short, verdict, lot)
+"""
+
+# forwarding to a central database (a station's local file is its queue) and report evidence
+_V4 = """
+ALTER TABLE runs ADD COLUMN sent INTEGER NOT NULL DEFAULT 0;
+ALTER TABLE runs ADD COLUMN report_sha256 TEXT;
+CREATE INDEX runs_unsent ON runs(sent, complete)
+"""
+
+#: ordered migrations: (version reached, SQL text that gets there from the version before).
+#: Released versions: 1 and 2 (SQLite only), 3 (cut_short); 4 adds forwarding.
+MIGRATIONS: tuple[tuple[int, str], ...] = (
+    (1, _V1),
+    (2, _V2),
+    (3, _V3),
+    (4, _V4),
+)
+SCHEMA_VERSION = MIGRATIONS[-1][0]
+
+
+def schema_version(conn: Any) -> int:
+    """The schema version recorded in the database (0 for a new, empty one)."""
+    conn = wrap(conn)
+    if not conn.table_exists("schema_version"):
+        return 0
+    row = conn.execute("SELECT MAX(version) FROM schema_version").fetchone()
+    return int(row[0] or 0)
+
+
+def migrate(conn: Any, target: int = SCHEMA_VERSION) -> int:
+    """Apply the migrations after the database's version up to ``target``, in one transaction
+    (DDL is transactional on both back ends: a failed migration leaves the old version).
+
+    Returns the version reached. Raises :class:`StoreError` for a database newer than this
+    program. One migrator at a time: SQLite's write lock, PostgreSQL's advisory lock.
+    """
+    conn = wrap(conn)
+    current = schema_version(conn)
+    if current == min(target, SCHEMA_VERSION):
+        return current  # up to date: no write lock taken (read-only users, many stations)
+    conn.begin_write(lock=LOCK_MIGRATE)
+    try:
+        current = schema_version(conn)  # again, under the lock: another process may have migrated
+        if current > SCHEMA_VERSION:
+            raise StoreError(f"database schema version {current} is newer than this benchgate "
+                             f"understands ({SCHEMA_VERSION}); upgrade benchgate")
+        if current == 0:
+            conn.execute("CREATE TABLE schema_version (version INTEGER NOT NULL, applied TEXT NOT NULL)")
+        for version, step in MIGRATIONS:
+            if current < version <= target:
+                conn.script(step)
+                conn.execute("INSERT INTO schema_version (version, applied) VALUES (?, ?)",
+                             (version, datetime.now(UTC).isoformat(timespec="seconds")))
+                current = version
+        conn.commit()
+    except BaseException:
+        conn.rollback()
+        raise
+    return current
