@@ -95,3 +95,22 @@ class TestFrequencyOfADriftingTone:
                     outside += abs(m.value - (f0 + rate * (n - 1) / fs / 2)) > m.uncertainty
         # k = 2 (JCGM 100:2008): about 5 % outside expected; allow 2 of the 15 records
         assert valid >= 9 and outside <= 2
+
+
+def test_track_phase_with_a_degenerate_fit_is_not_followed():
+    # A fitted ω that hardly turns within a window makes the per-window [cos, sin, 1] normal
+    # equations singular (found by the random-signal property test): the track must say it
+    # cannot be followed instead of raising.
+    import math as _m
+
+    import numpy as _np
+
+    from benchgate.analysis import _track
+    from benchgate.analysis.sinefit import SineFit
+
+    y = _np.linspace(0.1, 0.9, 4096)
+    fit = SineFit(omega=0.0, a=1.0, b=0.0, offset=0.0, residual_var=1e-6, n=y.size,
+                  iterations=1, converged=True)
+    track = _track.track_phase(y, fit, cycles=40.0, sample_rate=1000.0)
+    assert track is not None and not track.followed
+    assert _m.isinf(track.step)

@@ -120,7 +120,14 @@ def track_phase(y: np.ndarray, fit: sinefit.SineFit, cycles: float, sample_rate:
     fs = sample_rate
     most = min(MAX_REFINED_WINDOWS, int(cycles // 2))
     while True:
-        phase, _, centre = window_phases(y, fit.omega, windows, work)
+        try:
+            phase, _, centre = window_phases(y, fit.omega, windows, work)
+        except np.linalg.LinAlgError:
+            # a window's [cos, sin, 1] columns are dependent (the fitted ω turns too little
+            # within a window): no phase to follow, so nothing built on it can be trusted
+            nan3 = np.full(3, math.nan)
+            return PhaseTrack(nan3, np.full((3, 3), math.nan), windows, y.size / windows / sample_rate,
+                              math.inf, math.inf, math.nan)
         t = (centre - (y.size - 1) / 2.0) / fs
         v = np.stack([np.ones_like(t), t, t * t], axis=1)
         coef, *_ = np.linalg.lstsq(v, phase, rcond=None)
