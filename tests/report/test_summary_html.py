@@ -127,7 +127,8 @@ def _with_units(summary, units):
     from types import SimpleNamespace
 
     d = {f.name: getattr(summary, f.name) for f in fields(summary)}
-    return SimpleNamespace(**d, units=units, first_pass_yield=summary.first_pass_yield,
+    d["units"] = units
+    return SimpleNamespace(**d, first_pass_yield=summary.first_pass_yield,
                            final_yield=summary.final_yield)
 
 

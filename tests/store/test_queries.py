@@ -214,3 +214,18 @@ def test_history_newest_first(db):
     assert [r.verdict for r in h] == ["pass", "fail", "error"]
     assert [r.status for r in db.history("E")] == ["incomplete"]
     assert db.history("nobody") == []
+
+
+
+def test_lot_summary_lists_each_unit_with_its_latest_attempt(db):
+    # docs/results.md: a lot summary lists every unit with its number of attempts and its latest
+    # attempt's verdict (common practice, no source); a summary with no lot lists none
+    _crafted_history(db)
+    assert db.summary().units == ()
+    units = {u.serial: u for u in db.summary(lot="L1").units}
+    assert sorted(units) == ["A", "B", "C", "D", "E", "F"]
+    assert (units["B"].attempts, units["B"].verdict) == (2, "pass")   # the later attempt passed
+    assert (units["C"].attempts, units["C"].verdict) == (2, "fail")
+    assert (units["D"].attempts, units["D"].verdict) == (3, "pass")
+    assert (units["E"].attempts, units["E"].verdict) == (1, "incomplete")
+    assert all(u.plan_id == "tb3" for u in units.values())

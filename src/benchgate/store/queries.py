@@ -155,6 +155,21 @@ class ParetoReason:
 
 
 @dataclass(frozen=True)
+class UnitLine:
+    """One unit of a lot summary: its latest attempt's verdict and report, and how many attempts."""
+
+    serial: str
+    plan_id: str
+    verdict: str  # of the latest attempt; 'incomplete' when it never finished
+    attempts: int
+    report_path: str | None
+
+
+#: a lot summary lists at most this many units (the page stays readable; the counts stay whole)
+UNIT_LIST_MAX = 5000
+
+
+@dataclass(frozen=True)
 class Summary:
     plan: str | None
     lot: str | None
@@ -172,6 +187,7 @@ class Summary:
     pareto_checks: tuple[ParetoCheck, ...] = ()
     pareto_reasons: tuple[ParetoReason, ...] = ()
     checks: tuple[CheckStats, ...] = field(default=())
+    units: tuple[UnitLine, ...] = ()  # listed for a lot summary only (lot given), serial order
 
     @property
     def first_pass_yield(self) -> float | None:
@@ -266,7 +282,23 @@ def summary(conn: Any, *, plan: str | None = None, lot: str | None = None,
         pareto_checks=_pareto_checks(conn, defs, cf, params),
         pareto_reasons=_pareto_reasons(conn, rf, cf, params),
         checks=check_stats(conn, defs, _latest_complete(rf), params + params),
+        units=_unit_lines(conn, rf, params) if lot is not None else (),
     )
+
+
+def _unit_lines(conn, rf, params) -> tuple[UnitLine, ...]:
+    """Each unit in scope with its attempts and its latest attempt (window function, both back ends)."""
+    rows = conn.execute(
+        "WITH sel AS (SELECT r.serial, r.plan_id, r.complete, r.verdict, r.report_path,"
+        " COUNT(*) OVER (PARTITION BY r.plan_id, r.serial) AS n,"
+        " ROW_NUMBER() OVER (PARTITION BY r.plan_id, r.serial"
+        " ORDER BY r.started_epoch DESC, r.run_id DESC) AS k FROM runs r WHERE 1 = 1" + rf + ")"
+        " SELECT serial, plan_id, complete, verdict, report_path, n FROM sel WHERE k = 1"
+        f" ORDER BY serial, plan_id LIMIT {UNIT_LIST_MAX}", params).fetchall()
+    return tuple(UnitLine(serial=str(serial), plan_id=str(plan_id),
+                          verdict=str(verdict) if complete and verdict else "incomplete",
+                          attempts=int(n), report_path=None if path is None else str(path))
+                 for serial, plan_id, complete, verdict, path, n in rows)
 
 
 def _pareto_checks(conn, defs, cf, params) -> tuple[ParetoCheck, ...]:
