@@ -213,9 +213,9 @@ class SerialAdc:
             raise InstrumentDisconnected(
                 self.name, f"adc on {self.address} disconnected after {elapsed:.1f} s of a "
                            f"{duration:.1f} s capture ({getattr(exc, 'detail', exc.message)})", partial=partial) from exc
-        except InstrumentError:
+        except BaseException:  # an instrument error, or the run was stopped (Ctrl-C, a Stop button)
             if not self.free_running:
-                port.stop_stream()
+                port.stop_stream()  # else the device streams on and the next open cannot identify it
             raise
         capture = self._build(channel, state, actual, decoder, n, complete=True)
         if capture is None:  # only a partial record can be empty
