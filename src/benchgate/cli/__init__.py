@@ -18,6 +18,7 @@ from benchgate import __version__
 COMMANDS = (
     "demo",
     "run",
+    "serve",
     "check",
     "analyze",
     "capture",

@@ -1,0 +1,315 @@
+"""The operator page as a face of the runner: everything a run needs from the person at the bench.
+
+This is the one module that knows how the runner talks to a person. On today's runner that is
+two things: ``RunOptions.ask(prompt) -> str`` (one line of input for a hazard acknowledgement, a
+prompt step or a retry question) and the display hooks of ``runner/ui.py`` (``info``,
+``run_started``, ``step_started``, ``progress``, ``check``, ``step_finished``, ``run_finished``).
+:class:`PageFace` implements both and turns them into page state; the kind of question is
+recognised from the prompt's fixed ending. When the runner's typed interface (announce, ask,
+acknowledge, progress, result) lands, this module is what changes; the desk and the server
+only see :class:`PageFace`, :class:`Stop` and :func:`make_runner`.
+
+The Stop button reaches the runner the way Ctrl-C does: :class:`KeyboardInterrupt` raised in the
+runner's thread at its next call into this face (a progress report, a step start, a check, a
+question) or into the run's clock (waits), so the runner records the unit as aborted and makes
+the bench safe exactly as it does for Ctrl-C.
+"""
+
+from __future__ import annotations
+
+import threading
+import time
+from collections.abc import Callable
+from typing import Any
+
+from benchgate.web.state import Board
+
+#: the endings the runner puts on its questions (runner/execute.py, runner/preflight.py)
+_ENDINGS = (("[y/n] ", "yesno"), ("[Enter when done] ", "done"), ("[Enter = retry, n = stop] ", "retry"))
+#: what the runner's preflight accepts as a hazard acknowledgement (runner/preflight.py)
+ACK_PHRASE = "yes I understand"
+#: page updates of a progress bar at most this often (s of wall time), and on every 2 %
+PROGRESS_INTERVAL = 0.1
+
+
+class Stop:
+    """The Stop request of one run: set from any thread, raised in the runner's thread."""
+
+    def __init__(self) -> None:
+        self._event = threading.Event()
+        self.why = ""
+        self.on_raise: Callable[[str], None] | None = None  # told once per raise, in the run's thread
+
+    def request(self, why: str) -> None:
+        self.why = self.why or why
+        self._event.set()
+
+    def clear(self) -> None:
+        self.why = ""
+        self._event.clear()
+
+    @property
+    def requested(self) -> bool:
+        return self._event.is_set()
+
+    def check(self) -> None:
+        if self._event.is_set():
+            why = self.why or "Stop pressed on the operator page"
+            if self.on_raise is not None:
+                self.on_raise(why)
+            raise KeyboardInterrupt(why)
+
+    def wait(self, timeout: float) -> bool:
+        return self._event.wait(timeout)
+
+
+class StoppableClock:
+    """The run's clock, whose waits end early (raising) when Stop is pressed."""
+
+    def __init__(self, inner: Any, stop: Stop, slice_s: float = 0.05):
+        self.inner = inner
+        self.stop = stop
+        self.slice_wall = slice_s
+
+    @property
+    def speed(self) -> float:
+        return self.inner.speed
+
+    def monotonic(self) -> float:
+        return self.inner.monotonic()
+
+    def sleep(self, seconds: float) -> None:
+        if seconds <= 0:
+            return
+        step = self.slice_wall * (self.inner.speed if self.inner.speed != float("inf") else 1.0)
+        left = seconds
+        while left > 0:
+            self.stop.check()
+            chunk = min(step, left)
+            self.inner.sleep(chunk)
+            left -= chunk
+        self.stop.check()
+
+
+def describe(check: Any) -> tuple[str, str]:
+    """Value ± U and the window of a check record, as the terminal shows them."""
+    from benchgate.runner.ui import describe_value, describe_window
+
+    return describe_value(check), describe_window(check.window)
+
+
+def _num(x: Any) -> float | None:
+    try:
+        x = float(x)
+    except (TypeError, ValueError):
+        return None
+    return x if x == x and abs(x) != float("inf") else None
+
+
+class PageFace:
+    """Display hooks and ``ask`` for one desk; questions wait for the page's answer (or Stop)."""
+
+    def __init__(self, board: Board, stop: Stop, plan: Any):
+        self.board = board
+        self.stop = stop
+        self.plan = plan
+        self.record: Any = None
+        self._answer_ready = threading.Condition()
+        self._ask_id = 0
+        self._answer: str | None = None
+        self._hazards_asked = 0
+        self._last_progress = (0.0, -1.0)
+        stop.on_raise = self._mark_stopped
+
+    def _mark_stopped(self, why: str) -> None:
+        """The record says who stopped the run (its reason is the runner's, for any interrupt)."""
+        if self.record is not None and self.record.ended is None:
+            self.record.flags.setdefault("stopped", why)
+
+    # ------------------------------------------------------------------ questions
+    def ask(self, prompt: str) -> str:
+        """One answer from the page for the runner's ``prompt`` (blocks; Stop raises)."""
+        kind, text = "text", prompt.strip()
+        for ending, name in _ENDINGS:
+            if prompt.endswith(ending):
+                kind, text = name, prompt[: -len(ending)].strip()
+        question: dict[str, Any] = {"kind": kind, "text": text}
+        if prompt.startswith("Type ") and prompt.rstrip().endswith("to acknowledge:"):
+            hazards = list(self.plan.hazards)
+            i = min(self._hazards_asked, len(hazards) - 1)
+            self._hazards_asked += 1
+            question = {"kind": "hazard", "text": hazards[i].text, "hazard": hazards[i].name,
+                        "index": i + 1, "count": len(hazards)}
+        with self._answer_ready:
+            self._ask_id += 1
+            ask_id = self._ask_id
+            self._answer = None
+        question["id"] = ask_id
+        self.board.update(ask=question)
+        try:
+            with self._answer_ready:
+                while self._answer is None:
+                    self.stop.check()
+                    self._answer_ready.wait(timeout=0.25)
+                    self.stop.check()
+                answer = self._answer
+        finally:
+            self.board.update(ask=None)
+        if question["kind"] == "hazard":
+            return ACK_PHRASE if answer == "acknowledge" else ""
+        return answer
+
+    def answer(self, ask_id: int, answer: str) -> bool:
+        """The page's answer to question ``ask_id``; False when that question is not open."""
+        with self._answer_ready:
+            if ask_id != self._ask_id or self._answer is not None or self.board.get("ask") is None:
+                return False
+            self._answer = answer
+            self._answer_ready.notify_all()
+            return True
+
+    def wake(self) -> None:
+        """Let a waiting question notice Stop at once."""
+        with self._answer_ready:
+            self._answer_ready.notify_all()
+
+    def new_session(self) -> None:
+        self._hazards_asked = 0
+
+    # ------------------------------------------------------------------ display hooks
+    def info(self, text: str) -> None:
+        kind = "info"
+        for word in ("CAUTION", "HAZARD", "WARNING"):
+            if text.startswith(word):
+                kind = word.lower()
+                text = text[len(word):].lstrip(": ")
+
+        def add(s: dict[str, Any]) -> None:
+            item = {"kind": kind, "text": text}
+            if item not in s["messages"]:
+                s["messages"].append(item)
+        self.board.change(add)
+
+    def run_started(self, record: Any, total_steps: int) -> None:
+        self.record = record
+        steps = [{"id": s.id, "title": s.title, "kind": s.kind, "status": "pending", "error": None}
+                 for s in record.steps] or [
+                    {"id": s.id, "title": s.title, "kind": s.kind, "status": "pending", "error": None}
+                    for s in self.plan.steps]
+        self.board.update(phase="running", steps=steps, step=None, progress=None, checks=[])
+        self.stop.check()
+
+    def step_started(self, index: int, total: int, step: Any) -> None:
+        def mark(s: dict[str, Any]) -> None:
+            s["step"] = {"index": index, "total": total, "id": step.id, "title": step.title, "kind": step.kind}
+            s["progress"] = None
+            if 0 < index <= len(s["steps"]):
+                s["steps"][index - 1]["status"] = "running"
+        self.board.change(mark)
+        self._last_progress = (0.0, -1.0)
+        self.stop.check()
+
+    def progress(self, fraction: float, text: str, time_left: float | None) -> None:
+        self.stop.check()
+        now = time.monotonic()
+        last_t, last_f = self._last_progress
+        if fraction < 1.0 and now - last_t < PROGRESS_INTERVAL and abs(fraction - last_f) < 0.02:
+            return
+        self._last_progress = (now, fraction)
+        self.board.update(progress={"fraction": max(0.0, min(1.0, float(fraction))), "text": text,
+                                    "left": _num(time_left)})
+
+    def check(self, check: Any) -> None:
+        value, window = describe(check)
+        m = check.result
+        item = {"step": check.step_id, "measurement": check.measurement, "value": value,
+                "window": window, "verdict": check.verdict.value, "reason": check.reason,
+                "number": None if m is None else _num(m.value),
+                "uncertainty": None if m is None else _num(m.uncertainty)}
+        self.board.change(lambda s: s["checks"].append(item))
+        self.stop.check()
+
+    def step_finished(self, step: Any) -> None:
+        def mark(s: dict[str, Any]) -> None:
+            for item in s["steps"]:
+                if item["id"] == step.id:
+                    item["status"], item["error"] = step.status, step.error
+            s["progress"] = None
+        self.board.change(mark)
+
+    def run_finished(self, record: Any, paths: dict) -> None:
+        pass  # the desk shows the outcome (it also knows the report's address)
+
+    def pause(self) -> None: ...
+
+    def close(self) -> None: ...
+
+
+class ConfirmingBench:
+    """The bench of one run, wrapped so that closing it asks the supply whether it is off.
+
+    The runner's safe-state sequence switches the output off and then closes the bench; just
+    before the bench closes, this asks the supply for its output state (switching off once more
+    if it still says on) and reports what it said to ``confirmed(state, text)``.
+    """
+
+    def __init__(self, inner_cm: Any, confirmed: Callable[[str, str], None]):
+        self.inner_cm = inner_cm
+        self.bench: Any = None
+        self.confirmed = confirmed
+
+    def __enter__(self) -> Any:
+        self.bench = self.inner_cm.__enter__()
+        return self.bench
+
+    def __exit__(self, *exc: Any) -> Any:
+        confirm_supply_off(self.bench, self.confirmed)  # never raises
+        return self.inner_cm.__exit__(*exc)
+
+
+def confirm_supply_off(bench: Any, confirmed: Callable[[str, str], None]) -> None:
+    """Switch the supply output off if it is on, ask it again, and report what it said."""
+    supply = None if bench is None else bench.get("supply")
+    if supply is None:
+        confirmed("none", "this station has no supply")
+        return
+    try:
+        if supply.output_state():
+            supply.output(False)
+            if supply.output_state():
+                confirmed("on", "the supply still reports its output ON: switch it off by hand")
+                return
+        confirmed("off", "supply output off (asked from the supply)")
+    except Exception as exc:  # noqa: BLE001 - an unanswered question is shown as such
+        confirmed("unknown", f"the supply did not answer ({exc}): check its output by hand")
+
+
+def make_runner(plan: Any, station: Any, options: Any, face: PageFace,
+                on_capture: Callable[[Any, Any], None], confirmed: Callable[[str, str], None]) -> Any:
+    """A :class:`~benchgate.runner.session.Runner` talking to ``face``.
+
+    ``options`` must carry ``ask=face.ask``; its bench opener is wrapped so that each run ends
+    with the supply's own word on its output, and the capture writer so that the page sees
+    every capture as soon as it is saved. Preflight (calibration, cautions, hazards) runs here.
+    """
+    from benchgate.instruments import open_station
+    from benchgate.runner.session import Runner, Services
+
+    services = Services.default(options)
+    opener = options.open_bench or open_station
+    save = services.save_capture
+
+    def open_bench(*args: Any, **kw: Any) -> ConfirmingBench:
+        return ConfirmingBench(opener(*args, **kw), confirmed)
+
+    def save_capture(capture: Any, path: Any) -> str:
+        sha = save(capture, path)
+        try:
+            on_capture(capture, path)
+        except Exception:  # noqa: BLE001 - the picture is a courtesy; the evidence is saved
+            pass
+        return sha
+
+    services.open_bench = open_bench
+    services.save_capture = save_capture
+    return Runner(plan, station, options, services=services, display=face)

@@ -1,0 +1,40 @@
+"""Shared by the operator-page tests: the plan variants, the browser's flags, where screenshots go."""
+
+from __future__ import annotations
+
+import os
+import shutil
+from pathlib import Path
+
+REPO = Path(__file__).resolve().parents[2]
+TB3 = REPO / "testplans" / "tb3.yaml"
+SPEED = 3.0  # the supply switch-on lag (wall ms x speed) eats into the start-up window: keep it low
+CHROMIUM_ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--no-first-run",
+                 "--disable-background-networking", "--disable-component-update", "--disable-sync"]
+HAZARD = ("hot_surfaces", "The regulator reaches 70 °C during the test; do not touch it.")
+
+
+def find_chromium() -> str | None:
+    for name in ("chromium", "chromium-browser"):
+        found = shutil.which(name)
+        if found:
+            return found
+    return "/usr/bin/chromium" if os.access("/usr/bin/chromium", os.X_OK) else None
+
+
+def screenshot_dir() -> Path:
+    folder = Path(os.environ.get("BENCHGATE_SCREENSHOTS") or REPO / "reports" / "screenshots")
+    folder.mkdir(parents=True, exist_ok=True)
+    return folder
+
+
+def plan_text(*, hazard: bool = True, steady: str | None = None) -> str:
+    """The TB-3 plan with one hazard and, optionally, a longer steady capture (to stop it midway)."""
+    text = TB3.read_text(encoding="utf-8")
+    if hazard:
+        name, what = HAZARD
+        text = text.replace("hazards: []", f"hazards:\n  - name: {name}\n    text: {what}")
+    if steady is not None:
+        head, tail = text.split("  - id: steady", 1)
+        text = head + "  - id: steady" + tail.replace("duration: 500 ms", f"duration: {steady}", 1)
+    return text
