@@ -14,6 +14,7 @@ import secrets
 from contextlib import asynccontextmanager
 from pathlib import Path
 from typing import Any
+from urllib.parse import parse_qs
 
 from jinja2 import Environment, PackageLoader, select_autoescape
 from starlette.applications import Starlette
@@ -65,7 +66,7 @@ class GuardMiddleware:
             if message["type"] == "http.response.start":
                 headers = list(message.get("headers", []))
                 for k, v in (("content-security-policy", csp), ("x-content-type-options", "nosniff"),
-                             ("x-frame-options", "DENY"), ("referrer-policy", "no-referrer"),
+                             ("x-frame-options", "DENY"), ("referrer-policy", "same-origin"),
                              ("cache-control", "no-store")):
                     if not any(h[0].lower() == k.encode() for h in headers):
                         headers.append((k.encode(), v.encode()))
@@ -124,8 +125,9 @@ def create_app(desk: Desk, guard: Guard, *, reports_dir: Path, own_desk: bool = 
     async def login(request: Request) -> Response:
         error = None
         if request.method == "POST":
-            form = await request.form()
-            if guard.token_ok(str(form.get("token", ""))):
+            raw = await request.body()
+            form = parse_qs(raw[:MAX_BODY].decode("utf-8", "replace"))
+            if guard.token_ok((form.get("token") or [""])[0]):
                 response = RedirectResponse("/", status_code=303)
                 _cookie(response, STATION_COOKIE, guard.station_cookie())
                 return response
@@ -134,6 +136,9 @@ def create_app(desk: Desk, guard: Guard, *, reports_dir: Path, own_desk: bool = 
             return RedirectResponse("/", status_code=303)
         html = _templates.get_template("login.html").render(station=desk.station.id, error=error)
         return HTMLResponse(html, status_code=401 if error else 200)
+
+    async def icon(request: Request) -> Response:
+        return Response((HERE / "static" / "icon.svg").read_bytes(), media_type="image/svg+xml")
 
     async def state(request: Request) -> Response:
         _, text = desk.board.snapshot()
@@ -221,6 +226,7 @@ def create_app(desk: Desk, guard: Guard, *, reports_dir: Path, own_desk: bool = 
     routes = [
         Route("/", page),
         Route("/login", login, methods=["GET", "POST"]),
+        Route("/favicon.ico", icon),
         Route("/api/state", state),
         Route("/events", events),
         Route("/api/{action}", api, methods=["POST"]),

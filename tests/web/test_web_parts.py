@@ -1,0 +1,210 @@
+"""The operator page's parts without a browser: questions, Stop, tally, capture picture, defects."""
+
+from __future__ import annotations
+
+import threading
+from types import SimpleNamespace
+
+import numpy as np
+import pytest
+
+from benchgate.cli.serve import defect_in
+from benchgate.web.face import PageFace, Stop, StoppableClock
+from benchgate.web.lot import DETAIL_SAMPLES, WAVE_COLUMNS, Tally, wave_picture
+from benchgate.web.state import Board
+
+PLAN = SimpleNamespace(hazards=(SimpleNamespace(name="mains", text="Live parts at 230 V."),
+                                SimpleNamespace(name="hot_surfaces", text="The heatsink gets hot.")),
+                       steps=())
+
+
+class Asker:
+    """Runs ``face.ask(prompt)`` in a thread (as the runner does) and waits for the page's question."""
+
+    def __init__(self, face: PageFace, prompt: str):
+        self.face = face
+        self.result: dict = {}
+        self.asked = threading.Event()
+        self.thread = threading.Thread(target=self._run, args=(prompt,), daemon=True)
+        self._watch = face.board.change
+
+        def change(fn):
+            self._watch(fn)
+            if face.board.get("ask") is not None:
+                self.asked.set()
+        face.board.change = change
+        self.thread.start()
+        assert self.asked.wait(10), "the question never reached the page"
+
+    def _run(self, prompt: str) -> None:
+        try:
+            self.result["answer"] = self.face.ask(prompt)
+        except BaseException as exc:  # noqa: BLE001 - handed to the test
+            self.result["error"] = exc
+
+    def done(self) -> dict:
+        self.thread.join(10)
+        assert not self.thread.is_alive()
+        return self.result
+
+
+@pytest.fixture
+def face():
+    return PageFace(Board(), Stop(), PLAN)
+
+
+def test_a_runner_prompt_becomes_a_yes_no_question(face):
+    # runner/execute.py asks a prompt step with ask: true as "<text> [y/n] "
+    asker = Asker(face, "Is the LED lit? [y/n] ")
+    question = face.board.get("ask")
+    assert question["kind"] == "yesno" and question["text"] == "Is the LED lit?"
+    assert not face.answer(question["id"] + 1, "y")  # an answer to another question is refused
+    assert face.answer(question["id"], "y")
+    assert not face.answer(question["id"], "n")  # answered once only
+    assert asker.done() == {"answer": "y"}
+    assert face.board.get("ask") is None
+
+
+@pytest.mark.parametrize("prompt, kind", [("Clip the probe to OUT. [Enter when done] ", "done"),
+                                          ("Re-seat the board. [Enter = retry, n = stop] ", "retry"),
+                                          ("Operator note: ", "text")])
+def test_other_runner_prompts(face, prompt, kind):
+    asker = Asker(face, prompt)
+    question = face.board.get("ask")
+    assert question["kind"] == kind
+    face.answer(question["id"], "")
+    assert asker.done() == {"answer": ""}
+
+
+def test_hazards_are_asked_one_by_one_and_acknowledged_as_preflight_expects(face):
+    from benchgate.runner.options import RunOptions
+    from benchgate.runner.preflight import acknowledge_hazards
+
+    shown: list[str] = []
+    result: dict = {}
+
+    def run() -> None:
+        try:
+            result["ack"] = acknowledge_hazards(PLAN, RunOptions(), face.ask, shown.append)
+        except BaseException as exc:  # noqa: BLE001
+            result["error"] = exc
+
+    seen = []
+    original = face.board.change
+
+    def change(fn):
+        original(fn)
+        q = face.board.get("ask")
+        if q is not None and (not seen or seen[-1]["id"] != q["id"]):
+            seen.append(q)
+            face.answer(q["id"], "acknowledge")
+    face.board.change = change
+    worker = threading.Thread(target=run)
+    worker.start()
+    worker.join(10)
+    assert result == {"ack": "typed by operator"}
+    assert [(q["hazard"], q["index"], q["count"]) for q in seen] == [("mains", 1, 2), ("hot_surfaces", 2, 2)]
+    assert shown == ["HAZARD mains: Live parts at 230 V.", "HAZARD hot_surfaces: The heatsink gets hot."]
+
+
+def test_a_declined_hazard_is_not_an_acknowledgement(face):
+    asker = Asker(face, "Type 'mains' or 'yes I understand' to acknowledge: ")
+    face.answer(face.board.get("ask")["id"], "decline")
+    assert asker.done() == {"answer": ""}  # preflight refuses an empty acknowledgement
+
+
+def test_stop_ends_a_question_and_marks_the_record(face):
+    face.record = SimpleNamespace(ended=None, flags={})
+    asker = Asker(face, "Is the LED lit? [y/n] ")
+    face.stop.request("Stop pressed on the operator page")
+    face.wake()
+    result = asker.done()
+    assert isinstance(result["error"], KeyboardInterrupt)  # what the runner records as aborted
+    assert face.record.flags == {"stopped": "Stop pressed on the operator page"}
+    assert face.board.get("ask") is None
+
+
+def test_stop_ends_a_wait_on_the_run_clock():
+    from benchgate.clock import ManualClock
+
+    stop = Stop()
+    inner = ManualClock()
+    clock = StoppableClock(inner, stop)
+    clock.sleep(2.0)
+    assert inner.monotonic() == pytest.approx(2.0)
+    stop.request("stop")
+    with pytest.raises(KeyboardInterrupt):
+        clock.sleep(60.0)
+    assert inner.monotonic() == pytest.approx(2.0)  # not one more slice after Stop
+
+
+def _record(serial, verdict, failed=()):
+    checks = [SimpleNamespace(step_id=s, measurement=m, verdict=SimpleNamespace(value="fail")) for s, m in failed]
+    return SimpleNamespace(serial=serial, verdict=SimpleNamespace(value=verdict), reason="r",
+                           checks=lambda: checks)
+
+
+def test_tally_counts_units_first_pass_yield_and_the_most_frequent_failure():
+    t = Tally()
+    assert t.to_dict() == {"tested": 0, "passed": 0, "fpy": None, "runs": 0, "top_failure": None}
+    t.add(_record("A", "fail", [("steady", "thd"), ("steady", "thd_n")]))
+    t.add(_record("A", "pass"))
+    t.add(_record("B", "pass"))
+    t.add(_record("C", "fail", [("steady", "thd")]))
+    t.add(_record("D", "aborted"))
+    d = t.to_dict()
+    # first-pass yield = units whose first run passed / units tested (common practice, no source)
+    assert (d["tested"], d["passed"], d["runs"]) == (4, 2, 5)
+    assert d["fpy"] == pytest.approx(1 / 4)
+    assert d["top_failure"] == {"label": "steady · thd", "count": 2}
+
+
+def test_the_capture_picture_keeps_every_extreme():
+    rate, n = 50_000.0, 25_000
+    t = np.arange(n) / rate
+    x = 1.2 * np.sin(2 * np.pi * 955.0 * t) + 0.01 * np.cos(2 * np.pi * 7.0 * t)
+    x[12_345] = 3.0  # a one-sample spike must survive the reduction
+    capture = SimpleNamespace(samples=x, sample_rate=rate, channel="out")
+    pic = wave_picture(capture, "steady")
+    assert pic["n"] == n and len(pic["lo"]) == len(pic["hi"]) == WAVE_COLUMNS
+    edges = np.linspace(0, n, WAVE_COLUMNS + 1).astype(int)
+    for i in (0, 1, 246, 493, WAVE_COLUMNS - 1):  # direct min/max of each column's samples
+        part = x[edges[i]:edges[i + 1]]
+        assert pic["lo"][i] == pytest.approx(part.min(), rel=1e-4)
+        assert pic["hi"][i] == pytest.approx(part.max(), rel=1e-4)
+    assert pic["vmax"] == pytest.approx(3.0) and max(pic["hi"]) == pytest.approx(3.0)
+    start = (n - DETAIL_SAMPLES) // 2
+    assert pic["detail"] == pytest.approx(x[start:start + DETAIL_SAMPLES], rel=1e-4)
+    assert pic["detail_start"] == pytest.approx(start / rate)
+
+
+def test_the_capture_picture_of_a_short_or_broken_record():
+    x = np.array([0.0, np.nan, 1.0])
+    pic = wave_picture(SimpleNamespace(samples=x, sample_rate=10.0, channel="out"), None)
+    assert pic["lo"] == [0.0, None, 1.0] and pic["detail"] == [0.0, None, 1.0]
+    empty = wave_picture(SimpleNamespace(samples=np.array([]), sample_rate=10.0, channel="out"), None)
+    assert empty["n"] == 0 and empty["lo"] == []
+
+
+@pytest.mark.parametrize("serial, defect", [("TB3-HIGH-GAIN-1", "high_gain"), ("oh-supply noise-7", "supply_noise"),
+                                            ("TB3-0001", None), ("TB3-LOW_GAIN", "low_gain")])
+def test_the_understudy_bench_reads_a_defect_from_the_serial(serial, defect):
+    defects = ("wrong_capacitor", "low_gain", "high_gain", "open_section", "supply_noise", "intermittent")
+    assert defect_in(serial, defects) == defect
+
+
+def test_the_board_wakes_its_subscribers():
+    import asyncio
+
+    board = Board()
+
+    async def main() -> tuple[int, str]:
+        loop = asyncio.get_running_loop()
+        woken = asyncio.Event()
+        board.subscribe(loop, woken)
+        threading.Thread(target=board.update, kwargs={"serial": "<b>SN</b>"}).start()
+        await asyncio.wait_for(woken.wait(), 10)
+        return board.snapshot()
+
+    version, text = asyncio.run(main())
+    assert version == 2 and '"serial": "<b>SN</b>"' in text  # data, escaped by the page, never HTML

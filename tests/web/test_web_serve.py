@@ -1,0 +1,74 @@
+"""``benchgate serve`` as a process: stopping the server mid-run leaves the supply off."""
+
+from __future__ import annotations
+
+import json
+import queue
+import signal
+import sqlite3
+import subprocess
+import sys
+import threading
+
+import pytest
+from web_support import SPEED, plan_text
+
+pytestmark = pytest.mark.browser
+
+
+def first_line(stream, timeout: float) -> str:
+    lines: queue.Queue = queue.Queue()
+    threading.Thread(target=lambda: lines.put(stream.readline()), daemon=True).start()
+    try:
+        return lines.get(timeout=timeout)
+    except queue.Empty:
+        raise AssertionError("benchgate serve printed no address") from None
+
+
+@pytest.mark.parametrize("sig", [signal.SIGINT, signal.SIGTERM], ids=["ctrl-c", "sigterm"])
+def test_stopping_the_server_mid_capture_switches_the_supply_off(ubench, browser, tmp_path, sig):
+    plan = tmp_path / "plan.yaml"
+    plan.write_text(plan_text(steady="30 s"), encoding="utf-8")
+    reports = tmp_path / "reports"
+    ubench.load_unit("OH-SIG-0001")
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "benchgate", "serve", str(plan), "--station", str(ubench.station_path),
+         "--clock-speed", str(SPEED), "--port", "0", "--reports", str(reports)],
+        stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    ctx = browser.new_context()
+    try:
+        line = first_line(proc.stdout, 60)
+        assert line.startswith("operator page for station understudy-bench: http://127.0.0.1:"), line
+        url = line.rsplit(" ", 1)[1].strip()
+        page = ctx.new_page()
+        page.set_default_timeout(30_000)
+        page.goto(url)
+        page.wait_for_selector('body[data-phase="idle"]')
+        page.keyboard.type("OH-SIG-0001")
+        page.keyboard.press("Enter")
+        page.wait_for_selector('#ask[data-kind="hazard"]:not([hidden])')
+        page.keyboard.press("a")
+        page.wait_for_selector('#ask[data-kind="yesno"]:not([hidden])')
+        page.keyboard.press("y")
+        page.wait_for_selector('body[data-step="steady"][data-moving="yes"]')  # mid-capture, supply on
+        assert ubench.supply_output is True
+        proc.send_signal(sig)
+        page.wait_for_selector("#closing:not([hidden])")  # every open page is told
+        code = proc.wait(timeout=60)
+    finally:
+        ctx.close()
+        if proc.poll() is None:
+            proc.kill()
+            proc.wait()
+    err = proc.stderr.read()
+    assert code == 0, err
+    assert ubench.supply_output is False  # asked from the emulated supply's SCPI server
+    conn = sqlite3.connect(reports / "results.sqlite")
+    try:
+        rows = conn.execute("SELECT complete, verdict, run_id FROM runs WHERE serial = 'OH-SIG-0001'").fetchall()
+    finally:
+        conn.close()
+    assert [r[:2] for r in rows] == [(1, "aborted")]
+    (report,) = [json.loads(p.read_text(encoding="utf-8")) for p in reports.rglob("*.json")]
+    assert report["run_id"] == rows[0][2] and report["verdict"] == "aborted"
+    assert report["flags"]["stopped"] == "the operator page's server is stopping"
