@@ -5,7 +5,7 @@ from __future__ import annotations
 import json
 
 import pytest
-from web_support import HAZARD, plan_text
+from web_support import HAZARD, plan_text, until
 
 pytestmark = pytest.mark.browser
 
@@ -30,16 +30,16 @@ def seen(page) -> str:
         checks: document.getElementById('checks').innerText, steps: document.getElementById('steps').innerText})""")
 
 
-def wait(page, selector: str):
+def wait(page, selector: str, retry: bool = True):
     try:
-        return page.wait_for_selector(selector)
+        return until(page, selector, retry=retry)
     except Exception as exc:
         raise AssertionError(f"{selector} did not appear; the page shows {seen(page)}") from exc
 
 
-def finished(page, units: int) -> Shown:
+def finished(page, units: int, retry: bool = True) -> Shown:
     """Wait for the verdict of the ``units``-th unit of the session; return it."""
-    wait(page, f'body[data-phase="finished"][data-units="{units}"]')
+    wait(page, f'body[data-phase="finished"][data-units="{units}"]', retry)
     page.wait_for_selector("#verdict:not([hidden])")
     shown = Shown(page.get_attribute("#verdict", "data-verdict"))
     shown.reason = f"{page.text_content('#verdict-reason')} | {page.text_content('#failed')}"
@@ -47,7 +47,7 @@ def finished(page, units: int) -> Shown:
 
 
 def asked(page, kind: str):
-    return wait(page, f'#ask[data-kind="{kind}"]:not([hidden])')
+    return wait(page, f'#ask[data-kind="{kind}"]:not([hidden])', retry=kind != "retry")
 
 
 def watch_console(page) -> tuple[list, list]:
@@ -121,7 +121,7 @@ def test_units_from_scan_to_verdict(serve_page, context, shot, ubench):
     assert "Re-seat the board" in page.text_content("#ask-text")
     shot(page, "6-retry")
     page.keyboard.press("n")  # leave it failed
-    assert finished(page, 3) == "fail"
+    assert finished(page, 3, retry=False) == "fail"
     assert page.text_content("#verdict-word") == "FAIL"
     assert page.is_visible(".shape-fail") and not page.is_visible(".shape-pass")
     failed = page.text_content("#failed")
@@ -161,7 +161,7 @@ def test_keyboard_only(serve_page, context, shot):
     page.keyboard.press("Enter")
     asked(page, "yesno")
     page.keyboard.press("n")  # the board is not in the fixture: the prompt's step fails
-    assert finished(page, 3) == "fail"
+    assert finished(page, 3, retry=False) == "fail"
     assert "connect" in page.text_content("#failed")
     shot(page, "keyboard-only")
     assert [r[2] for r in served.rows("OH-KEY-0001")] == ["pass", "pass"]
@@ -177,7 +177,7 @@ def test_stop_mid_capture(serve_page, context, shot, ubench):
     page.keyboard.press("a")
     asked(page, "yesno")
     page.keyboard.press("y")
-    page.wait_for_selector('body[data-step="steady"][data-moving="yes"]')  # the capture is recording
+    wait(page, 'body[data-step="steady"][data-moving="yes"]')  # the capture is recording
     assert "s left" in page.text_content("#time-left")
     assert page.is_visible("#stop")
     shot(page, "1-capturing")
@@ -203,7 +203,7 @@ def test_stop_mid_capture(serve_page, context, shot, ubench):
     page.press("#serial", "Enter")
     asked(page, "yesno")
     page.keyboard.press("y")
-    page.wait_for_selector('body[data-step="steady"][data-moving="yes"]')
+    wait(page, 'body[data-step="steady"][data-moving="yes"]')
     assert {r.get_attribute("data-verdict") for r in page.query_selector_all("#checks tbody tr")} == {"pass"}
     page.keyboard.press("Escape")
     assert finished(page, 2) == "aborted"
@@ -238,7 +238,7 @@ def test_reload_resumes_and_a_second_page_only_watches(serve_page, browser, cont
         page.keyboard.press("a")
         asked(page, "yesno")
         page.keyboard.press("y")
-        page.wait_for_selector('body[data-step="steady"]')
+        wait(page, 'body[data-step="steady"]')
         page.reload()
         page.wait_for_selector('body[data-phase="running"][data-control="yes"][data-step="steady"][data-moving="yes"]')
         assert page.text_content("#step-title") == "Tone after warm-up"

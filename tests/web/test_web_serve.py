@@ -11,7 +11,7 @@ import sys
 import threading
 
 import pytest
-from web_support import SPEED, plan_text
+from web_support import SPEED, plan_text, until
 
 pytestmark = pytest.mark.browser
 
@@ -50,7 +50,7 @@ def test_stopping_the_server_mid_capture_switches_the_supply_off(ubench, browser
         page.keyboard.press("a")
         page.wait_for_selector('#ask[data-kind="yesno"]:not([hidden])')
         page.keyboard.press("y")
-        page.wait_for_selector('body[data-step="steady"][data-moving="yes"]')  # mid-capture, supply on
+        until(page, 'body[data-step="steady"][data-moving="yes"]')  # mid-capture, supply on
         assert ubench.supply_output is True
         proc.send_signal(sig)
         page.wait_for_selector("#closing:not([hidden])")  # every open page is told

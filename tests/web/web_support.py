@@ -8,7 +8,7 @@ from pathlib import Path
 
 REPO = Path(__file__).resolve().parents[2]
 TB3 = REPO / "testplans" / "tb3.yaml"
-SPEED = 3.0  # the supply switch-on lag (wall ms x speed) eats into the start-up window: keep it low
+SPEED = 1.0  # real time: the sim's pacing and the start-up window are least sensitive to a loaded machine
 CHROMIUM_ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--no-first-run",
                  "--disable-background-networking", "--disable-component-update", "--disable-sync"]
 HAZARD = ("hot_surfaces", "The regulator reaches 70 °C during the test; do not touch it.")
@@ -29,8 +29,11 @@ def screenshot_dir() -> Path:
 
 
 def plan_text(*, hazard: bool = True, steady: str | None = None) -> str:
-    """The TB-3 plan with one hazard and, optionally, a longer steady capture (to stop it midway)."""
+    """The TB-3 plan with one hazard, a short warm-up and, optionally, a longer steady capture
+    (to stop it midway)."""
     text = TB3.read_text(encoding="utf-8")
+    head, tail = text.split("  - id: warm-up", 1)
+    text = head + "  - id: warm-up" + tail.replace("duration: 2 s", "duration: 200 ms", 1)
     if hazard:
         name, what = HAZARD
         text = text.replace("hazards: []", f"hazards:\n  - name: {name}\n    text: {what}")
@@ -38,3 +41,16 @@ def plan_text(*, hazard: bool = True, steady: str | None = None) -> str:
         head, tail = text.split("  - id: steady", 1)
         text = head + "  - id: steady" + tail.replace("duration: 500 ms", f"duration: {steady}", 1)
     return text
+
+
+def until(page, selector: str, *, retry: bool = True):
+    """Wait for ``selector``; a good unit whose start-up capture was not trusted (a loaded machine
+    delays the switch-on command, which widens the start-up time's uncertainty) is retried once,
+    as the plan allows and an operator would."""
+    either = f'{selector}, #ask[data-kind="retry"]:not([hidden])'
+    found = page.wait_for_selector(either if retry else selector)
+    if retry and page.is_visible('#ask[data-kind="retry"]'):
+        page.keyboard.press("Enter")
+        page.wait_for_selector('#ask[data-kind="retry"]', state="hidden")
+        found = page.wait_for_selector(selector)
+    return found

@@ -23,7 +23,14 @@ from typing import Any
 
 from benchgate.errors import BenchgateError
 from benchgate.web import lot
-from benchgate.web.face import PageFace, Stop, StoppableClock, confirm_supply_off, make_runner
+from benchgate.web.face import (
+    PageFace,
+    Stop,
+    StoppableClock,
+    confirm_supply_off,
+    make_options,
+    make_runner,
+)
 from benchgate.web.state import Board
 
 _ACTIVE = ("starting", "preflight", "running")
@@ -252,6 +259,10 @@ class Desk:
         self._supply_said = True
         self._supply_state = state
         self.board.update(supply={"state": state, "text": text, "at": _now()})
+        if state in ("off", "none"):
+            self.board.update(alarm=None)
+        elif state == "on":
+            self.board.update(alarm=text)
 
     def _confirm_now(self) -> None:
         """Open the supply alone, switch its output off, ask it (Stop with no run, shutdown)."""
@@ -291,14 +302,13 @@ class Desk:
     def _get_runner(self) -> Any:
         if self.runner is None:
             from benchgate.clock import SystemClock
-            from benchgate.runner.options import RunOptions
 
             c = self.config
-            options = RunOptions(
-                operator=c.operator, lot=c.lot, reports_dir=Path(c.reports_dir), db_path=c.db_path,
+            options = make_options(
+                self.face, operator=c.operator, lot=c.lot, reports_dir=Path(c.reports_dir), db_path=c.db_path,
                 allow_expired_calibration=c.allow_expired_calibration,
-                clock=StoppableClock(c.clock or SystemClock(), self.stop_request), ui="quiet",
-                ask=self.face.ask, extra_flags={"face": "operator page", **c.extra_flags})
+                clock=StoppableClock(c.clock or SystemClock(), self.stop_request),
+                extra_flags={"face": "operator page", **c.extra_flags})
             self.face.new_session()
             self.board.update(phase="preflight")
             self.runner = make_runner(self.plan, self.station, options, self.face, self._on_capture,

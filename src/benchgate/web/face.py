@@ -1,25 +1,30 @@
 """The operator page as a face of the runner: everything a run needs from the person at the bench.
 
-This is the one module that knows how the runner talks to a person. On today's runner that is
-two things: ``RunOptions.ask(prompt) -> str`` (one line of input for a hazard acknowledgement, a
-prompt step or a retry question) and the display hooks of ``runner/ui.py`` (``info``,
-``run_started``, ``step_started``, ``progress``, ``check``, ``step_finished``, ``run_finished``).
-:class:`PageFace` implements both and turns them into page state; the kind of question is
-recognised from the prompt's fixed ending. When the runner's typed interface (announce, ask,
-acknowledge, progress, result) lands, this module is what changes; the desk and the server
-only see :class:`PageFace`, :class:`Stop` and :func:`make_runner`.
+This is the one module that knows how the runner talks to a person, and it speaks both forms:
 
-The Stop button reaches the runner the way Ctrl-C does: :class:`KeyboardInterrupt` raised in the
-runner's thread at its next call into this face (a progress report, a step start, a check, a
-question) or into the run's clock (waits), so the runner records the unit as aborted and makes
-the bench safe exactly as it does for Ctrl-C.
+- the typed interface the runner is moving to (issue 10's ``Attendant``: ``announce``,
+  ``alarm``, ``ask_yes_no``, ``wait_until_done``, ``ask_retry``, ``acknowledge``, and the
+  progress calls ``run_started`` … ``run_finished``), and
+- what main's runner has today: ``RunOptions.ask(prompt) -> str`` (the kind of question is
+  recognised from the prompt's fixed ending) and the display hooks of ``runner/ui.py``.
+
+:func:`make_runner` picks whichever the installed runner takes; the desk and the server only see
+:class:`PageFace`, :class:`Stop` and :func:`make_runner`.
+
+The Stop button reaches the runner the way a stop signal does: a :class:`KeyboardInterrupt`
+(the typed runner's ``StopRequested`` when it has one, naming the page) raised in the runner's
+thread at its next call into this face (a progress report, a step start, a check, a question)
+or into the run's clock (waits), so the runner records the unit as aborted and makes the bench
+safe exactly as for Ctrl-C.
 """
 
 from __future__ import annotations
 
+import inspect
 import threading
 import time
 from collections.abc import Callable
+from dataclasses import dataclass, fields
 from typing import Any
 
 from benchgate.web.state import Board
@@ -30,6 +35,30 @@ _ENDINGS = (("[y/n] ", "yesno"), ("[Enter when done] ", "done"), ("[Enter = retr
 ACK_PHRASE = "yes I understand"
 #: page updates of a progress bar at most this often (s of wall time), and on every 2 %
 PROGRESS_INTERVAL = 0.1
+
+
+def _stop_exception(why: str) -> KeyboardInterrupt:
+    """What Stop raises: the typed runner's StopRequested naming the page, else KeyboardInterrupt."""
+    try:
+        from benchgate.runner.safety import StopRequested  # type: ignore[attr-defined]
+    except ImportError:
+        return KeyboardInterrupt(why)
+    import signal
+
+    class PageStop(StopRequested):
+        @property
+        def description(self) -> str:
+            return why
+
+    return PageStop(signal.SIGINT)
+
+
+@dataclass(frozen=True)
+class Reply:
+    """An answer to "try again?" (the shape of the typed runner's ``Reply``)."""
+
+    yes: bool
+    remark: str = ""
 
 
 class Stop:
@@ -57,7 +86,7 @@ class Stop:
             why = self.why or "Stop pressed on the operator page"
             if self.on_raise is not None:
                 self.on_raise(why)
-            raise KeyboardInterrupt(why)
+            raise _stop_exception(why)
 
     def wait(self, timeout: float) -> bool:
         return self._event.wait(timeout)
@@ -106,8 +135,14 @@ def _num(x: Any) -> float | None:
     return x if x == x and abs(x) != float("inf") else None
 
 
+@dataclass(frozen=True)
+class _Notice:
+    kind: str
+    text: str
+
+
 class PageFace:
-    """Display hooks and ``ask`` for one desk; questions wait for the page's answer (or Stop)."""
+    """The page's side of the runner for one desk; questions wait for the page's answer (or Stop)."""
 
     def __init__(self, board: Board, stop: Stop, plan: Any):
         self.board = board
@@ -127,37 +162,54 @@ class PageFace:
             self.record.flags.setdefault("stopped", why)
 
     # ------------------------------------------------------------------ questions
-    def ask(self, prompt: str) -> str:
-        """One answer from the page for the runner's ``prompt`` (blocks; Stop raises)."""
-        kind, text = "text", prompt.strip()
-        for ending, name in _ENDINGS:
-            if prompt.endswith(ending):
-                kind, text = name, prompt[: -len(ending)].strip()
-        question: dict[str, Any] = {"kind": kind, "text": text}
-        if prompt.startswith("Type ") and prompt.rstrip().endswith("to acknowledge:"):
-            hazards = list(self.plan.hazards)
-            i = min(self._hazards_asked, len(hazards) - 1)
-            self._hazards_asked += 1
-            question = {"kind": "hazard", "text": hazards[i].text, "hazard": hazards[i].name,
-                        "index": i + 1, "count": len(hazards)}
+    def _question(self, kind: str, text: str, **extra: Any) -> str:
+        """Put one question on the page and wait for its answer (Stop raises)."""
         with self._answer_ready:
             self._ask_id += 1
             ask_id = self._ask_id
             self._answer = None
-        question["id"] = ask_id
-        self.board.update(ask=question)
+        self.board.update(ask={"id": ask_id, "kind": kind, "text": text, **extra})
         try:
             with self._answer_ready:
                 while self._answer is None:
                     self.stop.check()
                     self._answer_ready.wait(timeout=0.25)
-                    self.stop.check()
-                answer = self._answer
+                self.stop.check()
+                return self._answer
         finally:
             self.board.update(ask=None)
-        if question["kind"] == "hazard":
-            return ACK_PHRASE if answer == "acknowledge" else ""
-        return answer
+
+    # the typed interface (Attendant)
+    def ask_yes_no(self, question: str) -> bool:
+        return self._question("yesno", question) == "y"
+
+    def wait_until_done(self, instruction: str) -> str:
+        return self._question("done", instruction)
+
+    def ask_retry(self, question: str) -> Reply:
+        answer = self._question("retry", question)
+        return Reply(yes=answer.strip().casefold() not in ("n", "no"))
+
+    def ask_serial(self, prompt: str) -> str | None:
+        return None  # the page scans serials itself, before the runner runs a unit
+
+    def acknowledge(self, name: str, text: str) -> bool:
+        names = [h.name for h in self.plan.hazards]
+        index = names.index(name) + 1 if name in names else self._hazards_asked + 1
+        self._hazards_asked += 1
+        return self._question("hazard", text, hazard=name, index=index, count=max(len(names), index)) == "acknowledge"
+
+    # main's runner: one line of input for a prompt whose ending says what it asks
+    def ask(self, prompt: str) -> str:
+        """One answer from the page for the runner's ``prompt`` (blocks; Stop raises)."""
+        if prompt.startswith("Type ") and prompt.rstrip().endswith("to acknowledge:"):
+            hazards = list(self.plan.hazards)
+            h = hazards[min(self._hazards_asked, len(hazards) - 1)]
+            return ACK_PHRASE if self.acknowledge(h.name, h.text) else ""
+        for ending, kind in _ENDINGS:
+            if prompt.endswith(ending):
+                return self._question(kind, prompt[: -len(ending)].strip())
+        return self._question("text", prompt.strip())
 
     def answer(self, ask_id: int, answer: str) -> bool:
         """The page's answer to question ``ask_id``; False when that question is not open."""
@@ -177,18 +229,22 @@ class PageFace:
         self._hazards_asked = 0
 
     # ------------------------------------------------------------------ display hooks
+    def announce(self, notice: Any) -> None:
+        """A caution, hazard, warning or line of information for the page (typed interface)."""
+        item = {"kind": str(notice.kind), "text": str(notice.text)}
+        self.board.change(lambda s: s["messages"].append(item) if item not in s["messages"] else None)
+
+    def alarm(self, text: str) -> None:
+        """The supply could not be confirmed off: the page shows it over everything else."""
+        self.board.update(alarm=text, supply={"state": "on", "text": text, "at": time.strftime("%H:%M:%S")})
+
     def info(self, text: str) -> None:
+        """main's display hook: a line, with CAUTION/HAZARD/WARNING in front when it is one."""
         kind = "info"
         for word in ("CAUTION", "HAZARD", "WARNING"):
             if text.startswith(word):
-                kind = word.lower()
-                text = text[len(word):].lstrip(": ")
-
-        def add(s: dict[str, Any]) -> None:
-            item = {"kind": kind, "text": text}
-            if item not in s["messages"]:
-                s["messages"].append(item)
-        self.board.change(add)
+                kind, text = word.lower(), text[len(word):].lstrip(": ")
+        self.announce(_Notice(kind, text))
 
     def run_started(self, record: Any, total_steps: int) -> None:
         self.record = record
@@ -284,13 +340,23 @@ def confirm_supply_off(bench: Any, confirmed: Callable[[str, str], None]) -> Non
         confirmed("unknown", f"the supply did not answer ({exc}): check its output by hand")
 
 
+def make_options(face: PageFace, **given: Any) -> Any:
+    """RunOptions for the page: ``given`` plus, on main's runner, ``ask`` and a silent display."""
+    from benchgate.runner.options import RunOptions
+
+    names = {f.name for f in fields(RunOptions)}
+    legacy = {"ask": face.ask, "ui": "quiet"}
+    return RunOptions(**given, **{k: v for k, v in legacy.items() if k in names})
+
+
 def make_runner(plan: Any, station: Any, options: Any, face: PageFace,
                 on_capture: Callable[[Any, Any], None], confirmed: Callable[[str, str], None]) -> Any:
-    """A :class:`~benchgate.runner.session.Runner` talking to ``face``.
+    """A :class:`~benchgate.runner.session.Runner` talking to ``face`` (``options`` from
+    :func:`make_options`).
 
-    ``options`` must carry ``ask=face.ask``; its bench opener is wrapped so that each run ends
-    with the supply's own word on its output, and the capture writer so that the page sees
-    every capture as soon as it is saved. Preflight (calibration, cautions, hazards) runs here.
+    Its bench opener is wrapped so that each run ends with the supply's own word on its output,
+    and its capture writer so that the page sees every capture as soon as it is saved.
+    Preflight (station lock where there is one, calibration, cautions, hazards) runs here.
     """
     from benchgate.instruments import open_station
     from benchgate.runner.session import Runner, Services
@@ -312,4 +378,6 @@ def make_runner(plan: Any, station: Any, options: Any, face: PageFace,
 
     services.open_bench = open_bench
     services.save_capture = save_capture
+    if "attendant" in inspect.signature(Runner).parameters:  # the typed runner (issue 10)
+        return Runner(plan, station, options, services=services, attendant=face)
     return Runner(plan, station, options, services=services, display=face)

@@ -33,6 +33,7 @@ def initial_state() -> dict[str, Any]:
         "messages": [],         # [{kind, text}] cautions, hazards and warnings of this session
         "result": None,         # {verdict, reason, report, failed: [...], serial}
         "supply": {"state": "unknown", "text": "not checked yet"},
+        "alarm": None,          # the supply could not be confirmed off: shown over everything
         "history": [],          # this unit's earlier runs
         "tally": {"tested": 0, "passed": 0, "fpy": None, "runs": 0, "top_failure": None},
         "notice": None,         # one line for the operator (refused scan, preflight refusal …)

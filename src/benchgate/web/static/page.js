@@ -120,6 +120,8 @@
     text($("blocked"), s.blocked ? "Testing is blocked: " + s.blocked : "");
     show($("blocked"), !!s.blocked);
     show($("closing"), !!s.closing);
+    text($("alarm"), s.alarm ? "⚠ " + s.alarm : "");
+    show($("alarm"), !!s.alarm);
     if (s.notice) note(s.notice);
     show($("watching"), active() && !controlling());
 
