@@ -122,8 +122,10 @@ class StoppableClock:
 
 def describe(check: Any) -> tuple[str, str]:
     """Value ± U and the window of a check record, as the terminal shows them."""
-    from benchgate.runner.ui import describe_value, describe_window
-
+    try:
+        from benchgate.runner.ui import describe_value, describe_window  # main's runner
+    except ImportError:  # the typed runner moved the terminal's texts to its face
+        from benchgate.cli.terminal import describe_value, describe_window  # type: ignore[no-redef]
     return describe_value(check), describe_window(check.window)
 
 
