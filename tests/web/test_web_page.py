@@ -5,7 +5,7 @@ from __future__ import annotations
 import json
 
 import pytest
-from web_support import HAZARD, plan_text, until
+from web_support import HAZARD, plan_text, wait
 
 pytestmark = pytest.mark.browser
 
@@ -19,22 +19,6 @@ class Shown(str):
 
     def __repr__(self) -> str:
         return f"{str.__repr__(self)} ({self.reason})"
-
-
-def seen(page) -> str:
-    """What the page shows now (for a failure message)."""
-    return page.evaluate("""() => JSON.stringify({data: {...document.body.dataset},
-        notice: document.getElementById('notice').textContent,
-        ask: document.getElementById('ask').hidden ? null : document.getElementById('ask').innerText,
-        live: document.getElementById('live').innerText, supply: document.getElementById('supply').innerText,
-        checks: document.getElementById('checks').innerText, steps: document.getElementById('steps').innerText})""")
-
-
-def wait(page, selector: str, retry: bool = True):
-    try:
-        return until(page, selector, retry=retry)
-    except Exception as exc:
-        raise AssertionError(f"{selector} did not appear; the page shows {seen(page)}") from exc
 
 
 def finished(page, units: int, retry: bool = True) -> Shown:
@@ -160,9 +144,9 @@ def test_keyboard_only(serve_page, context, shot):
     page.keyboard.type("OH-KEY-0002")  # the serial field has focus again: scan the next unit
     page.keyboard.press("Enter")
     asked(page, "yesno")
-    page.keyboard.press("n")  # the board is not in the fixture: the prompt's step fails
-    assert finished(page, 3, retry=False) == "fail"
-    assert "connect" in page.text_content("#failed")
+    page.keyboard.press("n")  # the board is not in the fixture: a declined prompt stops the unit
+    assert finished(page, 3, retry=False) == "aborted"
+    assert "connect" in page.text_content("#failed") and "only with 'yes'" in page.text_content("#verdict")
     shot(page, "keyboard-only")
     assert [r[2] for r in served.rows("OH-KEY-0001")] == ["pass", "pass"]
 
@@ -195,6 +179,7 @@ def test_stop_mid_capture(serve_page, context, shot, ubench):
     report = json.loads(next((served.reports).rglob("*.json")).read_text(encoding="utf-8"))
     assert report["run_id"] == run_id and report["verdict"] == "aborted"
     assert report["flags"]["stopped"] == "Stop pressed on the operator page"
+    assert report["reason"] == "aborted: Stop pressed on the operator page during step steady"
     steady = next(s for s in report["steps"] if s["id"] == "steady")
     assert steady["status"] == "aborted"  # stopped during the capture, not after it
 

@@ -11,7 +11,7 @@ import sys
 import threading
 
 import pytest
-from web_support import SPEED, plan_text, until
+from web_support import SPEED, plan_text, wait
 
 pytestmark = pytest.mark.browser
 
@@ -50,7 +50,7 @@ def test_stopping_the_server_mid_capture_switches_the_supply_off(ubench, browser
         page.keyboard.press("a")
         page.wait_for_selector('#ask[data-kind="yesno"]:not([hidden])')
         page.keyboard.press("y")
-        until(page, 'body[data-step="steady"][data-moving="yes"]')  # mid-capture, supply on
+        wait(page, 'body[data-step="steady"][data-moving="yes"]')  # mid-capture, supply on
         assert ubench.supply_output is True
         proc.send_signal(sig)
         page.wait_for_selector("#closing:not([hidden])")  # every open page is told
@@ -72,3 +72,22 @@ def test_stopping_the_server_mid_capture_switches_the_supply_off(ubench, browser
     (report,) = [json.loads(p.read_text(encoding="utf-8")) for p in reports.rglob("*.json")]
     assert report["run_id"] == rows[0][2] and report["verdict"] == "aborted"
     assert report["flags"]["stopped"] == "the operator page's server is stopping"
+    assert report["reason"].startswith("aborted: the operator page's server is stopping during step steady")
+
+
+def test_one_desk_per_station_and_no_run_beside_it(serve_page, ubench, tmp_path):
+    from benchgate.instruments.station import load_station
+    from benchgate.plan import load_plan
+    from benchgate.runner.lock import StationBusy
+    from benchgate.runner.options import RunOptions
+    from benchgate.runner.session import Runner
+    from benchgate.web.desk import Desk, DeskConfig
+
+    served = serve_page()
+    plan = next(tmp_path.glob("plan-*.yaml"))
+    with pytest.raises(StationBusy, match="station busy"):
+        Desk(DeskConfig(station=ubench.station_path, plans=[plan], reports_dir=tmp_path / "other"))
+    with pytest.raises(StationBusy):  # benchgate run on the same bench is refused too
+        Runner(load_plan(str(plan)), load_station(ubench.station_path),
+               RunOptions(reports_dir=tmp_path / "other", accept_hazards=True, unattended=True))
+    assert served.desk.board.get("supply")["state"] in ("off", "unknown")

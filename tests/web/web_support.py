@@ -54,3 +54,19 @@ def until(page, selector: str, *, retry: bool = True):
         page.wait_for_selector('#ask[data-kind="retry"]', state="hidden")
         found = page.wait_for_selector(selector)
     return found
+
+
+def seen(page) -> str:
+    """What the page shows now (for a failure message)."""
+    return page.evaluate("""() => JSON.stringify({data: {...document.body.dataset},
+        notice: document.getElementById('notice').textContent,
+        ask: document.getElementById('ask').hidden ? null : document.getElementById('ask').innerText,
+        live: document.getElementById('live').innerText, supply: document.getElementById('supply').innerText,
+        checks: document.getElementById('checks').innerText, steps: document.getElementById('steps').innerText})""")
+
+
+def wait(page, selector: str, retry: bool = True):
+    try:
+        return until(page, selector, retry=retry)
+    except Exception as exc:
+        raise AssertionError(f"{selector} did not appear; the page shows {seen(page)}") from exc

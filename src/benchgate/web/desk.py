@@ -87,8 +87,23 @@ class Desk:
         self._supply_state = "unknown"
         self._queue: queue.Queue = queue.Queue()
         self._thread = threading.Thread(target=self._work, name="benchgate-desk", daemon=False)
+        self._station_lock: Any = None
+        self._hold_station()  # StationBusy when another benchgate runs here: nothing was touched
         self._show_plan()
         self._show_station()
+
+    # ------------------------------------------------------------------ the station lock
+    def _hold_station(self) -> None:
+        """Lock the station while no runner holds it (the probe and Stop open the supply too)."""
+        if self._station_lock is None and self.runner is None:
+            from benchgate.runner.lock import StationLock
+
+            self._station_lock = StationLock(self.station).acquire()
+
+    def _let_go_station(self) -> None:
+        if self._station_lock is not None:
+            self._station_lock.release()
+            self._station_lock = None
 
     # ------------------------------------------------------------------ set-up
     @staticmethod
@@ -254,6 +269,7 @@ class Desk:
             self._close_runner()
             if self._supply_state not in ("off", "none"):
                 self._confirm_now()
+            self._let_go_station()
 
     def _confirmed(self, state: str, text: str) -> None:
         self._supply_said = True
@@ -298,6 +314,10 @@ class Desk:
                 self.runner.close()
             finally:
                 self.runner = None
+                try:
+                    self._hold_station()
+                except BenchgateError as exc:  # taken over between the two: say so
+                    self.board.update(notice=exc.one_line())
 
     def _get_runner(self) -> Any:
         if self.runner is None:
@@ -311,8 +331,16 @@ class Desk:
                 extra_flags={"face": "operator page", **c.extra_flags})
             self.face.new_session()
             self.board.update(phase="preflight")
-            self.runner = make_runner(self.plan, self.station, options, self.face, self._on_capture,
-                                      self._confirmed)
+            self._let_go_station()  # the runner takes the station's lock itself
+            try:
+                self.runner = make_runner(self.plan, self.station, options, self.face, self._on_capture,
+                                          self._confirmed)
+            except BaseException:
+                try:
+                    self._hold_station()
+                except BenchgateError as exc:
+                    self.board.update(notice=exc.one_line())
+                raise
             self.board.change(lambda s: s["session"].update(hazards_acknowledged=bool(self.plan.hazards)))
         return self.runner
 
