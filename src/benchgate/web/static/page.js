@@ -231,9 +231,10 @@
     checks.forEach((c) => {
       const tr = el("tr");
       tr.dataset.verdict = c.verdict;
-      tr.append(el("td", null, c.step), el("td", null, c.measurement), el("td", null, c.value), el("td", null, c.window));
+      tr.append(el("td", null, c.step), el("td", null, c.measurement), el("td", "num", c.value),
+        el("td", "num", c.window));
       const v = el("td", "v", (MARKS[c.verdict] || "") + " " + (WORDS[c.verdict] || c.verdict));
-      if (c.verdict !== "pass") v.append(el("span", "why", c.reason));
+      v.title = c.reason || "";  // each failed check's reason is listed under the verdict
       tr.append(v);
       body.append(tr);
     });
