@@ -75,12 +75,15 @@ def serve_page(ubench, tmp_path):
 
     started: list[Served] = []
 
-    def start(text: str | None = None, host: str = "127.0.0.1", token: str | None = None) -> Served:
-        plan = tmp_path / f"plan-{len(started)}.yaml"
-        plan.write_text(text if text is not None else plan_text(), encoding="utf-8")
+    def start(text: str | None = None, host: str = "127.0.0.1", token: str | None = None,
+              more: tuple[str, ...] = ()) -> Served:
+        plans = []
+        for i, body in enumerate((text if text is not None else plan_text(), *more)):
+            plans.append(tmp_path / f"plan-{len(started)}-{i}.yaml")
+            plans[-1].write_text(body, encoding="utf-8")
         reports = tmp_path / "reports"
         defects: dict[str, str | None] = {}
-        config = DeskConfig(station=ubench.station_path, plans=[plan], reports_dir=reports, clock=ubench.clock,
+        config = DeskConfig(station=ubench.station_path, plans=plans, reports_dir=reports, clock=ubench.clock,
                             before_unit=lambda serial: ubench.load_unit(serial, defects.get(serial)),
                             extra_flags={"clock_speed": SPEED})
         desk = Desk(config).start()

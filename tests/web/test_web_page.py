@@ -268,3 +268,25 @@ def test_script_in_a_serial_is_shown_as_text(serve_page, context):
     assert page.evaluate("window.__owned") is None
     assert not any(url.endswith("/x") for url in requests)
     assert errors == []
+
+
+def test_a_plan_picked_from_the_station_folder(serve_page, context):
+    quick = plan_text(hazard=False).replace("plan: tb3-final", "plan: tb3-quick").replace('version: "1.0"',
+                                                                                          'version: "2.0"')
+    served = serve_page(more=(quick,))
+    page = context.new_page()
+    page.goto(served.url)
+    page.wait_for_selector('body[data-phase="idle"]')
+    assert page.text_content("#plan-name").startswith("tb3-final v1.0")
+    assert [o.text_content() for o in page.query_selector_all("#plan-select option")] == [
+        "tb3-final v1.0", "tb3-quick v2.0"]
+    page.click(".station summary")
+    page.select_option("#plan-select", label="tb3-quick v2.0")
+    page.wait_for_selector("#plan-name >> text=tb3-quick v2.0")
+    page.fill("#serial", "OH-PICK-0001")
+    page.press("#serial", "Enter")
+    asked(page, "yesno")  # this plan declares no hazard
+    page.keyboard.press("y")
+    assert finished(page, 1) == "pass"
+    assert "/reports/tb3-quick/OH-PICK-0001/" in page.get_attribute("#report-link", "href")
+    assert [r[1:] for r in served.rows("OH-PICK-0001")] == [(1, "pass")]

@@ -91,3 +91,38 @@ def test_one_desk_per_station_and_no_run_beside_it(serve_page, ubench, tmp_path)
         Runner(load_plan(str(plan)), load_station(ubench.station_path),
                RunOptions(reports_dir=tmp_path / "other", accept_hazards=True, unattended=True))
     assert served.desk.board.get("supply")["state"] in ("off", "unknown")
+
+
+def test_an_expired_calibration_blocks_the_page_until_allowed(ubench, tmp_path):
+    import datetime as dt
+    import re
+
+    from benchgate.web.desk import Desk, DeskConfig
+
+    past = (dt.date.today() - dt.timedelta(days=3)).isoformat()
+    text = ubench.station_text()
+    # the supply's calibration ran out three days ago (the ADC channels stay valid)
+    text = re.sub(r"(  supply:\n(?:    .*\n)*?    calibration: \{date: )[0-9-]+, due: [0-9-]+",
+                  lambda m: f"{m.group(1)}2025-01-01, due: {past}", text)
+    assert f"due: {past}" in text
+    station = tmp_path / "expired.yaml"
+    station.write_text(text, encoding="utf-8")
+    plan = tmp_path / "plan.yaml"
+    plan.write_text(plan_text(), encoding="utf-8")
+
+    def desk(**kw) -> Desk:
+        return Desk(DeskConfig(station=station, plans=[plan], reports_dir=tmp_path / "r", probe=False, **kw))
+
+    blocked = desk()
+    try:
+        assert f"supply calibration was due {past}" in blocked.board.get("blocked")
+        listed = {i["role"]: i for i in blocked.board.get("station")["instruments"]}
+        assert listed["supply"]["cal_status"] == "expired" and listed["adc"]["cal_status"] == "valid"
+        assert blocked.scan("OH-CAL-0001", "page")[0] == 409  # nothing is started
+    finally:
+        blocked.shutdown()
+    allowed = desk(allow_expired_calibration=True)
+    try:
+        assert allowed.board.get("blocked") is None
+    finally:
+        allowed.shutdown()

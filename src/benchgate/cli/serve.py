@@ -119,6 +119,7 @@ def run(args) -> int:
         try:
             sock = bind(args.host, args.port)
         except OSError as exc:
+            desk.shutdown()
             raise PreflightError(f"cannot listen on {args.host}:{args.port}: {exc.strerror or exc}") from exc
         guard = Guard(args.host, sock.getsockname()[1], token=token if needs_token(args.host) else args.token)
         url = url_of(sock)

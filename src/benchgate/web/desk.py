@@ -227,9 +227,12 @@ class Desk:
     def shutdown(self, timeout: float = 60.0) -> bool:
         """Stop, wait until the bench is safe and the supply confirmed off; True when it is."""
         self.begin_shutdown()
-        if self._thread.ident is not None:  # started
+        if self._thread.ident is not None:  # started: the worker lets the station go last
             self._queue.put(None)
             self._thread.join(timeout)
+        else:  # never started: nothing was opened, only the lock was taken
+            self._let_go_station()
+            return True
         return not self._thread.is_alive() and self._supply_state in ("off", "none")
 
     # ------------------------------------------------------------------ the worker
