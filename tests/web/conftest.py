@@ -76,7 +76,7 @@ def serve_page(ubench, tmp_path):
     started: list[Served] = []
 
     def start(text: str | None = None, host: str = "127.0.0.1", token: str | None = None,
-              more: tuple[str, ...] = ()) -> Served:
+              more: tuple[str, ...] = (), **desk_options) -> Served:
         plans = []
         for i, body in enumerate((text if text is not None else plan_text(), *more)):
             plans.append(tmp_path / f"plan-{len(started)}-{i}.yaml")
@@ -85,7 +85,7 @@ def serve_page(ubench, tmp_path):
         defects: dict[str, str | None] = {}
         config = DeskConfig(station=ubench.station_path, plans=plans, reports_dir=reports, clock=ubench.clock,
                             before_unit=lambda serial: ubench.load_unit(serial, defects.get(serial)),
-                            extra_flags={"clock_speed": SPEED})
+                            extra_flags={"clock_speed": SPEED}, **desk_options)
         desk = Desk(config).start()
         sock = bind(host, 0)
         guard = Guard(host, sock.getsockname()[1], token=token)

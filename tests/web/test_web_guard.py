@@ -2,46 +2,13 @@
 
 from __future__ import annotations
 
-import re
 import threading
-import urllib.error
-import urllib.request
 from http.server import BaseHTTPRequestHandler, ThreadingHTTPServer
 
 import pytest
+from web_support import http, origin, page_keys
 
 from benchgate.web.guard import CSRF_HEADER, Guard, needs_token
-
-
-class _NoRedirect(urllib.request.HTTPRedirectHandler):
-    def redirect_request(self, *args, **kwargs):
-        return None
-
-
-_opener = urllib.request.build_opener(_NoRedirect)
-
-
-def http(url: str, method: str = "GET", headers: dict | None = None, body: bytes | None = None):
-    """(status, headers, text) of one plain HTTP request (no browser, no redirects followed)."""
-    req = urllib.request.Request(url, data=body, method=method, headers=headers or {})
-    try:
-        with _opener.open(req, timeout=10) as r:
-            return r.status, r.headers, r.read().decode("utf-8", "replace")
-    except urllib.error.HTTPError as err:
-        return err.code, err.headers, err.read().decode("utf-8", "replace")
-
-
-def origin(url: str) -> str:
-    return url.rstrip("/")
-
-
-def page_keys(url: str) -> tuple[str, str]:
-    """The anti-forgery token in the page, and the page's identity cookie."""
-    status, headers, html = http(url)
-    assert status == 200
-    csrf = re.search(r'name="benchgate-csrf" content="([^"]+)"', html).group(1)
-    cookie = headers["set-cookie"].split(";", 1)[0]
-    return csrf, cookie
 
 
 def test_only_loopback_listens_without_a_token():

@@ -11,7 +11,9 @@ import sys
 import threading
 
 import pytest
-from web_support import SPEED, plan_text, wait
+from web_support import SPEED, http, origin, page_keys, plan_text, wait
+
+from benchgate.web.guard import CSRF_HEADER
 
 pytestmark = pytest.mark.browser
 
@@ -126,3 +128,19 @@ def test_an_expired_calibration_blocks_the_page_until_allowed(ubench, tmp_path):
         assert allowed.board.get("blocked") is None
     finally:
         allowed.shutdown()
+
+
+def test_a_question_nobody_can_see_stops_the_run(serve_page, ubench):
+    # the page was closed while the run waited for an answer: after abandon_after s it is stopped
+    served = serve_page(plan_text(hazard=False), abandon_after=0.5)
+    ubench.load_unit("OH-GONE-0001")
+    csrf, cookie = page_keys(served.url)  # the page was loaded once, then closed (no live stream)
+    headers = {"Origin": origin(served.url), CSRF_HEADER: csrf, "Cookie": cookie,
+               "Content-Type": "application/json"}
+    assert http(served.url + "api/scan", "POST", headers, b'{"serial": "OH-GONE-0001"}')[0] == 202
+    assert served.desk.wait_idle(30)
+    result = served.desk.board.get("result")
+    assert result["verdict"] == "aborted"
+    assert result["stopped"] == "no operator page was open for 0.5 s while the run waited for an answer"
+    assert [r[1:] for r in served.rows("OH-GONE-0001")] == [(1, "aborted")]
+    assert ubench.supply_output is False

@@ -51,6 +51,7 @@ class DeskConfig:
     clock: Any = None
     before_unit: Callable[[str], None] | None = None  # e.g. the understudy bench loads the unit
     probe: bool = True  # open the instruments once at start: identities, supply confirmed off
+    abandon_after: float | None = 120.0  # s a question may wait with no page open before Stop
     extra_flags: dict[str, Any] = field(default_factory=dict)
 
     @property
@@ -76,13 +77,16 @@ class Desk:
         self.stop_request = Stop()
         self.plans: list[tuple[Path, Any, str | None]] = [self._load(p) for p in config.plans]
         self.plan_index = next((i for i, p in enumerate(self.plans) if p[1] is not None), 0)
-        self.face = PageFace(self.board, self.stop_request, self.plans[self.plan_index][1])
+        self.face = PageFace(self.board, self.stop_request, self.plans[self.plan_index][1],
+                             abandon_after=config.abandon_after)
         self.runner: Any = None
         self.tally = lot.Tally()
         self.identities: dict[str, str | None] = {}
         self.closing = False
         self._lock = threading.Lock()
         self._busy = False
+        self._idle = threading.Event()
+        self._idle.set()
         self._supply_said = False
         self._supply_state = "unknown"
         self._queue: queue.Queue = queue.Queue()
@@ -166,6 +170,7 @@ class Desk:
             if self._busy:
                 return 409, "a unit is being tested at this station; wait for its verdict"
             self._busy = True
+            self._idle.clear()
             self.stop_request.clear()
         self.board.update(phase="starting", serial=serial, controller=client, notice=None, result=None,
                           ask=None, checks=[], step=None, progress=None, history=[])
@@ -216,6 +221,10 @@ class Desk:
             self._busy = True
         self._queue.put(("session", None))
         return 202, "new session"
+
+    def wait_idle(self, timeout: float | None = None) -> bool:
+        """Wait until no unit is queued or running (True) or ``timeout`` s passed (False)."""
+        return self._idle.wait(timeout)
 
     def begin_shutdown(self, why: str = "the operator page's server is stopping") -> None:
         """Refuse new work and stop a run in progress (safe to call from a signal handler)."""
@@ -268,6 +277,7 @@ class Desk:
                 finally:
                     with self._lock:
                         self._busy = False
+                        self._idle.set()
         finally:
             self._close_runner()
             if self._supply_state not in ("off", "none"):

@@ -146,8 +146,9 @@ class _Notice:
 class PageFace:
     """The page's side of the runner for one desk; questions wait for the page's answer (or Stop)."""
 
-    def __init__(self, board: Board, stop: Stop, plan: Any):
+    def __init__(self, board: Board, stop: Stop, plan: Any, abandon_after: float | None = None):
         self.board = board
+        self.abandon_after = abandon_after
         self.stop = stop
         self.plan = plan
         self.record: Any = None
@@ -176,10 +177,17 @@ class PageFace:
                 while self._answer is None:
                     self.stop.check()
                     self._answer_ready.wait(timeout=0.25)
+                    self._check_abandoned()
                 self.stop.check()
                 return self._answer
         finally:
             self.board.update(ask=None)
+
+    def _check_abandoned(self) -> None:
+        """A question nobody can see must not hold the bench (the supply may be on): stop."""
+        if self.abandon_after is not None and self.board.unwatched_for() > self.abandon_after:
+            self.stop.request(f"no operator page was open for {self.abandon_after:g} s while the run "
+                              "waited for an answer")
 
     # the typed interface (Attendant)
     def ask_yes_no(self, question: str) -> bool:

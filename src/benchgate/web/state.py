@@ -12,6 +12,7 @@ import asyncio
 import copy
 import json
 import threading
+import time
 from collections.abc import Callable
 from typing import Any
 
@@ -55,6 +56,7 @@ class Board:
         self._wave_json = "null"
         self._subscribers: dict[int, tuple[asyncio.AbstractEventLoop, asyncio.Event]] = {}
         self._next_sub = 0
+        self._alone_since: float | None = time.monotonic()  # no page watching since then
 
     # ------------------------------------------------------------------ changes
     def change(self, fn: Callable[[dict[str, Any]], None]) -> None:
@@ -93,11 +95,19 @@ class Board:
         with self._lock:
             self._next_sub += 1
             self._subscribers[self._next_sub] = (loop, event)
+            self._alone_since = None
             return self._next_sub
 
     def unsubscribe(self, token: int) -> None:
         with self._lock:
             self._subscribers.pop(token, None)
+            if not self._subscribers and self._alone_since is None:
+                self._alone_since = time.monotonic()
+
+    def unwatched_for(self) -> float:
+        """Seconds since the last page stopped watching (0 while one watches)."""
+        with self._lock:
+            return 0.0 if self._alone_since is None else time.monotonic() - self._alone_since
 
     def _wake(self) -> None:
         with self._lock:
