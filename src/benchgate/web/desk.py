@@ -290,7 +290,7 @@ class Desk:
         self.board.update(supply={"state": state, "text": text, "at": _now()})
         if state in ("off", "none"):
             self.board.update(alarm=None)
-        elif state == "on":
+        elif state in ("on", "unknown"):  # not confirmed off: the page says so over everything
             self.board.update(alarm=text)
 
     def _confirm_now(self) -> None:
@@ -303,8 +303,9 @@ class Desk:
         try:
             with open_station(self.station, clock=self.config.clock, roles=["supply"]) as bench:
                 confirm_supply_off(bench, self._confirmed)
-        except BenchgateError as exc:
-            self._confirmed("unknown", f"cannot reach the supply ({exc.one_line()}): switch it off by hand")
+        except Exception as exc:  # noqa: BLE001 - said on the page, loudly
+            text = exc.one_line() if isinstance(exc, BenchgateError) else f"{type(exc).__name__}: {exc}"
+            self._confirmed("unknown", f"cannot reach the supply ({text}): switch it off by hand")
         self.stop_request.clear()
 
     def _probe(self) -> None:
@@ -313,11 +314,12 @@ class Desk:
 
         try:
             with open_station(self.station, clock=self.config.clock) as bench:
-                for rec in bench.records():
-                    self.identities[rec.role] = rec.identity or "(no identity reported)"
+                for role in bench.roles:
+                    self.identities[role] = getattr(bench.get(role), "identity", None) or "(no identity reported)"
                 confirm_supply_off(bench, self._confirmed)
-        except BenchgateError as exc:
-            self.board.update(notice=f"instruments: {exc.one_line()}")
+        except Exception as exc:  # noqa: BLE001 - the page says why; the desk still serves
+            text = exc.one_line() if isinstance(exc, BenchgateError) else f"{type(exc).__name__}: {exc}"
+            self.board.update(notice=f"instruments: {text}")
             self._confirmed("unknown", "the instruments could not all be opened: check the supply by hand")
         self._show_station()
 
