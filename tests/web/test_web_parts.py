@@ -221,3 +221,15 @@ def test_the_board_wakes_its_subscribers():
     runner.join(10)
     version, text = out["r"]
     assert version == 2 and '"serial": "<b>SN</b>"' in text  # data, escaped by the page, never HTML
+
+
+def test_the_board_never_sends_what_a_browser_cannot_parse():
+    import json
+
+    board = Board()
+    board.update(progress={"fraction": 0.5, "left": float("nan")}, checks=[{"number": float("inf")}])
+    def refuse(token):
+        raise AssertionError(f"{token} is not JSON")  # RFC 8259, 6: NaN and Infinity are not permitted
+
+    state = json.loads(board.snapshot()[1], parse_constant=refuse)
+    assert state["progress"] == {"fraction": 0.5, "left": None} and state["checks"] == [{"number": None}]

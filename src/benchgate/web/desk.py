@@ -359,13 +359,22 @@ class Desk:
             self.board.change(lambda s: s["session"].update(hazards_acknowledged=bool(self.plan.hazards)))
         return self.runner
 
+    def _history(self, serial: str, skip_run: str | None = None) -> list[dict]:
+        """The unit's earlier runs; a database that cannot be read is said, never fatal."""
+        c = self.config
+        try:
+            return lot.history(c.database, c.reports_dir, serial, skip_run=skip_run)
+        except Exception as exc:  # noqa: BLE001 - the run goes on without its history
+            self.board.update(notice=f"earlier runs cannot be read: {exc}")
+            return []
+
     def _on_capture(self, capture: Any, path: Any) -> None:
         step = self.board.get("step")
         self.board.set_wave(lot.wave_picture(capture, None if step is None else step["id"]))
 
     def _run_unit(self, serial: str) -> None:
         c = self.config
-        self.board.update(history=lot.history(c.database, c.reports_dir, serial))
+        self.board.update(history=self._history(serial))
         try:
             if c.before_unit is not None:
                 c.before_unit(serial)
@@ -402,9 +411,9 @@ class Desk:
                   "report": lot.report_url(self.config.reports_dir, outcome.paths.get("html")),
                   "report_json": lot.report_url(self.config.reports_dir, outcome.paths.get("json")),
                   "failed": failed, "safe_state": list(rec.flags.get("safe_state", []))}
-        c = self.config
+        earlier = self._history(rec.serial, skip_run=rec.run_id)
         self.board.change(lambda s: (
             s.update(phase="finished", result=result, step=None, progress=None, ask=None,
                      tally=self.tally.to_dict(),
-                     history=lot.history(c.database, c.reports_dir, rec.serial, skip_run=rec.run_id)),
+                     history=earlier),
             s["session"].update(units=s["session"]["units"] + 1)))

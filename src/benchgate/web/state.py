@@ -11,10 +11,29 @@ from __future__ import annotations
 import asyncio
 import copy
 import json
+import math
 import threading
 import time
 from collections.abc import Callable
 from typing import Any
+
+
+def _finite(value: Any) -> Any:
+    if isinstance(value, float):
+        return value if math.isfinite(value) else None
+    if isinstance(value, dict):
+        return {k: _finite(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_finite(v) for v in value]
+    return value
+
+
+def _dumps(value: Any) -> str:
+    """JSON the browser can parse: a NaN or infinity that slipped through becomes null."""
+    try:
+        return json.dumps(value, ensure_ascii=False, allow_nan=False)
+    except ValueError:
+        return json.dumps(_finite(value), ensure_ascii=False, allow_nan=False)
 
 
 def initial_state() -> dict[str, Any]:
@@ -64,7 +83,7 @@ class Board:
         with self._lock:
             fn(self._state)
             self._version += 1
-            self._json = json.dumps(self._state, ensure_ascii=False, allow_nan=False)
+            self._json = _dumps(self._state)
         self._wake()
 
     def update(self, **fields: Any) -> None:
@@ -74,7 +93,7 @@ class Board:
         with self._lock:
             self._wave = wave
             self._wave_version += 1
-            self._wave_json = json.dumps(wave, allow_nan=False)
+            self._wave_json = _dumps(wave)
         self._wake()
 
     # ------------------------------------------------------------------ reads
