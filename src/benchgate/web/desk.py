@@ -124,25 +124,8 @@ class Desk:
         return self.plans[self.plan_index][1]
 
     def _show_plan(self) -> None:
-        from benchgate.runner.preflight import expired_calibrations, roles_used
-
-        path, plan, error = self.plans[self.plan_index]
-        listing = [{"name": p.name, "label": f"{pl.id} v{pl.version}" if pl else p.name, "error": err}
-                   for p, pl, err in self.plans]
-        blocked = None
-        info = None
-        if plan is None:
-            blocked = f"plan {path.name}: {error}"
-        else:
-            info = {"id": plan.id, "version": str(plan.version), "product": plan.product, "file": path.name,
-                    "cautions": list(plan.cautions), "decision": plan.decision,
-                    "hazards": [{"name": h.name, "text": h.text} for h in plan.hazards],
-                    "steps": [{"id": s.id, "title": s.title, "kind": s.kind} for s in plan.steps]}
-            today = _dt.datetime.now(_dt.UTC).date()
-            expired = expired_calibrations(self.station, roles_used(plan), today)
-            if expired and not self.config.allow_expired_calibration:
-                blocked = ("; ".join(expired) + ". Testing is blocked until the instrument is calibrated "
-                           "(or the page is started with --allow-expired-calibration, which every report records).")
+        info, listing, blocked = lot.plan_view(self.plans, self.plan_index, self.station,
+                                               self.config.allow_expired_calibration)
         self.board.update(plan=info, plans=listing, blocked=blocked)
 
     def _show_station(self) -> None:
@@ -402,18 +385,9 @@ class Desk:
     def _show_outcome(self, outcome: Any) -> None:
         rec = outcome.record
         self.tally.add(rec)
-        failed = [{"step": ch.step_id, "measurement": ch.measurement, "verdict": ch.verdict.value,
-                   "reason": ch.reason} for ch in rec.checks() if ch.verdict.value != "pass"]
-        failed += [{"step": s.id, "measurement": "", "verdict": s.status, "reason": s.error}
-                   for s in rec.steps if s.error and not any(f["step"] == s.id for f in failed)]
-        result = {"verdict": rec.verdict.value, "reason": rec.reason, "serial": rec.serial,
-                  "exit_code": outcome.exit_code, "stopped": rec.flags.get("stopped"),
-                  "report": lot.report_url(self.config.reports_dir, outcome.paths.get("html")),
-                  "report_json": lot.report_url(self.config.reports_dir, outcome.paths.get("json")),
-                  "failed": failed, "safe_state": list(rec.flags.get("safe_state", []))}
+        result = lot.outcome_view(outcome, self.config.reports_dir)
         earlier = self._history(rec.serial, skip_run=rec.run_id)
         self.board.change(lambda s: (
             s.update(phase="finished", result=result, step=None, progress=None, ask=None,
-                     tally=self.tally.to_dict(),
-                     history=earlier),
+                     tally=self.tally.to_dict(), history=earlier),
             s["session"].update(units=s["session"]["units"] + 1)))

@@ -123,3 +123,41 @@ def instruments(station: Any, identities: dict[str, str | None], today: _dt.date
         out.append({"role": role, "kind": cfg.kind, "address": str(cfg.address),
                     "identity": identities.get(role), "calibration": text, "cal_status": status})
     return out
+
+
+def plan_view(plans: list[tuple[Path, Any, str | None]], index: int, station: Any,
+              allow_expired: bool) -> tuple[dict | None, list[dict], str | None]:
+    """The chosen plan as the page shows it, the plans to pick from, and why testing is blocked
+    (a plan that did not load, an instrument past its calibration due date) or None."""
+    from benchgate.runner.preflight import expired_calibrations, roles_used
+
+    path, plan, error = plans[index]
+    listing = [{"name": p.name, "label": f"{pl.id} v{pl.version}" if pl else p.name, "error": err}
+               for p, pl, err in plans]
+    if plan is None:
+        return None, listing, f"plan {path.name}: {error}"
+    info = {"id": plan.id, "version": str(plan.version), "product": plan.product, "file": path.name,
+            "cautions": list(plan.cautions), "decision": plan.decision,
+            "hazards": [{"name": h.name, "text": h.text} for h in plan.hazards],
+            "steps": [{"id": s.id, "title": s.title, "kind": s.kind} for s in plan.steps]}
+    expired = expired_calibrations(station, roles_used(plan), _dt.datetime.now(_dt.UTC).date())
+    blocked = None
+    if expired and not allow_expired:
+        blocked = ("; ".join(expired) + ". Testing is blocked until the instrument is calibrated "
+                   "(or the page is started with --allow-expired-calibration, which every report records).")
+    return info, listing, blocked
+
+
+def outcome_view(outcome: Any, reports_dir: Path) -> dict[str, Any]:
+    """A finished unit as the page shows it: verdict, reason, each check or step that did not
+    pass with its reason, the report's address, and what the safe-state sequence noted."""
+    rec = outcome.record
+    failed = [{"step": ch.step_id, "measurement": ch.measurement, "verdict": ch.verdict.value,
+               "reason": ch.reason} for ch in rec.checks() if ch.verdict.value != "pass"]
+    failed += [{"step": s.id, "measurement": "", "verdict": s.status, "reason": s.error}
+               for s in rec.steps if s.error and not any(f["step"] == s.id for f in failed)]
+    return {"verdict": rec.verdict.value, "reason": rec.reason, "serial": rec.serial,
+            "exit_code": outcome.exit_code, "stopped": rec.flags.get("stopped"),
+            "report": report_url(reports_dir, outcome.paths.get("html")),
+            "report_json": report_url(reports_dir, outcome.paths.get("json")),
+            "failed": failed, "safe_state": list(rec.flags.get("safe_state", []))}

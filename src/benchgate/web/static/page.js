@@ -134,6 +134,7 @@
 
     renderAsk(s.ask);
     renderLive(s);
+    renderRecording(s);
     renderVerdict(s.result, s.phase);
     renderSteps(s.steps || []);
     renderChecks(s.checks || []);
@@ -186,6 +187,19 @@
     $("step-progress").value = p ? p.fraction : 0;
     text($("progress-text"), p ? p.text : "");
     text($("time-left"), p && p.left != null ? p.left.toFixed(1) + " s left" : "");
+  }
+
+  function renderRecording(s) {
+    // the capture is drawn once it has been recorded; say so while one is being taken
+    const recording = s.phase === "running" && s.step && s.step.kind === "capture";
+    const canvas = $("wave");
+    canvas.dataset.recording = recording ? "yes" : "no";
+    if (recording) {
+      text($("wave-caption"), "Recording step " + s.step.id + " … it is drawn here once recorded" +
+        (wave && wave.n ? " (shown now: step " + wave.step + ")." : "."));
+    } else if (wave && wave.n) {
+      drawWave();
+    }
   }
 
   function renderVerdict(r, phase) {
