@@ -144,3 +144,18 @@ def test_a_question_nobody_can_see_stops_the_run(serve_page, ubench):
     assert result["stopped"] == "no operator page was open for 0.5 s while the run waited for an answer"
     assert [r[1:] for r in served.rows("OH-GONE-0001")] == [(1, "aborted")]
     assert ubench.supply_output is False
+
+
+def test_bad_input_is_one_line_and_nothing_is_served(tmp_path, capsys):
+    from benchgate.cli import main
+
+    broken = tmp_path / "broken.yaml"
+    broken.write_text(plan_text().replace("decision: simple", "decision: lenient"), encoding="utf-8")
+    assert main(["serve", str(broken), "--understudy", "tb3", "--port", "0"]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and err[0].startswith(f"benchgate: {broken}:") and "decision" in err[0], err
+    assert main(["serve", str(tmp_path / "missing.yaml"), "--understudy", "tb3", "--port", "0"]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert err == [f"benchgate: {tmp_path / 'missing.yaml'}: no such plan file"]
+    assert main(["serve", str(broken), "--understudy", "tb3", "--speed", "0"]) == 2
+    assert "--speed must be > 0" in capsys.readouterr().err

@@ -76,6 +76,10 @@ class Desk:
         self.board = Board()
         self.stop_request = Stop()
         self.plans: list[tuple[Path, Any, str | None]] = [self._load(p) for p in config.plans]
+        if all(plan is None for _, plan, _ in self.plans):  # nothing to offer: say why, at its place
+            from benchgate.plan import load_plan
+
+            load_plan(str(config.plans[0]))
         self.plan_index = next((i for i, p in enumerate(self.plans) if p[1] is not None), 0)
         self.face = PageFace(self.board, self.stop_request, self.plans[self.plan_index][1],
                              abandon_after=config.abandon_after)
