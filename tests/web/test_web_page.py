@@ -79,6 +79,9 @@ def test_units_from_scan_to_verdict(serve_page, context, shot, ubench):
     assert int(page.get_attribute("#wave", "data-points")) > 100
     shot(page, "4-pass")
 
+    report_errors: list[str] = []
+    context.on("console", lambda m: report_errors.append(m.text)
+               if m.type == "error" and "/reports/" in m.page.url else None)
     with context.expect_page() as opened:
         page.click("#report-link")
     report = opened.value
@@ -87,6 +90,7 @@ def test_units_from_scan_to_verdict(serve_page, context, shot, ubench):
     assert "OH-WEB-0001" in report.content()
     shot(report, "5-report")
     report.close()
+    assert report_errors == []  # served read-only from the report folder, nothing blocked
 
     page.keyboard.press("F2")  # retest the same unit with one key; hazards were acknowledged
     asked(page, "yesno")
