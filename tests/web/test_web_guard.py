@@ -140,3 +140,13 @@ def test_forged_cross_site_requests_are_refused(serve_page, context, hostile_ser
     assert http(served.url + "api/session", "POST", {**good, "Sec-Fetch-Site": "cross-site"}, b"{}")[0] == 403
     assert http(served.url + "api/session", "POST", {**good, "Origin": "http://evil.example"}, b"{}")[0] == 403
     assert http(served.url + "api/session", "POST", good, b"{}")[0] == 202
+
+    # the report folder is served read only, and only its report files (not the database)
+    served.desk.wait_idle(10)
+    served.reports.mkdir(parents=True, exist_ok=True)
+    (served.reports / "note.json").write_text("{}", encoding="utf-8")
+    (served.reports / "results.sqlite").write_bytes(b"SQLite format 3\x00")
+    assert http(served.url + "reports/note.json")[0] == 200
+    assert http(served.url + "reports/results.sqlite")[0] == 404
+    assert http(served.url + "reports/../pyproject.toml")[0] == 404
+    assert http(served.url + "reports/note.json", "POST", good, b"{}")[0] == 405

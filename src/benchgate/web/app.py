@@ -46,6 +46,17 @@ _templates = Environment(loader=PackageLoader("benchgate.web", "templates"),
                          autoescape=select_autoescape(default=True, default_for_string=True))
 
 
+class ReportFiles(StaticFiles):
+    """The report folder, read only, and only the evidence a report links to (not the database)."""
+
+    SUFFIXES = frozenset({".html", ".json", ".npz", ".csv", ".wav", ".xml", ".pdf", ".svg", ".png"})
+
+    async def get_response(self, path: str, scope: dict) -> Response:
+        if Path(path).suffix.lower() not in self.SUFFIXES:
+            return Response("not a report file\n", status_code=404, media_type="text/plain")
+        return await super().get_response(path, scope)
+
+
 class GuardMiddleware:
     """Host, token and cross-site checks before anything else; security headers on every reply."""
 
@@ -231,7 +242,7 @@ def create_app(desk: Desk, guard: Guard, *, reports_dir: Path, own_desk: bool = 
         Route("/events", events),
         Route("/api/{action}", api, methods=["POST"]),
         Mount("/static", StaticFiles(directory=HERE / "static"), name="static"),
-        Mount("/reports", StaticFiles(directory=reports, check_dir=False), name="reports"),
+        Mount("/reports", ReportFiles(directory=reports, check_dir=False), name="reports"),
     ]
     app = Starlette(routes=routes, lifespan=lifespan)
     return GuardMiddleware(app, guard)
