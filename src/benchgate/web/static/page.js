@@ -209,7 +209,8 @@
     box.dataset.verdict = r.verdict;
     text($("verdict-word"), WORDS[r.verdict] || r.verdict);
     text($("verdict-serial"), "Unit " + r.serial);
-    text($("verdict-reason"), r.stopped ? (r.stopped + ". " + r.reason) : r.reason);
+    const said = r.stopped && !String(r.reason).includes(r.stopped);  // main's runner says Ctrl-C
+    text($("verdict-reason"), said ? (r.stopped + ". " + r.reason) : r.reason);
     const list = $("failed");
     list.replaceChildren();
     (r.failed || []).forEach((f) => {
