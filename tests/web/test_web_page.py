@@ -151,6 +151,9 @@ def test_keyboard_only(serve_page, context, shot):
     page.keyboard.press("n")  # the board is not in the fixture: a declined prompt stops the unit
     assert finished(page, 3, retry=False) == "aborted"
     assert "connect" in page.text_content("#failed") and "only with 'yes'" in page.text_content("#verdict")
+    page.keyboard.press("Escape")  # STOP with nothing running: the supply is switched off and asked
+    page.wait_for_selector("#supply-text >> text=STOP: supply output off (asked from the supply)")
+    assert page.get_attribute("#supply", "data-state") == "off"
     shot(page, "keyboard-only")
     assert [r[2] for r in served.rows("OH-KEY-0001")] == ["pass", "pass"]
 

@@ -245,7 +245,7 @@ class Desk:
                     if kind == "unit":
                         self._run_unit(arg)
                     elif kind == "off":
-                        self._confirm_now()
+                        self._confirm_now("STOP: ")
                     elif kind == "plan":
                         self._close_runner()
                         self.plan_index = arg
@@ -280,19 +280,22 @@ class Desk:
         elif state in ("on", "unknown"):  # not confirmed off: the page says so over everything
             self.board.update(alarm=text)
 
-    def _confirm_now(self) -> None:
+    def _confirm_now(self, why: str = "") -> None:
         """Open the supply alone, switch its output off, ask it (Stop with no run, shutdown)."""
         from benchgate.instruments import open_station
 
+        def confirmed(state: str, text: str) -> None:
+            self._confirmed(state, why + text)
+
         if "supply" not in self.station.instruments:
-            self._confirmed("none", "this station has no supply")
+            confirmed("none", "this station has no supply")
             return
         try:
             with open_station(self.station, clock=self.config.clock, roles=["supply"]) as bench:
-                confirm_supply_off(bench, self._confirmed)
+                confirm_supply_off(bench, confirmed)
         except Exception as exc:  # noqa: BLE001 - said on the page, loudly
             text = exc.one_line() if isinstance(exc, BenchgateError) else f"{type(exc).__name__}: {exc}"
-            self._confirmed("unknown", f"cannot reach the supply ({text}): switch it off by hand")
+            confirmed("unknown", f"cannot reach the supply ({text}): switch it off by hand")
         self.stop_request.clear()
 
     def _probe(self) -> None:
