@@ -137,6 +137,9 @@ def test_keyboard_only(serve_page, context, shot):
     page.keyboard.type("OH-KEY-0001")
     page.keyboard.press("Enter")
     asked(page, "hazard")
+    page.keyboard.type("A1DA", delay=5)  # a scan arriving while the hazard is shown answers nothing
+    page.keyboard.press("Enter")
+    assert page.evaluate("fetch('/api/state').then(r => r.json()).then(s => s.ask && s.ask.kind)") == "hazard"
     page.keyboard.press("a")
     asked(page, "yesno")
     page.keyboard.press("y")

@@ -82,9 +82,19 @@
     focusSerial();
   });
 
+  // A barcode scanner types a whole serial in a burst and ends it with Enter: a letter answers
+  // only if no other key follows within BURST_MS, and Enter only if no key came just before it,
+  // so a scan that arrives while a hazard or a prompt is shown answers nothing. Esc acts at once.
+  const BURST_MS = 120;
+  let lastKey = 0;
+  let pending = null;
   document.addEventListener("keydown", (e) => {
+    const now = performance.now();
+    const burst = now - lastKey < BURST_MS;
+    lastKey = now;
+    if (pending !== null) { clearTimeout(pending); pending = null; }
     if (e.key === "Escape") { e.preventDefault(); stop(); return; }
-    if (e.key === "F2") { e.preventDefault(); retest(); return; }
+    if (e.key === "F2") { e.preventDefault(); if (!burst) retest(); return; }
     const a = state && state.ask;
     if (!a || !controlling()) return;
     const target = e.target || {};
@@ -97,7 +107,12 @@
       done: { enter: "" },
       retry: { enter: "", r: "", n: "n" },
     }[a.kind] || {};
-    if (Object.prototype.hasOwnProperty.call(map, k)) { e.preventDefault(); answer(map[k]); }
+    if (Object.prototype.hasOwnProperty.call(map, k)) {
+      e.preventDefault();
+      if (burst && k === "enter") return;
+      const value = map[k];
+      pending = setTimeout(() => { pending = null; answer(value); }, BURST_MS);
+    }
   });
 
   function focusSerial() {
