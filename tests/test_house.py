@@ -45,7 +45,7 @@ MAY_IMPORT: dict[str, set[str]] = {
     "runner": {"units", "analysis", "plan", "judge", "instruments", "sim", "record", "capfile",
                "report", "store"},
 }
-FACES = {"cli", "pytest_plugin", "__main__"}  # may import anything
+FACES = {"cli", "pytest_plugin", "__main__", "web"}  # may import anything (web: the operator page)
 #: the modules of ``instruments`` the understudy bench may share (wire formats, no drivers)
 SIM_CODECS = {"benchgate.instruments.framing"}
 

@@ -233,3 +233,9 @@ def test_the_board_never_sends_what_a_browser_cannot_parse():
 
     state = json.loads(board.snapshot()[1], parse_constant=refuse)
     assert state["progress"] == {"fraction": 0.5, "left": None} and state["checks"] == [{"number": None}]
+
+
+def test_an_unconfirmed_supply_raises_the_alarm(face):
+    face.alarm("SWITCH THE SUPPLY OFF BY HAND: the supply did not confirm that its output is off")
+    assert face.board.get("alarm").startswith("SWITCH THE SUPPLY OFF BY HAND")
+    assert face.board.get("supply")["state"] == "on"

@@ -246,7 +246,8 @@ class PageFace:
 
     def alarm(self, text: str) -> None:
         """The supply could not be confirmed off: the page shows it over everything else."""
-        self.board.update(alarm=text, supply={"state": "on", "text": text, "at": time.strftime("%H:%M:%S")})
+        self.board.update(alarm=text, supply={"state": "on", "text": text,
+                                              "at": time.strftime("%H:%M:%S UTC", time.gmtime())})
 
     def info(self, text: str) -> None:
         """main's display hook: a line, with CAUTION/HAZARD/WARNING in front when it is one."""

@@ -60,24 +60,25 @@ def make_server(desk: Desk, guard: Guard, reports_dir: Path, *, log_level: str =
     return PageServer(config, desk)
 
 
-class _Terminated(Exception):
-    """SIGTERM, passed on by uvicorn after its own shutdown."""
-
-
-def _terminate(signum: int, frame: Any) -> None:
-    raise _Terminated
-
-
 def serve(desk: Desk, guard: Guard, sock: socket.socket, reports_dir: Path, *,
           log_level: str = "warning") -> bool:
     """Serve until stopped (Ctrl-C, SIGTERM); True when the supply was confirmed off at the end."""
     server = make_server(desk, guard, reports_dir, log_level=log_level)
     main = threading.current_thread() is threading.main_thread()
-    previous = signal.signal(signal.SIGTERM, _terminate) if main else None
+    terminated: list[int] = []
+
+    def on_term(signum: int, frame: Any) -> None:  # SIGTERM, passed on by uvicorn after its shutdown
+        terminated.append(signum)
+        raise SystemExit(128 + signum)
+
+    previous = signal.signal(signal.SIGTERM, on_term) if main else None
     try:
         server.run(sockets=[sock])
-    except (KeyboardInterrupt, _Terminated):
-        pass  # the stop signal itself, raised again by uvicorn once it had shut down
+    except KeyboardInterrupt:
+        pass  # Ctrl-C itself, raised again by uvicorn once it had shut down
+    except SystemExit:
+        if not terminated:  # uvicorn's own exit (it could not start): not ours to hide
+            raise
     finally:
         safe = desk.shutdown()
         if main:
