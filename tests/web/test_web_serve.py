@@ -78,9 +78,9 @@ def test_stopping_the_server_mid_capture_switches_the_supply_off(ubench, browser
 
 
 def test_one_desk_per_station_and_no_run_beside_it(serve_page, ubench, tmp_path):
+    from benchgate.errors import StationBusy
     from benchgate.instruments.station import load_station
     from benchgate.plan import load_plan
-    from benchgate.runner.lock import StationBusy
     from benchgate.runner.options import RunOptions
     from benchgate.runner.session import Runner
     from benchgate.web.desk import Desk, DeskConfig

@@ -41,7 +41,8 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     p.add_argument("--allow-expired-calibration", action="store_true",
                    help="run even if an instrument's calibration is past due (recorded)")
     p.add_argument("--reports", default="reports", metavar="DIR", help="report folder (default: reports)")
-    p.add_argument("--db", metavar="PATH", help="results database (default: DIR/results.sqlite)")
+    p.add_argument("--db", metavar="PATH|URL", help="results database: a SQLite file or a postgresql:// URL "
+                   "(default: $BENCHGATE_DB, else DIR/results.sqlite)")
     p.add_argument("--open", action="store_true", help="open the page in the default browser")
     p.set_defaults(func=run)
     return p
@@ -57,7 +58,7 @@ def defect_in(serial: str, defects) -> str | None:
 
 
 def _plans(args) -> list[Path]:
-    from benchgate.runner.options import PreflightError
+    from benchgate.errors import PreflightError
 
     plans = [Path(p) for p in args.plan]
     if args.plans:
@@ -78,7 +79,7 @@ def run(args) -> int:
     import webbrowser
     from contextlib import ExitStack
 
-    from benchgate.runner.options import PreflightError
+    from benchgate.errors import PreflightError
     from benchgate.web.desk import Desk, DeskConfig
     from benchgate.web.guard import Guard, needs_token
     from benchgate.web.server import bind, serve, url_of
@@ -112,7 +113,7 @@ def run(args) -> int:
             clock = ScaledClock(args.clock_speed)
             flags["clock_speed"] = args.clock_speed
         config = DeskConfig(station=Path(station), plans=plans, reports_dir=Path(args.reports),
-                            db_path=None if args.db is None else Path(args.db), operator=args.operator,
+                            db_path=args.db, operator=args.operator,
                             lot=args.lot, allow_expired_calibration=args.allow_expired_calibration,
                             clock=clock, before_unit=before_unit, extra_flags=flags)
         desk = Desk(config)

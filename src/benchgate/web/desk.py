@@ -44,7 +44,7 @@ class DeskConfig:
     station: Path
     plans: list[Path]
     reports_dir: Path = Path("reports")
-    db_path: Path | None = None
+    db_path: str | Path | None = None  # the results database: a SQLite file or a postgresql:// URL
     operator: str | None = None
     lot: str | None = None
     allow_expired_calibration: bool = False
@@ -53,10 +53,6 @@ class DeskConfig:
     probe: bool = True  # open the instruments once at start: identities, supply confirmed off
     abandon_after: float | None = 120.0  # s a question may wait with no page open before Stop
     extra_flags: dict[str, Any] = field(default_factory=dict)
-
-    @property
-    def database(self) -> Path:
-        return self.db_path if self.db_path is not None else Path(self.reports_dir) / "results.sqlite"
 
 
 def _now() -> str:
@@ -353,7 +349,7 @@ class Desk:
         """The unit's earlier runs; a database that cannot be read is said, never fatal."""
         c = self.config
         try:
-            return lot.history(c.database, c.reports_dir, serial, skip_run=skip_run)
+            return lot.history(c.db_path, c.reports_dir, serial, skip_run=skip_run)
         except Exception as exc:  # noqa: BLE001 - the run goes on without its history
             self.board.update(notice=f"earlier runs cannot be read: {exc}")
             return []

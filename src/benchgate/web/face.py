@@ -121,12 +121,17 @@ class StoppableClock:
 
 
 def describe(check: Any) -> tuple[str, str]:
-    """Value ± U and the window of a check record, as the terminal shows them."""
-    try:
-        from benchgate.runner.ui import describe_value, describe_window  # main's runner
-    except ImportError:  # the typed runner moved the terminal's texts to its face
-        from benchgate.cli.terminal import describe_value, describe_window  # type: ignore[no-redef]
-    return describe_value(check), describe_window(check.window)
+    """Value ± U (or why there is none) and the window of a check record (units/format.py)."""
+    from benchgate.units.format import value_text, window_text
+
+    m, w = check.result, check.window
+    if m is None:
+        value = "no value"
+    elif not m.valid:
+        value = f"invalid ({m.reason})"
+    else:
+        value = value_text(m.value, m.uncertainty, m.unit)
+    return value, f"[{window_text(w.low, w.high, w.unit)}]"
 
 
 def _num(x: Any) -> float | None:

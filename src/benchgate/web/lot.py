@@ -67,14 +67,21 @@ def report_url(reports_dir: Path, path: str | Path | None) -> str | None:
     return "/reports/" + quote(rel.as_posix())
 
 
-def history(db_path: Path, reports_dir: Path, serial: str, skip_run: str | None = None) -> list[dict]:
-    """The unit's earlier runs, newest first (empty when there is no database yet)."""
-    if not Path(db_path).is_file():
-        return []
-    from benchgate.store import ResultsDB
+def history(db: str | Path | None, reports_dir: Path, serial: str, skip_run: str | None = None) -> list[dict]:
+    """The unit's earlier runs, newest first, from the results database the runs go to (the one
+    setting: ``db``, else ``BENCHGATE_DB``, else ``<reports>/results.sqlite``); none yet: empty."""
+    from benchgate.store import open_results
+    from benchgate.store.setting import resolve
 
-    with ResultsDB.open(db_path, create=False) as db:
-        runs = [r for r in db.history(serial) if r.run_id != skip_run][:HISTORY_ROWS]
+    default = Path(reports_dir) / "results.sqlite"
+    setting = resolve(db, local_default=default)
+    if setting.central is None and not setting.local.is_file():
+        return []  # no run yet
+    database = open_results(db, local_default=default, role="reader")
+    try:
+        runs = [r for r in database.history(serial) if r.run_id != skip_run][:HISTORY_ROWS]
+    finally:
+        database.close()
     out = []
     for r in runs:
         html = None if r.report_path is None else Path(r.report_path).with_suffix(".html")
