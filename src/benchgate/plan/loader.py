@@ -15,11 +15,12 @@ from benchgate.common.names import CAPABILITIES, MEASUREMENT_UNITS, READING_SOUR
 from benchgate.common.yamlpos import YNode, load_file, load_text
 from benchgate.errors import PlanErrors
 from benchgate.plan import derive
-from benchgate.plan.checks import parse_limit, parse_monte_carlo
+from benchgate.plan.checks import parse_limit, parse_max_risk, parse_monte_carlo
 from benchgate.plan.fields import PlanCollector
 from benchgate.plan.hashing import content_hash
 from benchgate.plan.model import (
     CAPTURE_DEFAULT_KEYS,
+    DECISIONS,
     DEFAULTS_SPEC,
     HAZARD_NAMES,
     MAX_SAMPLES,
@@ -84,7 +85,8 @@ def build_plan(root: YNode, file: str) -> Plan:
                 v = c.choice(item, f"requires[{i}]", CAPABILITIES)
                 if v is not None:
                     requires.add(v)
-    decision = c.choice(m.get("decision"), "decision", ("simple", "guarded")) or "simple"
+    decision = c.choice(m.get("decision"), "decision", DECISIONS) or "simple"
+    max_risk = parse_max_risk(c, m["max_risk"], "max_risk") if "max_risk" in m else None
     defaults = _defaults(c, m.get("defaults"))
     steps: list[Step] = []
     steps_node = m.get("steps")
@@ -104,11 +106,35 @@ def build_plan(root: YNode, file: str) -> Plan:
                     steps.append(got[0])
                     positions.append(got[1])
             validate_steps(c, steps, positions, requires, complete=len(steps) == len(steps_node.value))
+            _risk_rule_limits(c, steps, decision, max_risk, m)
     if c.errors:
         raise PlanErrors(c.errors)
     return Plan(id=plan_id, version=version, product=product, description=description.strip(),
                 cautions=cautions, hazards=hazards, requires=frozenset(requires), decision=decision,
-                steps=tuple(steps), hash=content_hash(root.plain()), path=file, notes=tuple(c.notes))
+                max_risk=max_risk, steps=tuple(steps), hash=content_hash(root.plain()), path=file, notes=tuple(c.notes))
+
+
+def _risk_rule_limits(c: PlanCollector, steps: list[Step], decision: str, max_risk: float | None,
+                      m: dict[str, YNode]) -> None:
+    """Every check judged by the ``risk`` rule needs a largest acceptable risk (its own or the
+    plan's); a max_risk where no check is judged by the risk rule is an error too (it would look
+    like it protects something)."""
+    uses = False
+    for s in steps:
+        for ch in s.checks:
+            rule = ch.window.decision or decision
+            if rule == "risk":
+                uses = True
+                if ch.window.max_risk is None and max_risk is None:
+                    c.error((ch.line, ch.column) if ch.line else m.get("decision"),
+                            f"{s.id}.{ch.measurement}: the risk rule needs max_risk (here in the limit, "
+                            "or for the whole plan), e.g. max_risk: 1 %")
+            elif ch.window.max_risk is not None:
+                c.error((ch.line, ch.column) if ch.line else None,
+                        f"{s.id}.{ch.measurement}: max_risk applies to the risk rule only; this check "
+                        f"is judged by {rule!r} (set decision: risk)")
+    if max_risk is not None and not uses:
+        c.error(m["max_risk"], "max_risk: no check is judged by the risk rule (set decision: risk)")
 
 
 def _hazards(c: PlanCollector, node: YNode | None) -> tuple[Hazard, ...]:

@@ -15,7 +15,7 @@ from benchgate.plan.limits import Window
 
 STEP_KINDS = ("supply", "wait", "prompt", "capture", "reading")
 ON_FAIL = ("stop", "continue")
-DECISIONS = ("simple", "guarded")
+DECISIONS = ("simple", "guarded", "risk")
 MAX_STEPS = 500  # keeps loading and `check` within a few seconds; real plans have tens
 MAX_SAMPLES = 50_000_000  # samples in one capture (rate × duration)
 #: hazards a plan may declare; each needs an explicit acknowledgement before a run.
@@ -191,8 +191,13 @@ class Plan:
     requires: frozenset[str] = field(default=frozenset(), metadata=spec(
         "station capabilities the plan needs", kind="list", choices=CAPABILITIES))
     decision: str = field(default="simple", metadata=spec(
-        "decision rule (ILAC-G8): simple acceptance or guarded (guard band w = U)", kind="choice",
-        choices=DECISIONS))
+        "decision rule (ILAC-G8): simple acceptance, guarded (guard band w = U) or risk (pass or "
+        "fail only when the specific risk of that decision is below max_risk, JCGM 106)",
+        kind="choice", choices=DECISIONS))
+    max_risk: float | None = field(default=None, metadata=spec(
+        "largest acceptable specific risk of a decision under the risk rule, e.g. '1 %' (stored as "
+        "a fraction); a check's limit may set its own", kind="quantity", unit="%", minimum=1e-9,
+        maximum=49.9))
     steps: tuple[Step, ...] = field(default=(), metadata=spec("the steps, in order", kind="steps",
                                                               required=True))
     hash: str = field(default="", metadata=spec("content hash", yaml=False))

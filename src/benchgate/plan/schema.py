@@ -165,6 +165,7 @@ def build_schema() -> dict[str, Any]:
             "tolerance": {**_NUMBER_OR_TEXT, "description": "'±5 %', '+10/-5 %' or '±12 Hz'"},
             "margin": {**_NUMBER_OR_TEXT, "description": "widening of a from_circuit window: '5 %' or '20 Hz'"},
             "decision": {"enum": list(DECISIONS), "description": "decision rule for this check only"},
+            "max_risk": _quantity("%", "largest acceptable specific risk of the risk rule for this check"),
             "from_circuit": {"$ref": "#/$defs/circuit"},
         },
     }

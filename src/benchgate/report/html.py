@@ -15,6 +15,7 @@ from typing import Any
 from benchgate.analysis.capture import Capture
 from benchgate.common.evidence import file_sha256, write_atomic
 from benchgate.common.names import MEASUREMENT_TITLES
+from benchgate.judge.risk import format_risk
 from benchgate.record import CheckRecord, StepRecord, UnitRecord
 from benchgate.report import plots
 from benchgate.report.cautions import GENERAL_CAUTIONS
@@ -96,6 +97,8 @@ def _check_row(c: CheckRecord, step: StepRecord) -> dict[str, Any]:
         "rule": c.rule,
         "verdict": c.verdict.value,
         "reason": c.reason,
+        # JCGM 106:2012 specific risk of this decision, beside the verdict
+        "risk": "" if c.risk_kind is None else f"risk of a {c.risk_kind}: {format_risk(c.risk)}",
     }
 
 

@@ -333,9 +333,10 @@ class Executor:
             warnings=list(warnings), metadata=dict(capture.metadata))
 
     def _judge(self, step: Any, srec: StepRecord, check: Any, measurement: Measurement | None) -> None:
-        cv = judge(measurement, check.window, self.plan.decision)
+        cv = judge(measurement, check.window, self.plan.decision, self.plan.max_risk)
         rec = CheckRecord(step_id=step.id, measurement=check.measurement, window=check.window,
-                          result=measurement, verdict=cv.verdict, reason=cv.reason, rule=cv.rule)
+                          result=measurement, verdict=cv.verdict, reason=cv.reason, rule=cv.rule,
+                          risk=None if cv.risk is None else cv.risk.probability)
         srec.checks.append(rec)
         self.hooks.check(rec)
 
