@@ -47,7 +47,7 @@ def _upper_tail(z: float) -> float:
 def upper_tail(z: np.ndarray | float) -> np.ndarray:
     """Vectorised Q(z) = 1 − Φ(z), elementwise, as float64."""
     z = np.asarray(z, dtype=float)
-    return 0.5 * _ERFC(z / math.sqrt(2.0)).astype(float)
+    return 0.5 * np.asarray(_ERFC(z / math.sqrt(2.0)), dtype=float)
 
 
 def probability_outside(y: float, u: float, low: float | None, high: float | None) -> float:
