@@ -14,6 +14,15 @@ from benchgate.common.names import CAPABILITIES, READING_UNITS
 from benchgate.plan.limits import Window
 
 STEP_KINDS = ("supply", "wait", "prompt", "capture", "reading")
+#: measurements an adaptive capture may decide before its longest record: estimates that
+#: converge as the record grows and state their uncertainty. Start-up time, drift, dips,
+#: peak-to-peak and SFDR (extremes over the whole record) need the whole record.
+ADAPTIVE_MEASUREMENTS = ("frequency", "amplitude", "rms", "dc_offset", "thd", "thd_n", "sinad",
+                         "snr", "enob", "duty_cycle")
+#: decision rules that state a risk an adaptive capture can stop on
+ADAPTIVE_RULES = ("guarded", "risk")
+ADAPTIVE_KEYS = ("shortest", "longest", "block")
+MAX_LOOKS = 200  # re-measurements of one adaptive capture
 ON_FAIL = ("stop", "continue")
 DECISIONS = ("simple", "guarded", "risk")
 MAX_STEPS = 500  # keeps loading and `check` within a few seconds; real plans have tens
@@ -127,6 +136,23 @@ class PromptStep(Step):
         choices=("abort", "continue")))
 
 
+@dataclass(frozen=True)
+class Adaptive:
+    """An adaptive capture: record in blocks, stop once every check is decided (judge/sequential)."""
+
+    shortest: float = field(metadata=spec("the first look: shortest record", kind="quantity", unit="s",
+                                          minimum=0, maximum=600, required=True))
+    longest: float = field(metadata=spec("the longest record (the step's duration); judged as a "
+                                         "fixed-length capture when reached", kind="quantity", unit="s",
+                                         minimum=0, maximum=600, required=True))
+    block: float | None = field(default=None, metadata=spec(
+        "record added between looks (default: the shortest record)", kind="quantity", unit="s",
+        minimum=0, maximum=600))
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"shortest": self.shortest, "longest": self.longest, "block": self.block}
+
+
 @dataclass(frozen=True, kw_only=True)
 class CaptureStep(Step):
     """Record a waveform and judge measurements made on it."""
@@ -151,6 +177,10 @@ class CaptureStep(Step):
         "harmonics summed for THD and excluded from SNR", kind="int", minimum=1, maximum=50))
     checks: tuple[Check, ...] = field(default=(), metadata=spec(
         "measurement name -> limit", kind="checks"))
+    adaptive: Adaptive | None = field(default=None, metadata=spec(
+        "record in blocks and stop as soon as every check is decided under the plan's decision "
+        "rule (guarded or risk), with an error bound that holds under the repeated looks: "
+        "{shortest, longest, block}; the longest record replaces duration", kind="adaptive"))
 
 
 @dataclass(frozen=True, kw_only=True)
