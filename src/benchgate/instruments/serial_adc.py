@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import threading
 import time
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping, Sequence
 from concurrent.futures import ThreadPoolExecutor
 from concurrent.futures import TimeoutError as FutureTimeout
 from typing import Any
@@ -180,7 +180,29 @@ class SerialAdc:
                                                     f"reconnect it and open the station again")
         return self._call(self._capture, channel, float(duration), rate, progress)
 
-    def _capture(self, channel: str, duration: float, rate: float | None, progress) -> Capture:
+    def capture_growing(self, channel: str, *, looks: Sequence[float], rate: float | None = None,
+                        progress=None, decide: Callable[[Capture], bool]) -> Capture:
+        """Record up to ``looks[-1]`` s of ``channel``, handing the record so far to ``decide``
+        each time it reaches the next length in ``looks`` (s, increasing); stop as soon as
+        ``decide`` returns True and return that record (the device is told to stop).
+
+        Each record handed over passed the same checks as a finished capture (loss, arrival
+        rate). Framed protocol only: lines mode cannot place samples before its END count, so
+        there it records the whole longest record (``decide`` is called once, at the end).
+        """
+        if self.protocol != "framed":
+            return self.capture(channel, duration=float(looks[-1]), rate=rate, progress=progress)
+        if channel not in self.channels:
+            raise InstrumentError(self.name, f"no channel {channel!r} on this ADC "
+                                             f"(channels: {', '.join(self.channels)})")
+        if not self._port.alive:
+            raise InstrumentDisconnected(self.name, f"adc on {self.address} was disconnected; "
+                                                    f"reconnect it and open the station again")
+        return self._call(self._capture, channel, float(looks[-1]), rate, progress,
+                          looks=[float(x) for x in looks[:-1]], decide=decide)
+
+    def _capture(self, channel: str, duration: float, rate: float | None, progress,
+                 looks: Sequence[float] = (), decide: Callable[[Capture], bool] | None = None) -> Capture:
         port = self._port
         wanted = rate or self.config.options.get("rate")
         timestamps = bool(self.config.options.get("timestamps", False))
@@ -204,8 +226,29 @@ class SerialAdc:
             port.write_line(f"START {n} {mask}")
         if progress is not None:  # lets a caller tie its own events to the record's time axis
             progress(0.0, f"acquisition of {n} samples started")
+        pending = [max(1, int(round(x * actual))) for x in looks]
+
+        def look() -> None:  # an adaptive capture: hand over each look's record, maybe stop
+            while pending and decide is not None and state.index >= pending[0]:
+                k = pending.pop(0)
+                record = self._build(channel, state, actual, decoder, k, complete=True)
+                if record is None:
+                    continue
+                try:
+                    stop = decide(record)
+                except Exception:
+                    if not self.free_running:
+                        port.stop_stream()
+                    raise
+                if stop:
+                    raise _StopEarly(record)
+
         try:
-            self._receive(decoder, state, n, duration, progress)
+            self._receive(decoder, state, n, duration, progress, look if pending else None)
+        except _StopEarly as stop:
+            if not self.free_running:
+                port.stop_stream()
+            return stop.record
         except InstrumentDisconnected as exc:
             elapsed = self.clock.monotonic() - t_start
             partial = self._build(channel, state, actual, decoder, n, complete=False)
@@ -222,7 +265,7 @@ class SerialAdc:
             raise InstrumentError(self.name, f"adc on {self.address} delivered no samples")
         return capture
 
-    def _receive(self, decoder, state: _Progress, n: int, duration: float, progress) -> None:
+    def _receive(self, decoder, state: _Progress, n: int, duration: float, progress, look=None) -> None:
         """Read until the device has sent ``n`` samples (or END), within the deadlines.
 
         Deadlines are in the clock's time, each with a floor of wall time as well (WALL_GRACE),
@@ -250,6 +293,8 @@ class SerialAdc:
                     state.last_point_index = state.index
                 if progress is not None:
                     progress(min(1.0, state.index / n), f"{state.index} of {n} samples")
+                if look is not None:
+                    look()
             if self.protocol == "lines" and not self.free_running:
                 if decoder.ended:  # wait for END: its count shows split or repeated lines
                     return
@@ -364,6 +409,14 @@ def _warm_up() -> None:
         frame = encode_frame(0, 20_000_000, 1, np.zeros(4, dtype=np.uint16))
         FrameDecoder(mask=1).feed(b"\x00" + frame + frame[:5])
         _warm = True
+
+
+class _StopEarly(Exception):
+    """An adaptive capture's ``decide`` said stop: carries the record it decided on."""
+
+    def __init__(self, record: Capture):
+        super().__init__("stopped early")
+        self.record = record
 
 
 class _Progress:
