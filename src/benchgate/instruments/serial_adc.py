@@ -227,21 +227,32 @@ class SerialAdc:
         if progress is not None:  # lets a caller tie its own events to the record's time axis
             progress(0.0, f"acquisition of {n} samples started")
         pending = [max(1, int(round(x * actual))) for x in looks]
+        asked: dict[str, Any] = {}  # the look being decided in the background: its future, record
+        worker = ThreadPoolExecutor(1, thread_name_prefix="adc-look") if pending else None
 
-        def look() -> None:  # an adaptive capture: hand over each look's record, maybe stop
-            while pending and decide is not None and state.index >= pending[0]:
-                k = pending.pop(0)
-                record = self._build(channel, state, actual, decoder, k, complete=True)
-                if record is None:
-                    continue
+        def look() -> None:
+            """An adaptive capture: hand each look's record to ``decide`` on a worker thread, so
+            reading never stalls (a stalled reader would fail the arrival-rate check); stop when
+            a decision comes back True. A look passed while the previous one is still being
+            decided is skipped (its share of the error budget stays unspent)."""
+            fut, record = asked.get("future"), asked.get("record")
+            if fut is not None and fut.done():
+                asked.clear()
                 try:
-                    stop = decide(record)
+                    stop = fut.result()
                 except Exception:
                     if not self.free_running:
                         port.stop_stream()
                     raise
                 if stop:
                     raise _StopEarly(record)
+            if asked or not pending or state.index < pending[0]:
+                return
+            while len(pending) > 1 and state.index >= pending[1]:
+                pending.pop(0)
+            record = self._build(channel, state, actual, decoder, pending.pop(0), complete=True)
+            if record is not None and decide is not None and worker is not None:
+                asked.update(future=worker.submit(decide, record), record=record)
 
         try:
             self._receive(decoder, state, n, duration, progress, look if pending else None)
@@ -260,6 +271,9 @@ class SerialAdc:
             if not self.free_running:
                 port.stop_stream()
             raise
+        finally:
+            if worker is not None:
+                worker.shutdown(wait=True)
         capture = self._build(channel, state, actual, decoder, n, complete=True)
         if capture is None:  # only a partial record can be empty
             raise InstrumentError(self.name, f"adc on {self.address} delivered no samples")
