@@ -199,7 +199,7 @@ class Executor:
         key = step.id if attempt == 1 else f"{step.id}-{attempt}"
         try:
             if getattr(step, "adaptive", None) is not None:  # record in blocks, stop once decided
-                capture = acquire_adaptive(instrument, step, self.plan.decision, self.plan.max_risk,
+                capture = acquire_adaptive(instrument, step, self.plan.decision, getattr(self.plan, "max_risk", None),
                                            self.analyze, self._capture_progress(step))
             else:
                 capture = self._acquire(step, instrument, srec)
@@ -343,7 +343,7 @@ class Executor:
             warnings=list(warnings), metadata=dict(capture.metadata))
 
     def _judge(self, step: Any, srec: StepRecord, check: Any, measurement: Measurement | None) -> None:
-        cv = judge(measurement, check.window, self.plan.decision, self.plan.max_risk)
+        cv = judge(measurement, check.window, self.plan.decision, getattr(self.plan, "max_risk", None))
         rec = CheckRecord(step_id=step.id, measurement=check.measurement, window=check.window,
                           result=measurement, verdict=cv.verdict, reason=cv.reason, rule=cv.rule,
                           risk=None if cv.risk is None else cv.risk.probability)
