@@ -24,6 +24,7 @@ from benchgate.analysis.capture import AdcInfo, Capture
 from benchgate.clock import Clock, SystemClock
 from benchgate.errors import InstrumentDisconnected, InstrumentError
 from benchgate.instruments import serial_options
+from benchgate.instruments._looks import Looks
 from benchgate.instruments._serial_port import SerialPort, arrival_rate
 from benchgate.instruments.framing import FrameDecoder, encode_frame
 from benchgate.instruments.options import OptionSpec
@@ -226,40 +227,16 @@ class SerialAdc:
             port.write_line(f"START {n} {mask}")
         if progress is not None:  # lets a caller tie its own events to the record's time axis
             progress(0.0, f"acquisition of {n} samples started")
-        pending = [max(1, int(round(x * actual))) for x in looks]
-        asked: dict[str, Any] = {}  # the look being decided in the background: its future, record
-        worker = ThreadPoolExecutor(1, thread_name_prefix="adc-look") if pending else None
-
-        def look() -> None:
-            """An adaptive capture: hand each look's record to ``decide`` on a worker thread, so
-            reading never stalls (a stalled reader would fail the arrival-rate check); stop when
-            a decision comes back True. A look passed while the previous one is still being
-            decided is skipped (its share of the error budget stays unspent)."""
-            fut, record = asked.get("future"), asked.get("record")
-            if fut is not None and fut.done():
-                asked.clear()
-                try:
-                    stop = fut.result()
-                except Exception:
-                    if not self.free_running:
-                        port.stop_stream()
-                    raise
-                if stop:
-                    raise _StopEarly(record)
-            if asked or not pending or state.index < pending[0]:
-                return
-            while len(pending) > 1 and state.index >= pending[1]:
-                pending.pop(0)
-            record = self._build(channel, state, actual, decoder, pending.pop(0), complete=True)
-            if record is not None and decide is not None and worker is not None:
-                asked.update(future=worker.submit(decide, record), record=record)
-
+        looker = None
+        if looks and decide is not None:  # an adaptive capture (instruments/_looks.py)
+            looker = Looks([max(1, int(round(x * actual))) for x in looks],
+                           lambda k: self._build(channel, state, actual, decoder, k, complete=True), decide)
         try:
-            self._receive(decoder, state, n, duration, progress, look if pending else None)
-        except _StopEarly as stop:
-            if not self.free_running:
-                port.stop_stream()
-            return stop.record
+            self._receive(decoder, state, n, duration, progress, looker)
+            if looker is not None and looker.stopped is not None:
+                if not self.free_running:
+                    port.stop_stream()
+                return looker.stopped
         except InstrumentDisconnected as exc:
             elapsed = self.clock.monotonic() - t_start
             partial = self._build(channel, state, actual, decoder, n, complete=False)
@@ -267,13 +244,13 @@ class SerialAdc:
             raise InstrumentDisconnected(
                 self.name, f"adc on {self.address} disconnected after {elapsed:.1f} s of a "
                            f"{duration:.1f} s capture ({getattr(exc, 'detail', exc.message)})", partial=partial) from exc
-        except InstrumentError:
+        except Exception:  # an instrument error, or the adaptive capture's decide failing
             if not self.free_running:
                 port.stop_stream()
             raise
         finally:
-            if worker is not None:
-                worker.shutdown(wait=True)
+            if looker is not None:
+                looker.close()
         capture = self._build(channel, state, actual, decoder, n, complete=True)
         if capture is None:  # only a partial record can be empty
             raise InstrumentError(self.name, f"adc on {self.address} delivered no samples")
@@ -307,8 +284,8 @@ class SerialAdc:
                     state.last_point_index = state.index
                 if progress is not None:
                     progress(min(1.0, state.index / n), f"{state.index} of {n} samples")
-                if look is not None:
-                    look()
+                if look is not None and look(state.index):
+                    return  # an adaptive capture decided: stop here
             if self.protocol == "lines" and not self.free_running:
                 if decoder.ended:  # wait for END: its count shows split or repeated lines
                     return
@@ -423,14 +400,6 @@ def _warm_up() -> None:
         frame = encode_frame(0, 20_000_000, 1, np.zeros(4, dtype=np.uint16))
         FrameDecoder(mask=1).feed(b"\x00" + frame + frame[:5])
         _warm = True
-
-
-class _StopEarly(Exception):
-    """An adaptive capture's ``decide`` said stop: carries the record it decided on."""
-
-    def __init__(self, record: Capture):
-        super().__init__("stopped early")
-        self.record = record
 
 
 class _Progress:
