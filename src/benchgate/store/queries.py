@@ -285,7 +285,7 @@ def summary(conn: Any, *, plan: str | None = None, lot: str | None = None,
         " COALESCE(SUM(CASE WHEN c.risk IS NULL THEN 1 ELSE 0 END), 0)"
         " FROM checks c JOIN runs r ON r.id = c.run"
         " WHERE c.run IN (SELECT id FROM latest) AND r.verdict = 'pass' AND c.verdict = 'pass'",
-        params).fetchone()
+        params + params).fetchone()  # _latest_complete takes the filter parameters twice
     return Summary(
         expected_false_passes=float(false_passes), risk_unstated=int(unstated),
         plan=plan, lot=lot, since=since, runs=int(attempts),
