@@ -31,9 +31,19 @@ class CheckRecord:
     verdict: Verdict
     reason: str
     rule: str
+    #: specific risk of the decision (JCGM 106): probability of a false pass (for a pass) or of
+    #: a false fail (for a fail); None when not stated (other verdicts, no uncertainty)
+    risk: float | None = None
+
+    @property
+    def risk_kind(self) -> str | None:
+        """``false pass`` or ``false fail``: which wrong decision :attr:`risk` is the chance of."""
+        if self.risk is None:
+            return None
+        return {Verdict.PASS: "false pass", Verdict.FAIL: "false fail"}.get(self.verdict)
 
     def to_dict(self) -> dict[str, Any]:
-        return {
+        out = {
             "step": self.step_id,
             "measurement": self.measurement,
             "window": self.window.to_dict(),
@@ -42,6 +52,9 @@ class CheckRecord:
             "reason": self.reason,
             "rule": self.rule,
         }
+        if self.risk_kind is not None:
+            out["risk"] = {"probability": self.risk, "kind": self.risk_kind}
+        return out
 
     @classmethod
     def from_dict(cls, d: dict[str, Any]) -> CheckRecord:
@@ -53,6 +66,7 @@ class CheckRecord:
             verdict=Verdict(d["verdict"]),
             reason=d["reason"],
             rule=d["rule"],
+            risk=None if d.get("risk") is None else float(d["risk"]["probability"]),
         )
 
 

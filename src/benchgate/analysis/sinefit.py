@@ -153,6 +153,21 @@ def _dirichlet(x: float, n: int) -> float:
     return math.sin(0.5 * n * x) / half
 
 
+def _dirichlet_derivatives(x: float, n: int) -> tuple[float, float]:
+    """S1(x) = Σ t·sin(x·t) and C2(x) = Σ t²·cos(x·t) over t = −(n−1)/2 … (n−1)/2, in closed
+    form: S1 = −D'(x), C2 = −D''(x) for the Dirichlet kernel D(x) = sin(n·x/2)/sin(x/2)
+    (derived by differentiating it; checked against the sums in tests/analysis)."""
+    u = 0.5 * x
+    su = math.sin(u)
+    if abs(su) < 1e-9:  # x at a multiple of 2π: the sums by direct evaluation (tiny records only)
+        t = np.arange(n) - (n - 1) / 2.0
+        return float(np.sum(t * np.sin(x * t))), float(np.sum(t * t * np.cos(x * t)))
+    big_n = math.sin(n * u)
+    d1 = (n * math.cos(n * u) * su - big_n * math.cos(u)) / (su * su)  # dD/du
+    d2 = big_n * (1.0 - n * n) / su - 2.0 * math.cos(u) / su * d1  # d²D/du²
+    return -0.5 * d1, -0.25 * d2
+
+
 def _trig_sums(omega: float, n: int) -> tuple[float, float, float, float, float]:
     d2 = _dirichlet(2.0 * omega, n)
     return 0.5 * (n + d2), 0.5 * (n - d2), 0.0, _dirichlet(omega, n), 0.0
@@ -232,7 +247,9 @@ def fit4(y: np.ndarray, omega0: float, *, max_iter: int = 30, work: Workspace | 
     y, mean = _centred(y)
     n = y.size
     w = Workspace(n) if work is None or work.n != n else work
-    t = np.arange(n) - w.centre
+    ty = np.arange(n, dtype=float)
+    ty -= w.centre
+    ty *= y  # t·y: the frequency column's data product needs only Σ t·y·cos and Σ t·y·sin
     omega = float(omega0)
     max_step = 0.25 * 2.0 * math.pi / n
     w.set(omega)
@@ -241,23 +258,25 @@ def fit4(y: np.ndarray, omega0: float, *, max_iter: int = 30, work: Workspace | 
     it = 0
     yy = dot(y, y)
     sy = float(y.sum())
-    d = np.empty(n)
+    t2 = n * (n * n - 1.0) / 12.0  # Σ t²
     for it in range(1, max_iter + 1):
+        # Gauss–Newton column for ω: d = t·(b·cos − a·sin). Its products with cos, sin, 1 and
+        # itself are trigonometric sums with closed forms (Σ t·cos² = Σ t·sin² = Σ t·cos = 0 by
+        # symmetry; the rest from the Dirichlet kernel's derivatives), so each step takes four
+        # passes over the record (cos·y, sin·y, cos·ty, sin·ty) besides the new cos/sin.
         cz, sz = w.c, w.s
-        np.multiply(cz, b, out=d)
-        np.multiply(sz, a, out=w.tmp)
-        d -= w.tmp
-        d *= t
         cc, s2, cs, sc, ss = w.sums()
+        s1_2w, c2_2w = _dirichlet_derivatives(2.0 * omega, n)
+        s1_w, _ = _dirichlet_derivatives(omega, n)
         g = np.empty((4, 4))
         g[0, 0], g[1, 1], g[0, 1], g[0, 3], g[1, 3] = cc, s2, cs, sc, ss
         g[1, 0], g[3, 0], g[3, 1] = cs, sc, ss
-        g[0, 2] = g[2, 0] = dot(cz, d)
-        g[1, 2] = g[2, 1] = dot(sz, d)
-        g[2, 2] = dot(d, d)
-        g[2, 3] = g[3, 2] = float(d.sum())
+        g[0, 2] = g[2, 0] = -0.5 * a * s1_2w  # Σ cos·d
+        g[1, 2] = g[2, 1] = 0.5 * b * s1_2w  # Σ sin·d
+        g[2, 2] = 0.5 * (b * b + a * a) * t2 + 0.5 * (b * b - a * a) * c2_2w  # Σ d²
+        g[2, 3] = g[3, 2] = -a * s1_w  # Σ d
         g[3, 3] = n
-        r = np.array([dot(cz, y), dot(sz, y), dot(d, y), sy])
+        r = np.array([dot(cz, y), dot(sz, y), b * dot(cz, ty) - a * dot(sz, ty), sy])
         p = _lstsq_small(g, r)
         a, b, dw, c = (float(v) for v in p)
         rss_lin = max(yy - float(p @ r), 0.0)

@@ -63,6 +63,9 @@ def run(args: argparse.Namespace) -> int:
           f"{s.units_untested} unit{'' if s.units_untested == 1 else 's'} without a complete run)")
     print(f"  first-pass yield {fmt_ratio(s.first_pass_yield)}  ({s.first_pass} units)")
     print(f"  final yield      {fmt_ratio(s.final_yield)}  ({s.final_pass} units)")
+    unstated = f"; {s.risk_unstated} passed checks state no risk" if s.risk_unstated else ""
+    print(f"  expected false passes {s.expected_false_passes:.3g}  (sum of the passed units' "
+          f"risks of a false pass, JCGM 106{unstated})")
     print(f"  retests          {s.retests}  ({s.units_retested} units with more than one complete run)")
     if s.verdicts:
         print("  verdicts         " + ", ".join(f"{v} {n}" for v, n in s.verdicts.items()))

@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import threading
 import time
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping, Sequence
 from concurrent.futures import ThreadPoolExecutor
 from concurrent.futures import TimeoutError as FutureTimeout
 from typing import Any
@@ -24,6 +24,7 @@ from benchgate.analysis.capture import AdcInfo, Capture
 from benchgate.clock import Clock, SystemClock
 from benchgate.errors import InstrumentDisconnected, InstrumentError
 from benchgate.instruments import serial_options
+from benchgate.instruments._looks import Looks
 from benchgate.instruments._serial_port import SerialPort, arrival_rate
 from benchgate.instruments.framing import FrameDecoder, encode_frame
 from benchgate.instruments.options import OptionSpec
@@ -180,7 +181,29 @@ class SerialAdc:
                                                     f"reconnect it and open the station again")
         return self._call(self._capture, channel, float(duration), rate, progress)
 
-    def _capture(self, channel: str, duration: float, rate: float | None, progress) -> Capture:
+    def capture_growing(self, channel: str, *, looks: Sequence[float], rate: float | None = None,
+                        progress=None, decide: Callable[[Capture], bool]) -> Capture:
+        """Record up to ``looks[-1]`` s of ``channel``, handing the record so far to ``decide``
+        each time it reaches the next length in ``looks`` (s, increasing); stop as soon as
+        ``decide`` returns True and return that record (the device is told to stop).
+
+        Each record handed over passed the same checks as a finished capture (loss, arrival
+        rate). Framed protocol only: lines mode cannot place samples before its END count, so
+        there it records the whole longest record (``decide`` is called once, at the end).
+        """
+        if self.protocol != "framed":
+            return self.capture(channel, duration=float(looks[-1]), rate=rate, progress=progress)
+        if channel not in self.channels:
+            raise InstrumentError(self.name, f"no channel {channel!r} on this ADC "
+                                             f"(channels: {', '.join(self.channels)})")
+        if not self._port.alive:
+            raise InstrumentDisconnected(self.name, f"adc on {self.address} was disconnected; "
+                                                    f"reconnect it and open the station again")
+        return self._call(self._capture, channel, float(looks[-1]), rate, progress,
+                          looks=[float(x) for x in looks[:-1]], decide=decide)
+
+    def _capture(self, channel: str, duration: float, rate: float | None, progress,
+                 looks: Sequence[float] = (), decide: Callable[[Capture], bool] | None = None) -> Capture:
         port = self._port
         wanted = rate or self.config.options.get("rate")
         timestamps = bool(self.config.options.get("timestamps", False))
@@ -204,8 +227,16 @@ class SerialAdc:
             port.write_line(f"START {n} {mask}")
         if progress is not None:  # lets a caller tie its own events to the record's time axis
             progress(0.0, f"acquisition of {n} samples started")
+        looker = None
+        if looks and decide is not None:  # an adaptive capture (instruments/_looks.py)
+            looker = Looks([max(1, int(round(x * actual))) for x in looks],
+                           lambda k: self._build(channel, state, actual, decoder, k, complete=True), decide)
         try:
-            self._receive(decoder, state, n, duration, progress)
+            self._receive(decoder, state, n, duration, progress, looker)
+            if looker is not None and looker.stopped is not None:
+                if not self.free_running:
+                    port.stop_stream()
+                return looker.stopped
         except InstrumentDisconnected as exc:
             elapsed = self.clock.monotonic() - t_start
             partial = self._build(channel, state, actual, decoder, n, complete=False)
@@ -213,16 +244,19 @@ class SerialAdc:
             raise InstrumentDisconnected(
                 self.name, f"adc on {self.address} disconnected after {elapsed:.1f} s of a "
                            f"{duration:.1f} s capture ({getattr(exc, 'detail', exc.message)})", partial=partial) from exc
-        except BaseException:  # an instrument error, or the run was stopped (Ctrl-C, a Stop button)
+        except BaseException:  # an instrument error, the adaptive capture's decide failing, or a stop (Ctrl-C, Stop button)
             if not self.free_running:
                 port.stop_stream()  # else the device streams on and the next open cannot identify it
             raise
+        finally:
+            if looker is not None:
+                looker.close()
         capture = self._build(channel, state, actual, decoder, n, complete=True)
         if capture is None:  # only a partial record can be empty
             raise InstrumentError(self.name, f"adc on {self.address} delivered no samples")
         return capture
 
-    def _receive(self, decoder, state: _Progress, n: int, duration: float, progress) -> None:
+    def _receive(self, decoder, state: _Progress, n: int, duration: float, progress, look=None) -> None:
         """Read until the device has sent ``n`` samples (or END), within the deadlines.
 
         Deadlines are in the clock's time, each with a floor of wall time as well (WALL_GRACE),
@@ -250,6 +284,8 @@ class SerialAdc:
                     state.last_point_index = state.index
                 if progress is not None:
                     progress(min(1.0, state.index / n), f"{state.index} of {n} samples")
+                if look is not None and look(state.index):
+                    return  # an adaptive capture decided: stop here
             if self.protocol == "lines" and not self.free_running:
                 if decoder.ended:  # wait for END: its count shows split or repeated lines
                     return

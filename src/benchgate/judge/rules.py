@@ -9,10 +9,17 @@ from collections.abc import Iterable
 from dataclasses import dataclass
 
 from benchgate.analysis.measurement import Measurement
+from benchgate.judge.risk import (
+    Risk,
+    format_risk,
+    probability_inside,
+    probability_outside,
+    specific_risk,
+)
 from benchgate.plan.limits import Window, window_problem
 from benchgate.units.format import format_quantity
 
-DECISION_RULES = ("simple", "guarded")
+DECISION_RULES = ("simple", "guarded", "risk")
 
 
 class Verdict(enum.StrEnum):
@@ -39,9 +46,15 @@ class CheckVerdict:
     verdict: Verdict
     reason: str
     rule: str
+    #: the specific risk of this decision (JCGM 106): of a false pass for a pass, of a false
+    #: fail for a fail; None for other verdicts or without a stated uncertainty
+    risk: Risk | None = None
 
     def to_dict(self) -> dict:
-        return {"verdict": self.verdict.value, "reason": self.reason, "rule": self.rule}
+        out = {"verdict": self.verdict.value, "reason": self.reason, "rule": self.rule}
+        if self.risk is not None:
+            out["risk"] = {"probability": self.risk.probability, "kind": self.risk.kind}
+        return out
 
 
 def _fmt(x: float, unit: str) -> str:
@@ -54,7 +67,25 @@ def _describe(m: Measurement) -> str:
     return f"{m.name} {_fmt(m.value, m.unit)} ± {_fmt(m.uncertainty, m.unit)}"
 
 
-def judge(measurement: Measurement | None, window: Window, rule: str = "simple") -> CheckVerdict:
+def judge(measurement: Measurement | None, window: Window, rule: str = "simple",
+          max_risk: float | None = None) -> CheckVerdict:
+    """Decide one check and state the specific risk of the decision.
+
+    The verdict comes from the rule (see :func:`_decide`); a pass or fail then carries its
+    specific risk (JCGM 106:2012, clause 7, normal model; :mod:`benchgate.judge.risk`):
+    the probability that the true value lies outside the window after a pass, inside it after a
+    fail. ``max_risk`` (a fraction, 0.01 for 1 %) is the largest acceptable specific risk of the
+    ``risk`` rule; ``window.max_risk`` overrides it.
+    """
+    cv = _decide(measurement, window, rule, max_risk)
+    if cv.verdict not in (Verdict.PASS, Verdict.FAIL) or measurement is None or cv.risk is not None:
+        return cv
+    r = specific_risk(cv.verdict.value, measurement.value, measurement.uncertainty, window.low, window.high)
+    return CheckVerdict(cv.verdict, cv.reason, cv.rule, r)
+
+
+def _decide(measurement: Measurement | None, window: Window, rule: str = "simple",
+            max_risk: float | None = None) -> CheckVerdict:
     """Decide one check.
 
     Parameters
@@ -63,8 +94,10 @@ def judge(measurement: Measurement | None, window: Window, rule: str = "simple")
         The measured value; None when the measurement could not be made at all.
     window : Window
         Acceptance limits, in the measurement's unit.
-    rule : {"simple", "guarded"}
+    rule : {"simple", "guarded", "risk"}
         The plan's decision rule; ``window.decision`` overrides it when set.
+    max_risk : float or None
+        Largest acceptable specific risk under ``risk`` (``window.max_risk`` overrides it).
 
     Returns
     -------
@@ -84,7 +117,11 @@ def judge(measurement: Measurement | None, window: Window, rule: str = "simple")
     References
     ----------
     ILAC-G8:09/2019, Guidelines on decision rules and statements of conformity, 4.2.1 (simple
-    acceptance) and 4.2.2 (binary statement with guard band w = U).
+    acceptance) and 4.2.2 (binary statement with guard band w = U). The ``risk`` rule is the
+    decision rule stated by a largest acceptable specific risk: JCGM 106:2012, clauses 7-8
+    (guarded acceptance and guarded rejection with the acceptance limits where the specific
+    consumer's or producer's risk equals the stated value); ILAC-G8:09/2019, 4.2.3 (guard band
+    chosen for a required probability of false accept). Section numbers from memory.
     """
     rule = window.decision or rule
     if rule not in DECISION_RULES:
@@ -105,6 +142,8 @@ def judge(measurement: Measurement | None, window: Window, rule: str = "simple")
         return CheckVerdict(Verdict.ERROR, f"{measurement.name} cannot be judged: {untrusted}", rule)
     lo, hi = window.low, window.high
     what = _describe(measurement)
+    if rule == "risk":
+        return _decide_by_risk(measurement, window, window.max_risk if window.max_risk is not None else max_risk)
     below = lo is not None and x < lo
     above = hi is not None and x > hi
     if rule == "simple":
@@ -132,6 +171,35 @@ def judge(measurement: Measurement | None, window: Window, rule: str = "simple")
         f"{what} within U of the limit {_fmt(edge, window.unit)}; guard band w = U",
         rule,
     )
+
+
+def _decide_by_risk(m: Measurement, window: Window, max_risk: float | None) -> CheckVerdict:
+    """The ``risk`` rule: pass only if the risk of a false pass is below ``max_risk``, fail only
+    if the risk of a false fail is below it, otherwise inconclusive (JCGM 106:2012, clauses 7-8;
+    ILAC-G8:09/2019, 4.2.3)."""
+    rule = "risk"
+    if max_risk is None or not (0 < max_risk < 0.5):
+        return CheckVerdict(Verdict.ERROR, f"the risk rule needs a largest acceptable risk between 0 and 50 %, "
+                                           f"got {max_risk!r}", rule)
+    what = _describe(m)
+    limit = format_risk(max_risk)
+    if m.uncertainty is None:
+        return CheckVerdict(Verdict.INCONCLUSIVE, f"{what} has no stated uncertainty; the risk rule "
+                                                  "cannot state the risk of a decision", rule)
+    u = m.uncertainty / 2.0  # U has k = 2
+    p_out = probability_outside(m.value, u, window.low, window.high)
+    p_in = probability_inside(m.value, u, window.low, window.high)
+    if p_out < max_risk:
+        r = Risk(p_out, "false pass")
+        return CheckVerdict(Verdict.PASS, f"{what} inside {_window_text(window)}; {r.text()} below {limit}",
+                            rule, r)
+    if p_in < max_risk:
+        r = Risk(p_in, "false fail")
+        return CheckVerdict(Verdict.FAIL, f"{what} outside {_window_text(window)}; {r.text()} below {limit}",
+                            rule, r)
+    return CheckVerdict(Verdict.INCONCLUSIVE,
+                        f"{what}: probability outside {_window_text(window)} is {format_risk(p_out)}, "
+                        f"inside {format_risk(p_in)}; neither decision has a risk below {limit}", rule)
 
 
 def _untrusted(x: object, u: object) -> str | None:

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 from typing import Any
 
 from benchgate.common.bounds import bounds_of
@@ -15,7 +16,10 @@ from benchgate.units.eseries import is_preferred, nearest_preferred, series_for_
 from benchgate.units.format import format_quantity
 from benchgate.units.tolerance import Part, Tolerance, parse_part, parse_tolerance
 
-LIMIT_KEYS = ("min", "max", "nominal", "tolerance", "from_circuit", "margin", "decision")
+LIMIT_KEYS = ("min", "max", "nominal", "tolerance", "from_circuit", "margin", "decision", "max_risk")
+#: the largest acceptable specific risk of the ``risk`` rule, in %: above 0, below 50
+#: (50 % is what simple acceptance already gives at the limit, ILAC-G8:09/2019 4.2.1)
+MAX_RISK_RANGE = (1e-9, 49.9)
 MC_KEYS = ("draws", "seed", "distribution")
 #: plausible part values; outside them a value is a typo, and the numbers would overflow
 PART_RANGES = {"Ω": (1e-3, 1e12), "F": (1e-15, 10.0), "H": (1e-12, 1e3)}
@@ -39,7 +43,18 @@ def parse_limit(c: PlanCollector, node: YNode, path: str, measurement: str, unit
         return None
     if w is None:
         return None
+    if node.is_map and "max_risk" in node.value:
+        mr = parse_max_risk(c, node.value["max_risk"], f"{path}.max_risk")
+        if mr is None:
+            return None
+        w = dataclasses.replace(w, max_risk=mr)
     return _passable(c, node, path, measurement, w)
+
+
+def parse_max_risk(c: PlanCollector, node: YNode, path: str) -> float | None:
+    """A largest acceptable specific risk written in % ("1 %", 0.5), as a fraction."""
+    v = c.quantity(node, path, "%", *MAX_RISK_RANGE)
+    return None if v is None else v / 100.0
 
 
 def _passable(c: PlanCollector, node: YNode, path: str, measurement: str, w: Window) -> Window | None:

@@ -25,7 +25,10 @@ class Window:
         How the window was obtained, in words: ``"given"``, ``"nominal 1 kHz ±5 %"``,
         ``"rc_ladder highpass 3 sections: worst case over 64 tolerance corners"`` …
     decision : str or None
-        A per-check decision rule overriding the plan's (``simple`` or ``guarded``).
+        A per-check decision rule overriding the plan's (``simple``, ``guarded`` or ``risk``).
+    max_risk : float or None
+        A per-check largest acceptable specific risk (a fraction) for the ``risk`` rule,
+        overriding the plan's.
     details : mapping
         Derivation facts for reports: formula, corners, gain needed, Monte Carlo spread and yield.
     """
@@ -37,6 +40,7 @@ class Window:
     derived_from: str = "given"
     decision: str | None = None
     details: Mapping[str, Any] = field(default_factory=dict)
+    max_risk: float | None = None
 
     def __post_init__(self) -> None:
         problem = window_problem(self)
@@ -60,6 +64,7 @@ class Window:
             "derived_from": self.derived_from,
             "decision": self.decision,
             "details": dict(self.details),
+            **({} if self.max_risk is None else {"max_risk": self.max_risk}),
         }
 
     @classmethod
@@ -72,6 +77,7 @@ class Window:
             derived_from=d.get("derived_from", "given"),
             decision=d.get("decision"),
             details=d.get("details") or {},
+            max_risk=d.get("max_risk"),
         )
 
 

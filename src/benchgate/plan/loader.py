@@ -8,6 +8,7 @@ capture is long enough and fast enough for its checks, that every step's instrum
 from __future__ import annotations
 
 import dataclasses
+import math
 from typing import Any
 
 from benchgate.common.fields import described
@@ -15,17 +16,23 @@ from benchgate.common.names import CAPABILITIES, MEASUREMENT_UNITS, READING_SOUR
 from benchgate.common.yamlpos import YNode, load_file, load_text
 from benchgate.errors import PlanErrors
 from benchgate.plan import derive
-from benchgate.plan.checks import parse_limit, parse_monte_carlo
+from benchgate.plan.checks import parse_limit, parse_max_risk, parse_monte_carlo
 from benchgate.plan.fields import PlanCollector
 from benchgate.plan.hashing import content_hash
 from benchgate.plan.model import (
+    ADAPTIVE_KEYS,
+    ADAPTIVE_MEASUREMENTS,
+    ADAPTIVE_RULES,
     CAPTURE_DEFAULT_KEYS,
+    DECISIONS,
     DEFAULTS_SPEC,
     HAZARD_NAMES,
+    MAX_LOOKS,
     MAX_SAMPLES,
     MAX_STEPS,
     STEP_CLASSES,
     STEP_KINDS,
+    Adaptive,
     CaptureStep,
     Check,
     Hazard,
@@ -84,7 +91,8 @@ def build_plan(root: YNode, file: str) -> Plan:
                 v = c.choice(item, f"requires[{i}]", CAPABILITIES)
                 if v is not None:
                     requires.add(v)
-    decision = c.choice(m.get("decision"), "decision", ("simple", "guarded")) or "simple"
+    decision = c.choice(m.get("decision"), "decision", DECISIONS) or "simple"
+    max_risk = parse_max_risk(c, m["max_risk"], "max_risk") if "max_risk" in m else None
     defaults = _defaults(c, m.get("defaults"))
     steps: list[Step] = []
     steps_node = m.get("steps")
@@ -104,11 +112,61 @@ def build_plan(root: YNode, file: str) -> Plan:
                     steps.append(got[0])
                     positions.append(got[1])
             validate_steps(c, steps, positions, requires, complete=len(steps) == len(steps_node.value))
+            _risk_rule_limits(c, steps, decision, max_risk, m)
+            _adaptive_checks(c, steps, positions, decision)
     if c.errors:
         raise PlanErrors(c.errors)
     return Plan(id=plan_id, version=version, product=product, description=description.strip(),
                 cautions=cautions, hazards=hazards, requires=frozenset(requires), decision=decision,
-                steps=tuple(steps), hash=content_hash(root.plain()), path=file, notes=tuple(c.notes))
+                max_risk=max_risk, steps=tuple(steps), hash=content_hash(root.plain()), path=file, notes=tuple(c.notes))
+
+
+def _risk_rule_limits(c: PlanCollector, steps: list[Step], decision: str, max_risk: float | None,
+                      m: dict[str, YNode]) -> None:
+    """Every check judged by the ``risk`` rule needs a largest acceptable risk (its own or the
+    plan's); a max_risk where no check is judged by the risk rule is an error too (it would look
+    like it protects something)."""
+    uses = False
+    for s in steps:
+        for ch in s.checks:
+            rule = ch.window.decision or decision
+            if rule == "risk":
+                uses = True
+                if ch.window.max_risk is None and max_risk is None:
+                    c.error((ch.line, ch.column) if ch.line else m.get("decision"),
+                            f"{s.id}.{ch.measurement}: the risk rule needs max_risk (here in the limit, "
+                            "or for the whole plan), e.g. max_risk: 1 %")
+            elif ch.window.max_risk is not None:
+                c.error((ch.line, ch.column) if ch.line else None,
+                        f"{s.id}.{ch.measurement}: max_risk applies to the risk rule only; this check "
+                        f"is judged by {rule!r} (set decision: risk)")
+    if max_risk is not None and not uses:
+        c.error(m["max_risk"], "max_risk: no check is judged by the risk rule (set decision: risk)")
+
+
+def _adaptive_checks(c: PlanCollector, steps: list[Step], positions: list[dict[str, tuple[int, int]]],
+                     decision: str) -> None:
+    """An adaptive capture stops on decided checks, so each of its checks must be decidable
+    before the whole record is in, under a rule that states a risk."""
+    for s, pos in zip(steps, positions, strict=False):
+        if not isinstance(s, CaptureStep) or s.adaptive is None:
+            continue
+        where = pos.get("adaptive", pos[""])
+        if s.power_on:
+            c.error(where, f"step {s.id!r}: a power_on capture records the start-up and needs its "
+                           "whole record; it cannot be adaptive")
+        if not s.checks:
+            c.error(where, f"step {s.id!r}: an adaptive capture needs checks to decide")
+        for ch in s.checks:
+            at = (ch.line, ch.column) if ch.line else where
+            if ch.measurement not in ADAPTIVE_MEASUREMENTS:
+                c.error(at, f"step {s.id!r}: {ch.measurement} needs the whole record and cannot be "
+                            "judged early; move it to a capture that is not adaptive (early: "
+                            f"{', '.join(ADAPTIVE_MEASUREMENTS)})")
+            rule = ch.window.decision or decision
+            if rule not in ADAPTIVE_RULES:
+                c.error(at, f"step {s.id!r}: {ch.measurement} is judged by {rule!r}, which states "
+                            "no risk to stop on; an adaptive capture needs decision guarded or risk")
 
 
 def _hazards(c: PlanCollector, node: YNode | None) -> tuple[Hazard, ...]:
@@ -192,7 +250,7 @@ def _step(c: PlanCollector, node: YNode, path: str, defaults: dict[str, Any],
     sid = m.get("id").value if m.get("id") is not None and isinstance(m["id"].value, str) else path
     values: dict[str, Any] = {}
     for key, f in fields.items():
-        if key not in m or f.metadata["kind"] in ("checks", "limit"):
+        if key not in m or f.metadata["kind"] in ("checks", "limit", "adaptive"):
             continue
         v = _field(c, f, m[key], f"{path}.{key}")
         if v is not None:
@@ -203,6 +261,8 @@ def _step(c: PlanCollector, node: YNode, path: str, defaults: dict[str, Any],
     if kind == "capture":
         for key, v in defaults["capture"].items():
             values.setdefault(key, v)
+        if "adaptive" in m:
+            _adaptive(c, m, path, values)
         _capture_extras(c, m, node, path, values)
         checks = _checks(c, m.get("checks"), f"{path}.checks", defaults, budget)
         values["checks"] = tuple(checks)
@@ -245,6 +305,34 @@ def _step(c: PlanCollector, node: YNode, path: str, defaults: dict[str, Any],
         c.error(node, f"{path} ({sid}): {exc}")
         return None
     return step, {k: c.key_pos(node, k) for k in node.value} | {"": (node.line, node.column)}
+
+
+def _adaptive(c: PlanCollector, m: dict[str, YNode], path: str, values: dict[str, Any]) -> None:
+    """Read ``adaptive: {shortest, longest, block}``; the longest record becomes the duration."""
+    node = m["adaptive"]
+    a = c.mapping(node, f"{path}.adaptive", ADAPTIVE_KEYS, required=("shortest", "longest"))
+    if a is None:
+        return
+    got = {k: c.quantity(a.get(k), f"{path}.adaptive.{k}", "s", 0, 600, positive=True)
+           for k in ADAPTIVE_KEYS}
+    if got["shortest"] is None or got["longest"] is None or ("block" in a and got["block"] is None):
+        return
+    if "duration" in m or "samples" in m:
+        c.error(m.get("duration") or m.get("samples"), f"{path}: an adaptive capture's length is "
+                "adaptive.longest; give no duration or samples")
+        return
+    if got["shortest"] > got["longest"]:
+        c.error(a["shortest"], f"{path}.adaptive: shortest {a['shortest'].value!r} is longer than "
+                               f"longest {a['longest'].value!r}")
+        return
+    block = got["block"] or got["shortest"]
+    looks = 1 + math.ceil((got["longest"] - got["shortest"]) / block * (1 - 1e-9))
+    if looks > MAX_LOOKS:
+        c.error(a.get("block") or a["shortest"], f"{path}.adaptive: {looks} looks (re-measurements); "
+                                                 f"at most {MAX_LOOKS}: use a longer block")
+        return
+    values["adaptive"] = Adaptive(got["shortest"], got["longest"], got["block"])
+    values["duration"] = got["longest"]
 
 
 def _capture_extras(c: PlanCollector, m: dict[str, YNode], node: YNode, path: str, values: dict[str, Any]) -> None:

@@ -14,8 +14,17 @@ from benchgate.common.names import CAPABILITIES, READING_UNITS
 from benchgate.plan.limits import Window
 
 STEP_KINDS = ("supply", "wait", "prompt", "capture", "reading")
+#: measurements an adaptive capture may decide before its longest record: estimates that
+#: converge as the record grows and state their uncertainty. Start-up time, drift, dips,
+#: peak-to-peak and SFDR (extremes over the whole record) need the whole record.
+ADAPTIVE_MEASUREMENTS = ("frequency", "amplitude", "rms", "dc_offset", "thd", "thd_n", "sinad",
+                         "snr", "enob", "duty_cycle")
+#: decision rules that state a risk an adaptive capture can stop on
+ADAPTIVE_RULES = ("guarded", "risk")
+ADAPTIVE_KEYS = ("shortest", "longest", "block")
+MAX_LOOKS = 200  # re-measurements of one adaptive capture
 ON_FAIL = ("stop", "continue")
-DECISIONS = ("simple", "guarded")
+DECISIONS = ("simple", "guarded", "risk")
 MAX_STEPS = 500  # keeps loading and `check` within a few seconds; real plans have tens
 MAX_SAMPLES = 50_000_000  # samples in one capture (rate × duration)
 #: hazards a plan may declare; each needs an explicit acknowledgement before a run.
@@ -127,6 +136,23 @@ class PromptStep(Step):
         choices=("abort", "continue")))
 
 
+@dataclass(frozen=True)
+class Adaptive:
+    """An adaptive capture: record in blocks, stop once every check is decided (judge/sequential)."""
+
+    shortest: float = field(metadata=spec("the first look: shortest record", kind="quantity", unit="s",
+                                          minimum=0, maximum=600, required=True))
+    longest: float = field(metadata=spec("the longest record (the step's duration); judged as a "
+                                         "fixed-length capture when reached", kind="quantity", unit="s",
+                                         minimum=0, maximum=600, required=True))
+    block: float | None = field(default=None, metadata=spec(
+        "record added between looks (default: the shortest record)", kind="quantity", unit="s",
+        minimum=0, maximum=600))
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"shortest": self.shortest, "longest": self.longest, "block": self.block}
+
+
 @dataclass(frozen=True, kw_only=True)
 class CaptureStep(Step):
     """Record a waveform and judge measurements made on it."""
@@ -151,6 +177,10 @@ class CaptureStep(Step):
         "harmonics summed for THD and excluded from SNR", kind="int", minimum=1, maximum=50))
     checks: tuple[Check, ...] = field(default=(), metadata=spec(
         "measurement name -> limit", kind="checks"))
+    adaptive: Adaptive | None = field(default=None, metadata=spec(
+        "record in blocks and stop as soon as every check is decided under the plan's decision "
+        "rule (guarded or risk), with an error bound that holds under the repeated looks: "
+        "{shortest, longest, block}; the longest record replaces duration", kind="adaptive"))
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -191,8 +221,13 @@ class Plan:
     requires: frozenset[str] = field(default=frozenset(), metadata=spec(
         "station capabilities the plan needs", kind="list", choices=CAPABILITIES))
     decision: str = field(default="simple", metadata=spec(
-        "decision rule (ILAC-G8): simple acceptance or guarded (guard band w = U)", kind="choice",
-        choices=DECISIONS))
+        "decision rule (ILAC-G8): simple acceptance, guarded (guard band w = U) or risk (pass or "
+        "fail only when the specific risk of that decision is below max_risk, JCGM 106)",
+        kind="choice", choices=DECISIONS))
+    max_risk: float | None = field(default=None, metadata=spec(
+        "largest acceptable specific risk of a decision under the risk rule, e.g. '1 %' (stored as "
+        "a fraction); a check's limit may set its own", kind="quantity", unit="%", minimum=1e-9,
+        maximum=49.9))
     steps: tuple[Step, ...] = field(default=(), metadata=spec("the steps, in order", kind="steps",
                                                               required=True))
     hash: str = field(default="", metadata=spec("content hash", yaml=False))

@@ -23,6 +23,7 @@ from benchgate.plan.model import (
     MAX_STEPS,
     ON_FAIL,
     STEP_CLASSES,
+    Adaptive,
     CaptureStep,
     Hazard,
     Plan,
@@ -80,6 +81,10 @@ def _step_schema(kind: str) -> dict[str, Any]:
                                          for n, u in MEASUREMENT_UNITS.items()}}
         elif md["kind"] == "limit":
             props[key] = {"$ref": "#/$defs/limit", "description": md["doc"]}
+        elif md["kind"] == "adaptive":
+            props[key] = {"type": "object", "additionalProperties": False, "description": md["doc"],
+                          "required": [k for k, f2 in _keys(Adaptive) if f2.metadata["required"]],
+                          "properties": {k: _field_schema(f2.metadata) for k, f2 in _keys(Adaptive)}}
         elif key == "kind":
             props[key] = {"const": kind, "description": md["doc"]}
         else:
@@ -165,6 +170,7 @@ def build_schema() -> dict[str, Any]:
             "tolerance": {**_NUMBER_OR_TEXT, "description": "'±5 %', '+10/-5 %' or '±12 Hz'"},
             "margin": {**_NUMBER_OR_TEXT, "description": "widening of a from_circuit window: '5 %' or '20 Hz'"},
             "decision": {"enum": list(DECISIONS), "description": "decision rule for this check only"},
+            "max_risk": _quantity("%", "largest acceptable specific risk of the risk rule for this check"),
             "from_circuit": {"$ref": "#/$defs/circuit"},
         },
     }

@@ -15,6 +15,7 @@ from typing import Any
 from benchgate.analysis.capture import Capture
 from benchgate.common.evidence import file_sha256, write_atomic
 from benchgate.common.names import MEASUREMENT_TITLES
+from benchgate.judge.risk import format_risk
 from benchgate.record import CheckRecord, StepRecord, UnitRecord
 from benchgate.report import plots
 from benchgate.report.cautions import GENERAL_CAUTIONS
@@ -96,6 +97,8 @@ def _check_row(c: CheckRecord, step: StepRecord) -> dict[str, Any]:
         "rule": c.rule,
         "verdict": c.verdict.value,
         "reason": c.reason,
+        # JCGM 106:2012 specific risk of this decision, beside the verdict
+        "risk": "" if c.risk_kind is None else f"risk of a {c.risk_kind}: {format_risk(c.risk)}",
     }
 
 
@@ -145,17 +148,39 @@ def metadata_rows(metadata: Mapping[str, Any], *, limit: int = 24) -> list[tuple
     return rows
 
 
+def adaptive_view(story: Any, units: Mapping[str, str]) -> dict[str, Any] | None:
+    """An adaptive capture's looks as table rows: per look, each check's value ± U and whether
+    it was decided there (judge/sequential.py); and why the capture stopped."""
+    if not isinstance(story, Mapping) or not isinstance(story.get("looks"), Mapping):
+        return None
+    names = [n for n in story["looks"] if isinstance(story["looks"][n], list)]
+    by_time: dict[float, dict[str, str]] = {}
+    for name in names:
+        unit = units.get(name, "")
+        for lk in story["looks"][name]:
+            v, u = lk.get("value"), lk.get("uncertainty")
+            text = "not measured" if v is None else (_q(v, unit) + ("" if u is None else f" ± {_q(u, unit, 2)}"))
+            if lk.get("decided"):
+                text += f" → {lk['decided']}"
+            by_time.setdefault(float(lk.get("seconds", 0.0)), {})[name] = text
+    rows = [(_q(t, "s"), [cells.get(n, "—") for n in names]) for t, cells in sorted(by_time.items())]
+    return {"names": names, "rows": rows, "stopped": str(story.get("stopped", "")),
+            "bound": story.get("early_bound")}
+
+
 def _step_view(step: StepRecord, captures: Mapping[str, Capture], verify: Path | None) -> dict[str, Any]:
     figures: list[plots.Figure] = []
     notes: list[str] = []
     cap = step.capture
     meta_rows: list[tuple[str, str]] = []
     no_framing = False
+    adaptive = None
     if cap is not None:
         capture = captures.get(step.id)
         metadata = cap.metadata or (capture.metadata if capture is not None else {})
-        meta_rows = metadata_rows(metadata)
+        meta_rows = metadata_rows({k: v for k, v in metadata.items() if k != "adaptive"})
         no_framing = unframed(metadata)
+        adaptive = adaptive_view(metadata.get("adaptive"), {c.measurement: c.window.unit for c in step.checks})
         if verify is not None:  # a stored report re-rendered: are its capture files still the ones judged?
             found = _file_sha256(verify / cap.file)
             if found is None:
@@ -175,7 +200,7 @@ def _step_view(step: StepRecord, captures: Mapping[str, Capture], verify: Path |
         "duration": _duration(step.started, step.ended), "attempts": step.attempts,
         "retried": step.attempts > 1, "answer": step.answer, "error": step.error,
         "notes": list(step.notes), "capture": cap, "figures": figures, "bars": bars,
-        "plot_notes": notes, "meta_rows": meta_rows, "unframed": no_framing,
+        "plot_notes": notes, "meta_rows": meta_rows, "unframed": no_framing, "adaptive": adaptive,
         "rate_text": _q(cap.sample_rate, "S/s") if cap is not None else "",
     }
 

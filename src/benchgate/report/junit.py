@@ -130,6 +130,9 @@ def build_junit(units: Iterable[tuple[Any, Mapping[str, Any]]], *, name: str = "
                     "uncertainty": "" if m is None else _num(m.uncertainty),
                     "unit": w.unit, "low": _num(w.low), "high": _num(w.high),
                     "rule": check.rule, "verdict": check.verdict.value,
+                    # JCGM 106:2012 specific risk of the decision (a fraction)
+                    **({} if check.risk_kind is None else {"risk": _num(check.risk),
+                                                            "risk_kind": check.risk_kind}),
                 })
                 verdict = check.verdict.value
                 if verdict == "fail":

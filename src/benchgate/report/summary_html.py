@@ -213,6 +213,9 @@ def render_summary_html(summary: Any, *, title: str | None = None,
         "untested": getattr(summary, "units_untested", 0),
         "cut_short": getattr(summary, "cut_short", 0),
         "final": _pct(summary.final_yield),
+        # JCGM 106 specific risks summed over the passed units (store/queries.py defines it)
+        "false_passes": f"{getattr(summary, 'expected_false_passes', 0.0):.3g}",
+        "risk_unstated": getattr(summary, "risk_unstated", 0),
         "pareto_checks": [{"p": p, "fail_bar": bar_svg(p.fail, top_check),
                            "other_bar": bar_svg(p.error + p.inconclusive, top_check, kind="error")}
                           for p in summary.pareto_checks],

@@ -23,6 +23,7 @@ from benchgate.errors import BenchgateError, InstrumentDisconnected, StepError
 from benchgate.instruments.base import Digitizer, take_reading
 from benchgate.judge.rules import Verdict, combine, judge
 from benchgate.record import CaptureRecord, CheckRecord, StepRecord
+from benchgate.runner.adaptive import acquire_adaptive
 from benchgate.runner.safety import as_stop
 
 #: how long (clock seconds) a unit is left unpowered before a repeated start-up capture
@@ -197,7 +198,11 @@ class Executor:
         instrument = self.bench[step.instrument]
         key = step.id if attempt == 1 else f"{step.id}-{attempt}"
         try:
-            capture = self._acquire(step, instrument, srec)
+            if getattr(step, "adaptive", None) is not None:  # record in blocks, stop once decided
+                capture = acquire_adaptive(instrument, step, self.plan.decision, getattr(self.plan, "max_risk", None),
+                                           self.analyze, self._capture_progress(step))
+            else:
+                capture = self._acquire(step, instrument, srec)
         except InstrumentDisconnected as exc:
             if exc.partial is not None and getattr(exc.partial, "n", 0) > 0:
                 self._keep(step, srec, key, exc.partial.with_metadata(partial=True), [])
@@ -221,6 +226,11 @@ class Executor:
             srec.capture.views = views
         for check in step.checks:
             self._judge(step, srec, check, measurements.get(check.measurement))
+
+    def _capture_progress(self, step: Any) -> Callable[..., None]:
+        def progress(fraction: float, text: str = "") -> None:
+            self.hooks.progress(fraction, f"capture {step.channel}", step.duration * (1 - fraction))
+        return progress
 
     def _acquire(self, step: Any, instrument: Any, srec: StepRecord):
         first: list[float] = []  # clock time and fraction delivered at the first progress report
@@ -333,9 +343,10 @@ class Executor:
             warnings=list(warnings), metadata=dict(capture.metadata))
 
     def _judge(self, step: Any, srec: StepRecord, check: Any, measurement: Measurement | None) -> None:
-        cv = judge(measurement, check.window, self.plan.decision)
+        cv = judge(measurement, check.window, self.plan.decision, getattr(self.plan, "max_risk", None))
         rec = CheckRecord(step_id=step.id, measurement=check.measurement, window=check.window,
-                          result=measurement, verdict=cv.verdict, reason=cv.reason, rule=cv.rule)
+                          result=measurement, verdict=cv.verdict, reason=cv.reason, rule=cv.rule,
+                          risk=None if cv.risk is None else cv.risk.probability)
         srec.checks.append(rec)
         self.hooks.check(rec)
 

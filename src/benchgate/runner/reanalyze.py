@@ -28,9 +28,9 @@ from benchgate.runner.options import RunOutcome, exit_code_for
 def _judge_all(step: Any, srec: StepRecord, plan: Any, measurements: Mapping[str, Measurement | None]) -> None:
     for check in step.checks:
         m = measurements.get(check.measurement)
-        cv = judge(m, check.window, plan.decision)
+        cv = judge(m, check.window, plan.decision, getattr(plan, "max_risk", None))
         srec.checks.append(CheckRecord(step.id, check.measurement, check.window, m, cv.verdict,
-                                       cv.reason, cv.rule))
+                                       cv.reason, cv.rule, None if cv.risk is None else cv.risk.probability))
 
 
 def _invalid_all(step: Any, reason: str) -> dict[str, Measurement]:

@@ -43,7 +43,7 @@ RUN_COLUMNS = ("run_id", "serial", "plan_id", "plan_version", "plan_hash", "prod
                "report_sha256")
 #: the columns of a check that travel with it (its definition as values, not as an id)
 CHECK_COLUMNS = ("seq", "plan_id", "step", "measurement", "unit", "low", "high", "value",
-                 "uncertainty", "valid", "verdict", "reason")
+                 "uncertainty", "valid", "verdict", "reason", "risk", "record_seconds")
 
 
 # --------------------------------------------------------------------------- helpers
@@ -210,6 +210,8 @@ class ResultsDB:
                 (record.verdict.value, record.reason, record.ended, hazards, expired, unattended,
                  report, record.operator, record.lot, cut_short(record), sha, pk))
             rows = []
+            lengths = {s.id: s.capture.samples / s.capture.sample_rate for s in record.steps
+                       if s.capture is not None and s.capture.sample_rate > 0}
             for seq, check in enumerate(record.checks()):
                 w = check.window
                 m = check.result
@@ -217,7 +219,8 @@ class ResultsDB:
                              _finite(w.low), _finite(w.high),
                              None if m is None else _finite(m.value),
                              None if m is None else _finite(m.uncertainty),
-                             int(m is not None and m.valid), check.verdict.value, check.reason))
+                             int(m is not None and m.valid), check.verdict.value, check.reason,
+                             _finite(check.risk), lengths.get(check.step_id)))
             self._put_checks(c, pk, record.lot, epoch, rows)
 
         self._write(work)
@@ -227,14 +230,18 @@ class ResultsDB:
         """Replace the run's checks by ``rows`` (:data:`CHECK_COLUMNS` order)."""
         c.execute("DELETE FROM checks WHERE run = ?", (pk,))
         out = []
-        for seq, plan_id, step, meas, unit, low, high, value, u, valid, verdict, reason in rows:
+        for row in rows:
+            # rows from a station of schema 4 have no risk and record length: NULL
+            seq, plan_id, step, meas, unit, low, high, value, u, valid, verdict, reason, risk, secs = (
+                tuple(row) + (None, None))[:14]
             d = self._def_id(c, plan_id, step, meas, unit, low, high)
             # lot and start time are copied from the run so summaries filter without a join
-            out.append((pk, seq, d, lot, epoch, value, u, int(valid), verdict, reason))
+            out.append((pk, seq, d, lot, epoch, value, u, int(valid), verdict, reason, risk, secs))
         if out:
             c.executemany(
                 "INSERT INTO checks (run, seq, def, lot, started_epoch, value, uncertainty, valid,"
-                " verdict, reason) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)", out)
+                " verdict, reason, risk, record_seconds) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
+                out)
 
     def _def_id(self, c: Conn, plan_id: str, step: str, measurement: str, unit: str,
                 low: float | None, high: float | None) -> int:
@@ -282,7 +289,7 @@ class ResultsDB:
                 continue
             checks = self.conn.execute(
                 "SELECT c.seq, d.plan_id, d.step, d.measurement, d.unit, d.low, d.high, c.value,"
-                " c.uncertainty, c.valid, c.verdict, c.reason FROM checks c"
+                " c.uncertainty, c.valid, c.verdict, c.reason, c.risk, c.record_seconds FROM checks c"
                 " JOIN check_defs d ON d.id = c.def WHERE c.run = ? ORDER BY c.seq",
                 (row[0],)).fetchall()
             out.append((dict(zip(RUN_COLUMNS, row[1:], strict=True)), [tuple(x) for x in checks]))

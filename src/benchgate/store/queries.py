@@ -24,6 +24,11 @@ Definitions used by :func:`summary` (docs/results.md gives them in full, with th
   distribution and flatter Cpk.
 - the Pareto lists count events: every non-passing check and every run cut short, over all
   attempts.
+- expected false passes = the sum of the specific risks of a false pass (JCGM 106:2012) of the
+  passed checks of each unit's latest complete run that passed. It bounds the expected number of
+  out-of-specification units among the passed ones (a union bound over a unit's checks, exact
+  when one check per unit carries the risk). Passed checks without a stated risk (no uncertainty)
+  are counted apart (``risk_unstated``): their risk is unknown, not zero.
 """
 
 from __future__ import annotations
@@ -188,6 +193,8 @@ class Summary:
     pareto_reasons: tuple[ParetoReason, ...] = ()
     checks: tuple[CheckStats, ...] = field(default=())
     units: tuple[UnitLine, ...] = ()  # listed for a lot summary only (lot given), serial order
+    expected_false_passes: float = 0.0  # sum of the passed units' risks of a false pass
+    risk_unstated: int = 0  # passed checks of passed units whose risk is not stated
 
     @property
     def first_pass_yield(self) -> float | None:
@@ -273,7 +280,14 @@ def summary(conn: Any, *, plan: str | None = None, lot: str | None = None,
 
     defs = {row[0]: row[1:] for row in conn.execute(
         "SELECT id, plan_id, step, measurement, unit, low, high FROM check_defs")}
+    false_passes, unstated = conn.execute(
+        f"{_latest_complete(rf)} SELECT COALESCE(SUM(c.risk), 0.0),"
+        " COALESCE(SUM(CASE WHEN c.risk IS NULL THEN 1 ELSE 0 END), 0)"
+        " FROM checks c JOIN runs r ON r.id = c.run"
+        " WHERE c.run IN (SELECT id FROM latest) AND r.verdict = 'pass' AND c.verdict = 'pass'",
+        params + params).fetchone()  # _latest_complete takes the filter parameters twice
     return Summary(
+        expected_false_passes=float(false_passes), risk_unstated=int(unstated),
         plan=plan, lot=lot, since=since, runs=int(attempts),
         incomplete=verdicts.get("incomplete", 0), cut_short=int(finished_cut),
         units_tested=int(tested), units_untested=int(units_seen) - int(tested),

@@ -93,13 +93,23 @@ ALTER TABLE runs ADD COLUMN report_sha256 TEXT;
 CREATE INDEX runs_unsent ON runs(sent, complete)
 """
 
+# the specific risk of each check's decision (JCGM 106: probability of a false pass for a pass,
+# of a false fail for a fail; NULL when not stated) and the length of the record it was judged
+# on (s of capture; an adaptive capture stops early, so this varies between units)
+_V5 = """
+ALTER TABLE checks ADD COLUMN risk {real};
+ALTER TABLE checks ADD COLUMN record_seconds {real}
+"""
+
 #: ordered migrations: (version reached, SQL text that gets there from the version before).
-#: Released versions: 1 and 2 (SQLite only), 3 (cut_short); 4 adds forwarding.
+#: Released versions: 1 and 2 (SQLite only), 3 (cut_short); 4 adds forwarding; 5 risk and
+#: record length per check.
 MIGRATIONS: tuple[tuple[int, str], ...] = (
     (1, _V1),
     (2, _V2),
     (3, _V3),
     (4, _V4),
+    (5, _V5),
 )
 SCHEMA_VERSION = MIGRATIONS[-1][0]
 
