@@ -90,3 +90,39 @@ def test_bad_requests_are_one_line_errors(args, message):
     assert proc.returncode == 2
     lines = proc.stderr.strip().splitlines()
     assert len(lines) == 1 and message in lines[0] and lines[0].startswith("benchgate: ")
+
+
+def test_adc_served_by_the_firmware_in_the_loop(tmp_path):
+    sys.path.insert(0, os.path.join(os.path.dirname(__file__), "..", "sim"))
+    from firmware_support import need_firmware
+
+    need_firmware()
+    import serial
+
+    proc = start("--json", "--adc", "firmware", "--speed", "2", "--write-station", str(tmp_path / "s.yaml"))
+    try:
+        info = json.loads(first_line(proc))
+        assert info["adc_device"] == "firmware"
+        with serial.Serial(info["serial_port"], 2_000_000, timeout=0.2) as port:
+            deadline = time.monotonic() + 30
+            reply = b""
+            while not reply.startswith(b"IDN ") and time.monotonic() < deadline:
+                port.write(b"IDN?\n")  # again until the booting board answers, as the driver does
+                reply = port.readline()
+        assert b";proto=1;bits=10;vref=5.0;" in reply and b"adc_clock=" in reply
+        # same station file as with the Python device model
+        assert load_station(info["station_file"]).instruments["adc"].options["bits"] == 10
+    finally:
+        proc.send_signal(signal.SIGINT)
+        out, err = proc.communicate(timeout=30)
+    assert proc.returncode == 0, err
+    assert not os.path.exists(info["serial_port"])  # the harness and its pty are gone
+
+
+def test_adc_firmware_not_built_is_one_clear_error(tmp_path):
+    env = dict(os.environ, BENCHGATE_FIRMWARE_BUILD=str(tmp_path / "nothing-here"))
+    proc = subprocess.run([sys.executable, "-m", "benchgate", "sim", "--adc", "firmware"], env=env,
+                          capture_output=True, text=True, timeout=60)
+    assert proc.returncode != 0
+    assert "make -C firmware" in proc.stderr and "Traceback" not in proc.stderr
+    assert len(proc.stderr.strip().splitlines()) == 1

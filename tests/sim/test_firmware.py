@@ -8,12 +8,13 @@ import re
 import shutil
 import subprocess
 import sys
+import threading
 import time
 from pathlib import Path
 
 import numpy as np
 import pytest
-from firmware_support import RawPort, bench, need_firmware
+from firmware_support import RawPort, bench, instruments, need_firmware
 
 from benchgate.instruments.framing import FrameDecoder
 from benchgate.sim.firmware import F_AVR, build_dir, find_build
@@ -145,3 +146,56 @@ def test_harness_clock_is_the_avrs_time():
 
 def test_build_dir_is_found():
     assert find_build() is not None and (build_dir() / "avr-harness").is_file()
+
+
+def test_pin_levels_convert_to_the_chips_codes():
+    from benchgate.sim.firmware import chip_code_millivolts
+
+    v = np.linspace(-0.5, 5.5, 200_001)
+    mv = chip_code_millivolts(v).astype(np.int64)
+    simavr = mv * 1023 // 5000  # simavr 1.6's conversion of an ADC pin given in mV
+    chip = np.clip(np.rint(v / 5.0 * 1024), 0, 1023)  # ATmega328P datasheet: ADC = Vin * 1024 / Vref
+    np.testing.assert_array_equal(simavr, chip)
+
+
+def test_a_dead_harness_never_hangs_the_bench_clock():
+    with bench("firmware") as vb:
+        vb.device.disconnect()  # the harness is gone: the clock goes on at the ceiling
+        done = threading.Event()
+        threading.Thread(target=lambda: (vb.clock.sleep(0.2), done.set()), daemon=True).start()
+        assert done.wait(timeout=10)
+        assert not vb.device.running
+
+
+def test_the_clock_states_the_speed_it_achieves():
+    # a ceiling far above what simavr manages while streaming: the clock must not claim it
+    with bench("firmware", speed=1000.0) as vb, RawPort(vb) as port:
+        port.command("RATE 50000", "OK RATE")
+        port.send("START 0 1")
+        wall_end = time.monotonic() + 1.5
+        while time.monotonic() < wall_end:  # stream for 1.5 s of wall time, reading as it comes
+            port.read_more()
+            port.buf.clear()
+            speed = vb.clock.speed
+        port.send("STOP")
+        port.until(b"OK STOP\n")
+    assert vb.clock.ceiling == 1000.0
+    assert 0 < speed < 500.0
+
+
+def test_disconnect_mid_capture_is_one_error_with_the_partial_record():
+    from benchgate.errors import InstrumentDisconnected
+
+    with bench("firmware", serial="OH-0009") as vb, instruments(vb) as opened:
+        def pull():
+            vb.clock.sleep(0.3)
+            vb.faults.disconnect_adc()
+
+        puller = threading.Thread(target=pull)
+        puller.start()
+        try:
+            with pytest.raises(InstrumentDisconnected) as err:
+                opened["adc"].capture("out", duration=2.0, rate=20_000)
+        finally:
+            puller.join()
+    assert err.value.partial is not None and 0 < err.value.partial.n < 40_000

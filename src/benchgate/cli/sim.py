@@ -22,6 +22,11 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
                    help="virtual seconds per wall-clock second (default 1)")
     p.add_argument("--protocol", choices=("framed", "lines"), default="framed",
                    help="serial ADC protocol (default framed)")
+    p.add_argument("--adc", choices=("python", "firmware", "auto"), default="python",
+                   help="who serves the serial ADC: the Python device model (default), the reference "
+                   "firmware running on simavr (needs 'make -C firmware'; --speed is then a ceiling, "
+                   "the bench runs on the AVR's clock), or auto (the firmware when it is built); "
+                   "the station file is the same")
     p.add_argument("--write-station", default=None, metavar="FILE",
                    help="also write the station file here")
     p.add_argument("--json", action="store_true", help="print one JSON object instead of text")
@@ -51,7 +56,7 @@ def run(args) -> int:
         previous[sig] = signal.signal(sig, _stop)
     try:
         with UnderstudyBench(args.board, speed=args.speed, protocol=args.protocol,
-                          serial=args.serial, defect=args.defect) as vb:
+                             serial=args.serial, defect=args.defect, adc_device=args.adc) as vb:
             station = vb.station_path
             if args.write_station:
                 try:
@@ -71,11 +76,12 @@ def run(args) -> int:
                     "defect": args.defect,
                     "speed": args.speed,
                     "protocol": args.protocol,
+                    "adc_device": vb.adc_device,
                 }))
             else:
                 defect = args.defect or "no defect"
                 print(f"understudy bench: {vb.board.name}, unit {args.serial} ({defect}), speed {args.speed:g}x")
-                print(f"  serial ADC   {vb.serial_port}  ({args.protocol})")
+                print(f"  serial ADC   {vb.serial_port}  ({args.protocol}; {vb.adc_note.split(': ', 1)[1]})")
                 for role, res in resources.items():
                     print(f"  {role:<12} {res}")
                 print(f"  station file {station}")

@@ -126,7 +126,8 @@ def run_demo(*, units: int = 14, speed: float = 4.0, reports_dir: Path | None = 
     reports_dir.mkdir(parents=True, exist_ok=True)
     lot_units = make_lot(units, lot, defects("tb3"))
     workdir = tempfile.mkdtemp(prefix="benchgate-demo-")
-    with bench_module.UnderstudyBench("tb3", speed=speed, workdir=workdir) as vb:
+    # the serial ADC: the reference firmware on simavr when its harness is built (sim.firmware)
+    with bench_module.UnderstudyBench("tb3", speed=speed, workdir=workdir, adc_device="auto") as vb:
         station = load_station(vb.station_path)
         note = lot_note(len(lot_units), defects("tb3"))
         if on_start is not None and note is not None:
@@ -134,7 +135,7 @@ def run_demo(*, units: int = 14, speed: float = 4.0, reports_dir: Path | None = 
         if on_start is not None:
             on_start(f"understudy bench up: ADC on {vb.serial_port}, supply at {vb.resources['supply']}; "
                      f"plan {plan.id} v{plan.version}; lot {lot}, {len(lot_units)} units; "
-                     f"time runs x{speed:g}")
+                     f"time runs x{speed:g}; {vb.adc_note}")
         options = RunOptions(operator="demo", lot=lot, reports_dir=reports_dir, unattended=True,
                              accept_hazards=True, clock=vb.clock, ui="quiet",
                              extra_flags={"demo": True, "clock_speed": speed})

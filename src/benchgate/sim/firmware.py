@@ -84,21 +84,51 @@ def require_build(baud: int = DEFAULT_BAUD) -> FirmwareBuild:
     return build
 
 
+AVCC_MV = 5000  # the harness's AVcc, the firmware's ADC reference
+
+
+def chip_code_millivolts(volts: np.ndarray) -> np.ndarray:
+    """Whole-mV pin levels that simavr's ADC converts to the codes a real ATmega328P gives for
+    ``volts`` (see :meth:`FirmwareAdcDevice.millivolts`)."""
+    codes = np.clip(np.rint(np.asarray(volts, dtype=np.float64) / (AVCC_MV / 1000) * 1024), 0, 1023)
+    return np.ceil(codes * AVCC_MV / 1023).astype("<u2")
+
+
 class HarnessClock:
     """Bench time = the AVR's cycles / crystal frequency, read from the harness's clock page.
 
-    ``speed`` is the ceiling the harness is paced to (what deadlines are scaled by); the
-    achieved speed is :meth:`measured_speed`. Once the harness has exited the clock goes on at
-    ``speed`` from where it stopped, so no wait can hang on a dead harness.
+    :attr:`ceiling` is the speed the harness is paced to; :attr:`speed` is what it achieves,
+    over the last second or so of wall time (never above the ceiling), so whoever scales a
+    deadline by it (the serial driver's wall-clock backstops) is told the truth;
+    :meth:`measured_speed` is the average since start. Once the harness has exited the clock
+    goes on at the ceiling from where it stopped, so no wait can hang on a dead harness.
     """
+
+    WINDOW = 1.0  # wall seconds over which speed is measured
 
     def __init__(self, page: mmap.mmap, crystal_hz: float, speed: float):
         self._page = page
         self.crystal_hz = float(crystal_hz)
-        self.speed = float(speed) if speed > 0 else 1e6
+        self.ceiling = float(speed) if speed > 0 else 1e6
         self._lock = threading.Lock()
         self._dead_at: tuple[float, float] | None = None  # (bench time, wall time) at exit
         self._wall0: float | None = None
+        self._marks: list[tuple[float, float]] = []  # (wall, bench), a few per WINDOW
+        self.alive = lambda: True  # the device tells whether the harness process still runs
+
+    @property
+    def speed(self) -> float:
+        wall, bench = time.monotonic(), self.monotonic()
+        with self._lock:
+            marks = self._marks
+            if not marks or wall - marks[-1][0] >= self.WINDOW / 4:
+                marks.append((wall, bench))
+                while len(marks) > 2 and wall - marks[1][0] >= self.WINDOW:
+                    del marks[0]
+            w0, b0 = marks[0]
+        if wall - w0 < self.WINDOW / 2 or self._dead_at is not None:
+            return self.ceiling
+        return max(min((bench - b0) / (wall - w0), self.ceiling), self.ceiling / 100)
 
     def cycles(self) -> int:
         while True:
@@ -108,7 +138,7 @@ class HarnessClock:
                 return a
 
     def _running(self) -> bool:
-        return struct.unpack_from("<Q", self._page, 8 * STATE)[0] == 1
+        return struct.unpack_from("<Q", self._page, 8 * STATE)[0] == 1 and self.alive()
 
     def started(self) -> None:
         self._wall0 = time.monotonic()
@@ -121,7 +151,7 @@ class HarnessClock:
             if self._dead_at is None:
                 self._dead_at = (t, time.monotonic())
             t0, w0 = self._dead_at
-        return t0 + (time.monotonic() - w0) * self.speed
+        return t0 + (time.monotonic() - w0) * self.ceiling
 
     def sleep(self, seconds: float) -> None:
         if not seconds > 0:
@@ -131,7 +161,7 @@ class HarnessClock:
             left = target - self.monotonic()
             if left <= 0:
                 return
-            time.sleep(min(0.005, max(left / self.speed, 0.0002)))
+            time.sleep(min(0.005, max(left / self.ceiling, 0.0002)))
 
     def measured_speed(self) -> float | None:
         """Bench seconds per wall second since the harness started (None before)."""
@@ -274,6 +304,8 @@ class FirmwareAdcDevice:
         finally:
             os.close(master)
             theirs.close()
+        proc = self._proc
+        self.clock.alive = lambda: proc.poll() is None
         threading.Thread(target=self._drain_stderr, name="avr-harness stderr", daemon=True).start()
         self._thread = threading.Thread(target=self._serve, name=f"avr-harness link {self.port}", daemon=True)
         self._thread.start()
@@ -364,10 +396,15 @@ class FirmwareAdcDevice:
 
     def millivolts(self, pin: int, t0: int, step: int, n: int) -> np.ndarray:
         """Input of analog pin ``pin`` at AVR cycles ``t0 + k·step`` (k < n), in whole millivolts
-        (simavr's input unit), clipped to 0 V below."""
+        (simavr's input unit).
+
+        simavr converts ``mV × 1023 // 5000`` where the chip converts ``V × 1024 / 5 V`` (datasheet
+        formula; rounded, with the ideal half-LSB offset, as the Python device model quantises);
+        the pin gets the smallest whole-mV level that simavr converts to the chip's code, so the
+        firmware reads what a real ATmega328P would read."""
         t = (t0 + step * np.arange(n, dtype=np.float64)) / self.crystal_hz
         if pin < len(PIN_CHANNELS):
             v = self.adc.voltages(PIN_CHANNELS[pin], t) + self._rng.normal(0.0, self.adc.noise, size=n)
         else:
             v = np.zeros(n)
-        return np.clip(np.rint(v * 1000.0), 0, 65535).astype("<u2")
+        return chip_code_millivolts(v)
