@@ -16,10 +16,10 @@
  *   it cannot keep up, the bench clock simply runs slower: it never sprints to catch up.
  * - D4 (fixture power) is reported to the Python side; D5 is held low with --lines.
  */
+#define _GNU_SOURCE /* ppoll */
 #include <errno.h>
 #include <getopt.h>
 #include <poll.h>
-#include <sched.h>
 #include <signal.h>
 #include <stdint.h>
 #include <stdio.h>
@@ -43,6 +43,8 @@
 #define GRID_TOL 8            /* cycles: a conversion start may trail its timer tick by the ISR latency */
 #define CHUNK_CYCLES 4000     /* 250 us of AVR time between host I/O and pacing */
 #define MAX_LAG_S 0.02        /* behind by more than this (wall), the pace restarts from now */
+
+static double wall_s(void);
 
 static avr_t *avr;
 static link_t lnk;
@@ -130,6 +132,7 @@ typedef struct {
 static pin_cache_t pins[NPINS];
 static int link_broken;
 static uint64_t volt_requests, run_calls;
+static double link_wait; /* wall seconds spent waiting for the Python side */
 
 /* Follow the pin's starts: a run of evenly spaced starts (within 25 %) gives the grid step,
    averaged from the run's first start, so the ISR's entry jitter does not accumulate. */
@@ -180,11 +183,13 @@ static uint16_t pin_voltage(int ch, uint64_t now)
         step = 1;
     }
     link_publish(&lnk, now);
+    double w0 = wall_s();
     if (!link_broken && link_volts(&lnk, (uint8_t)ch, now, step, n, p->mv)) {
         link_broken = 1;
         fprintf(stderr, "avr-harness: the Python side closed the link\n");
     }
     volt_requests++;
+    link_wait += wall_s() - w0;
     p->valid = !link_broken;
     p->t0 = now;
     p->step = step;
@@ -245,6 +250,8 @@ static void no_sleep(avr_t *a, avr_cycle_count_t how_long)
     (void)a;
     (void)how_long; /* time is paced by the main loop, not by usleep inside the core */
 }
+
+static double wall_start;
 
 static double wall_s(void)
 {
@@ -341,6 +348,7 @@ int main(int argc, char **argv)
         avr_ioctl(avr, AVR_IOCTL_IOPORT_SET_EXTERNAL('D'), &jumper);
     }
 
+    wall_start = wall_s();
     link_set(&lnk, PAGE_STATE, 1);
     link_publish(&lnk, 0);
     {
@@ -353,16 +361,19 @@ int main(int argc, char **argv)
             if (rate > 0) {
                 double w = wall_s();
                 double target = (double)cycle0 + (w - wall0) * rate;
-                if ((double)now > target) { /* ahead of the pace: wait for the host or the time */
+                if ((double)now > target) { /* ahead of the pace: sleep until then or the host writes */
                     double ahead = ((double)now - target) / rate;
                     struct pollfd pf = {pty_fd, POLLIN, 0};
-                    int ms = (int)(ahead * 1000.0);
+                    struct timespec ts;
+                    if (ahead > 0.005)
+                        ahead = 0.005;
+                    if (ahead < 50e-6)
+                        ahead = 50e-6; /* never spin: the Python side needs the cores */
+                    ts.tv_sec = 0;
+                    ts.tv_nsec = (long)(ahead * 1e9);
                     if (pump_pty())
                         break;
-                    if (ms > 0)
-                        poll(&pf, 1, ms > 5 ? 5 : ms);
-                    else
-                        sched_yield();
+                    ppoll(&pf, 1, &ts, NULL);
                     continue;
                 }
                 if (target - (double)now > MAX_LAG_S * rate) { /* too slow: restart the pace here */
@@ -393,9 +404,10 @@ int main(int argc, char **argv)
         }
     out:
         link_set(&lnk, PAGE_STATE, 2);
-        fprintf(stderr, "avr-harness: %.3f s of AVR time, %llu steps, %llu voltage blocks, "
-                "%llu bytes dropped\n", (double)avr->cycle / (double)F_AVR, (unsigned long long)run_calls,
-                (unsigned long long)volt_requests, (unsigned long long)out_dropped);
+        fprintf(stderr, "avr-harness: %.3f s of AVR time in %.3f s, %llu steps, %llu voltage blocks "
+                "(%.3f s waiting for them), %llu bytes dropped\n", (double)avr->cycle / (double)F_AVR,
+                wall_s() - wall_start, (unsigned long long)run_calls, (unsigned long long)volt_requests,
+                link_wait, (unsigned long long)out_dropped);
         return rc;
     }
 }

@@ -14,7 +14,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from firmware_support import RawPort, bench, instruments, need_firmware
+from firmware_support import ON_CI, RawPort, bench, instruments, need_firmware
 
 from benchgate.instruments.framing import FrameDecoder
 from benchgate.sim.firmware import F_AVR, build_dir, find_build
@@ -46,6 +46,8 @@ def run_sets(port: RawPort, start: str) -> tuple[FrameDecoder, list]:
 
 def test_build_reports_flash_and_ram_within_the_chip(tmp_path):
     if shutil.which("avr-gcc") is None:
+        if ON_CI:
+            pytest.fail("CI builds the firmware: avr-gcc must be installed (.ci/run)")
         pytest.skip("avr-gcc is not installed")
     out = subprocess.run(["make", "-C", str(FIRMWARE), f"BUILD={tmp_path}", "firmware"], capture_output=True,
                          text=True, check=True).stdout
