@@ -201,3 +201,21 @@ def test_disconnect_mid_capture_is_one_error_with_the_partial_record():
         finally:
             puller.join()
     assert err.value.partial is not None and 0 < err.value.partial.n < 40_000
+
+
+def test_auto_takes_the_firmware_when_built_and_says_which(monkeypatch, tmp_path):
+    from benchgate.sim.bench import UnderstudyBench
+
+    with UnderstudyBench("tb3", adc_device="auto") as ub:
+        assert ub.adc_device == "firmware" and "reference firmware" in ub.adc_note
+        firmware_station = ub.station_text().split("instruments:")[1]
+    monkeypatch.setenv("BENCHGATE_FIRMWARE_BUILD", str(tmp_path / "not-built"))
+    with UnderstudyBench("tb3", adc_device="auto") as ub:
+        assert ub.adc_device == "python"
+        assert "Python device model" in ub.adc_note and "make -C firmware" in ub.adc_note
+        python_station = ub.station_text().split("instruments:")[1]
+    # the same station either way, but for the addresses of this run's ports
+    def shape(text):
+        return [line for line in text.splitlines() if "port:" not in line and "resource:" not in line]
+
+    assert shape(firmware_station) == shape(python_station)
