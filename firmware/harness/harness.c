@@ -25,6 +25,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/prctl.h>
 #include <time.h>
 #include <unistd.h>
 
@@ -305,6 +306,9 @@ int main(int argc, char **argv)
         usage();
     signal(SIGTERM, on_signal);
     signal(SIGINT, on_signal);
+    prctl(PR_SET_PDEATHSIG, SIGTERM); /* never outlive the Python side */
+    if (getppid() == 1)
+        return 1;
     signal(SIGPIPE, SIG_IGN);
     if (link_open(&lnk, link_fd, page)) {
         perror("avr-harness: clock page");

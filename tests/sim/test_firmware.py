@@ -219,3 +219,14 @@ def test_auto_takes_the_firmware_when_built_and_says_which(monkeypatch, tmp_path
         return [line for line in text.splitlines() if "port:" not in line and "resource:" not in line]
 
     assert shape(firmware_station) == shape(python_station)
+
+
+def test_a_board_that_goes_away_releases_its_fixture_relay():
+    with bench("firmware") as vb, RawPort(vb) as port:
+        assert port.command("POWER ON", "OK POWER") == "OK POWER ON"
+        assert vb.state.relay
+        vb.faults.disconnect_adc()
+        deadline = time.monotonic() + 10
+        while vb.state.relay and time.monotonic() < deadline:
+            time.sleep(0.01)  # polling an event with a deadline
+        assert not vb.state.relay

@@ -83,6 +83,7 @@ class UnderstudyBench:
         if adc_device not in ADC_DEVICES:
             raise ValueError(f"adc_device must be one of {', '.join(ADC_DEVICES)}, got {adc_device!r}")
         self.board = get_board(board)
+        first = self._draw(serial, defect)  # bad input fails here, before any process starts
         firmware = None
         if adc_device != "python":
             from benchgate.sim import firmware as fw
@@ -92,7 +93,7 @@ class UnderstudyBench:
         self.adc_device = "firmware" if firmware is not None else "python"
         self.clock = firmware.clock if firmware is not None else ScaledClock(speed)
         self.protocol = protocol
-        self.state = BenchState(self._draw(serial, defect), self.clock)
+        self.state = BenchState(first, self.clock)
         self.adc = VirtualAdc(self.state, bits=ADC_BITS, vref=ADC_VREF)
         self.backend = BoardBackend(self.state)
         self.faults = BenchFaults(self)

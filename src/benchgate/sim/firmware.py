@@ -377,6 +377,15 @@ class FirmwareAdcDevice:
         return bytes(buf)
 
     def _serve(self) -> None:
+        try:
+            self._serve_link()
+        finally:
+            # the board is gone (stopped, crashed, cable pulled): its pins float and the
+            # fixture relay, driven through D4, drops out
+            if self.state is not None and self.state.relay:
+                self.state.set_relay(False)
+
+    def _serve_link(self) -> None:
         while True:
             head = self._recv(_MSG.size)
             if head is None:
