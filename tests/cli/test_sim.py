@@ -116,7 +116,6 @@ def test_adc_served_by_the_firmware_in_the_loop(tmp_path):
         proc.send_signal(signal.SIGINT)
         out, err = proc.communicate(timeout=30)
     assert proc.returncode == 0, err
-    assert not os.path.exists(info["serial_port"])  # the harness and its pty are gone
 
 
 def test_adc_firmware_not_built_is_one_clear_error(tmp_path):

@@ -230,3 +230,17 @@ def test_a_board_that_goes_away_releases_its_fixture_relay():
         while vb.state.relay and time.monotonic() < deadline:
             time.sleep(0.01)  # polling an event with a deadline
         assert not vb.state.relay
+
+
+def test_lines_overruns_are_counted_never_hidden():
+    # ~45 kS/s of "511\n" lines need ~180 kB/s; 2 Mbaud carries ~182 kB/s in simavr, and the CPU
+    # less: whole blocks of lines are dropped, and END still counts every sample taken
+    with bench("firmware", protocol="lines") as vb, instruments(vb) as opened:
+        adc = opened["adc"]
+        adc.max_loss = 1.0
+        cap = adc.capture("out", duration=0.3, rate=45_000)
+    loss = cap.metadata["loss"]
+    n = loss["requested_samples"]  # 0.3 s at the achieved 44 943.8 S/s (16 MHz / 356)
+    assert n == 13_483 and loss["end_count"] == n and loss["unlocated"] > 0
+    assert loss["lost_samples"] >= loss["unlocated"] and cap.n + loss["lost_samples"] == n
+    assert any("cannot locate" in w for w in cap.metadata["warnings"])
