@@ -81,6 +81,17 @@ def test_supply_switched_on_mid_capture_reaches_the_circuit(device):
     assert analyze(cap, ["startup_time"]).measurements["startup_time"].valid
 
 
+@pytest.mark.parametrize("board", ["wo1", "pf2"])
+def test_the_other_boards_through_the_adc(device, board):
+    with bench(device, board=board, serial=f"{board.upper()}-1") as vb, instruments(vb) as opened:
+        power_up(opened, vb)
+        cap = opened["adc"].capture("out", duration=0.3, rate=50_000)
+    assert cap.metadata["loss"]["lost_samples"] == 0
+    f = analyze(cap, ["frequency"]).measurements["frequency"]
+    truth = vb.unit.steady_frequency()  # the circuit simulation's settled frequency
+    assert f.valid and f.value == pytest.approx(truth, rel=2e-3)  # as tests/sim/test_bench.py
+
+
 def test_lines_capture(device):
     with bench(device, protocol="lines", serial="OH-0002") as vb, instruments(vb) as opened:
         power_up(opened, vb)
