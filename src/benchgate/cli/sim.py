@@ -81,7 +81,8 @@ def run(args) -> int:
             else:
                 defect = args.defect or "no defect"
                 print(f"understudy bench: {vb.board.name}, unit {args.serial} ({defect}), speed {args.speed:g}x")
-                print(f"  serial ADC   {vb.serial_port}  ({args.protocol}; {vb.adc_note.split(': ', 1)[1]})")
+                print(f"  serial ADC   {vb.serial_port}  ({args.protocol})")
+                print(f"               served by {vb.adc_note.split(': ', 1)[1]}")
                 for role, res in resources.items():
                     print(f"  {role:<12} {res}")
                 print(f"  station file {station}")

@@ -135,8 +135,8 @@ class UnderstudyBench:
     def adc_note(self) -> str:
         """One line saying who serves the serial ADC (for the demo and ``benchgate sim``)."""
         if self.adc_device == "firmware":
-            return ("serial ADC: the reference firmware on simavr (firmware in the loop; the bench "
-                    "clock is the AVR's, so the speed is a ceiling)")
+            return ("serial ADC: the reference firmware on simavr; the bench clock is the AVR's, "
+                    "so the speed is a ceiling")
         from benchgate.sim.firmware import find_build
 
         why = "" if find_build() is not None else " (firmware harness not built: make -C firmware)"
