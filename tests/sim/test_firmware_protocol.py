@@ -55,7 +55,7 @@ def test_framed_capture_matches_the_circuit_within_its_u(device):
         power_up(opened, vb)
         cap = opened["adc"].capture("out", duration=0.5, rate=50_000)
     assert cap.n == 25_000 and cap.sample_rate == 50_000.0
-    assert cap.metadata["loss"]["lost_samples"] == 0 and cap.metadata["loss"]["end_frame"]
+    assert cap.metadata["loss"]["lost_samples"] == 0  # (the host stops reading at n sets: END may not be in)
     m = analyze(cap, ["frequency", "amplitude"]).measurements
     f = m["frequency"]
     assert f.valid and f.uncertainty is not None
