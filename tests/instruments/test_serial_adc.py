@@ -353,3 +353,28 @@ def test_close_during_a_capture_stops_it(clock):
         adc.close()  # e.g. the operator aborted the run: the bench closes under the capture
         worker.join(10)
         assert "capture aborted" in result["error"].message
+
+
+def test_a_stalled_host_never_makes_a_correct_device_look_fast():
+    # A device at exactly 50 kS/s whose samples reach a busy host late: nothing for 0.3 s, then
+    # everything taken so far in one burst, then on time again. Causality (a sample cannot arrive
+    # before it is taken; common practice, no source) bounds the device's rate from below at or
+    # under the truth, while the segment-median arrival estimate is fooled by the burst.
+    from benchgate.instruments._serial_port import arrival_rate, least_rate
+
+    rate, t0 = 50_000.0, 10.0
+    points = []
+    for k in range(1, 101):  # one host read every 10 ms over 1 s
+        t = t0 + 0.01 * k
+        taken = int(0.01 * k * rate)
+        if 0.2 < t - t0 < 0.5:
+            continue  # the host was busy: no read at all
+        points.append((t + 0.0005, taken))  # 0.5 ms transport delay
+    points.append((t0 + 0.5, int(0.5 * rate)))  # the catch-up burst, read at 0.5 s
+    points.sort()
+    assert least_rate(points, t0) <= rate
+    # a starved host: a few reads on time, then 90 % of the record arrives in 40 reads 1 ms apart
+    burst = [(t0 + 0.01 * k, 500 * k) for k in range(1, 11)]
+    burst += [(t0 + 0.96 + 0.001 * i, 5_000 + 1_125 * i) for i in range(1, 41)]
+    assert least_rate(burst, t0) <= rate  # a long stall, then almost everything at once
+    assert arrival_rate(burst, rate) > 1.05 * rate  # what the median estimate made of it

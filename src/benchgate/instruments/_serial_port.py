@@ -80,6 +80,22 @@ def arrival_rate(points: list[tuple[float, int]], declared: float) -> float | No
     return float(np.median(rates)) if rates else None
 
 
+def least_rate(points: list[tuple[float, int]], since: float, min_count: int = 64) -> float | None:
+    """The lowest sample rate the device must have had: max over (t, c) of (c - 1)/(t - since).
+
+    A device cannot deliver its c-th sample sooner than (c - 1) sample periods after it was told
+    to start at ``since``; transport and host delays only make arrivals later. So this is a
+    lower bound on the device's true rate that no stall or catch-up burst can raise. Points
+    with fewer than ``min_count`` samples are left out (the clock's resolution matters there).
+    """
+    best = None
+    for t, c in points:
+        if c >= min_count and t > since:
+            r = (c - 1) / (t - since)
+            best = r if best is None or r > best else best
+    return best
+
+
 class SerialPort:
     """An open serial port with a line buffer. Not thread-safe: one owner thread uses it."""
 

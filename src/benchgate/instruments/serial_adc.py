@@ -25,7 +25,7 @@ from benchgate.clock import Clock, SystemClock
 from benchgate.errors import InstrumentDisconnected, InstrumentError
 from benchgate.instruments import serial_options
 from benchgate.instruments._looks import Looks
-from benchgate.instruments._serial_port import SerialPort, arrival_rate
+from benchgate.instruments._serial_port import SerialPort, arrival_rate, least_rate
 from benchgate.instruments.framing import FrameDecoder, encode_frame
 from benchgate.instruments.options import OptionSpec
 from benchgate.instruments.serial_lines import LinesDecoder
@@ -221,6 +221,7 @@ class SerialAdc:
             self.bits, timestamps=timestamps, skip_first=self.free_running, expect_end=not self.free_running)
         state = _Progress(n)
         t_start = self.clock.monotonic()
+        state.commanded_at = None if self.free_running else t_start
         if self.free_running:
             port.flush_input()  # start at the next line boundary, with nothing stale
         else:
@@ -342,7 +343,21 @@ class SerialAdc:
         wall = span / (getattr(self.clock, "speed", 1.0) or 1.0)
         checkable = measured is not None and wall >= MIN_CHECK_WALL and len(state.points) >= MIN_CHECK_POINTS
         warnings: list[str] = []
-        if measured is not None and checkable and complete and abs(measured / declared - 1) > RATE_TOLERANCE:
+        if state.commanded_at is not None and complete:
+            # too fast is decided causally: a sample cannot arrive before it was taken, so a device
+            # at the declared rate cannot have delivered c samples sooner than (c - 1)/rate after
+            # START was sent. A busy host only ever delays arrivals (and their catch-up burst keeps
+            # the bound), so load can never make a correct device look fast here.
+            fastest = least_rate(state.points, state.commanded_at)
+            if fastest is not None and fastest > declared * (1 + RATE_TOLERANCE):
+                raise InstrumentError(self.name, f"adc on {self.address} declares {declared:.6g} Hz but "
+                                                 f"samples arrived at no less than {fastest:.6g} Hz by the "
+                                                 f"host clock ({100 * (fastest / declared - 1):+.1f} %, limit "
+                                                 f"±{100 * RATE_TOLERANCE:.0f} %); capture refused")
+            too_far = measured is not None and measured < declared * (1 - RATE_TOLERANCE)
+        else:
+            too_far = measured is not None and abs(measured / declared - 1) > RATE_TOLERANCE
+        if measured is not None and checkable and complete and too_far:
             raise InstrumentError(self.name, f"adc on {self.address} declares {declared:.6g} Hz but samples "
                                              f"arrived at {measured:.6g} Hz by the host clock "
                                              f"({100 * (measured / declared - 1):+.1f} %, limit "
@@ -411,6 +426,7 @@ class _Progress:
         self.count = 0
         self.index = 0
         self.points: list[tuple[float, int]] = []
+        self.commanded_at: float | None = None  # clock time START was sent (None: free-running)
         self.last_point_index = 0
         self.periods: set[int] = set()
         self.gaps: list[tuple[int, int]] = []
