@@ -106,6 +106,16 @@ def ubench(tmp_path):
         yield vb
 
 
+@pytest.fixture
+def ubench_real_time(tmp_path):
+    # For runs whose own clock is real time (no --clock-speed): the bench must run in real time
+    # too, or its ADC truly delivers faster than it declares and the capture is refused.
+    from benchgate.sim.bench import UnderstudyBench
+
+    with UnderstudyBench("tb3", speed=1.0, workdir=tmp_path / "vb") as vb:
+        yield vb
+
+
 def bg(*args, env=None, **kw):
     """``benchgate`` as a separate process (the way an operator or a CI job starts it)."""
     full_env = {k: v for k, v in os.environ.items() if k != "CI"}
@@ -193,18 +203,18 @@ def test_batch_reads_serials_until_empty_line(ubench, tmp_path):
     assert sorted(r[0] for r in rows(tmp_path / "r" / "results.sqlite")) == ["OH-B-1", "OH-B-2"]
 
 
-def test_sigint_aborts_with_report_supply_off_and_complete_row(ubench, tmp_path):
-    ubench.load_unit("OH-INT-1")
+def test_sigint_aborts_with_report_supply_off_and_complete_row(ubench_real_time, tmp_path):
+    ubench_real_time.load_unit("OH-INT-1")
     events = tmp_path / "ev.jsonl"
     # the run's own clock is real time here, so the 2 s warm-up leaves room to interrupt it
-    proc = bg("run", TB3, "--station", ubench.station_path, "--serial", "OH-INT-1", "--unattended",
+    proc = bg("run", TB3, "--station", ubench_real_time.station_path, "--serial", "OH-INT-1", "--unattended",
               "--reports", tmp_path / "r", "--events", events, stdin=subprocess.DEVNULL)
     wait_for_event(events, "step_started", "warm-up", proc)
-    assert ubench.supply_output is True  # the unit is powered while it warms up
+    assert ubench_real_time.supply_output is True  # the unit is powered while it warms up
     proc.send_signal(signal.SIGINT)
     out, err = proc.communicate(timeout=60)
     assert proc.returncode == 130, (out, err)
-    assert ubench.supply_output is False
+    assert ubench_real_time.supply_output is False
     (row,) = rows(tmp_path / "r" / "results.sqlite")
     assert row[:3] == ("OH-INT-1", 1, "aborted")
     report = valid_report(row[4])
@@ -239,10 +249,10 @@ def test_sigint_during_a_capture_switches_off_and_aborts(tmp_path):
     assert report["steps"][2]["status"] == "aborted" and "power-on" in report["reason"]
 
 
-def test_second_sigint_during_cleanup_still_leaves_supply_off(ubench, tmp_path):
-    ubench.load_unit("OH-INT-2")
+def test_second_sigint_during_cleanup_still_leaves_supply_off(ubench_real_time, tmp_path):
+    ubench_real_time.load_unit("OH-INT-2")
     events = tmp_path / "ev.jsonl"
-    proc = bg("run", TB3, "--station", ubench.station_path, "--serial", "OH-INT-2", "--unattended",
+    proc = bg("run", TB3, "--station", ubench_real_time.station_path, "--serial", "OH-INT-2", "--unattended",
               "--reports", tmp_path / "r", "--events", events, stdin=subprocess.DEVNULL)
     wait_for_event(events, "step_started", "warm-up", proc)
     proc.send_signal(signal.SIGINT)
@@ -255,15 +265,15 @@ def test_second_sigint_during_cleanup_still_leaves_supply_off(ubench, tmp_path):
             break
     out, err = proc.communicate(timeout=60)
     assert proc.returncode == 130, (out, err)
-    assert ubench.supply_output is False
+    assert ubench_real_time.supply_output is False
     (row,) = rows(tmp_path / "r" / "results.sqlite")
     assert row[1:3] == (1, "aborted")
 
 
-def test_kill_9_leaves_an_incomplete_row(ubench, tmp_path, capsys):
-    ubench.load_unit("OH-KILL-1")
+def test_kill_9_leaves_an_incomplete_row(ubench_real_time, tmp_path, capsys):
+    ubench_real_time.load_unit("OH-KILL-1")
     events = tmp_path / "ev.jsonl"
-    proc = bg("run", TB3, "--station", ubench.station_path, "--serial", "OH-KILL-1", "--unattended",
+    proc = bg("run", TB3, "--station", ubench_real_time.station_path, "--serial", "OH-KILL-1", "--unattended",
               "--reports", tmp_path / "r", "--events", events, stdin=subprocess.DEVNULL)
     wait_for_event(events, "step_started", "warm-up", proc)
     proc.kill()
