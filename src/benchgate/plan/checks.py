@@ -140,7 +140,7 @@ def _parse_window(c: PlanCollector, node: YNode, path: str, measurement: str, un
                     "toleranced parts, or share one from_circuit between checks with a YAML anchor")
         return None
     try:
-        d = _analyse(circuit, measurement, unit, mc, given)
+        d = _analyze(circuit, measurement, unit, mc, given)
     except ValueError as exc:
         c.error(fc, f"{path}.from_circuit: {exc}")
         return None
@@ -166,14 +166,14 @@ def _key(circuit: derive.Circuit, measurement: str, unit: str, mc: dict[str, Any
             measurement, unit, mc["draws"], mc["seed"], mc["distribution"], win)
 
 
-def _analyse(circuit: derive.Circuit, measurement: str, unit: str, mc: dict[str, Any],
+def _analyze(circuit: derive.Circuit, measurement: str, unit: str, mc: dict[str, Any],
              given: Window | None) -> derive.Derivation:
     win = None if given is None else (given.low, given.high)
     key = _key(circuit, measurement, unit, mc, given)
     if key not in _CACHE:
         if len(_CACHE) >= _CACHE_MAX:
             _CACHE.clear()
-        _CACHE[key] = derive.analyse(circuit, measurement, draws=mc["draws"], seed=mc["seed"],
+        _CACHE[key] = derive.analyze(circuit, measurement, draws=mc["draws"], seed=mc["seed"],
                                      distribution=mc["distribution"], window=win, unit=unit)
     return _CACHE[key]
 

@@ -3,7 +3,7 @@
 Plot data (cycles, envelope, spectrum, fundamental, harmonics, steady part, start-up instant)
 comes from :class:`benchgate.analysis.views.CaptureViews`, computed once with the measurements
 and carried in the run record; drawing is :mod:`benchgate.report.svg`. Only a record from before
-views were kept is analysed again (:func:`views_of`). A figure that cannot be drawn says why
+views were kept is analyzed again (:func:`views_of`). A figure that cannot be drawn says why
 instead of breaking the report.
 """
 
@@ -60,7 +60,7 @@ def capture_figures(views: CaptureViews | Capture | None, checks: Iterable[Check
     Parameters
     ----------
     views : CaptureViews
-        The capture's plot data from its analysis (a bare ``Capture`` is analysed here, for
+        The capture's plot data from its analysis (a bare ``Capture`` is analyzed here, for
         records that kept no views).
     checks : iterable of CheckRecord
         The step's checks: a valid ``startup_time`` check gives the start-up instant drawn

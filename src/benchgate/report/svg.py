@@ -219,7 +219,7 @@ def envelope(t: Sequence[float], low: Sequence[float], high: Sequence[float], *,
         ax.add(f'<rect x="{x:.1f}" y="{ax.y1}" width="{ax.x1 - x:.1f}" height="{ax.y0 - ax.y1}" '
                'fill="#e8f1f7" opacity="0.8"/>')
         ax.add(f'<text x="{ax.x1}" y="{ax.y1 - 9}" text-anchor="end" fill="{MUTED}">'
-               'shaded: steady part (analysed)</text>')
+               'shaded: steady part (analyzed)</text>')
     pts = [f"{ax.px(a):.1f},{ax.py(b):.1f}" for a, b in zip(t, hi, strict=True)]
     pts += [f"{ax.px(a):.1f},{ax.py(b):.1f}" for a, b in zip(t[::-1], lo[::-1], strict=True)]
     ax.add(f'<polygon points="{" ".join(pts)}" fill="{FILL}" stroke="{TRACE}" stroke-width="0.8"/>')

@@ -2,7 +2,7 @@
 
 Step kinds: ``supply`` (set voltage / current limit / output), ``wait`` (on the injected clock),
 ``prompt`` (operator instruction or yes/no question), ``capture`` (ADC or digitizer record, saved
-at once, analysed, judged) and ``reading`` (settle, read one value, judge). ``on_fail`` and
+at once, analyzed, judged) and ``reading`` (settle, read one value, judge). ``on_fail`` and
 ``retries`` are applied here; every attempt is noted in the step's record.
 
 Instrument errors (and Ctrl-C) end the unit: the step is marked and the exception travels on to
@@ -211,7 +211,7 @@ class Executor:
         warnings: list[str] = []
         views = None
         try:
-            # the views (plot data) come from this one analysis: the report does not analyse again
+            # the views (plot data) come from this one analysis: the report does not analyze again
             analysis = self.analyze(capture, names, harmonics=step.harmonics, views=True)
             measurements = analysis.measurements
             warnings = list(analysis.warnings)

@@ -9,7 +9,7 @@ import pytest
 from numpy.testing import assert_allclose
 from scipy.optimize import brentq
 
-from benchgate.plan.circuits import colpitts, hartley, rc_ladder, timer_astable, wien_bridge
+from benchgate.plan.network import colpitts, hartley, rc_ladder, timer_astable, wien_bridge
 
 
 def _nodal_transfer(w: float, R, C, form: str, source: float, load: float) -> complex:

@@ -1,4 +1,4 @@
-"""Oscillator circuits the plan format knows, computed numerically (vectorised over parts).
+"""Network analysis of the oscillator circuits the plan format knows, numerically (vectorised over parts).
 
 Every function takes numpy arrays of component values in SI units (Ω, F, H), all of the same
 shape (one element per corner or Monte Carlo draw), and returns arrays of the same shape.
