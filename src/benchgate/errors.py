@@ -21,7 +21,7 @@ any layer may raise its classes.
     ├── InstrumentError           an instrument, by name (and its error-queue entry)
     │   ├── InstrumentDisconnected
     │   └── ScpiQueueError        error-queue entries, attributed to the command that caused them
-    ├── CaptureError              a capture file or record
+    ├── CaptureError              a capture file or a capture's samples
     ├── PreflightError            a run refused before anything was touched
     │   └── StationBusy           another run holds the station
     ├── StepError                 a step that cannot go on
@@ -230,7 +230,7 @@ class ScpiQueueError(InstrumentError):
 
 
 class CaptureError(BenchgateError):
-    """A capture file or record that cannot be read or used, naming the file (and line)."""
+    """A capture file or a capture's samples that cannot be read or used, naming the file (and line)."""
 
     def __init__(self, message: str, file: str | None = None, line: int | None = None):
         super().__init__(message)

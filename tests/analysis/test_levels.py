@@ -156,7 +156,7 @@ class TestWholeCycleEnds:
         assert abs(m.value - 1.65) < 1e-9
 
     def test_dc_offset_covers_at_high_snr(self):
-        # handbook: mean of the record = C; coverage of U at k = 2 about 95 % (JCGM 100:2008)
+        # handbook: mean of the capture = C; coverage of U at k = 2 about 95 % (JCGM 100:2008)
         rng = np.random.default_rng(11)
         inside = []
         for _ in range(40):

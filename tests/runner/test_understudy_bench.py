@@ -161,7 +161,7 @@ def test_adc_disconnect_mid_capture(plan, tmp_path):
     assert rec.verdict == Verdict.ERROR and outcome.exit_code == 3
     assert "disconnected" in rec.reason and rec.reason.startswith("adc")
     power_on = rec.steps[2]
-    assert power_on.status == "error" and power_on.capture is not None  # the partial record is kept
+    assert power_on.status == "error" and power_on.capture is not None  # the partial capture is kept
     assert outcome.paths["capture:power-on"].exists() and outcome.paths["json"].exists()
     assert [s.status for s in rec.steps[3:]] == ["skipped"] * 4
     conn = sqlite3.connect(options.database)

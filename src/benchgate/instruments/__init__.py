@@ -65,7 +65,7 @@ class Bench:
         return inst
 
     def recorder(self, role: str) -> Recorder:
-        """The instrument open as ``role``, checked to record waveforms (an ADC or a digitizer)."""
+        """The instrument open as ``role``, checked to capture waveforms (an ADC or a digitizer)."""
         from benchgate.instruments.base import Recorder
 
         inst = self[role]

@@ -48,7 +48,7 @@ class Instrument(Protocol):
 
 @runtime_checkable
 class Recorder(Instrument, Protocol):
-    """Anything that records a waveform of one channel into a :class:`Capture`."""
+    """Anything that captures a waveform of one channel into a :class:`Capture`."""
 
     def capture(self, channel: str, *, duration: float, rate: float | None = None,
                 progress: Progress | None = None) -> Capture:
@@ -61,7 +61,7 @@ class Recorder(Instrument, Protocol):
 
 @runtime_checkable
 class Adc(Recorder, Protocol):
-    """Serial ADC streamer: the record starts when samples start arriving."""
+    """Serial ADC streamer: the capture starts when samples start arriving."""
 
     channels: tuple[str, ...]
 

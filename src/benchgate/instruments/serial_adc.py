@@ -253,7 +253,7 @@ class SerialAdc:
             if looker is not None:
                 looker.close()
         capture = self._build(channel, state, actual, decoder, n, complete=True)
-        if capture is None:  # only a partial record can be empty
+        if capture is None:  # only a partial capture can be empty
             raise InstrumentError(self.name, f"adc on {self.address} delivered no samples")
         return capture
 
@@ -368,11 +368,11 @@ class SerialAdc:
                                              f"({100 * fraction:.3g} %) in {len(gaps)} gap(s), more than "
                                              f"max_loss {100 * self.max_loss:.3g} %; capture refused")
         if lost:
-            warnings.append(f"{lost} samples lost in {len(gaps)} gap(s) were left out; the record is "
+            warnings.append(f"{lost} samples lost in {len(gaps)} gap(s) were left out; the capture is "
                             f"joined at those points")
         if extra.get("unlocated"):
             warnings.append(f"{extra['unlocated']} of the samples the device sent are missing at places "
-                            "lines mode cannot locate; the record is joined at its end")
+                            "lines mode cannot locate; the capture is joined at its end")
         if self.protocol == "lines" and not self.free_running and end_total is None and complete:
             warnings.append("the device sent no readable END line; the lines were counted against the "
                             f"{n} samples asked for")

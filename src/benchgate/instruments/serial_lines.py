@@ -131,7 +131,7 @@ class LinesDecoder:
     def result(self, n: int, *, complete: bool = True) -> LinesResult:
         """Place every line received on the sample index axis; ``n`` samples were asked for.
 
-        ``complete`` is False for the partial record of a capture cut short (no tail loss
+        ``complete`` is False for the partial samples of a capture cut short (no tail loss
         is counted then).
         """
         codes = np.asarray(self.codes, dtype=np.int64)

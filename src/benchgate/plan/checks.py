@@ -13,7 +13,7 @@ from benchgate.plan.fields import PlanCollector
 from benchgate.plan.limits import Window
 from benchgate.plan.model import DECISIONS
 from benchgate.units.eseries import is_preferred, nearest_preferred, series_for_tolerance
-from benchgate.units.format import format_quantity
+from benchgate.units.format import format_quantity, window_text
 from benchgate.units.tolerance import Part, Tolerance, parse_part, parse_tolerance
 
 LIMIT_KEYS = ("min", "max", "nominal", "tolerance", "from_circuit", "margin", "decision", "max_risk")
@@ -59,7 +59,7 @@ def parse_max_risk(c: PlanCollector, node: YNode, path: str) -> float | None:
 
 def _passable(c: PlanCollector, node: YNode, path: str, measurement: str, w: Window) -> Window | None:
     """``w`` when some value can pass it; an error at the limit otherwise."""
-    text = _window_text(w)
+    text = window_text(w.low, w.high, w.unit)
     if w.low is not None and w.high is not None and w.low == w.high:
         c.error(node, f"{path}: the window {text} has zero width; no measured value, which "
                       "carries an uncertainty, can be shown to lie in it")
@@ -71,13 +71,6 @@ def _passable(c: PlanCollector, node: YNode, path: str, measurement: str, w: Win
         return None
     return w
 
-
-def _window_text(w: Window) -> str:
-    if w.low is not None and w.high is not None:
-        return f"{format_quantity(w.low, w.unit)} … {format_quantity(w.high, w.unit)}"
-    if w.low is not None:
-        return f"≥ {format_quantity(w.low, w.unit)}"
-    return f"≤ {format_quantity(w.high, w.unit)}"
 
 
 def _parse_window(c: PlanCollector, node: YNode, path: str, measurement: str, unit: str,

@@ -155,7 +155,7 @@ class Adaptive:
 
 @dataclass(frozen=True, kw_only=True)
 class CaptureStep(Step):
-    """Record a waveform and judge measurements made on it."""
+    """Capture a waveform and judge measurements made on it."""
 
     kind: str = field(default="capture", metadata=_COMMON["kind"])
     instrument: str = field(default="adc", metadata=spec(
@@ -165,13 +165,13 @@ class CaptureStep(Step):
         "sample rate (Hz or S/s); absent: the instrument's default", kind="quantity", unit="Hz",
         minimum=0, maximum=1e10))
     duration: float = field(default=0.0, metadata=spec(
-        "record length (or give `samples` with `rate`)", kind="quantity", unit="s", minimum=0,
+        "capture length (or give `samples` with `rate`)", kind="quantity", unit="s", minimum=0,
         maximum=600))
     range: float | None = field(default=None, metadata=spec(
         "input range (full-scale voltage) when the recorder has ranges", kind="quantity", unit="V",
         minimum=0, maximum=1000))
     power_on: bool = field(default=False, metadata=spec(
-        "switch the supply output on right after the record starts, to capture the start-up",
+        "switch the supply output on right after the capture starts, to capture the start-up",
         kind="bool"))
     harmonics: int = field(default=10, metadata=spec(
         "harmonics summed for THD and excluded from SNR", kind="int", minimum=1, maximum=50))

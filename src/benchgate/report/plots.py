@@ -113,9 +113,9 @@ def capture_figures(views: CaptureViews | Capture | None, checks: Iterable[Check
                             y_label="level re fundamental" if fundamental else "level re largest bin")
 
     n_text = f"the last {CYCLES} cycles" if fundamental else "the end (no fundamental found)"
-    draw("waveform", f"Waveform: {n_text} of the record", wave)
-    draw("envelope", "Envelope of the whole record (min/max), start-up instant marked" if startup is not None
-         else "Envelope of the whole record (min/max); no start-up instant was measured", env)
+    draw("waveform", f"Waveform: {n_text} of the capture", wave)
+    draw("envelope", "Envelope of the whole capture (min/max), start-up instant marked" if startup is not None
+         else "Envelope of the whole capture (min/max); no start-up instant was measured", env)
     draw("spectrum", "Spectrum in dB relative to the fundamental (Blackman–Harris window), harmonics marked"
          if fundamental else "Spectrum in dB relative to its largest bin (no fundamental found)", spec)
     return figures, notes

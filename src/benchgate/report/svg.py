@@ -200,7 +200,7 @@ def waveform(t: Sequence[float], v: Sequence[float], *, label: str = "waveform",
 def envelope(t: Sequence[float], low: Sequence[float], high: Sequence[float], *, startup: float | None = None,
              steady_start: float | None = None, label: str = "envelope", unit: str = "V",
              min_span: float = 0.0, width: int = 640, height: int = 220) -> str:
-    """The whole record as a min/max band, with the start-up instant and the steady part marked.
+    """The whole capture as a min/max band, with the start-up instant and the steady part marked.
 
     ``t`` is time from the record start (s); ``startup`` and ``steady_start`` are in the same time.
     """

@@ -1,7 +1,7 @@
 """Executes a plan's steps, in order, on an open bench, filling the unit record as it goes.
 
 Step kinds: ``supply`` (set voltage / current limit / output), ``wait`` (on the injected clock),
-``prompt`` (operator instruction or yes/no question), ``capture`` (ADC or digitizer record, saved
+``prompt`` (operator instruction or yes/no question), ``capture`` (ADC or digitizer capture, saved
 at once, analyzed, judged) and ``reading`` (settle, read one value, judge). ``on_fail`` and
 ``retries`` are applied here; every attempt is noted in the step's record.
 

@@ -300,7 +300,7 @@ class EmulatedDigitizer(EmulatedInstrument):
             raise ScpiCommandError(-230, "no acquisition since the last reset")
         self._wait_done()
         order = "<f4" if self.little_endian else ">f4"
-        if self._block is None or self._block[0] != order:  # encode once per record and order
+        if self._block is None or self._block[0] != order:  # encode once per capture and order
             self._block = (order, definite_block(self._record.astype(order).tobytes()))
         return self._block[1]
 
