@@ -31,8 +31,8 @@ from benchgate.instruments.options import OptionSpec
 from benchgate.instruments.serial_lines import LinesDecoder
 
 RATE_TOLERANCE = 0.05  # declared vs host-measured arrival rate
-MIN_CHECK_WALL = 0.3  # s of wall time a capture must span before the rate check means anything
-MIN_CHECK_POINTS = 12
+MIN_VERIFY_WALL = 0.3  # s of wall time a capture must span before verifying its rate means anything
+MIN_VERIFY_POINTS = 12
 WALL_GRACE = 1.0  # s of wall time added to accelerated deadlines
 
 
@@ -341,7 +341,7 @@ class SerialAdc:
         measured = arrival_rate(state.points, declared)
         span = state.points[-1][0] - state.points[0][0] if len(state.points) > 1 else 0.0
         wall = span / (getattr(self.clock, "speed", 1.0) or 1.0)
-        checkable = measured is not None and wall >= MIN_CHECK_WALL and len(state.points) >= MIN_CHECK_POINTS
+        verifiable = measured is not None and wall >= MIN_VERIFY_WALL and len(state.points) >= MIN_VERIFY_POINTS
         warnings: list[str] = []
         if state.commanded_at is not None and complete:
             # too fast is decided causally: a sample cannot arrive before it was taken, so a device
@@ -357,7 +357,7 @@ class SerialAdc:
             too_far = measured is not None and measured < declared * (1 - RATE_TOLERANCE)
         else:
             too_far = measured is not None and abs(measured / declared - 1) > RATE_TOLERANCE
-        if measured is not None and checkable and complete and too_far:
+        if measured is not None and verifiable and complete and too_far:
             raise InstrumentError(self.name, f"adc on {self.address} declares {declared:.6g} Hz but samples "
                                              f"arrived at {measured:.6g} Hz by the host clock "
                                              f"({100 * (measured / declared - 1):+.1f} %, limit "
@@ -396,7 +396,7 @@ class SerialAdc:
             # docs/serial-protocol.md for what such a capture cannot detect
             "framing": self.protocol,
             "rate": {"declared": declared, "device_reply": actual, "host_measured": measured,
-                     "check": "ok" if checkable else f"not checked (needs {MIN_CHECK_WALL:g} s of wall time)"},
+                     "verified": "ok" if verifiable else f"not verified (needs {MIN_VERIFY_WALL:g} s of wall time)"},
             "warnings": warnings,
         }
         return Capture(samples=volts, sample_rate=declared, start_time=0.0, channel=channel,
@@ -409,7 +409,7 @@ _warm = False
 
 def _warm_up() -> None:
     """Run the decoder once before any capture: numpy's first calls cost several ms, which
-    would otherwise fall into the first frames of a capture and skew the arrival-rate check."""
+    would otherwise fall into the first frames of a capture and skew the arrival-rate verification."""
     global _warm
     if not _warm:
         frame = encode_frame(0, 20_000_000, 1, np.zeros(4, dtype=np.uint16))

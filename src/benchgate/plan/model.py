@@ -25,7 +25,7 @@ ADAPTIVE_KEYS = ("shortest", "longest", "block")
 MAX_LOOKS = 200  # re-measurements of one adaptive capture
 ON_FAIL = ("stop", "continue")
 DECISIONS = ("simple", "guarded", "risk")
-MAX_STEPS = 500  # keeps loading and `check` within a few seconds; real plans have tens
+MAX_STEPS = 500  # keeps loading and `inspect` within a few seconds; real plans have tens
 MAX_SAMPLES = 50_000_000  # samples in one capture (rate × duration)
 #: hazards a plan may declare; each needs an explicit acknowledgement before a run.
 HAZARD_NAMES = ("mains", "high_voltage", "hot_surfaces", "stored_energy", "moving_parts",
