@@ -16,7 +16,7 @@ any layer may raise its classes.
     ├── FileErrors                several FileErrors of one file, reported at once
     │   ├── PlanErrors
     │   └── StationErrors
-    ├── UnitError (ValueError)    an engineering number that cannot be read
+    ├── QuantityError (ValueError)    an engineering number that cannot be read
     │   └── NotFiniteError        NaN or infinity where a finite number is meant
     ├── InstrumentError           an instrument, by name (and its error-queue entry)
     │   ├── InstrumentDisconnected
@@ -152,11 +152,11 @@ class StationErrors(FileErrors):
 # ----------------------------------------------------------------------------- values
 
 
-class UnitError(BenchgateError, ValueError):
+class QuantityError(BenchgateError, ValueError):
     """A value that is not a number, has an unknown unit, or has the wrong dimension."""
 
 
-class NotFiniteError(UnitError):
+class NotFiniteError(QuantityError):
     """A number that is NaN or infinite (``.nan``, ``inf``, ``1e999``) where a finite one is meant."""
 
 

@@ -7,7 +7,7 @@ from typing import Any
 
 from benchgate.common.bounds import bounds_of
 from benchgate.common.yamlpos import YNode
-from benchgate.errors import UnitError
+from benchgate.errors import QuantityError
 from benchgate.plan import derive
 from benchgate.plan.fields import PlanCollector
 from benchgate.plan.limits import Window
@@ -147,7 +147,7 @@ def _parse_window(c: PlanCollector, node: YNode, path: str, measurement: str, un
 def _tolerance(c: PlanCollector, node: YNode, path: str, unit: str) -> Tolerance | None:
     try:
         return parse_tolerance(node.plain(), unit, field=path)
-    except UnitError as exc:
+    except QuantityError as exc:
         c.error(node, str(exc))
         return None
 
@@ -273,7 +273,7 @@ def _ladder_parts(c: PlanCollector, node: YNode, path: str, key: str, n: int, pa
 def _part(c: PlanCollector, node: YNode, path: str, unit: str, *, note: bool = True) -> Part | None:
     try:
         p = parse_part(node.plain(), unit, field=path)
-    except UnitError as exc:
+    except QuantityError as exc:
         c.error(node, str(exc))
         return None
     lo_ok, hi_ok = PART_RANGES[unit]

@@ -10,7 +10,7 @@ saying what to install (:func:`unavailable` says so before any work is done).
   uncaught exceptions, every request other than the file itself and ``data:`` URIs (and those
   requests are refused and the page is kept offline, so a loaded page never reaches the network),
   the size of each ``<svg>``, and the page text.
-- :func:`overflow` lists what does not fit a window of a given width.
+- :func:`overflow` lists what does not fit a viewport of a given width.
 - :func:`screenshot` writes a PNG, :func:`print_pdf` a PDF (A4 or Letter, print styles).
 """
 
@@ -194,7 +194,7 @@ _OVERFLOW = """() => {
 
 
 def overflow(html_path: str | Path, *, width: int = 700, timeout: float = 30.0, browser: Any = None) -> list[str]:
-    """Elements of ``html_path`` that do not fit a ``width``-pixel-wide window.
+    """Elements of ``html_path`` that do not fit a ``width``-pixel-wide viewport.
 
     Anything ending right of the viewport, and any box whose content is wider than the box
     (text running into the next table cell); an empty list when the page fits.

@@ -26,7 +26,7 @@ from benchgate.sim.boards import Unit
 BROWN_OUT = 0.6  # fraction of the nominal supply below which the unit does not run
 DMM_NOISE = 50e-6  # V rms on DC readings
 AVERAGE = 0.02  # s over which the supply and DMM average the current
-GATE = 0.1  # s counter gate and AC-rms window
+GATE = 0.1  # s counter gate and AC-rms span
 HISTORY = 32  # power intervals remembered
 
 
