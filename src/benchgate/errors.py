@@ -153,7 +153,7 @@ class StationErrors(FileErrors):
 
 
 class QuantityError(BenchgateError, ValueError):
-    """A value that is not a number, has an unknown unit, or has the wrong dimension."""
+    """A value that is not a number, has an unknown unit of measure, or has the wrong dimension."""
 
 
 class NotFiniteError(QuantityError):

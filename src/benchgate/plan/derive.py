@@ -242,7 +242,7 @@ def analyze(circuit: Circuit, measurement: str, *, draws: int = DEFAULT_DRAWS, s
     draws, seed, distribution
         Monte Carlo size (>= 10⁴), generator seed, part distribution.
     window : (low, high), optional
-        An explicitly given acceptance window (measurement units); the yield inside it is
+        An explicitly given acceptance window (in the measurement's SI unit); the yield inside it is
         reported.
 
     Raises
