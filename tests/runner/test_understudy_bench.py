@@ -58,7 +58,7 @@ def test_good_unit_passes(ubench, plan, tmp_path):
     assert rec.instruments and {i.role for i in rec.instruments} >= {"adc", "supply"}
     assert outcome.paths["json"].exists() and outcome.paths["html"].exists()
     assert any("switched on" in n for n in rec.steps[2].notes)
-    # the start-up is timed from where in the record the supply came on, not from its first sample
+    # the start-up is timed from where in the capture the supply came on, not from its first sample
     startup = checks_of(outcome, "power-on")["startup_time"].result
     assert startup.details["measured_from"] == "power-on instant"
     assert 0.0 < startup.details["power_on_at_s"] < 0.4

@@ -74,7 +74,7 @@ class Digitizer(Recorder, Protocol):
 
     ``capture`` does everything; ``setup``, ``arm``, ``wait``, ``fetch`` and ``to_capture`` are
     the same steps one at a time, so a runner can switch a supply on between ``arm`` and
-    ``wait`` and have the start-up in the record.
+    ``wait`` and have the start-up in the capture.
     """
 
     def setup(self, channel: str, *, duration: float, rate: float | None = None,

@@ -272,7 +272,7 @@ class Executor:
             self.bench["supply"].output(True)
             t_ack = self.clock.monotonic()
             t_first, delivered = first
-            # Where the switch-on falls in the record's own time: the part already delivered at
+            # Where the switch-on falls in the capture's own time: the part already delivered at
             # the first progress report, plus the clock time from then to the middle of the
             # output command; half the command's duration bounds where in it the output rose.
             # The analysis times the start-up from this instant (``power_on_at``).

@@ -159,7 +159,7 @@ class BenchState:
 def count_frequency(v: np.ndarray, rate: float, *, min_pp: float = 0.05) -> float:
     """Reciprocal counting: cycles between the first and last rising edges (with hysteresis of
     10 % of the span about the mid level) divided by the time between them; 0.0 if the signal's
-    span is below ``min_pp`` volts or fewer than two edges fall in the record."""
+    span is below ``min_pp`` volts or fewer than two edges fall in the capture."""
     v = np.asarray(v, dtype=np.float64)
     lo, hi = float(v.min()), float(v.max())
     if hi - lo < min_pp:
