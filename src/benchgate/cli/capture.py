@@ -27,7 +27,7 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     parser.add_argument("--rate", type=_rate, metavar="RATE",
                         help="sample rate, e.g. 50k or 50 kHz (default: the station's or the device's)")
     parser.add_argument("--channel", metavar="NAME",
-                        help="channel to record (default: the instrument's first channel)")
+                        help="channel to capture (default: the instrument's first channel)")
     parser.add_argument("--out", required=True, metavar="FILE.npz", help="where to write the capture")
     parser.add_argument("--supply", type=_quantity("V"), metavar="VOLTS",
                         help="power the unit from the station's supply at this voltage for the capture "
@@ -67,7 +67,7 @@ def run(args) -> int:
         except InstrumentDisconnected as exc:
             if exc.partial is not None:
                 save_capture(exc.partial.with_metadata(partial=True), args.out)
-                print(f"benchgate: {role}: partial record ({exc.partial.n} samples) written to {args.out}",
+                print(f"benchgate: {role}: partial capture ({exc.partial.n} samples) written to {args.out}",
                       file=sys.stderr)
             raise
     digest = save_capture(capture, args.out)

@@ -70,7 +70,7 @@ class Bench:
 
         inst = self[role]
         if not isinstance(inst, Recorder):
-            raise InstrumentError(role, f"the {role} of station {self.station.id!r} cannot record a "
+            raise InstrumentError(role, f"the {role} of station {self.station.id!r} cannot capture a "
                                         f"waveform (it is a {type(inst).__name__})")
         return inst
 

@@ -70,7 +70,7 @@ class Adc(Recorder, Protocol):
 
 @runtime_checkable
 class Digitizer(Recorder, Protocol):
-    """A triggered recorder: its record starts when it is armed.
+    """A triggered recorder: its capture starts when it is armed.
 
     ``capture`` does everything; ``setup``, ``arm``, ``wait``, ``fetch`` and ``to_capture`` are
     the same steps one at a time, so a runner can switch a supply on between ``arm`` and

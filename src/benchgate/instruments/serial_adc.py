@@ -226,7 +226,7 @@ class SerialAdc:
             port.flush_input()  # start at the next line boundary, with nothing stale
         else:
             port.write_line(f"START {n} {mask}")
-        if progress is not None:  # lets a caller tie its own events to the record's time axis
+        if progress is not None:  # lets a caller tie its own events to the capture's time axis
             progress(0.0, f"acquisition of {n} samples started")
         looker = None
         if looks and decide is not None:  # an adaptive capture (instruments/_looks.py)

@@ -9,7 +9,7 @@ the fixture relay is closed; its waveform runs from the instant it was powered.
 the supply delivers the unit's draw up to its current limit (in limit the voltage sags; below
 60 % of the board's supply the unit stops oscillating), the DMM reads the rail (DC), the test
 point (AC rms) and the draw (DC current), the counter counts the test point's cycles over a
-0.1 s gate (0 Hz when it does not oscillate) and the digitizer records the test point in volts.
+0.1 s gate (0 Hz when it does not oscillate) and the digitizer captures the test point in volts.
 The circuits are simulated at the board's nominal supply; another supply voltage scales the
 unit's output and current in proportion (a first-order model of a resistive, linear board).
 """

@@ -274,7 +274,7 @@ class EmulatedDigitizer(EmulatedInstrument):
         self._block = None
         self._done_at = self._armed_at + self.points / self.rate
         if hasattr(self.backend, "digitizer_record_at"):
-            # the record is taken when the acquisition completes, so whatever happens to the
+            # the capture is taken when the acquisition completes, so whatever happens to the
             # unit while it runs (e.g. the supply switched on) is in it
             self._record = _PENDING
         else:
@@ -305,7 +305,7 @@ class EmulatedDigitizer(EmulatedInstrument):
         return self._block[1]
 
 
-_PENDING = np.empty(0)  # an acquisition armed whose record is taken at completion
+_PENDING = np.empty(0)  # an acquisition armed whose capture is taken at completion
 
 
 def definite_block(data: bytes) -> bytes:
