@@ -105,7 +105,7 @@ def test_wrong_capacitor_fails_frequency(ubench, plan, tmp_path):
 def test_subtle_defects_do_not_pass(ubench, plan, tmp_path, defect):
     (outcome,), _ = run_units(ubench, plan, tmp_path, [(f"OH-S-{defect}", defect)])
     # noise and dropouts leave THD alone but raise THD+N (IEEE Std 1241-2010: THD+N = 1/SINAD);
-    # a dropout also shows as a deep dip of the envelope (whichever the record caught)
+    # a dropout also shows as a deep dip of the envelope (whichever the capture caught)
     steady = checks_of(outcome, "steady")
     caught = [c for c in (steady["thd_n"], steady["amplitude_dip"]) if c.verdict == Verdict.FAIL]
     assert caught and all("above" in c.reason for c in caught)

@@ -202,7 +202,7 @@ def envelope(t: Sequence[float], low: Sequence[float], high: Sequence[float], *,
              min_span: float = 0.0, width: int = 640, height: int = 220) -> str:
     """The whole capture as a min/max band, with the start-up instant and the steady part marked.
 
-    ``t`` is time from the record start (s); ``startup`` and ``steady_start`` are in the same time.
+    ``t`` is time from the capture start (s); ``startup`` and ``steady_start`` are in the same time.
     """
     t = np.asarray(t, dtype=float)
     lo = np.asarray(low, dtype=float)
@@ -213,7 +213,7 @@ def envelope(t: Sequence[float], low: Sequence[float], high: Sequence[float], *,
     t, lo, hi = t[ok], lo[ok], hi[ok]
     ax = Axes(width, height, (0.0, max(float(t[-1]), 1e-12)), _padded(float(lo.min()), float(hi.max()),
                                                                          min_span=min_span))
-    ax.frame("time from record start", "voltage", "s", unit)
+    ax.frame("time from capture start", "voltage", "s", unit)
     if steady_start is not None and math.isfinite(steady_start) and 0 <= steady_start < t[-1]:
         x = ax.px(steady_start)
         ax.add(f'<rect x="{x:.1f}" y="{ax.y1}" width="{ax.x1 - x:.1f}" height="{ax.y0 - ax.y1}" '
