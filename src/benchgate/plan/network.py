@@ -99,7 +99,7 @@ def rc_ladder(R: np.ndarray, C: np.ndarray, *, form: str = "highpass",
 
     References
     ----------
-    Handbook check (docs/references.md): three equal sections give 1/(2πRC√6) (high-pass) or
+    Handbook values (docs/references.md): three equal sections give 1/(2πRC√6) (high-pass) or
     √6/(2πRC) (low-pass) with attenuation 1/29.
     """
     R = np.atleast_2d(np.asarray(R, float))
