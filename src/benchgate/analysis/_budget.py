@@ -27,8 +27,8 @@ def no_oscillation_amplitude(ctx: Context, capture: Capture) -> Measurement | No
 
     A flat line, or a steady part that is flat or only drifts (nothing faster than one cycle
     per capture, e.g. an oscillation that died out), bounds the amplitude by half the span.
-    A capture whose fit did not pass the detection test (noise only) bounds it by the larger of
-    twice the amplitude that test would have detected, √(4σ²T/N) with T its threshold and σ²
+    A capture whose fit stayed below the detection threshold (noise only) bounds it by the larger of
+    twice the amplitude that threshold would have detected, √(4σ²T/N) with T the threshold and σ²
     the noise floor at the fitted frequency, and √2 times the AC rms of the steady part (no
     sine can carry more than the capture's power, whether or not it was detected). A dead unit
     then fails an amplitude window instead of being left undecided.

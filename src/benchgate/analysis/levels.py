@@ -54,7 +54,7 @@ def amplitude(capture: Capture, *, context: Context | None = None) -> Measuremen
     Measurement
         √(A² + B²) of the fit on the steady part. U combines the Cramér–Rao term √(2σ²/N)
         (σ² from the fit residual) and the ADC resolution Q/√12 when the ADC is known.
-        With no oscillation at all (a flat line, or noise that fails the detection test) it
+        With no oscillation at all (a flat line, or noise below the detection threshold) it
         is a valid bound, ``details["no_oscillation"]`` set, so a dead unit fails an amplitude
         window. Invalid when the waveform is clipped or the tone cannot be trusted for another
         reason (fewer than 3 cycles, near Nyquist, no convergence).
