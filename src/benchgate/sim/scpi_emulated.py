@@ -23,7 +23,7 @@ from benchgate.sim.scpi_parse import (
     _Command,
     _compile,
     _matches,
-    _split_units,
+    _split_message_units,
     parse_bool,
     parse_number,
 )
@@ -113,9 +113,9 @@ class EmulatedInstrument:
         replies: list[str | bytes] = []
         with self.lock:
             self.received.append(message)
-            for unit in _split_units(message):
+            for message_unit in _split_message_units(message):
                 try:
-                    out = self._execute(unit)
+                    out = self._execute(message_unit)
                 except ScpiCommandError as exc:
                     self.push_error(exc.code, exc.text)
                     continue
@@ -130,13 +130,13 @@ class EmulatedInstrument:
             return b";".join(r if isinstance(r, bytes) else r.encode() for r in replies)
         return ";".join(replies)  # type: ignore[arg-type]
 
-    def _execute(self, unit: str) -> str | bytes | None:
-        header, _, arg = unit.partition(" ")
+    def _execute(self, message_unit: str) -> str | bytes | None:
+        header, _, arg = message_unit.partition(" ")
         arg = arg.strip() or None
         query = header.endswith("?")
         header = header.rstrip("?").lstrip(":").upper()
         if not header or not re.fullmatch(r"\*?[A-Z0-9:]+", header):
-            raise ScpiCommandError(-102, f"bad header {unit!r}")
+            raise ScpiCommandError(-102, f"bad header {message_unit!r}")
         words = [header] if header.startswith("*") else [w for w in header.split(":")]
         for cmd in self._commands:
             if cmd.query == query and _matches(words, cmd.pattern):
