@@ -159,7 +159,7 @@ def _dirichlet_derivatives(x: float, n: int) -> tuple[float, float]:
     (derived by differentiating it; checked against the sums in tests/analysis)."""
     u = 0.5 * x
     su = math.sin(u)
-    if abs(su) < 1e-9:  # x at a multiple of 2π: the sums by direct evaluation (tiny records only)
+    if abs(su) < 1e-9:  # x at a multiple of 2π: the sums by direct evaluation (tiny captures only)
         t = np.arange(n) - (n - 1) / 2.0
         return float(np.sum(t * np.sin(x * t))), float(np.sum(t * t * np.cos(x * t)))
     big_n = math.sin(n * u)
@@ -263,7 +263,7 @@ def fit4(y: np.ndarray, omega0: float, *, max_iter: int = 30, work: Workspace | 
         # Gauss–Newton column for ω: d = t·(b·cos − a·sin). Its products with cos, sin, 1 and
         # itself are trigonometric sums with closed forms (Σ t·cos² = Σ t·sin² = Σ t·cos = 0 by
         # symmetry; the rest from the Dirichlet kernel's derivatives), so each step takes four
-        # passes over the record (cos·y, sin·y, cos·ty, sin·ty) besides the new cos/sin.
+        # passes over the capture (cos·y, sin·y, cos·ty, sin·ty) besides the new cos/sin.
         cz, sz = w.c, w.s
         cc, s2, cs, sc, ss = w.sums()
         s1_2w, c2_2w = _dirichlet_derivatives(2.0 * omega, n)

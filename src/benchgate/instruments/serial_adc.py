@@ -183,13 +183,13 @@ class SerialAdc:
 
     def capture_growing(self, channel: str, *, looks: Sequence[float], rate: float | None = None,
                         progress=None, decide: Callable[[Capture], bool]) -> Capture:
-        """Record up to ``looks[-1]`` s of ``channel``, handing the record so far to ``decide``
+        """Capture up to ``looks[-1]`` s of ``channel``, handing the capture so far to ``decide``
         each time it reaches the next length in ``looks`` (s, increasing); stop as soon as
-        ``decide`` returns True and return that record (the device is told to stop).
+        ``decide`` returns True and return that capture (the device is told to stop).
 
-        Each record handed over passed the same checks as a finished capture (loss, arrival
+        Each capture handed over passed the same verifications as a finished capture (loss, arrival
         rate). Framed protocol only: lines mode cannot place samples before its END count, so
-        there it records the whole longest record (``decide`` is called once, at the end).
+        there it takes the whole longest capture (``decide`` is called once, at the end).
         """
         if self.protocol != "framed":
             return self.capture(channel, duration=float(looks[-1]), rate=rate, progress=progress)
