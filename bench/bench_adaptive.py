@@ -5,16 +5,16 @@ tolerance, seeded by the serial; about 8 % of the lot carries one of the simulat
 Its steady tone (after a 0.5 s warm-up) is turned into what the bench ADC would deliver: the
 fixture's test point plus mid-rail bias, 0.4 mV rms input noise, an 18 ppm sample-clock error
 and 12-bit quantisation over 3.3 V (the understudy bench's ADC settings). The analysis is driven
-directly on these records, not through full runs (no pty, no runner): it is the capture length
+directly on these captures, not through full runs (no pty, no runner): it is the capture length
 and the decisions being compared, not the plumbing.
 
 Checks: the TB-3 plan's steady-tone windows for frequency (derived from the circuit), amplitude
 and THD (``testplans/tb3.yaml``), judged by the guarded rule (ILAC-G8 w = U). True values: the
 simulator's steady frequency, and amplitude and THD measured on the same unit's noiseless,
-unquantised record at the longest length. A decision is wrong when it passes a unit whose true
+unquantised capture at the longest length. A decision is wrong when it passes a unit whose true
 value lies outside a window, or fails one whose true value lies inside.
 
-Fixed: one 500 ms record, judged. Adaptive: looks at 50, 100, … 500 ms; at each look before
+Fixed: one 500 ms capture, judged. Adaptive: looks at 50, 100, … 500 ms; at each look before
 the last the sequential rule of ``benchgate.judge.sequential`` decides a check or leaves it open;
 the capture stops once every check is decided, else at 500 ms (judged as the fixed capture).
 
@@ -118,7 +118,7 @@ def main() -> None:
     elapsed = time.perf_counter() - t_start
     ratio = stats["fixed_s"] / stats["adaptive_s"]
     print(f"TB-3 lot: {units} simulated units ({stats['defects']} with a defect), checks "
-          f"{', '.join(NAMES)}, rule {RULE}, records {SHORTEST * 1e3:.0f} ms … {LONGEST * 1e3:.0f} ms "
+          f"{', '.join(NAMES)}, rule {RULE}, captures {SHORTEST * 1e3:.0f} ms … {LONGEST * 1e3:.0f} ms "
           f"in {len(schedule)} looks")
     print(f"mean capture time: fixed {stats['fixed_s'] / units * 1e3:.0f} ms, adaptive "
           f"{stats['adaptive_s'] / units * 1e3:.0f} ms -> {ratio:.2f}x shorter "

@@ -2,7 +2,7 @@
 
 Prints RMS error ÷ CRLB σ for benchgate's estimator (interpolated DFT start + IEEE 1057
 four-parameter fit) beside two things people commonly do by hand: the plain FFT peak bin
-(rectangular window, no interpolation; amplitude 2|X|/N) and zero-crossing counting
+(no taper, no interpolation; amplitude 2|X|/N) and zero-crossing counting
 (frequency from the first and last rising crossing; amplitude (max − min)/2).
 
 CRLB: Rife & Boorstyn, IEEE Trans. Inf. Theory 20(5), 1974; Kay 1993.

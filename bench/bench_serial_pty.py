@@ -37,7 +37,7 @@ def main() -> None:
         delivered = cap.n / wall
         print(f"{rate / 1e3:7.0f} kS/s: {cap.n} samples in {wall:.3f} s wall, delivered "
               f"{delivered / 1e3:.0f} kS/s = {delivered / rate:.2f}x the asked rate "
-              f"(arrival check: {cap.metadata['rate']['check']})")
+              f"(arrival rate verified: {cap.metadata['rate']['verified']})")
 
 
 if __name__ == "__main__":

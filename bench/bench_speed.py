@@ -1,4 +1,4 @@
-"""Speed: the full measurement set on a 10⁶-sample record ÷ one numpy.fft.rfft of it (same
+"""Speed: the full measurement set on a 10⁶-sample capture ÷ one numpy.fft.rfft of it (same
 run, best of several), and the wall time of `benchgate --help`.
 
 Targets (issue 2): ≤ 10× one rfft (goal 5×); `benchgate --help` ≤ 0.3 s.
@@ -25,7 +25,7 @@ def best(func, repeat: int) -> float:
     return min(times)
 
 
-def record(n: int = 1_000_000) -> Capture:
+def long_capture(n: int = 1_000_000) -> Capture:
     fs = 50_000.0
     t = np.arange(n) / fs
     rng = np.random.default_rng(1)
@@ -36,7 +36,7 @@ def record(n: int = 1_000_000) -> Capture:
 
 
 def main() -> None:
-    cap = record()
+    cap = long_capture()
     x = cap.samples
     analyze(cap)  # warm-up
     np.fft.rfft(x)

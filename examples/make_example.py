@@ -1,7 +1,7 @@
 """Make examples/tone-board-capture.csv: an invented TB-3 tone board capture.
 
 Owl Hollow Kits' TB-3 (invented): a phase-shift oscillator near 955 Hz, seen through a
-fixture that AC-couples it to the ADC mid-rail (1.65 V). The record starts at power-on:
+fixture that AC-couples it to the ADC mid-rail (1.65 V). The capture starts at power-on:
 the oscillation grows from noise, saturates softly to about 1 V peak with a little third
 harmonic, and the coupling capacitor's DC settles. Sampled by a 12-bit, 3.3 V ADC at
 50 kS/s for 0.4 s. Run: python examples/make_example.py
@@ -41,7 +41,7 @@ def main() -> None:
     with out.open("w", encoding="ascii", newline="\n") as fh:
         fh.write("# Owl Hollow Kits TB-3 tone board (invented example), ADC channel 'out'\n")
         fh.write(f"# sample_rate: {FS:g}\n")
-        fh.write(f"# adc: {BITS} bits, 0 to {VREF} V; record starts at power-on\n")
+        fh.write(f"# adc: {BITS} bits, 0 to {VREF} V; capture starts at power-on\n")
         fh.write("volts\n")
         fh.writelines(f"{v:.6f}\n" for v in x)
     print(f"wrote {out} ({x.size} samples)")

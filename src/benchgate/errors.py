@@ -16,12 +16,12 @@ any layer may raise its classes.
     ├── FileErrors                several FileErrors of one file, reported at once
     │   ├── PlanErrors
     │   └── StationErrors
-    ├── UnitError (ValueError)    an engineering number that cannot be read
+    ├── QuantityError (ValueError)    an engineering number that cannot be read
     │   └── NotFiniteError        NaN or infinity where a finite number is meant
     ├── InstrumentError           an instrument, by name (and its error-queue entry)
     │   ├── InstrumentDisconnected
     │   └── ScpiQueueError        error-queue entries, attributed to the command that caused them
-    ├── CaptureError              a capture file or record
+    ├── CaptureError              a capture file or a capture's samples
     ├── PreflightError            a run refused before anything was touched
     │   └── StationBusy           another run holds the station
     ├── StepError                 a step that cannot go on
@@ -152,11 +152,11 @@ class StationErrors(FileErrors):
 # ----------------------------------------------------------------------------- values
 
 
-class UnitError(BenchgateError, ValueError):
-    """A value that is not a number, has an unknown unit, or has the wrong dimension."""
+class QuantityError(BenchgateError, ValueError):
+    """A value that is not a number, has an unknown unit of measure, or has the wrong dimension."""
 
 
-class NotFiniteError(UnitError):
+class NotFiniteError(QuantityError):
     """A number that is NaN or infinite (``.nan``, ``inf``, ``1e999``) where a finite one is meant."""
 
 
@@ -230,7 +230,7 @@ class ScpiQueueError(InstrumentError):
 
 
 class CaptureError(BenchgateError):
-    """A capture file or record that cannot be read or used, naming the file (and line)."""
+    """A capture file or a capture's samples that cannot be read or used, naming the file (and line)."""
 
     def __init__(self, message: str, file: str | None = None, line: int | None = None):
         super().__init__(message)

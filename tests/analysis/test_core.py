@@ -1,4 +1,4 @@
-"""analyze(), the registry and the Analysis record."""
+"""analyze(), the registry and the Analysis capture."""
 
 from __future__ import annotations
 
@@ -90,7 +90,7 @@ class TestAnalyze:
             get_context(b, ctx)
 
     def test_tb3_like_record(self):
-        # invented TB-3 record: power-on transient, ~955 Hz, 1 V peak, 2.5 % third harmonic
+        # invented TB-3 capture: power-on transient, ~955 Hz, 1 V peak, 2.5 % third harmonic
         fs = 50_000.0
         t = np.arange(20_000) / fs
         env = 1.0 / (1.0 + np.exp(-(t - 0.05) / 0.008))

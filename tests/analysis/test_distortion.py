@@ -126,7 +126,7 @@ class TestSfdr:
 
 class TestUncertaintyCoverage:
     def test_snr_and_thd_cover(self):
-        # JCGM 100:2008: U (k = 2) should cover ≈ 95 %; 120 seeded noisy records
+        # JCGM 100:2008: U (k = 2) should cover ≈ 95 %; 120 seeded noisy captures
         rng = np.random.default_rng(21)
         n, snr_db, h3 = 2048, 40.0, 0.02
         sigma = math.sqrt(0.5 / 10 ** (snr_db / 10))
@@ -148,7 +148,7 @@ class TestSnrBesideStrongHarmonics:
     @pytest.mark.parametrize("amps", [{1: 1.0, 2: 0.01}, {1: 1.0, 3: 0.03, 5: 0.01}])
     def test_low_noise_with_harmonics(self, amps):
         # regression: with harmonics at −30 … −40 dBc and noise at −97 dBc, the fundamental's
-        # window leakage and the fit's leftover in the fundamental band were counted as noise
+        # taper leakage and the fit's leftover in the fundamental band were counted as noise
         # (SNR 86.6 dB for a true 97.0 dB). IEEE Std 1241-2010 SNR definition: A₁²/2 over the
         # noise power σ² (harmonics excluded), here 10·log10(0.5/1e-10)
         rng = np.random.default_rng(4)

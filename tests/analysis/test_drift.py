@@ -56,14 +56,14 @@ class TestStrongDrift:
         rng = np.random.default_rng(seed)
         return Capture(np.sin(2 * np.pi * (f0 * t + 0.5 * rate * tc * tc) + phase) + rng.normal(0, noise, n), fs)
 
-    def test_phase_unwrapped_with_more_windows(self):
-        # regression: 1 Hz/s over 5 s turns the phase by ~0.8 cycle between 16 windows, the
+    def test_phase_unwrapped_with_more_segments(self):
+        # regression: 1 Hz/s over 5 s turns the phase by ~0.8 cycle between 16 segments, the
         # unwrap slipped and gave 0.35 Hz/s at U 0.21 Hz/s. Known answer: the chirp's rate
         for seed in range(2):
             m = frequency_drift(self.chirp(1.0, 50_000, seed))
             assert m.valid, m.reason
             assert abs(m.value - 1.0) <= m.uncertainty
-            assert m.details["windows"] > 16
+            assert m.details["segments"] > 16
 
     def test_untrackable_chirp_is_never_valid_and_wrong(self):
         # regression: −20 Hz/s over 2 s (40 Hz, 80 bins) came out valid at +0.93 Hz/s
@@ -79,7 +79,7 @@ class TestFrequencyOfADriftingTone:
                                            (50_000.0, 16_384, 650.0)])
     def test_mean_frequency_within_u(self, fs, n, f0):
         # regression: a drift of a few Hz/s put the fixed-frequency fit up to 100 U from the
-        # record's mean frequency. Truth: f(t) = f0 + rate·t, so the mean over the record is
+        # capture's mean frequency. Truth: f(t) = f0 + rate·t, so the mean over the capture is
         # the frequency at its middle, f0 + rate·(N − 1)/(2 fs) (derived)
         from benchgate.analysis.frequency import frequency
 
@@ -93,12 +93,12 @@ class TestFrequencyOfADriftingTone:
                 if m.valid:
                     valid += 1
                     outside += abs(m.value - (f0 + rate * (n - 1) / fs / 2)) > m.uncertainty
-        # k = 2 (JCGM 100:2008): about 5 % outside expected; allow 2 of the 15 records
+        # k = 2 (JCGM 100:2008): about 5 % outside expected; allow 2 of the 15 captures
         assert valid >= 9 and outside <= 2
 
 
 def test_track_phase_with_a_degenerate_fit_is_not_followed():
-    # A fitted ω that hardly turns within a window makes the per-window [cos, sin, 1] normal
+    # A fitted ω that hardly turns within a segment makes the per-segment [cos, sin, 1] normal
     # equations singular (found by the random-signal property test): the track must say it
     # cannot be followed instead of raising.
     import math as _m

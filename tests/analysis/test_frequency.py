@@ -138,9 +138,9 @@ class TestColouredNoise:
 
     @pytest.mark.parametrize("n, fs, seed0", [(10_000, 1000.0, 0), (4096, 1000.0, 500), (16_384, 50_000.0, 900)])
     def test_pink_noise_is_no_tone(self, n, fs, seed0):
-        # regression: pink noise gave a valid frequency in a quarter of records and a valid
+        # regression: pink noise gave a valid frequency in a quarter of captures and a valid
         # duty cycle in most. Kay (1998) periodogram detector: with the local floor and the
-        # e^−25 false-alarm margin no record of 100 may pass (the stated rate is ≤ 1 %)
+        # e^−25 false-alarm margin no capture of 100 may pass (the stated rate is ≤ 1 %)
         freq_valid = duty_valid = 0
         for seed in range(seed0, seed0 + 100):
             x = pink_noise(n, np.random.default_rng(seed))
@@ -159,7 +159,7 @@ class TestColouredNoise:
     def test_tone_over_pink_noise_is_detected(self, cycles):
         # a tone whose peak stands 3× the detection threshold above the local pink floor at its
         # frequency (local density ∝ 1/k; derived) is still found, and measured within U; a few
-        # records lose it because pink noise makes the envelope wander and the steady part is cut
+        # captures lose it because pink noise makes the envelope wander and the steady part is cut
         n, fs = 10_000, 1000.0
         hits = 0
         for seed in range(20):
@@ -196,7 +196,7 @@ class TestFewCyclesOfADistortedWave:
         # bounded fuzz (fixed seed): sine, square, triangle, clipped sine and sawtooth of 1–12
         # cycles in noise. Under 3 cycles nothing is valid (MIN_CYCLES); a valid frequency is
         # never a harmonic or a wrong peak (within 2 % of the truth; harmonic interference in
-        # records of few cycles is a known, smaller bias)
+        # captures of few cycles is a known, smaller bias)
         rng = np.random.default_rng(42)
         for _ in range(120):
             n = int(rng.choice([256, 1000, 4000, 16_384]))

@@ -156,7 +156,7 @@ class TestWholeCycleEnds:
         assert abs(m.value - 1.65) < 1e-9
 
     def test_dc_offset_covers_at_high_snr(self):
-        # handbook: mean of the record = C; coverage of U at k = 2 about 95 % (JCGM 100:2008)
+        # handbook: mean of the capture = C; coverage of U at k = 2 about 95 % (JCGM 100:2008)
         rng = np.random.default_rng(11)
         inside = []
         for _ in range(40):
@@ -175,7 +175,7 @@ class TestWholeCycleEnds:
 
 class TestCoarselySampled:
     def test_amplitude_of_2_5_samples_per_period(self):
-        # regression: a 4-sample envelope window over a 2.5-sample period rippled by tens of
+        # regression: a 4-sample envelope span over a 2.5-sample period rippled by tens of
         # per cent and flagged "amplitude still changing"; handbook: the fitted peak is A
         cap, _, _ = tone(64, 25.6, amplitude=1.0)
         m = amplitude(cap)
@@ -240,7 +240,7 @@ class TestDriftingTone:
         # 1.36 V ± 0.08 V), so a unit above a 1.4 V limit passed. Truth by construction:
         # amplitude 1.45 V, AC rms 1.45/√2 V, DC 0.2 V (a sine's rms, handbook formula)
         # amplitude 1.45 V, AC rms 1.45/√2 V, DC 0.2 V (a sine's rms, handbook formula).
-        # U is k = 2 (≈ 95 %, JCGM 100:2008): stated coverage ≥ 85 % over the 30 records (about
+        # U is k = 2 (≈ 95 %, JCGM 100:2008): stated coverage ≥ 85 % over the 30 captures (about
         # 2.5 binomial standard deviations below 95 %),
         # and no valid value off by more than 3 U (a bias, not bad luck)
         truth = {"amplitude": 1.45, "rms": 1.45 / math.sqrt(2.0), "dc_offset": 0.2}
@@ -263,14 +263,14 @@ class TestDriftingTone:
             assert hits and np.mean(hits) >= 0.85, (name, np.mean(hits))
 
     def test_issue_case_does_not_pass_a_1_4_v_limit(self):
-        # the reported record's kind: a true 1.45 V tone drifting a few Hz/s must not read as
+        # the reported capture's kind: a true 1.45 V tone drifting a few Hz/s must not read as
         # ≤ 1.4 V with an uncertainty that hides it
         cap = self._chirp(5.0, fs=10_000.0, n=20_000, f0=100.0)
         m = amplitude(cap)
         assert not m.valid or m.value - m.uncertainty > 1.4 or m.value + m.uncertainty >= 1.45
 
     def test_untrackable_chirp_amplitude_is_invalid_or_a_covering_bound(self):
-        # 40 Hz/s over 2 s: 80 Hz of sweep, far too fast to follow window to window
+        # 40 Hz/s over 2 s: 80 Hz of sweep, far too fast to follow segment to segment
         cap = self._chirp(40.0, fs=10_000.0, n=20_000, f0=100.0)
         m = amplitude(cap)
         assert not m.valid or m.value + m.uncertainty >= 1.45
@@ -278,7 +278,7 @@ class TestDriftingTone:
 
 class TestUnderTwoCycles:
     """Monte Carlo over phases: the DC offset and the no-oscillation bound cover the truth or
-    are invalid when the record holds fewer than two cycles (or is just past two)."""
+    are invalid when the capture holds fewer than two cycles (or is just past two)."""
 
     @staticmethod
     def _records(cycles, noise=0.01, count=60):

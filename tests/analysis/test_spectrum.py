@@ -1,4 +1,4 @@
-"""Windows, power spectra and peak interpolation, checked against scipy.signal as a reference."""
+"""Tapers, power spectra and peak interpolation, checked against scipy.signal as a reference."""
 
 from __future__ import annotations
 
@@ -12,40 +12,40 @@ from benchgate.analysis.spectrum import (
     enbw,
     interpolated_peak,
     power_spectrum,
-    window,
-    window_enbw,
+    taper,
+    taper_enbw,
 )
 
 
-class TestWindow:
+class TestTaper:
     @pytest.mark.parametrize("n", [1, 2, 7, 64, 1001, 4096])
     @pytest.mark.parametrize("sym", [False, True])
     def test_matches_scipy(self, n, sym):
         # scipy.signal.windows as the reference implementation
-        assert_allclose(window("hann", n, sym=sym), scipy.signal.windows.hann(n, sym=sym), atol=1e-13)
-        assert_allclose(window("blackmanharris", n, sym=sym),
+        assert_allclose(taper("hann", n, sym=sym), scipy.signal.windows.hann(n, sym=sym), atol=1e-13)
+        assert_allclose(taper("blackmanharris", n, sym=sym),
                         scipy.signal.windows.blackmanharris(n, sym=sym), atol=1e-13)
-        assert_allclose(window("rect", n, sym=sym), scipy.signal.windows.boxcar(n, sym=sym))
+        assert_allclose(taper("rect", n, sym=sym), scipy.signal.windows.boxcar(n, sym=sym))
 
     @pytest.mark.parametrize("name, expected", [("rect", 1.00), ("hann", 1.50), ("blackmanharris", 2.00)])
     def test_enbw(self, name, expected):
         # Harris, Proc. IEEE 66(1), 1978, table 1 (ENBW in bins, rounded to 0.01)
-        assert_allclose(enbw(window(name, 8192)), expected, atol=0.006)
-        assert_allclose(window_enbw(name), enbw(window(name, 8192)), rtol=1e-9)
+        assert_allclose(enbw(taper(name, 8192)), expected, atol=0.006)
+        assert_allclose(taper_enbw(name), enbw(taper(name, 8192)), rtol=1e-9)
 
     def test_blackman_harris_sidelobes(self):
-        # Harris (1978): highest sidelobe of the 4-term Blackman–Harris window is −92 dB
-        w = window("blackmanharris", 256)
+        # Harris (1978): highest sidelobe of the 4-term Blackman–Harris taper is −92 dB
+        w = taper("blackmanharris", 256)
         spec = np.abs(np.fft.rfft(w, 256 * 64))
         db = 20 * np.log10(spec / spec[0] + 1e-30)
         first_null = 4 * 64
         assert db[first_null + 10:].max() < -91.5
 
     def test_unknown(self):
-        with pytest.raises(ValueError, match="unknown window"):
-            window("kaiser", 16)
+        with pytest.raises(ValueError, match="unknown taper"):
+            taper("kaiser", 16)
         with pytest.raises(ValueError, match="at least one point"):
-            window("hann", 0)
+            taper("hann", 0)
 
 
 class TestPowerSpectrum:

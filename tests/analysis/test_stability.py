@@ -35,7 +35,7 @@ class TestAmplitudeDip:
         assert_allclose(m.value, 100.0, atol=1.0)
 
     def test_half_amplitude_for_several_periods(self):
-        # amplitude halved for 8 ms (≈ 7.6 periods, longer than the one-period window):
+        # amplitude halved for 8 ms (≈ 7.6 periods, longer than the one-period span):
         # min/median = 0.5, a 50 % dip (derived from the definition)
         m = amplitude_dip(tone(lambda t: np.where((t > 0.20) & (t < 0.208), 0.5, 1.0)))
         assert m.valid

@@ -60,7 +60,7 @@ class TestStartupTime:
 
     def test_noisy_slow_envelope_not_early(self):
         # in noise the first excursion of a raw envelope crosses 90 % early; the averaged
-        # envelope must not: mean error small, and U (k = 2) covers most seeded records
+        # envelope must not: mean error small, and U (k = 2) covers most seeded captures
         rng = np.random.default_rng(4)
         tau, fs = 0.03, 50_000.0
         t = np.arange(int(0.4 * fs)) / fs
@@ -77,7 +77,7 @@ class TestStartupTime:
 
 
 class TestStartupFromPowerOn:
-    """A start-up record begins before power-on; the runner stores the switch-on instant."""
+    """A start-up capture begins before power-on; the runner stores the switch-on instant."""
 
     def powered_at(self, t_on, tau=0.02, half=0.0):
         t = np.arange(int(FS * 0.5)) / FS
@@ -109,7 +109,7 @@ class TestStartupFromPowerOn:
     def test_power_on_outside_the_record_is_invalid(self):
         cap = grown(lambda t: 1.0 - np.exp(-t / 0.02)).with_metadata(power_on_at=3.0)
         m = startup_time(cap)
-        assert not m.valid and "outside the record" in m.reason
+        assert not m.valid and "outside the capture" in m.reason
 
 
 class TestStartupInHeavyNoise:

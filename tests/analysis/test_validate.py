@@ -1,4 +1,4 @@
-"""Input checks: too few samples, NaN, flat line, clipping at the rails, flat tops."""
+"""Input validation: too few samples, NaN, flat line, clipping at the rails, flat tops."""
 
 from __future__ import annotations
 
@@ -7,7 +7,7 @@ import pytest
 from _analysis_signals import quantise
 
 from benchgate.analysis import AdcInfo, Capture, analyze
-from benchgate.analysis._validate import check_capture, state_levels
+from benchgate.analysis._validate import state_levels, validate_capture
 
 FS = 50_000.0
 T = np.arange(10_000) / FS
@@ -15,43 +15,43 @@ T = np.arange(10_000) / FS
 
 class TestCheckCapture:
     def test_clean_sine(self):
-        c = check_capture(Capture(np.sin(2 * np.pi * 955 * T), FS))
+        c = validate_capture(Capture(np.sin(2 * np.pi * 955 * T), FS))
         assert c.fatal is None and c.warnings == () and c.clipped is None
 
     def test_too_few(self):
-        assert "too few samples" in check_capture(Capture(np.arange(5.0), FS)).fatal
+        assert "too few samples" in validate_capture(Capture(np.arange(5.0), FS)).fatal
 
     def test_nan_and_inf(self):
         x = np.sin(T)
         x[7] = np.nan
         x[9] = np.inf
-        assert "2 NaN or infinite" in check_capture(Capture(x, FS)).fatal
+        assert "2 NaN or infinite" in validate_capture(Capture(x, FS)).fatal
 
     def test_flat_line_with_adc(self):
         adc = AdcInfo(12, 3.3)
         x = np.full(T.size, 1.65) + adc.lsb * (np.arange(T.size) % 2)  # one LSB of toggling
-        assert "flat line" in check_capture(Capture(x, FS, adc=adc)).fatal
+        assert "flat line" in validate_capture(Capture(x, FS, adc=adc)).fatal
 
     def test_clipped_at_rails(self):
         adc = AdcInfo(12, 3.3)
         x = quantise(1.65 + 1.8 * np.sin(2 * np.pi * 955 * T), adc)
-        c = check_capture(Capture(x, FS, adc=adc))
+        c = validate_capture(Capture(x, FS, adc=adc))
         assert "clipped at the ADC low and high rail" in c.clipped
         assert c.clipped in c.warnings
 
     def test_flat_tops_without_adc(self):
         x = np.clip(np.sin(2 * np.pi * 955 * T), -0.9, 0.9)
-        assert "flat tops" in check_capture(Capture(x, FS)).clipped
+        assert "flat tops" in validate_capture(Capture(x, FS)).clipped
 
     def test_square_wave_is_not_clipping(self):
         x = np.where(np.sin(2 * np.pi * 988 * T) > 0, 3.0, 0.0)
-        c = check_capture(Capture(x, FS))
+        c = validate_capture(Capture(x, FS))
         assert c.pulse_like and c.clipped is None
 
     def test_pulse_at_rail_only_warns(self):
         adc = AdcInfo(12, 3.3)
         x = quantise(np.where(np.sin(2 * np.pi * 988 * T) > 0, 3.0, 0.0), adc)
-        c = check_capture(Capture(x, FS, adc=adc))
+        c = validate_capture(Capture(x, FS, adc=adc))
         assert c.clipped is None and any("rail" in w for w in c.warnings)
 
     def test_clipping_spares_frequency(self):
@@ -93,8 +93,8 @@ class TestFullScaleSineIsNotClipping:
         # IEEE Std 1241-2010 histogram test (arcsine density): a sine reaching 1/2 LSB past the
         # top transition spends arccos(1 − 0.5/511.5)/π of its time there: 230.7 of 16 384
         assert abs(at_top - 16_384 * np.arccos(1 - 0.5 / 511.5) / np.pi) <= 3
-        checked = check_capture(cap)
-        assert checked.clipped is None and checked.warnings == ()
+        validation = validate_capture(cap)
+        assert validation.clipped is None and validation.warnings == ()
         m = analyze(cap).measurements
         assert m["amplitude"].valid and abs(m["amplitude"].value - a) <= m["amplitude"].uncertainty
         # ideal 10-bit quantiser SNR = 6.02·N + 1.76 = 61.96 dB (IEEE Std 1241-2010)
@@ -104,12 +104,12 @@ class TestFullScaleSineIsNotClipping:
     @pytest.mark.parametrize("seed", range(4))
     def test_noisy_full_scale_sine_is_not_clipped(self, seed):
         cap, _ = self._sine(1.0, noise=0.5, seed=seed, phase=seed)
-        assert check_capture(cap).clipped is None
+        assert validate_capture(cap).clipped is None
 
     @pytest.mark.parametrize("scale", [1.003, 1.02, 1.2])
     def test_sine_past_the_rails_is_clipped(self, scale):
         cap, _ = self._sine(scale)  # peaks 1.5, 10 and 100 LSB past the end codes' centres
-        c = check_capture(cap)
+        c = validate_capture(cap)
         assert c.clipped and "clipped at the ADC low and high rail" in c.clipped
         assert not analyze(cap).measurements["amplitude"].valid
 
@@ -117,5 +117,5 @@ class TestFullScaleSineIsNotClipping:
         adc = self.ADC
         t = np.arange(self.N)
         x = quantise(0.62 + 0.45 * np.sin(2 * np.pi * 1021 * t / self.N), adc)  # top at 1.07 V > rail
-        c = check_capture(Capture(x, 100_000.0, adc=adc))
+        c = validate_capture(Capture(x, 100_000.0, adc=adc))
         assert c.clipped and "high rail" in c.clipped and "low" not in c.clipped

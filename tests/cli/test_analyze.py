@@ -115,7 +115,7 @@ class TestJson:
         assert code == 0
         d = json.loads(out)
         jsonschema.validate(d, SCHEMA)
-        assert "flat line: no oscillation in the record" in d["capture"]["warnings"]
+        assert "flat line: no oscillation in the capture" in d["capture"]["warnings"]
         m = d["measurements"]
         assert not m["frequency"]["valid"] and "flat line" in m["frequency"]["reason"]
         assert not m["thd"]["valid"] and not m["startup_time"]["valid"]

@@ -29,8 +29,8 @@ def crc16_bitwise(data: bytes) -> int:
 
 
 class TestCrc:
-    def test_check_value(self):
-        # CRC-16/CCITT-FALSE check value for ASCII "123456789" (published CRC catalogue value)
+    def test_reference_crc(self):
+        # CRC-16/CCITT-FALSE reference CRC ("check" in the catalogue) for ASCII "123456789" (published CRC catalogue value)
         assert crc16(b"123456789") == 0x29B1
         assert crc16_bitwise(b"123456789") == 0x29B1
 

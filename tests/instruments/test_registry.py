@@ -198,7 +198,7 @@ def test_typed_accessors_check_the_face():
         supply, dmm = ScpiSupply.open(config_for(sim, "supply")), ScpiDmm.open(config_for(sim, "dmm"))
         with Bench(station(), {"supply": supply, "adc": dmm}) as bench:
             assert isinstance(bench.require_supply(), Supply)
-            with pytest.raises(InstrumentError, match="the adc of station 'bench-x' cannot record"):
+            with pytest.raises(InstrumentError, match="the adc of station 'bench-x' cannot capture"):
                 bench.recorder("adc")  # a DMM put in the ADC's place
         with Bench(station(), {"supply": dmm}) as bench:
             with pytest.raises(InstrumentError, match="is not a supply"):

@@ -169,7 +169,7 @@ def test_declared_rate_agrees_with_arrival_rate():
     with PtyAdcDevice(SineSource(channels=("out", "rail")), clock=clock, faults=DeviceFaults(rate_error=0.01)) as dev:
         with SerialAdc.open(adc_config(dev.port), clock=clock) as adc:
             cap = adc.capture("out", duration=1.0, rate=20_000)
-    assert cap.metadata["rate"]["check"] == "ok"  # 1 % off is inside the ±5 % cross-check
+    assert cap.metadata["rate"]["verified"] == "ok"  # 1 % off is inside the ±5 % cross-check
 
 
 def test_dtr_and_rts_are_low_at_open(clock, monkeypatch):

@@ -1,8 +1,8 @@
 """The sequential rule's error bound, shown empirically over simulated units (fixed seeds).
 
 Each simulated unit has a known true value μ, spread across and around the window with many
-units right at the limits (the worst case). Its record grows block by block; the estimate after
-each block comes from the same noise samples as the estimates before it (nested records), for
+units right at the limits (the worst case). Its capture grows block by block; the estimate after
+each block comes from the same noise samples as the estimates before it (nested captures), for
 two kinds of estimator:
 
 - a mean (amplitude, RMS, THD behave so): u ∝ n^(−1/2);
@@ -49,7 +49,7 @@ def _true_values(rng, u_final):
 
 
 def _paths(kind, mu, rng, sigma):
-    """Estimates (units × looks) and their U (looks) for nested records."""
+    """Estimates (units × looks) and their U (looks) for nested captures."""
     n = BLOCK * np.arange(1, LOOKS + 1)
     if kind == "mean":
         sums = np.cumsum(rng.normal(0.0, sigma * math.sqrt(BLOCK), (UNITS, LOOKS)), axis=1)
@@ -129,9 +129,9 @@ def test_error_bound_holds_under_repeated_looks(kind, rule, max_risk, seed):
     # the stated bound on the whole decision: the rule's own α plus the early looks' budget
     assert r["adaptive"].mean() <= r["alpha"] + r["bound"]
     assert r["adaptive"][r["near"]].mean() <= r["alpha"] + r["bound"]
-    # no more wrong decisions than the fixed-length capture on the same records
+    # no more wrong decisions than the fixed-length capture on the same captures
     assert r["adaptive"].sum() <= r["fixed"].sum()
-    # and the record is shorter on average (the point of it); the spread half stops early
+    # and the capture is shorter on average (the point of it); the spread half stops early
     assert r["length"].mean() < 0.75
     assert np.median(r["length"][~r["near"]]) <= 0.5
     assert n >= 10_000
@@ -194,7 +194,7 @@ class TestPieces:
         assert st.look(1, {"f": (950.0, 1.0, LO, HI)}) and "decided at 0.2 s" in st.stopped
         st = SequentialState(look_schedule(0.1, 0.2), GUARDED_ALPHA)
         assert not st.look(0, {"f": (999.9, 1.0, LO, HI)})
-        assert st.look(1, {"f": (999.9, 1.0, LO, HI)}) and "longest record" in st.stopped
+        assert st.look(1, {"f": (999.9, 1.0, LO, HI)}) and "longest capture" in st.stopped
         assert st.to_dict()["looks"]["f"][1]["decided"] is None
 
     def test_schedule(self):

@@ -67,7 +67,7 @@ def test_too_many_looks():
 def test_whole_record_checks_are_refused_at_the_check():
     lines = errors("    adaptive: {shortest: 100 ms, longest: 2 s}\n",
                    "      frequency: {min: 900 Hz, max: 1 kHz}\n      amplitude_dip: {max: 10 %}\n")
-    assert len(lines) == 1 and lines[0].startswith("t.yaml:21:7:") and "whole record" in lines[0]
+    assert len(lines) == 1 and lines[0].startswith("t.yaml:21:7:") and "whole capture" in lines[0]
 
 
 def test_simple_rule_cannot_stop_early():

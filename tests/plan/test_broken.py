@@ -75,7 +75,7 @@ def test_broken_plan_error(name):
 @pytest.mark.parametrize("name", sorted(EXPECTED))
 def test_broken_plan_cli(name, capsys):
     path = BROKEN / name
-    code = main(["check", str(path)])
+    code = main(["inspect", str(path)])
     out, err = capsys.readouterr()
     assert code == 2
     assert out == ""

@@ -33,13 +33,13 @@ def _wien():
 class TestCorners:
     def test_counts_every_physical_part(self):
         # a shared R and C still means 3 + 3 independent parts: 2^6 corners
-        d = derive.analyse(_ladder(), "frequency", draws=10_000)
+        d = derive.analyze(_ladder(), "frequency", draws=10_000)
         assert d.corners == 64
-        assert derive.analyse(_timer(), "frequency", draws=10_000).corners == 8
+        assert derive.analyze(_timer(), "frequency", draws=10_000).corners == 8
 
     def test_equal_ladder_extremes(self):
         # f ∝ 1/(RC) for a uniformly scaled ladder (handbook formula): extremes at all-low/all-high
-        d = derive.analyse(_ladder(), "frequency", draws=10_000)
+        d = derive.analyze(_ladder(), "frequency", draws=10_000)
         f0 = 1 / (2 * math.pi * 6800 * 10e-9 * math.sqrt(6))
         assert_allclose(d.nominal, f0, rtol=1e-12)
         assert_allclose(d.low, f0 / (1.05 * 1.10), rtol=1e-12)
@@ -55,7 +55,7 @@ class TestCorners:
         for combo in itertools.product((0, 1), repeat=len(names)):
             v = {n: np.array([circ.parts[n].high if b else circ.parts[n].low]) for n, b in zip(names, combo, strict=True)}
             vals.append(float(derive.evaluate(circ, v)["duty"][0]) * 100)
-        d = derive.analyse(circ, "duty_cycle", draws=10_000, unit="%")
+        d = derive.analyze(circ, "duty_cycle", draws=10_000, unit="%")
         assert_allclose([d.low, d.high], [min(vals), max(vals)], rtol=1e-12)
         # the timer's duty rises with R1 and falls with R2 (formula (R1+R2)/(R1+2R2))
         assert d.high_corner["R1"] == "+" and d.high_corner["R2"] == "-"
@@ -65,7 +65,7 @@ class TestCorners:
                                                   (lambda: _ladder(form="lowpass", source="1k ±5%", load="22k ±5%"), "frequency")])
     def test_worst_case_contains_every_draw(self, make, measurement):
         circ = make()
-        d = derive.analyse(circ, measurement, draws=20_000, seed=11, distribution="uniform")
+        d = derive.analyze(circ, measurement, draws=20_000, seed=11, distribution="uniform")
         assert not d.widened_by_mc
         draws = derive.draw(circ, 20_000, 11, "uniform")
         y = derive.evaluate(circ, draws)[derive.TOPOLOGIES[circ.topology]["outputs"][measurement]]
@@ -75,22 +75,22 @@ class TestCorners:
 
     def test_too_many_parts(self):
         with pytest.raises(ValueError, match="corner enumeration"):
-            derive.analyse(_ladder(n=8, source="1k 1%", load="10k 1%"), "frequency", draws=10_000)
+            derive.analyze(_ladder(n=8, source="1k 1%", load="10k 1%"), "frequency", draws=10_000)
 
     def test_wrong_output(self):
         with pytest.raises(ValueError, match="not duty_cycle"):
-            derive.analyse(_ladder(), "duty_cycle", draws=10_000)
+            derive.analyze(_ladder(), "duty_cycle", draws=10_000)
 
     def test_too_few_draws(self):
         with pytest.raises(ValueError, match="10000"):
-            derive.analyse(_timer(), "frequency", draws=100)
+            derive.analyze(_timer(), "frequency", draws=100)
 
 
 class TestMonteCarlo:
     def test_seeded_is_repeatable(self):
-        a = derive.analyse(_timer(), "frequency", draws=10_000, seed=5).monte_carlo
-        b = derive.analyse(_timer(), "frequency", draws=10_000, seed=5).monte_carlo
-        c = derive.analyse(_timer(), "frequency", draws=10_000, seed=6).monte_carlo
+        a = derive.analyze(_timer(), "frequency", draws=10_000, seed=5).monte_carlo
+        b = derive.analyze(_timer(), "frequency", draws=10_000, seed=5).monte_carlo
+        c = derive.analyze(_timer(), "frequency", draws=10_000, seed=6).monte_carlo
         assert a == b and a["mean"] != c["mean"]
 
     def test_yield_converges_to_brute_force(self):
@@ -106,7 +106,7 @@ class TestMonteCarlo:
         ref = float(np.mean((f >= window[0]) & (f <= window[1])))
         errors = []
         for n in (10_000, 40_000, 160_000):
-            mc = derive.analyse(circ, "frequency", draws=n, seed=2024, window=window).monte_carlo
+            mc = derive.analyze(circ, "frequency", draws=n, seed=2024, window=window).monte_carlo
             sigma = math.sqrt(ref * (1 - ref) / n)  # binomial standard error
             assert abs(mc["yield"] - ref) < 4 * sigma + 2e-3  # 2e-3: grid error of the reference
             assert_allclose(mc["yield_u"], sigma, rtol=0.05)
@@ -115,8 +115,8 @@ class TestMonteCarlo:
 
     def test_normal_distribution_stays_in_band(self):
         circ = _ladder()
-        d = derive.analyse(circ, "frequency", draws=10_000, seed=3, distribution="normal")
-        u = derive.analyse(circ, "frequency", draws=10_000, seed=3, distribution="uniform")
+        d = derive.analyze(circ, "frequency", draws=10_000, seed=3, distribution="normal")
+        u = derive.analyze(circ, "frequency", draws=10_000, seed=3, distribution="uniform")
         # tolerance = 3σ is narrower than a rectangular band of the same width (σ = a/√3)
         assert d.monte_carlo["std"] < u.monte_carlo["std"]
         assert d.low <= d.monte_carlo["min"] and d.monte_carlo["max"] <= d.high
@@ -125,7 +125,7 @@ class TestMonteCarlo:
         # GUM (JCGM 100:2008) law of propagation: f ∝ 1/(ln2 (R1+2R2) C); rectangular parts
         # u = a/√3; first-order sensitivity gives σ_f/f
         circ = _timer()
-        mc = derive.analyse(circ, "frequency", draws=40_000, seed=9).monte_carlo
+        mc = derive.analyze(circ, "frequency", draws=40_000, seed=9).monte_carlo
         R1, R2 = 1e3, 6.8e3
         s = R1 + 2 * R2
         rel = math.sqrt((R1 * 0.05 / math.sqrt(3) / s) ** 2 + (2 * R2 * 0.05 / math.sqrt(3) / s) ** 2
@@ -137,7 +137,7 @@ class TestMonteCarlo:
 class TestWindow:
     def test_margin_widens(self):
         circ = _ladder()
-        d = derive.analyse(circ, "frequency", draws=10_000)
+        d = derive.analyze(circ, "frequency", draws=10_000)
         w = derive.derived_window(circ, d, margin=parse_tolerance("5 %"))
         assert_allclose([w.low, w.high], [d.low * 0.95, d.high * 1.05])
         assert "64 tolerance corners" in w.derived_from and "margin" in w.derived_from
@@ -150,7 +150,7 @@ class TestWindow:
 def test_ladder_frequency_falls_with_every_part(form):
     # the corner enumeration is exact if f is monotonic in each part; checked here by
     # perturbing each part of random ladders (with source and load) by +1 % (common practice)
-    from benchgate.plan.circuits import rc_ladder
+    from benchgate.plan.network import rc_ladder
 
     rng = np.random.default_rng(42)
     m, n = 300, 4

@@ -84,7 +84,7 @@ def test_binary_never_crashes(tmp_path_factory, blob):
 
 @settings(max_examples=40, deadline=None, derandomize=True, suppress_health_check=[HealthCheck.too_slow])
 @given(text=mutated())
-def test_cli_check_never_tracebacks(tmp_path_factory, text):
+def test_cli_inspect_never_tracebacks(tmp_path_factory, text):
     import contextlib
     import io
 
@@ -94,7 +94,7 @@ def test_cli_check_never_tracebacks(tmp_path_factory, text):
     p.write_text(text, encoding="utf-8", errors="surrogatepass")
     out, err = io.StringIO(), io.StringIO()
     with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
-        code = main(["check", str(p), "--json"])
+        code = main(["inspect", str(p), "--json"])
     assert code in (0, 2)
     if code == 2:
         lines = err.getvalue().splitlines()

@@ -62,12 +62,12 @@ class TestExamplePlans:
         assert p.steps[-1].output is False
 
     def test_tb3_windows(self):
-        from .test_circuits import _nodal_180
+        from .test_network import _nodal_180
 
         p = load_plan(str(PLANS / "tb3.yaml"))
         assert p.decision == "simple"
         f = p.step("steady").checks[0]
-        # independent nodal analysis (test_circuits) with the amplifier's 1k output and 47k input
+        # independent nodal analysis (test_network) with the amplifier's 1k output and 47k input
         # resistance as source and load; the ideal ladder, handbook 1/(2πRC√6) (docs/references.md),
         # is ≈ 955 Hz and the loading moves it down a little (interfaces.md)
         f_ref, g_ref, _ = _nodal_180([6800.0] * 3, [10e-9] * 3, "highpass", 1e3, 47e3)

@@ -294,7 +294,7 @@ def test_reports_draw_the_runs_views_without_analysing_again(tmp_path, capture, 
     rec, layout, _ = _with_views(tmp_path, capture)
 
     def no_second_analysis(*args, **kwargs):
-        raise AssertionError("the report analysed the capture again")
+        raise AssertionError("the report analyzed the capture again")
 
     import benchgate.analysis
     import benchgate.analysis.core

@@ -192,7 +192,7 @@ class FakeAdc:
         self.frequency = frequency
         self.rate = rate
         self.supply_on_at_start: list[bool] = []
-        self.disconnect_after = None  # fraction of the record after which the device "goes away"
+        self.disconnect_after = None  # fraction of the capture after which the device "goes away"
 
     def capture(self, channel, *, duration, rate=None, progress=None):
         rate = rate or self.rate

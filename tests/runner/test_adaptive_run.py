@@ -1,5 +1,5 @@
 """An adaptive capture step on the understudy bench: stops early on a good unit, runs to the
-longest record on a unit near a limit, and says so in the record, report and database."""
+longest capture on a unit near a limit, and says so in the record, report and database."""
 
 from __future__ import annotations
 
@@ -98,7 +98,7 @@ def test_unit_near_a_limit_runs_to_the_longest_record(ubench, tmp_path):
     out, _ = run(ubench, tmp_path, f"{{min: 700 Hz, max: {f + 0.02:.3f} Hz}}", serial="OH-AD-2")
     tone = next(s for s in out.record.steps if s.id == "tone")
     story = tone.capture.metadata["adaptive"]
-    assert "longest record 1 s reached" in story["stopped"]
+    assert "longest capture 1 s reached" in story["stopped"]
     assert 2 <= len(story["looks"]["frequency"]) <= 10  # looks passed during an analysis are skipped
     assert all(lk["decided"] is None for lk in story["looks"]["frequency"])
     assert tone.capture.samples == pytest.approx(50_000, abs=50)

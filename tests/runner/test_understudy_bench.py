@@ -58,7 +58,7 @@ def test_good_unit_passes(ubench, plan, tmp_path):
     assert rec.instruments and {i.role for i in rec.instruments} >= {"adc", "supply"}
     assert outcome.paths["json"].exists() and outcome.paths["html"].exists()
     assert any("switched on" in n for n in rec.steps[2].notes)
-    # the start-up is timed from where in the record the supply came on, not from its first sample
+    # the start-up is timed from where in the capture the supply came on, not from its first sample
     startup = checks_of(outcome, "power-on")["startup_time"].result
     assert startup.details["measured_from"] == "power-on instant"
     assert 0.0 < startup.details["power_on_at_s"] < 0.4
@@ -105,7 +105,7 @@ def test_wrong_capacitor_fails_frequency(ubench, plan, tmp_path):
 def test_subtle_defects_do_not_pass(ubench, plan, tmp_path, defect):
     (outcome,), _ = run_units(ubench, plan, tmp_path, [(f"OH-S-{defect}", defect)])
     # noise and dropouts leave THD alone but raise THD+N (IEEE Std 1241-2010: THD+N = 1/SINAD);
-    # a dropout also shows as a deep dip of the envelope (whichever the record caught)
+    # a dropout also shows as a deep dip of the envelope (whichever the capture caught)
     steady = checks_of(outcome, "steady")
     caught = [c for c in (steady["thd_n"], steady["amplitude_dip"]) if c.verdict == Verdict.FAIL]
     assert caught and all("above" in c.reason for c in caught)
@@ -161,7 +161,7 @@ def test_adc_disconnect_mid_capture(plan, tmp_path):
     assert rec.verdict == Verdict.ERROR and outcome.exit_code == 3
     assert "disconnected" in rec.reason and rec.reason.startswith("adc")
     power_on = rec.steps[2]
-    assert power_on.status == "error" and power_on.capture is not None  # the partial record is kept
+    assert power_on.status == "error" and power_on.capture is not None  # the partial capture is kept
     assert outcome.paths["capture:power-on"].exists() and outcome.paths["json"].exists()
     assert [s.status for s in rec.steps[3:]] == ["skipped"] * 4
     conn = sqlite3.connect(options.database)

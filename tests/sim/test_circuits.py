@@ -155,7 +155,7 @@ class TestWien:
 
 
 class TestAstable:
-    def test_check_values(self):
+    def test_reference_values(self):
         p = astable.AstableParams(r1=1e3, r2=10e3, c=10e-9)
         # docs/references.md check: 1/(ln2·(R1+2R2)·C) = 6870 Hz, duty (R1+R2)/(R1+2R2) = 52.38 %
         assert p.frequency == pytest.approx(6870, rel=1e-4)
@@ -171,7 +171,7 @@ class TestAstable:
         falls = edges[high[edges]]
         period = np.mean(np.diff(rises)) / rate
         width = np.mean(falls[falls > rises[0]][: rises.size - 1] - rises[: -1]) / rate
-        # docs/references.md check values, to the sampling grid
+        # docs/references.md reference values, to the sampling grid
         assert 1 / period == pytest.approx(6870, rel=1e-3)
         assert width / period == pytest.approx(0.5238, abs=1e-3)
 

@@ -6,7 +6,7 @@ import math
 
 import pytest
 
-from benchgate.errors import NotFiniteError, UnitError
+from benchgate.errors import NotFiniteError, QuantityError
 from benchgate.units import parse_quantity, parse_value
 from benchgate.units.parse import parse_rate
 
@@ -54,19 +54,19 @@ class TestPrefixes:
         assert parse_quantity("10k", "ohm").value == 10e3
 
     def test_no_prefix_on_ratios(self):
-        with pytest.raises(UnitError):
+        with pytest.raises(QuantityError):
             parse_quantity("5 k%")
-        with pytest.raises(UnitError):
+        with pytest.raises(QuantityError):
             parse_quantity("3 mdB")
 
     @pytest.mark.parametrize("bad", ["", "   ", "fast", "1..2 V", "1 V V", "1 furlong", "nan", "inf Hz"])
     def test_unreadable(self, bad):
-        with pytest.raises(UnitError):
+        with pytest.raises(QuantityError):
             parse_quantity(bad)
 
     @pytest.mark.parametrize("bad", [True, None, [1], {"a": 1}, float("nan"), float("inf")])
     def test_not_numbers(self, bad):
-        with pytest.raises(UnitError):
+        with pytest.raises(QuantityError):
             parse_quantity(bad, "V")
 
 
@@ -99,28 +99,28 @@ class TestLetterCodes:
         assert parse_quantity("6k8", "ohm").unit == "Ω"
 
     def test_capacitor_code_is_not_a_resistance(self):
-        with pytest.raises(UnitError, match="capacitance"):
+        with pytest.raises(QuantityError, match="capacitance"):
             parse_quantity("2n2", "Ω", field="R")
 
     def test_resistor_code_is_not_a_capacitance(self):
-        with pytest.raises(UnitError, match="resistance"):
+        with pytest.raises(QuantityError, match="resistance"):
             parse_quantity("4R7", "F", field="C")
 
 
 class TestDimensions:
     def test_frequency_in_volts_names_the_field(self):
-        with pytest.raises(UnitError) as exc:
+        with pytest.raises(QuantityError) as exc:
             parse_quantity("1.2 V", "Hz", field="steps[2].checks.frequency.max")
         msg = str(exc.value)
         assert msg.startswith("steps[2].checks.frequency.max:")
         assert "frequency" in msg and "voltage" in msg
 
     def test_time_for_current(self):
-        with pytest.raises(UnitError, match="current_limit: expected a current in A, got a time"):
+        with pytest.raises(QuantityError, match="current_limit: expected a current in A, got a time"):
             parse_quantity("50 ms", "A", field="current_limit")
 
     def test_unknown_expected_unit(self):
-        with pytest.raises(UnitError):
+        with pytest.raises(QuantityError):
             parse_quantity("1", "furlong")
 
 
@@ -144,7 +144,7 @@ class TestInductanceCodes:
 
     def test_r_is_not_read_as_henry(self):
         # "4R7" on an inductor commonly means 4.7 µH; refuse rather than read 4.7 H
-        with pytest.raises(UnitError, match="inductance"):
+        with pytest.raises(QuantityError, match="inductance"):
             parse_quantity("4R7", "H", field="L")
 
 
@@ -157,5 +157,5 @@ class TestRate:
 
     @pytest.mark.parametrize("bad", ["0", "-48k", "nan", "48 V", "fast", "inf"])
     def test_refused(self, bad):
-        with pytest.raises(UnitError):
+        with pytest.raises(QuantityError):
             parse_rate(bad)

@@ -1,5 +1,5 @@
 """Terms of the level measurements' budgets that need more than one line: the bound stated
-for a record with no oscillation, the settling of a still-moving amplitude, and the amplitude
+for a capture with no oscillation, the settling of a still-moving amplitude, and the amplitude
 lost to a phase the fit does not follow."""
 
 from __future__ import annotations
@@ -23,18 +23,18 @@ from benchgate.analysis.uncertainty import expand, quantisation_std
 
 
 def no_oscillation_amplitude(ctx: Context, capture: Capture) -> Measurement | None:
-    """A valid upper bound for the amplitude of a record with no oscillation, or None.
+    """A valid upper bound for the amplitude of a capture with no oscillation, or None.
 
     A flat line, or a steady part that is flat or only drifts (nothing faster than one cycle
-    per record, e.g. an oscillation that died out), bounds the amplitude by half the span.
-    A record whose fit did not pass the detection test (noise only) bounds it by the larger of
-    twice the amplitude that test would have detected, √(4σ²T/N) with T its threshold and σ²
+    per capture, e.g. an oscillation that died out), bounds the amplitude by half the span.
+    A capture whose fit stayed below the detection threshold (noise only) bounds it by the larger of
+    twice the amplitude that threshold would have detected, √(4σ²T/N) with T the threshold and σ²
     the noise floor at the fitted frequency, and √2 times the AC rms of the steady part (no
-    sine can carry more than the record's power, whether or not it was detected). A dead unit
+    sine can carry more than the capture's power, whether or not it was detected). A dead unit
     then fails an amplitude window instead of being left undecided.
     """
     q = quantisation_std(capture.adc)
-    if ctx.checked.flat:
+    if ctx.validation.flat:
         half = 0.5 * float(np.ptp(capture.samples))
         return Measurement("amplitude", half, "V", half + expand(q),
                            details={"method": "bound: flat line", "no_oscillation": True})
@@ -44,7 +44,7 @@ def no_oscillation_amplitude(ctx: Context, capture: Capture) -> Measurement | No
     fit = tone.fit
     if tone.reason == NO_OSCILLATION_SLOW:
         # less than a cycle of a large slow sine looks just like a drift: its amplitude is not
-        # bounded by anything in the record
+        # bounded by anything in the capture
         return Measurement.invalid("amplitude", "V", f"{NO_OSCILLATION_SLOW}: part of one slow cycle "
                                    "cannot be told from a drift, so no amplitude bound can be stated")
     if tone.reason != NO_TONE or fit is None:
@@ -53,7 +53,7 @@ def no_oscillation_amplitude(ctx: Context, capture: Capture) -> Measurement | No
                            details={"method": "bound: half the span of the steady part",
                                     "no_oscillation": True})
     detectable = math.sqrt(4.0 * tone.noise_floor * detection_threshold(fit.n) / fit.n)
-    # a sine of amplitude A carries A²/2 of the record's AC power, so √2·(AC rms) bounds any
+    # a sine of amplitude A carries A²/2 of the capture's AC power, so √2·(AC rms) bounds any
     # sine that is there but was not detected as one (e.g. a chirp too fast to follow); the
     # detection limit alone bounds only a steady sine
     span_bound = math.sqrt(2.0) * float(np.std(ctx.y))
@@ -79,10 +79,10 @@ def wander(ctx: Context) -> Wander:
     """Amplitude lost to a phase the model does not follow, as a relative standard uncertainty.
 
     A sine fit along a phase that is off by ε(t) finds A·mean(cos ε) ≈ A(1 − ε²/2): the phase
-    residual about the fitted quadratic beyond its noise (rms ε, from the window phases of
+    residual about the fitted quadratic beyond its noise (rms ε, from the segment phases of
     :mod:`benchgate.analysis._track`) gives the term ε²/2 (derived, second-order Taylor).
     Only a residual clearly above the noise (more than twice its expected rms) counts. A
-    phase that cannot be followed from window to window, or a loss above 5 %, leaves no
+    phase that cannot be followed from segment to segment, or a loss above 5 %, leaves no
     trustworthy amplitude at all.
     """
     track = ctx.tone.track
@@ -90,7 +90,7 @@ def wander(ctx: Context) -> Wander:
         return Wander()
     if not track.followed:
         if track.residual > 2.0 * track.noise or track.step > 0.25 * math.pi:
-            return Wander(reason="frequency changes too fast to follow over the record: the fitted "
+            return Wander(reason="frequency changes too fast to follow over the capture: the fitted "
                            "amplitude would be too small")
         return Wander()
     if track.residual <= 2.0 * track.noise:
@@ -98,7 +98,7 @@ def wander(ctx: Context) -> Wander:
     loss = 0.5 * track.misfit ** 2
     if loss > MAX_WANDER:
         return Wander(reason=f"the phase wanders {track.misfit:.2f} rad rms beyond a steady drift: "
-                       "no single amplitude fits the record")
+                       "no single amplitude fits the capture")
     return Wander(loss)
 
 
@@ -108,7 +108,7 @@ def settling(ctx: Context) -> float:
     The steady part may begin while the amplitude is still within the steady band (1 % of the
     level) but not yet settled, e.g. the slow tail of an exponential approach; the fit then
     averages over that tail. The fitted amplitude is compared with a three-parameter fit (same
-    frequency) to the last quarter of the record; when they differ by more than three standard
+    frequency) to the last quarter of the capture; when they differ by more than three standard
     deviations of the difference (nested least-squares estimates: var = 2σ²(1/K − 1/N), K and
     N the samples of the quarter and of the steady part; Rife and Boorstyn 1974 for 2σ²/N),
     the difference is returned as a standard uncertainty term (relative); else 0.

@@ -1,10 +1,10 @@
 """Is there a tone? The fitted sine's power against the noise floor around its own frequency.
 
 The fitted fundamental counts as a tone when its periodogram peak, N·A²/4 (V², the scale of
-|X_k|²/N of a rectangular-window DFT), stands far enough above the noise expected in one bin
-*at that frequency*. Measuring that noise with one number for the whole record (the fit's
+|X_k|²/N of a untapered (rectangular) DFT), stands far enough above the noise expected in one bin
+*at that frequency*. Measuring that noise with one number for the whole capture (the fit's
 residual variance) assumes white noise; with 1/f ("pink") noise the low bins hold many times
-the average noise and a noise-only record would pass as a low tone. The local floor is read
+the average noise and a noise-only capture would pass as a low tone. The local floor is read
 from the spectrum of the fit residual near the tone instead.
 """
 
@@ -16,7 +16,7 @@ import numpy as np
 
 from benchgate.analysis.spectrum import Spectrum, interpolated_peak, mean_square, power_spectrum
 
-#: detection margin m (natural-log units): P_FA ≈ e^(−m) per record for a known floor.
+#: detection margin m (natural-log units): P_FA ≈ e^(−m) per capture for a known floor.
 DETECTION_MARGIN = 25.0
 #: fewest neighbouring bins the local floor is read from (below this: the global floor alone).
 MIN_FLOOR_BINS = 8
@@ -31,12 +31,12 @@ MIN_PEAK_BIN = 4
 
 
 def detection_threshold(n: int) -> float:
-    """Smallest N·A²/(4σ²) counted as a tone in a record of ``n`` samples.
+    """Smallest N·A²/(4σ²) counted as a tone in a capture of ``n`` samples.
 
     Parameters
     ----------
     n : int
-        Samples in the record.
+        Samples in the capture.
 
     Returns
     -------
@@ -60,19 +60,19 @@ def detection_threshold(n: int) -> float:
     return math.log(max(n, 2)) + DETECTION_MARGIN
 
 
-def beyond_any_local_floor(n: int, cycles: float, window: str) -> float:
+def beyond_any_local_floor(n: int, cycles: float, taper: str) -> float:
     """A detection statistic N·A²/(4σ²_r) (σ²_r the residual variance) at or above this value
     passes against any floor :func:`local_floor` can return, so that floor need not be computed.
 
     At least half of M bins lie at or above their median, so a median is at most 2/M of their
-    sum; the bins of a windowed spectrum sum to at most 1/mean(w²) times the residual's
-    variance (all of it where the window is 1); M ≥ MIN_FLOOR_BINS. Hence
+    sum; the bins of a tapered spectrum sum to at most 1/mean(w²) times the residual's
+    variance (all of it where the taper is 1); M ≥ MIN_FLOOR_BINS. Hence
     local floor ≤ σ²_r·N/(M·ln 2·mean(w²)) (derived). Tones of fewer than 17 cycles, whose
     floor may also be extrapolated along a power law, are always checked (returns inf).
     """
     if cycles < 17.0:
         return math.inf
-    return detection_threshold(n) * n / (MIN_FLOOR_BINS * math.log(2.0) * mean_square(window))
+    return detection_threshold(n) * n / (MIN_FLOOR_BINS * math.log(2.0) * mean_square(taper))
 
 
 def local_floor(spec: Spectrum, cycles: float) -> float | None:
@@ -81,10 +81,10 @@ def local_floor(spec: Spectrum, cycles: float) -> float | None:
     Parameters
     ----------
     spec : Spectrum
-        Windowed power spectrum of the residual (fitted sine removed); white noise of
+        Tapered power spectrum of the residual (fitted sine removed); white noise of
         variance σ² gives E[power_k] = 2σ²/N, so ``power_k·N/2`` is in units of σ².
     cycles : float
-        The tone's frequency in bins (cycles per record).
+        The tone's frequency in bins (cycles per capture).
 
     Returns
     -------

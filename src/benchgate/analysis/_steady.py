@@ -1,4 +1,4 @@
-"""Oscillation envelope and where the steady part of a record begins.
+"""Oscillation envelope and where the steady part of a capture begins.
 
 The envelope is a sliding one-period estimate of the peak amplitude, √2 times the local
 standard deviation (local mean removed), computed with cumulative sums in O(N).
@@ -11,10 +11,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-NOT_STEADY = "amplitude not steady in the last part of the record (dropouts?)"
-STILL_CHANGING = "amplitude still changing at the end of the record"
+NOT_STEADY = "amplitude not steady in the last part of the capture (dropouts?)"
+STILL_CHANGING = "amplitude still changing at the end of the capture"
 
-#: fraction of the record at its end taken as "steady" for the reference amplitude.
+#: fraction of the capture at its end taken as "steady" for the reference amplitude.
 TAIL_FRACTION = 0.25
 
 
@@ -24,18 +24,18 @@ class Envelope:
 
     centre: np.ndarray
     level: np.ndarray
-    window: int
+    span: int
 
 
 @dataclass(frozen=True)
 class Steady:
-    """Where the steady part begins and how the record got there."""
+    """Where the steady part begins and how the capture got there."""
 
     start: int  # first sample of the steady part
     level: float  # steady envelope amplitude (V peak)
     tolerance: float  # envelope band (V) counted as steady
     startup_index: float | None  # fractional sample where the envelope first reaches 90 %
-    growing: bool  # envelope still changing at the end of the record
+    growing: bool  # envelope still changing at the end of the capture
     warning: str | None
     startup_u: float = 0.0  # standard uncertainty (samples) of the crossing from envelope noise
 
@@ -43,9 +43,9 @@ class Steady:
 def envelope(x: np.ndarray, period_samples: float, stride: int | None = None) -> Envelope:
     """Sliding one-period amplitude envelope of ``x``.
 
-    The window spans exactly one period (a fractional number of samples; for periods under
+    The span is exactly one period (a fractional number of samples; for periods under
     4 samples, the fewest whole periods covering 4 samples): the cumulative
-    sums are interpolated at the window's fractional end, which removes the ripple a whole
+    sums are interpolated at the span's fractional end, which removes the ripple a whole
     number of samples would leave (it would bias the start-up crossing on slow envelopes).
 
     References
@@ -55,7 +55,7 @@ def envelope(x: np.ndarray, period_samples: float, stride: int | None = None) ->
     """
     n = x.size
     period = float(period_samples)
-    # at least 4 samples, and a whole number of periods (a window of 4 samples over a period
+    # at least 4 samples, and a whole number of periods (a span of 4 samples over a period
     # of 2.5 would ripple by tens of per cent and look like a changing amplitude)
     p = period * math.ceil(4.0 / period) if 0.0 < period < 4.0 else max(4.0, period)
     p = float(min(p, n - 1.0))
@@ -74,7 +74,7 @@ def envelope(x: np.ndarray, period_samples: float, stride: int | None = None) ->
     s1 = (c1[ends] - c1[starts] + frac * xc[ends]) / p
     s2 = (c2[ends] - c2[starts] + frac * sq[ends]) / p
     var = np.maximum(s2 - s1 * s1, 0.0)
-    return Envelope(centre=starts + (p - 1.0) / 2.0, level=np.sqrt(2.0 * var), window=int(round(p)))
+    return Envelope(centre=starts + (p - 1.0) / 2.0, level=np.sqrt(2.0 * var), span=int(round(p)))
 
 
 def _smoothing_periods(level: float, sd_env: float) -> int:
@@ -96,7 +96,7 @@ def _crossing(env: Envelope, level: float, sd_env: float) -> tuple[float | None,
     if lv.size == 0 or not level > 0:
         return None, 0.0
     k = _smoothing_periods(level, sd_env)
-    points_per_period = max(1, int(round(lv.size / max(env.centre[-1] - env.centre[0], 1.0) * env.window)))
+    points_per_period = max(1, int(round(lv.size / max(env.centre[-1] - env.centre[0], 1.0) * env.span)))
     width = min(k * points_per_period, max(1, lv.size // 8))
     if width > 1:
         c = np.concatenate(([0.0], np.cumsum(lv)))
@@ -124,22 +124,22 @@ def _crossing(env: Envelope, level: float, sd_env: float) -> tuple[float | None,
     if width > 1:
         # a centred average over W samples of a rising envelope crosses a level within ±W/2 of
         # where the envelope itself crosses it (the average lies between the envelope's values
-        # at the window's ends): a rectangular bound for the bias of the smoothing (derived)
+        # at the span's ends): a rectangular bound for the bias of the smoothing (derived)
         step = float(env.centre[1] - env.centre[0]) if env.centre.size > 1 else 1.0
         u = math.hypot(u, 0.5 * width * step / math.sqrt(3.0))
     return at, float(min(u, env.centre[-1]))
 
 
 def find_steady(env: Envelope, n: int, cycles: float, noise_var: float) -> Steady:
-    """Reference amplitude from the last part of the record, start-up crossing, steady start.
+    """Reference amplitude from the last part of the capture, start-up crossing, steady start.
 
-    The steady part begins one window after the last envelope point outside the steady
+    The steady part begins one span after the last envelope point outside the steady
     band: ±(max(1 % of the level, 5.5 standard deviations of the envelope noise, twice the
     75th percentile of the tail's own deviations — ripple of a coarsely sampled period or of
-    harmonics, but not brief dropouts) + a small allowance for the window). The envelope noise follows from the
-    record's noise variance ``noise_var`` (σ², from a sine fit to the tail): the variance
+    harmonics, but not brief dropouts) + a small allowance for the span). The envelope noise follows from the
+    capture's noise variance ``noise_var`` (σ², from a sine fit to the tail): the variance
     over M samples of sine plus noise has variance (4σ²S + 2σ⁴)/M, S = A²/2 (derived), so
-    noise alone practically never trims a steady record. Records shorter than 8 cycles are
+    noise alone practically never trims a steady capture. Records shorter than 8 cycles are
     taken as steady from their first sample.
 
     References
@@ -154,7 +154,7 @@ def find_steady(env: Envelope, n: int, cycles: float, noise_var: float) -> Stead
     if tail.size == 0:
         tail = level_all[-1:]
     level = float(np.median(tail))
-    m = env.window
+    m = env.span
     s_mean = 0.5 * level * level
     sd_var = math.sqrt(max(4.0 * noise_var * s_mean + 2.0 * noise_var * noise_var, 0.0) / m)
     sd_env = sd_var / level if level > 0 else math.inf
@@ -166,8 +166,8 @@ def find_steady(env: Envelope, n: int, cycles: float, noise_var: float) -> Stead
     if level <= 0:
         # the oscillation (if any) died out: the steady part is the dead tail
         alive = np.flatnonzero(level_all > 0)
-        start = int(math.ceil(env.centre[alive[-1]] + env.window)) if alive.size else 0
-        warning = "no oscillation at the end of the record" if alive.size else None
+        start = int(math.ceil(env.centre[alive[-1]] + env.span)) if alive.size else 0
+        warning = "no oscillation at the end of the capture" if alive.size else None
         return Steady(min(start, n), level, 0.0, None, False, warning)
     startup, startup_u = _crossing(env, level, sd_env)
     if cycles < 8:
@@ -176,7 +176,7 @@ def find_steady(env: Envelope, n: int, cycles: float, noise_var: float) -> Stead
     start = 0
     warning = None
     if outside.size:
-        start = int(math.ceil(env.centre[outside[-1]] + env.window))
+        start = int(math.ceil(env.centre[outside[-1]] + env.span))
         limit = int(n * (1.0 - TAIL_FRACTION))
         if start > limit:
             start = limit

@@ -1,9 +1,9 @@
-"""Following the phase of the fundamental over the record, and a sine whose frequency drifts.
+"""Following the phase of the fundamental over the capture, and a sine whose frequency drifts.
 
-A fixed-frequency sine fit to a tone whose frequency drifts loses amplitude: over the record
+A fixed-frequency sine fit to a tone whose frequency drifts loses amplitude: over the capture
 the tone slides out of phase with the fitted sine, so the fitted amplitude is the average of
 a rotating phasor, too small (a 1 % error by a quarter of a bin of sweep, a third by four).
-Here the phase of short windows is followed over the record, a quadratic phase (a linear
+Here the phase of short segments is followed over the capture, a quadratic phase (a linear
 frequency drift) is fitted to it, and, when the drift is significant, the amplitude and offset
 are fitted again against that chirp (:func:`chirp_fit`). What the quadratic cannot follow
 is reported as the phase misfit, so the caller can widen its uncertainty or refuse.
@@ -19,35 +19,35 @@ import numpy as np
 from benchgate.analysis import sinefit
 from benchgate.analysis.sinefit import Workspace
 
-#: most windows the steady part is cut into at first; each holds at least 2 cycles.
-MAX_WINDOWS = 16
-MIN_WINDOWS = 4
-#: most windows when a strong drift needs shorter ones (each still holds at least 2 cycles).
+#: most segments the steady part is cut into at first; each holds at least 2 cycles.
+MAX_SEGMENTS = 16
+MIN_SEGMENTS = 4
+#: most segments when a strong drift needs shorter ones (each still holds at least 2 cycles).
 MAX_REFINED_WINDOWS = 1024
 #: a quadratic phase term counts as a drift when it exceeds this many standard deviations.
 SIGNIFICANT = 3.0
 
 
-def window_phases(y: np.ndarray, omega: float, windows: int,
+def segment_phases(y: np.ndarray, omega: float, segments: int,
                   work: Workspace | None = None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Phase (rad, unwrapped), amplitude and centre (samples) of a fixed-ω three-parameter fit per window.
+    """Phase (rad, unwrapped), amplitude and centre (samples) of a fixed-ω three-parameter fit per segment.
 
-    The cosine and sine are computed once for the whole record (or taken from ``work``, set
-    at ω); the per-window 3×3 normal equations come from segment sums (``numpy.add.reduceat``).
+    The cosine and sine are computed once for the whole capture (or taken from ``work``, set
+    at ω); the per-segment 3×3 normal equations come from segment sums (``numpy.add.reduceat``).
     """
     n = y.size
     if work is None or work.n != n:
         work = Workspace(n)
         work.set(omega)
     c, s = work.c, work.s
-    bounds = np.linspace(0, n, windows + 1).round().astype(np.int64)
+    bounds = np.linspace(0, n, segments + 1).round().astype(np.int64)
     starts = bounds[:-1]
     cnt = np.diff(bounds).astype(float)
 
     def seg(v: np.ndarray) -> np.ndarray:
         return np.add.reduceat(v, starts)
 
-    g = np.empty((windows, 3, 3))
+    g = np.empty((segments, 3, 3))
     g[:, 0, 0] = seg(c * c)
     g[:, 1, 1] = seg(s * s)
     g[:, 0, 1] = g[:, 1, 0] = seg(c * s)
@@ -64,20 +64,20 @@ def window_phases(y: np.ndarray, omega: float, windows: int,
 
 @dataclass(frozen=True)
 class PhaseTrack:
-    """Quadratic fit φ(t) = p₀ + p₁t + p₂t² (rad, t in s from the record's centre) to the phases
-    of ``windows`` windows relative to the fitted fixed frequency."""
+    """Quadratic fit φ(t) = p₀ + p₁t + p₂t² (rad, t in s from the capture's centre) to the phases
+    of ``segments`` segments relative to the fitted fixed frequency."""
 
     coef: np.ndarray  # p0 (rad), p1 (rad/s), p2 (rad/s²)
     cov: np.ndarray  # 3×3 covariance of coef
-    windows: int
-    window_s: float
-    step: float  # largest phase turn between neighbouring windows (rad)
+    segments: int
+    segment_s: float
+    step: float  # largest phase turn between neighbouring segments (rad)
     residual: float  # rms phase residual about the quadratic (rad)
-    noise: float  # phase noise per window expected from the fit residual (rad)
+    noise: float  # phase noise per segment expected from the fit residual (rad)
 
     @property
     def followed(self) -> bool:
-        """Neighbouring window phases within π/4: unwrapping them can be trusted."""
+        """Neighbouring segment phases within π/4: unwrapping them can be trusted."""
         return self.step <= 0.25 * math.pi and self.residual <= 0.25 * math.pi
 
     @property
@@ -103,48 +103,48 @@ def track_phase(y: np.ndarray, fit: sinefit.SineFit, cycles: float, sample_rate:
 
     Notes
     -----
-    The record is cut into 4 to 16 equal windows (more, up to 1024, when the phase turns by
-    more than π/4 between neighbouring windows); a three-parameter fit at the fitted frequency
-    gives each window's phase; a least-squares quadratic in time gives the drift. The phase
+    The capture is cut into 4 to 16 equal segments (more, up to 1024, when the phase turns by
+    more than π/4 between neighbouring segments); a three-parameter fit at the fitted frequency
+    gives each segment's phase; a least-squares quadratic in time gives the drift. The phase
     noise is the larger of the regression residual and the Cramér–Rao phase term
-    √(2σ²/(M·A²)) per window of M samples.
+    √(2σ²/(M·A²)) per segment of M samples.
 
     References
     ----------
     IEEE Std 1057-2017 (three-parameter fit); S. M. Kay, Fundamentals of Statistical Signal
     Processing, Vol. I, 1993 (phase variance); linear least squares with its covariance.
     """
-    windows = min(MAX_WINDOWS, int(cycles // 2))
-    if windows < MIN_WINDOWS or not fit.amplitude > 0:
+    segments = min(MAX_SEGMENTS, int(cycles // 2))
+    if segments < MIN_SEGMENTS or not fit.amplitude > 0:
         return None
     fs = sample_rate
     most = min(MAX_REFINED_WINDOWS, int(cycles // 2))
     while True:
         try:
-            phase, _, centre = window_phases(y, fit.omega, windows, work)
+            phase, _, centre = segment_phases(y, fit.omega, segments, work)
         except np.linalg.LinAlgError:
-            # a window's [cos, sin, 1] columns are dependent (the fitted ω turns too little
-            # within a window): no phase to follow, so nothing built on it can be trusted
+            # a segment's [cos, sin, 1] columns are dependent (the fitted ω turns too little
+            # within a segment): no phase to follow, so nothing built on it can be trusted
             nan3 = np.full(3, math.nan)
-            return PhaseTrack(nan3, np.full((3, 3), math.nan), windows, y.size / windows / sample_rate,
+            return PhaseTrack(nan3, np.full((3, 3), math.nan), segments, y.size / segments / sample_rate,
                               math.inf, math.inf, math.nan)
         t = (centre - (y.size - 1) / 2.0) / fs
         v = np.stack([np.ones_like(t), t, t * t], axis=1)
         coef, *_ = np.linalg.lstsq(v, phase, rcond=None)
-        # a strong drift turns the phase by more than π/4 between neighbouring windows, where
-        # unwrapping becomes ambiguous (and the fixed-ω fit of each window smears): use more,
-        # shorter windows then
-        step = float(np.max(np.abs(coef[1] + 2.0 * coef[2] * t))) * (y.size / windows / fs)
-        if step <= 0.25 * math.pi or windows >= most:
+        # a strong drift turns the phase by more than π/4 between neighbouring segments, where
+        # unwrapping becomes ambiguous (and the fixed-ω fit of each segment smears): use more,
+        # shorter segments then
+        step = float(np.max(np.abs(coef[1] + 2.0 * coef[2] * t))) * (y.size / segments / fs)
+        if step <= 0.25 * math.pi or segments >= most:
             break
-        windows = min(4 * windows, most)
+        segments = min(4 * segments, most)
     resid = phase - v @ coef
-    s_res = math.sqrt(float(resid @ resid) / max(windows - 3, 1))
-    m = y.size / windows
+    s_res = math.sqrt(float(resid @ resid) / max(segments - 3, 1))
+    m = y.size / segments
     s_th = math.sqrt(2.0 * fit.residual_var / (m * fit.amplitude ** 2))
     sigma = max(s_res, s_th)
     cov = sigma * sigma * np.linalg.inv(v.T @ v)
-    return PhaseTrack(coef, cov, windows, m / fs, step, s_res, s_th)
+    return PhaseTrack(coef, cov, segments, m / fs, step, s_res, s_th)
 
 
 @dataclass(frozen=True)

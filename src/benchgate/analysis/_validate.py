@@ -1,4 +1,4 @@
-"""The one place capture samples are checked before measuring.
+"""The one place capture samples are validated before measuring.
 
 Returns warnings (shown with the capture) and, when nothing can be measured at all, a
 fatal reason that every measurement repeats. Clipping is reported separately because it
@@ -21,8 +21,8 @@ MAX_ABS = 1e100
 
 
 @dataclass(frozen=True)
-class Checked:
-    """Outcome of :func:`check_capture`."""
+class Validation:
+    """Outcome of :func:`validate_capture`."""
 
     fatal: str | None
     warnings: tuple[str, ...]
@@ -143,27 +143,27 @@ def _rail_clipping(x: np.ndarray, adc: AdcInfo, low_mask: np.ndarray, high_mask:
             f"the end code without clipping would put at most {int(allowed)} there)")
 
 
-def check_capture(capture: Capture) -> Checked:
-    """Check a capture's samples: count, finiteness, flat line, clipping or flat tops."""
+def validate_capture(capture: Capture) -> Validation:
+    """Validate a capture's samples: count, finiteness, flat line, clipping or flat tops."""
     x = capture.samples
     warnings: list[str] = []
     if x.size < MIN_SAMPLES:
         reason = f"too few samples ({x.size}; at least {MIN_SAMPLES} needed)"
-        return Checked(reason, (reason,), None, False, np.nan, np.nan)
+        return Validation(reason, (reason,), None, False, np.nan, np.nan)
     bad = int(np.count_nonzero(~np.isfinite(x)))
     if bad:
-        reason = f"{bad} NaN or infinite sample(s) in the record"
-        return Checked(reason, (reason,), None, False, np.nan, np.nan)
+        reason = f"{bad} NaN or infinite sample(s) in the capture"
+        return Validation(reason, (reason,), None, False, np.nan, np.nan)
     lo, hi = float(np.min(x)), float(np.max(x))
     if max(abs(lo), abs(hi)) > MAX_ABS:
-        reason = f"samples out of range (beyond ±{MAX_ABS:g} V): not a voltage record"
-        return Checked(reason, (reason,), None, False, lo, hi)
+        reason = f"samples out of range (beyond ±{MAX_ABS:g} V): not a voltage capture"
+        return Validation(reason, (reason,), None, False, lo, hi)
     span = hi - lo
     scale = max(abs(lo), abs(hi), 1e-300)
     flat_limit = 2.0 * capture.adc.lsb if capture.adc is not None else 1e-9 * scale
     if span <= flat_limit:
-        reason = "flat line: no oscillation in the record"
-        return Checked(reason, (reason,), None, False, lo, hi, flat=True)
+        reason = "flat line: no oscillation in the capture"
+        return Validation(reason, (reason,), None, False, lo, hi, flat=True)
     low, high, counts = _levels_and_counts(x)
     pulse = counts is not None and _pulse_like_from_counts(counts, lo, hi, low, high)
     clipped = None
@@ -187,4 +187,4 @@ def check_capture(capture: Capture) -> Checked:
             clipped = f"flat tops: {100 * frac:.1f} % of samples sit in runs at one extreme (clipping?)"
     if clipped:
         warnings.append(clipped)
-    return Checked(None, tuple(warnings), clipped, pulse, low, high)
+    return Validation(None, tuple(warnings), clipped, pulse, low, high)

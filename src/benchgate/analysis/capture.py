@@ -1,4 +1,4 @@
-"""The record every measurement works on: :class:`Capture`, with its optional :class:`AdcInfo`."""
+"""The capture every measurement works on: :class:`Capture`, with its optional :class:`AdcInfo`."""
 
 from __future__ import annotations
 
@@ -123,7 +123,7 @@ class Capture:
 
     @property
     def duration(self) -> float:
-        """Record length in seconds (n / sample_rate)."""
+        """Capture length in seconds (n / sample_rate)."""
         return self.n / self.sample_rate
 
     @property

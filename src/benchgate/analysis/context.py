@@ -14,10 +14,10 @@ import numpy as np
 
 from benchgate.analysis import _detect, _steady, _track, sinefit, spectrum
 from benchgate.analysis._detect import detection_threshold, local_floor
-from benchgate.analysis._validate import Checked, check_capture, state_levels
+from benchgate.analysis._validate import Validation, state_levels, validate_capture
 from benchgate.analysis.capture import Capture
 
-#: fewest cycles in the analysed part for frequency, amplitude and timing.
+#: fewest cycles in the analyzed part for frequency, amplitude and timing.
 MIN_CYCLES = 3.0
 #: tones of at least this many cycles have their noise floor read off the Blackman–Harris
 #: residual spectrum (shared with the distortion figures), shorter ones off a Hann spectrum.
@@ -26,10 +26,10 @@ WIDE_LOBE_CYCLES = 64.0
 MAX_FRACTION_OF_RATE = 0.45
 
 
-FEW_CYCLES = f"fewer than {MIN_CYCLES:g} cycles in the record"
+FEW_CYCLES = f"fewer than {MIN_CYCLES:g} cycles in the capture"
 NO_TONE = "no tone detected above the noise (no oscillation?)"
 NO_OSCILLATION_FLAT = "no oscillation: the steady part is a flat line"
-NO_OSCILLATION_SLOW = "no oscillation: nothing faster than one cycle per record"
+NO_OSCILLATION_SLOW = "no oscillation: nothing faster than one cycle per capture"
 #: tone reasons meaning "nothing oscillates" (levels can then state a bound on the amplitude)
 NO_OSCILLATION = (NO_TONE, NO_OSCILLATION_FLAT, NO_OSCILLATION_SLOW)
 
@@ -43,7 +43,7 @@ class Tone:
     cycles: float
     reason: str | None  # None when the tone can be trusted
     noise_floor: float = math.nan  # σ² the detection was judged against (V², local or global)
-    track: _track.PhaseTrack | None = None  # the phase followed over the record (≥ 8 cycles)
+    track: _track.PhaseTrack | None = None  # the phase followed over the capture (≥ 8 cycles)
     chirp: _track.ChirpFit | None = None  # fit along the tracked phase, when the drift is significant
 
     @property
@@ -75,19 +75,25 @@ class Context:
         self.harmonics = int(harmonics)
 
     @cached_property
-    def checked(self) -> Checked:
-        return check_capture(self.capture)
+    def validation(self) -> Validation:
+        return validate_capture(self.capture)
 
     @property
     def fatal(self) -> str | None:
-        return self.checked.fatal
+        return self.validation.fatal
+
+    @property
+    def oscillation_problem(self) -> str | None:
+        """Why there is no oscillation to measure: the capture's fatal fault, else the reason the
+        tone cannot be trusted; None when there is one."""
+        return self.fatal or self.tone.reason
 
     @cached_property
     def coarse(self) -> float:
-        """Coarse fundamental (Hz) of the whole record."""
+        """Coarse fundamental (Hz) of the whole capture."""
         if self.fatal:
             return math.nan
-        if self.capture.n > 65536:  # long record: reuse one Blackman–Harris transform
+        if self.capture.n > 65536:  # long capture: reuse one Blackman–Harris transform
             return spectrum.peak_frequency(self._full_spectrum)
         return spectrum.coarse_frequency(self.capture.samples, self.capture.sample_rate)
 
@@ -128,7 +134,7 @@ class Context:
 
     @cached_property
     def warnings(self) -> tuple[str, ...]:
-        out = list(self.checked.warnings)
+        out = list(self.validation.warnings)
         if self.steady.warning:
             out.append(self.steady.warning)
         tone = self.tone
@@ -167,13 +173,13 @@ class Context:
                 steady_phase = second[2] is None or second[2].followed
                 harmonic = _is_harmonic(second[0].omega, fit.omega, n)
                 if second[5] >= detection_threshold(n) and steady_phase and not harmonic:
-                    # (a tone found only this way must keep its phase over the record, a
+                    # (a tone found only this way must keep its phase over the capture, a
                     # ring-down at power-on is no oscillation of the steady part; and it must
                     # not be a harmonic of a distorted waveform of too few cycles)
                     fit, work, track, chirp, floor, detection, spec = second
         self.__dict__["_fit_work"] = work
         if chirp is None and spec is not None:
-            if spec.window == "blackmanharris":  # the same residual: one transform, shared
+            if spec.taper == "blackmanharris":  # the same residual: one transform, shared
                 self.__dict__["residual_spectrum"] = spec
         freq = fit.omega * fs / (2.0 * math.pi)
         cycles = freq * n / fs
@@ -215,16 +221,16 @@ class Context:
         there is one (a drifting tone's own power would otherwise raise its floor)."""
         floor = chirp.residual_var if chirp is not None else fit.residual_var
         spec = None
-        window = "blackmanharris" if cycles >= WIDE_LOBE_CYCLES else "hann"
+        taper = "blackmanharris" if cycles >= WIDE_LOBE_CYCLES else "hann"
         amp = chirp.amplitude if chirp is not None else fit.amplitude
-        if floor > 0 and fit.n * amp ** 2 / (4.0 * floor) >= _detect.beyond_any_local_floor(fit.n, cycles, window):
+        if floor > 0 and fit.n * amp ** 2 / (4.0 * floor) >= _detect.beyond_any_local_floor(fit.n, cycles, taper):
             return floor, None  # no local floor could undo this detection: skip the transform
         if fit.n >= 64 and cycles >= 1.0:
             resid = chirp.residual if chirp is not None else sinefit.residual(self.y, fit)
             # a tone of many cycles: the Blackman–Harris spectrum the distortion figures use
             # too (its wider main lobe costs nothing there); of few: Hann, whose narrower lobe
             # leaves more neighbouring bins below the tone
-            spec = spectrum.power_spectrum(resid, self.capture.sample_rate, window)
+            spec = spectrum.power_spectrum(resid, self.capture.sample_rate, taper)
             local = local_floor(spec, cycles)
             if local is not None:
                 floor = max(floor, local)
@@ -241,7 +247,7 @@ class Context:
     def residual_spectrum(self) -> spectrum.Spectrum | None:
         """Blackman–Harris spectrum of the steady part with the fitted fundamental removed.
 
-        Removing the fundamental in the time domain keeps its window leakage out of the
+        Removing the fundamental in the time domain keeps its taper leakage out of the
         noise and harmonic bins, so SINAD can be measured down to double-precision limits.
         """
         fit = self.tone.fit
@@ -254,7 +260,7 @@ class Context:
     def steady_levels(self) -> tuple[float, float]:
         """IEEE 181 state levels (low, high) of the steady part."""
         if self.start == 0:
-            return self.checked.low_state, self.checked.high_state
+            return self.validation.low_state, self.validation.high_state
         return state_levels(self.y)
 
     @property

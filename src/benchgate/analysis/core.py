@@ -19,7 +19,7 @@ from benchgate.common.names import MEASUREMENT_NAMES
 class Analysis:
     """Everything measured on one capture.
 
-    ``steady_start`` is the time (s from the record start) where the steady part begins;
+    ``steady_start`` is the time (s from the capture start) where the steady part begins;
     ``fundamental`` the fitted frequency (Hz) or None; ``harmonics`` holds
     ``(order, frequency Hz, level dBc)`` for each harmonic considered; ``views`` the plot data
     of the capture (:class:`~benchgate.analysis.views.CaptureViews`) when asked for.
@@ -64,7 +64,7 @@ def analyze(capture: Capture, names: Iterable[str] | None = None, *, harmonics: 
     Parameters
     ----------
     capture : Capture
-        The record.
+        The capture.
     names : iterable of str, optional
         Measurement names (default: all of ``MEASUREMENT_NAMES``, in that order).
     harmonics : int

@@ -1,9 +1,9 @@
 """Distortion and noise of the steady part: THD, THD+N, SINAD, SNR, SFDR and ENOB.
 
-The fundamental's power is its main-lobe power in the Blackman–Harris windowed spectrum of
+The fundamental's power is its main-lobe power in the Blackman–Harris tapered spectrum of
 the steady part; the harmonics, spurs and noise come from the same spectrum or, when the
 noise lies more than 65 dB below the fundamental, from the spectrum of the
-four-parameter fit residual (the fundamental removed in the time domain, so its window
+four-parameter fit residual (the fundamental removed in the time domain, so its taper
 leakage does not masquerade as noise). Harmonic powers are summed over each main lobe (±5 bins); noise is
 the mean power of the remaining bins, extrapolated over the whole band (DC excluded).
 """
@@ -21,11 +21,11 @@ from benchgate.analysis.context import Context, get_context
 from benchgate.analysis.measurement import Measurement
 
 _TINY = 1e-300
-#: above this fundamental-to-noise ratio (65 dB) the Blackman–Harris window's far leakage
+#: above this fundamental-to-noise ratio (65 dB) the Blackman–Harris taper's far leakage
 #: (about −88 dBc summed over the band) would bias the noise, so the noise and harmonics
 #: are measured on the spectrum of the sine-fit residual instead (one more transform).
 LEAKAGE_LIMIT = 10 ** 6.5
-#: most DFT bins the fundamental may move by over the record (drift × duration²) before its
+#: most DFT bins the fundamental may move by over the capture (drift × duration²) before its
 #: power spreads past the band summed as the fundamental (main lobe ± 1 bin)
 MAX_SWEEP_BINS = 1.0
 
@@ -44,7 +44,7 @@ class Harmonics:
     noise_bins: int = 0
     spur_ratio: float = math.nan  # √(largest spur band power / fundamental band power)
     band_noise: float = math.nan  # expected noise power inside one tone band
-    var_factor: float = 2.76  # Σρ of the window (spectrum.variance_factor)
+    var_factor: float = 2.76  # Σρ of the taper (spectrum.variance_factor)
     p1_raw: float = math.nan  # fundamental band power before removing the expected noise
 
 
@@ -54,23 +54,21 @@ def harmonic_analysis(ctx: Context) -> Harmonics:
 
 
 def _compute(ctx: Context) -> Harmonics:
-    if ctx.fatal:
-        return Harmonics(ctx.fatal)
+    if (problem := ctx.oscillation_problem) is not None:
+        return Harmonics(problem)
     tone = ctx.tone
-    if not tone.ok:
-        return Harmonics(tone.reason)
-    if ctx.checked.clipped:
-        return Harmonics(ctx.checked.clipped)
+    if ctx.validation.clipped:
+        return Harmonics(ctx.validation.clipped)
     track = tone.track
     if track is not None and tone.chirp is not None:
         sweep = abs(track.drift) * (ctx.y.size / ctx.capture.sample_rate) ** 2  # bins moved
         if sweep > MAX_SWEEP_BINS:
-            return Harmonics(f"the fundamental drifts by {sweep:.1f} bins over the record: its power "
+            return Harmonics(f"the fundamental drifts by {sweep:.1f} bins over the capture: its power "
                              "is not in one spectral line")
     first = _from_spectrum(ctx, tone, ctx.spectrum, subtract_fundamental=False)
     if first.reason or first.p1 < LEAKAGE_LIMIT * first.noise:
         return first
-    # noise within ~20 dB of the window's far leakage: measure it on the fit residual instead
+    # noise within ~20 dB of the taper's far leakage: measure it on the fit residual instead
     # (judged on the noise alone: strong harmonics do not stop the leakage biasing the SNR)
     return _from_spectrum(ctx, tone, ctx.residual_spectrum, subtract_fundamental=True, p1_raw=first.p1_raw)
 
@@ -116,11 +114,11 @@ def _from_spectrum(ctx: Context, tone, spec, *, subtract_fundamental: bool,
     spur = max([float(np.sum(rest[max(0, k_spur - hw):k_spur + hw + 1]))] + powers)
     return Harmonics(None, p1, tuple(orders), tuple(freqs), tuple(powers), harm, max(noise, p1 * 1e-30),
                      n_free, math.sqrt(spur / p1) if p1 > 0 else math.nan, band_noise,
-                     _spectrum.variance_factor(spec.window), p1_raw)
+                     _spectrum.variance_factor(spec.taper), p1_raw)
 
 
 def _details(h: Harmonics) -> dict:
-    return {"harmonics_summed": list(h.orders), "window": "blackmanharris",
+    return {"harmonics_summed": list(h.orders), "taper": "blackmanharris",
             "noise_bins": h.noise_bins}
 
 
@@ -138,7 +136,7 @@ def _nad_rel_std(h: Harmonics) -> float:
 
 def _noise_rel_std(h: Harmonics) -> float:
     """Relative standard deviation of the noise power estimate: the mean of M periodogram bins
-    (each exponentially distributed) whose correlation by the window inflates the variance by
+    (each exponentially distributed) whose correlation by the taper inflates the variance by
     Σρ (:func:`benchgate.analysis.spectrum.variance_factor`)."""
     return math.sqrt(h.var_factor / max(h.noise_bins, 1))
 
@@ -161,7 +159,7 @@ def thd(capture: Capture, *, harmonics: int = 10, context: Context | None = None
 
     References
     ----------
-    IEEE Std 1241-2010, THD definition; Harris (1978) for the window.
+    IEEE Std 1241-2010, THD definition; Harris (1978) for the taper.
     """
     ctx = get_context(capture, context, harmonics=harmonics)
     h = harmonic_analysis(ctx)

@@ -1,4 +1,4 @@
-"""Frequency of the fundamental: interpolated windowed DFT, refined by the IEEE 1057 fit."""
+"""Frequency of the fundamental: interpolated tapered DFT, refined by the IEEE 1057 fit."""
 
 from __future__ import annotations
 
@@ -11,12 +11,12 @@ from benchgate.analysis.uncertainty import clock_std, crlb_frequency_std, expand
 
 
 def frequency(capture: Capture, *, context: Context | None = None) -> Measurement:
-    """Frequency of the fundamental of the steady part of a record.
+    """Frequency of the fundamental of the steady part of a capture.
 
     Parameters
     ----------
     capture : Capture
-        The record (V).
+        The capture (V).
     context : Context, optional
         Shared intermediate results (from :func:`benchgate.analysis.analyze`).
 
@@ -24,20 +24,20 @@ def frequency(capture: Capture, *, context: Context | None = None) -> Measuremen
     -------
     Measurement
         ``frequency`` in Hz with expanded uncertainty U (k = 2). Invalid, with a reason, for a
-        flat or noise-only record, fewer than 3 cycles, a fundamental above 0.45·fs, or a fit
+        flat or noise-only capture, fewer than 3 cycles, a fundamental above 0.45·fs, or a fit
         that did not converge.
 
     Notes
     -----
-    The start is the interpolated peak of a windowed DFT (Hann zero-padded for short
-    records, Blackman–Harris for long ones; a small grid of three-parameter fits for records
+    The start is the interpolated peak of a tapered DFT (Hann zero-padded for short
+    captures, Blackman–Harris for long ones; a small grid of three-parameter fits for captures
     under 20 cycles), refined by the four-parameter least-squares fit on the steady part
     (after start-up). The standard uncertainty combines the Cramér–Rao bound evaluated with
     the fit's amplitude and the noise at the tone's frequency (the larger of the residual
     variance and the local floor used for detection, so coloured noise is not taken for
     white), and the sample-clock tolerance (rectangular). When the frequency drifts
-    significantly, the value is the frequency at the middle of the record from the tracked
-    phase (:mod:`benchgate.analysis._track`), the mean over the record for a linear drift.
+    significantly, the value is the frequency at the middle of the capture from the tracked
+    phase (:mod:`benchgate.analysis._track`), the mean over the capture for a linear drift.
 
     References
     ----------
@@ -51,7 +51,7 @@ def frequency(capture: Capture, *, context: Context | None = None) -> Measuremen
     fit = tone.fit
     fs = capture.sample_rate
     # η from the noise at the tone's own frequency: with coloured noise the local density,
-    # not the record's average, sets how well the frequency is known
+    # not the capture's average, sets how well the frequency is known
     noise = max(tone.noise_var, tone.noise_floor) if math.isfinite(tone.noise_floor) else tone.noise_var
     eta = tone.amplitude ** 2 / (2.0 * noise) if noise > 0 else math.inf
     u_fit = crlb_frequency_std(eta, fit.n) * fs
@@ -67,11 +67,11 @@ def frequency(capture: Capture, *, context: Context | None = None) -> Measuremen
     value = tone.frequency
     if tone.chirp is not None and tone.track is not None:
         # a significant drift: the fixed-frequency fit settles on no particular instant, the
-        # tracked phase gives the frequency at the middle of the record (the mean over the
-        # record for a linear drift) and its own least-squares uncertainty
+        # tracked phase gives the frequency at the middle of the capture (the mean over the
+        # capture for a linear drift) and its own least-squares uncertainty
         value = tone.frequency + float(tone.track.coef[1]) / (2.0 * math.pi)
         u_fit = math.hypot(u_fit, math.sqrt(max(float(tone.track.cov[1, 1]), 0.0)) / (2.0 * math.pi))
-        details.update(method="phase tracked over the record (linear drift), frequency at its middle",
+        details.update(method="phase tracked over the capture (linear drift), frequency at its middle",
                        u_fit_hz=u_fit, drift_hz_per_s=tone.track.drift)
     return Measurement("frequency", value, "Hz", expand(u_fit, clock_std(value, capture.clock_ppm)),
                        details=details)

@@ -24,10 +24,10 @@ MIN_DC_CYCLES = 2.0
 
 def _refuse(ctx: Context, name: str) -> str | None:
     """Why a level cannot be stated; a flat line still has levels (it is simply not moving)."""
-    if ctx.fatal and not ctx.checked.flat:
+    if ctx.fatal and not ctx.validation.flat:
         return ctx.fatal
-    if ctx.checked.clipped:
-        return ctx.checked.clipped
+    if ctx.validation.clipped:
+        return ctx.validation.clipped
     if name in ("amplitude", "vpp", "rms") and ctx.steady.warning in (NOT_STEADY, STILL_CHANGING):
         return ctx.steady.warning
     return None
@@ -46,6 +46,7 @@ def amplitude(capture: Capture, *, context: Context | None = None) -> Measuremen
     Parameters
     ----------
     capture : Capture
+        A periodic waveform (V); a flat or noise-only one gets an upper bound.
     context : Context, optional
 
     Returns
@@ -53,7 +54,7 @@ def amplitude(capture: Capture, *, context: Context | None = None) -> Measuremen
     Measurement
         √(A² + B²) of the fit on the steady part. U combines the Cramér–Rao term √(2σ²/N)
         (σ² from the fit residual) and the ADC resolution Q/√12 when the ADC is known.
-        With no oscillation at all (a flat line, or noise that fails the detection test) it
+        With no oscillation at all (a flat line, or noise below the detection threshold) it
         is a valid bound, ``details["no_oscillation"]`` set, so a dead unit fails an amplitude
         window. Invalid when the waveform is clipped or the tone cannot be trusted for another
         reason (fewer than 3 cycles, near Nyquist, no convergence).
@@ -280,17 +281,17 @@ def dc_offset(capture: Capture, *, context: Context | None = None) -> Measuremen
 
 
 def _dc_of_few_cycles(ctx: Context, capture: Capture) -> Measurement:
-    """DC offset of a record of fewer than 3 cycles: the four-parameter fit's offset with its
+    """DC offset of a capture of fewer than 3 cycles: the four-parameter fit's offset with its
     least-squares standard uncertainty σ²·(JᵀJ)⁻¹ (J the fit's Jacobian at the solution; the
     offset is correlated with the phase and frequency when few cycles are fitted), or invalid
-    under 2 cycles, where the mean of the record depends on where it cuts the cycle (a Monte
-    Carlo over phases covered the truth in about half the records). Linear least squares,
+    under 2 cycles, where the mean of the capture depends on where it cuts the cycle (a Monte
+    Carlo over phases covered the truth in about half the captures). Linear least squares,
     IEEE Std 1057-2017 four-parameter fit; JCGM 100:2008 for U."""
     tone = ctx.tone
     fit = tone.fit
     if tone.cycles < MIN_DC_CYCLES:
-        return Measurement.invalid("dc_offset", "V", f"fewer than {MIN_DC_CYCLES:g} cycles in the record "
-                                   f"({tone.cycles:.2f}): the mean depends on where the record cuts the cycle")
+        return Measurement.invalid("dc_offset", "V", f"fewer than {MIN_DC_CYCLES:g} cycles in the capture "
+                                   f"({tone.cycles:.2f}): the mean depends on where the capture cuts the cycle")
     n = fit.n
     t = np.arange(n) - (n - 1) / 2.0
     c, s = np.cos(fit.omega * t), np.sin(fit.omega * t)
@@ -319,8 +320,8 @@ def _phasor_sum(w: float, m: int, n: int) -> complex:
 
 
 def _sine_mean(fit, m: int) -> float:
-    """Mean of the fitted a·cos(ωt) + b·sin(ωt) over the first ``m`` samples of the fit's record
-    (t centred on the fit's record, as in :mod:`benchgate.analysis.sinefit`)."""
+    """Mean of the fitted a·cos(ωt) + b·sin(ωt) over the first ``m`` samples of the fit's capture
+    (t centred on the fit's capture, as in :mod:`benchgate.analysis.sinefit`)."""
     if m < 1:
         return 0.0
     total = _phasor_sum(fit.omega, m, fit.n)

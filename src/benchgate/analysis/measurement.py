@@ -29,7 +29,7 @@ class Measurement:
     reason : str or None
         Why the measurement is not valid (required when ``valid`` is False).
     details : mapping
-        Extra facts about how it was measured (harmonics summed, window, record part used …).
+        Extra facts about how it was measured (harmonics summed, taper, capture part used …).
     """
 
     name: str

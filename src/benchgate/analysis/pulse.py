@@ -71,6 +71,7 @@ def duty_cycle(capture: Capture, *, context: Context | None = None) -> Measureme
     Parameters
     ----------
     capture : Capture
+        A two-level (pulse) waveform (V) with at least MIN_PERIODS + 1 rising edges.
     context : Context, optional
 
     Returns

@@ -1,8 +1,8 @@
 """IEEE 1057 sine fits: three-parameter (frequency known) and four-parameter (frequency fitted).
 
 The model is ``y[n] ≈ A·cos(ω·t_n) + B·sin(ω·t_n) + C`` with t_n in samples measured from the
-middle of the record (which keeps the normal equations well conditioned). The fits work on
-the 4×4 normal equations (one matrix product over the record per iteration), never on
+middle of the capture (which keeps the normal equations well conditioned). The fits work on
+the 4×4 normal equations (one matrix product over the capture per iteration), never on
 repeated large least-squares problems.
 """
 
@@ -60,7 +60,7 @@ def dot(a: np.ndarray, b: np.ndarray) -> float:
 
 
 class Workspace:
-    """Reusable buffers for cos(ω·t) and sin(ω·t) over one record (t centred, in samples).
+    """Reusable buffers for cos(ω·t) and sin(ω·t) over one capture (t centred, in samples).
 
     The values come from a block product (√n outer angles times √n inner angles), which
     costs a few multiplies per sample instead of a cosine and a sine, keeps full double
@@ -83,7 +83,7 @@ class Workspace:
         self.omega = math.nan
 
     def sums(self) -> tuple[float, float, float, float, float]:
-        """Σcos², Σsin², Σcos·sin, Σcos, Σsin over the record, in closed form.
+        """Σcos², Σsin², Σcos·sin, Σcos, Σsin over the capture, in closed form.
 
         With t symmetric about 0, Σsin = Σcos·sin = 0 and, by the Dirichlet kernel
         D(x) = Σcos(x·t) = sin(n·x/2)/sin(x/2): Σcos = D(ω), Σcos² = (n + D(2ω))/2,
@@ -103,7 +103,7 @@ class Workspace:
 
 
 def phasor(omega: float, n: int) -> np.ndarray:
-    """exp(i·ω·t) for t = 0 … n−1 minus (n−1)/2 (complex; for small records and tests)."""
+    """exp(i·ω·t) for t = 0 … n−1 minus (n−1)/2 (complex; for small captures and tests)."""
     if n <= 0:
         return np.zeros(0, dtype=complex)
     w = Workspace(n)
@@ -159,7 +159,7 @@ def _dirichlet_derivatives(x: float, n: int) -> tuple[float, float]:
     (derived by differentiating it; checked against the sums in tests/analysis)."""
     u = 0.5 * x
     su = math.sin(u)
-    if abs(su) < 1e-9:  # x at a multiple of 2π: the sums by direct evaluation (tiny records only)
+    if abs(su) < 1e-9:  # x at a multiple of 2π: the sums by direct evaluation (tiny captures only)
         t = np.arange(n) - (n - 1) / 2.0
         return float(np.sum(t * np.sin(x * t))), float(np.sum(t * t * np.cos(x * t)))
     big_n = math.sin(n * u)
@@ -175,7 +175,7 @@ def _trig_sums(omega: float, n: int) -> tuple[float, float, float, float, float]
 
 def _solve3(y: np.ndarray, w: Workspace, *, exact_rss: bool = True) -> tuple[float, float, float, float]:
     """Three-parameter least squares; with ``exact_rss=False`` the residual sum of squares comes
-    from the normal equations (y·y − p·r; fine for a centred record) or is skipped (NaN)."""
+    from the normal equations (y·y − p·r; fine for a centred capture) or is skipped (NaN)."""
     c, s = w.c, w.s
     cc, s2, cs, sc, ss = w.sums()
     g = np.array([[cc, cs, sc], [cs, s2, ss], [sc, ss, float(y.size)]])
@@ -237,7 +237,7 @@ def fit4(y: np.ndarray, omega0: float, *, max_iter: int = 30, work: Workspace | 
     Each step is limited to a quarter of a DFT bin. Iteration stops when the frequency
     step is below 1 % of its own standard deviation (from the normal equations and the
     current residual) — a fixed tolerance in cycles per sample would be either too loose
-    for long records or unreachable for short noisy ones.
+    for long captures or unreachable for short noisy ones.
 
     References
     ----------
@@ -263,7 +263,7 @@ def fit4(y: np.ndarray, omega0: float, *, max_iter: int = 30, work: Workspace | 
         # Gauss–Newton column for ω: d = t·(b·cos − a·sin). Its products with cos, sin, 1 and
         # itself are trigonometric sums with closed forms (Σ t·cos² = Σ t·sin² = Σ t·cos = 0 by
         # symmetry; the rest from the Dirichlet kernel's derivatives), so each step takes four
-        # passes over the record (cos·y, sin·y, cos·ty, sin·ty) besides the new cos/sin.
+        # passes over the capture (cos·y, sin·y, cos·ty, sin·ty) besides the new cos/sin.
         cz, sz = w.c, w.s
         cc, s2, cs, sc, ss = w.sums()
         s1_2w, c2_2w = _dirichlet_derivatives(2.0 * omega, n)
@@ -302,7 +302,7 @@ def fit4(y: np.ndarray, omega0: float, *, max_iter: int = 30, work: Workspace | 
 def best_start(y: np.ndarray, omega0: float, *, span_bins: float = 1.0, points: int = 21) -> float:
     """Refine a starting frequency by the smallest three-parameter residual on a small grid.
 
-    For short records, where the negative-frequency image biases the DFT peak, this puts the
+    For short captures, where the negative-frequency image biases the DFT peak, this puts the
     four-parameter fit inside its region of convergence. Cost: ``points`` three-parameter fits.
     """
     y, _ = _centred(y)

@@ -1,4 +1,4 @@
-"""Windows, power spectra and interpolated spectral peaks.
+"""Tapers, power spectra and interpolated spectral peaks.
 
 Pure numpy. The spectra here are scaled so that summing the bins of a tone's main lobe gives
 the tone's power (A²/2 for a sine of peak amplitude A), which is what the distortion
@@ -15,19 +15,19 @@ import numpy as np
 #: Blackman–Harris 4-term (−92 dB) coefficients, Harris (1978) table 1.
 BLACKMAN_HARRIS_4 = (0.35875, 0.48829, 0.14128, 0.01168)
 
-#: main-lobe half-width of each window in bins (first zero of the window transform).
+#: main-lobe half-width of each taper in bins (first zero of the taper transform).
 MAIN_LOBE_HALF_WIDTH = {"rect": 1, "hann": 2, "blackmanharris": 4}
 
-WINDOWS = tuple(MAIN_LOBE_HALF_WIDTH)
+TAPERS = tuple(MAIN_LOBE_HALF_WIDTH)
 
 
-def window(name: str, n: int, *, sym: bool = False) -> np.ndarray:
-    """A cosine-sum window of ``n`` points.
+def taper(name: str, n: int, *, sym: bool = False) -> np.ndarray:
+    """A cosine-sum taper of ``n`` points.
 
     Parameters
     ----------
     name : {"rect", "hann", "blackmanharris"}
-        Window family; ``blackmanharris`` is the 4-term −92 dB window.
+        Taper family; ``blackmanharris`` is the 4-term −92 dB taper.
     n : int
         Number of points (≥ 1).
     sym : bool
@@ -37,12 +37,12 @@ def window(name: str, n: int, *, sym: bool = False) -> np.ndarray:
     Returns
     -------
     numpy.ndarray
-        The window, float64.
+        The taper, float64.
 
     Raises
     ------
     ValueError
-        For an unknown window name or ``n < 1``.
+        For an unknown taper name or ``n < 1``.
 
     References
     ----------
@@ -50,7 +50,7 @@ def window(name: str, n: int, *, sym: bool = False) -> np.ndarray:
     transform", Proc. IEEE 66(1), 1978.
     """
     if n < 1:
-        raise ValueError(f"a window needs at least one point, got n={n}")
+        raise ValueError(f"a taper needs at least one point, got n={n}")
     _coefficients(name)
     if name == "rect":
         return np.ones(n)
@@ -69,10 +69,10 @@ def window(name: str, n: int, *, sym: bool = False) -> np.ndarray:
 
 
 @lru_cache(maxsize=4)
-def _periodic_window(name: str, n: int) -> tuple[np.ndarray, float]:
-    """Read-only periodic window and its Σw², kept for the next record of the same length
-    (a station analyses many records of one length; the window costs about one transform)."""
-    w = window(name, n)
+def _periodic_taper(name: str, n: int) -> tuple[np.ndarray, float]:
+    """Read-only periodic taper and its Σw², kept for the next capture of the same length
+    (a station analyzes many captures of one length; the taper costs about one transform)."""
+    w = taper(name, n)
     w.setflags(write=False)
     return w, float(np.einsum("i,i->", w, w))
 
@@ -84,7 +84,7 @@ def _coefficients(name: str) -> tuple[float, ...]:
         return (0.5, 0.5)
     if name == "blackmanharris":
         return BLACKMAN_HARRIS_4
-    raise ValueError(f"unknown window {name!r}; expected one of {', '.join(WINDOWS)}")
+    raise ValueError(f"unknown taper {name!r}; expected one of {', '.join(TAPERS)}")
 
 
 def _cos_ramp(step: float, n: int) -> np.ndarray:
@@ -96,32 +96,32 @@ def _cos_ramp(step: float, n: int) -> np.ndarray:
     return np.outer(outer, inner).real.ravel()[:n]
 
 
-def window_enbw(name: str) -> float:
-    """ENBW (bins) of a periodic cosine-sum window from its coefficients: (a₀² + ½Σaₖ²)/a₀²."""
+def taper_enbw(name: str) -> float:
+    """ENBW (bins) of a periodic cosine-sum taper from its coefficients: (a₀² + ½Σaₖ²)/a₀²."""
     a = _coefficients(name)
     return (a[0] ** 2 + 0.5 * sum(x * x for x in a[1:])) / a[0] ** 2
 
 
 def mean_square(name: str) -> float:
-    """Mean of w² over a periodic cosine-sum window: a₀² + ½Σaₖ² (Parseval; derived)."""
+    """Mean of w² over a periodic cosine-sum taper: a₀² + ½Σaₖ² (Parseval; derived)."""
     a = _coefficients(name)
     return a[0] ** 2 + 0.5 * sum(x * x for x in a[1:])
 
 
 def variance_factor(name: str) -> float:
-    """Σ_L ρ_L: how much the correlation between neighbouring bins of a windowed periodogram
-    of white noise inflates the variance of a sum of bins (1 for the rectangular window).
+    """Σ_L ρ_L: how much the correlation between neighbouring bins of a tapered periodogram
+    of white noise inflates the variance of a sum of bins (1 for the rectangular taper).
 
     ρ_L = |DFT(w²)[L]|² / |DFT(w²)[0]|² is the correlation of bins L apart (a cosine-sum
-    window's w² has only a few non-zero DFT terms, so 64 points give it exactly).
+    taper's w² has only a few non-zero DFT terms, so 64 points give it exactly).
     """
-    w = window(name, 64)
+    w = taper(name, 64)
     w2 = np.fft.fft(w * w)
     return float(np.sum(np.abs(w2) ** 2) / np.abs(w2[0]) ** 2)
 
 
 def enbw(w: np.ndarray) -> float:
-    """Equivalent noise bandwidth of a window in bins: N·Σw² / (Σw)².
+    """Equivalent noise bandwidth of a taper in bins: N·Σw² / (Σw)².
 
     References
     ----------
@@ -133,7 +133,7 @@ def enbw(w: np.ndarray) -> float:
 
 @dataclass(frozen=True)
 class Spectrum:
-    """One-sided power spectrum of a real record.
+    """One-sided power spectrum of a real capture.
 
     ``power[k]`` is the power (V²) in bin k, scaled so that a white noise of variance σ²
     sums to σ² over all bins and a tone's main lobe sums to its power.
@@ -142,7 +142,7 @@ class Spectrum:
     power: np.ndarray
     n: int
     sample_rate: float
-    window: str
+    taper: str
 
     @property
     def freqs(self) -> np.ndarray:
@@ -160,12 +160,12 @@ class Spectrum:
 
     @property
     def half_width(self) -> int:
-        return MAIN_LOBE_HALF_WIDTH[self.window]
+        return MAIN_LOBE_HALF_WIDTH[self.taper]
 
 
-def power_spectrum(x: np.ndarray, sample_rate: float, window_name: str = "blackmanharris",
+def power_spectrum(x: np.ndarray, sample_rate: float, taper: str = "blackmanharris",
                    *, detrend: bool = True) -> Spectrum:
-    """Windowed one-sided power spectrum.
+    """Tapered one-sided power spectrum.
 
     Parameters
     ----------
@@ -173,10 +173,10 @@ def power_spectrum(x: np.ndarray, sample_rate: float, window_name: str = "blackm
         Samples (V).
     sample_rate : float
         Sample rate (Hz).
-    window_name : str
-        See :func:`window`.
+    taper : str
+        See :func:`taper`.
     detrend : bool
-        Remove the mean before windowing.
+        Remove the mean before tapering.
 
     Returns
     -------
@@ -186,11 +186,11 @@ def power_spectrum(x: np.ndarray, sample_rate: float, window_name: str = "blackm
 
     References
     ----------
-    Harris (1978); IEEE Std 1241-2010, clause on windowed DFT testing.
+    Harris (1978); IEEE Std 1241-2010, clause on windowed DFT testing (the standard's word).
     """
     x = np.asarray(x, dtype=float)
     n = x.size
-    w, w_sq = _periodic_window(window_name, n)
+    w, w_sq = _periodic_taper(taper, n)
     if detrend and n < 16:  # too short for the bin-wise correction below (bins would wrap)
         x = x - x.mean()
         detrend = False
@@ -198,10 +198,10 @@ def power_spectrum(x: np.ndarray, sample_rate: float, window_name: str = "blackm
     xf = np.fft.rfft(xw)
     del xw
     if detrend:
-        # removing the mean before windowing = subtracting mean·DFT(w), which for a periodic
-        # cosine-sum window is non-zero only in bins 0 … 3: no second pass over the record
+        # removing the mean before tapering = subtracting mean·DFT(w), which for a periodic
+        # cosine-sum taper is non-zero only in bins 0 … 3: no second pass over the capture
         mean = float(x.mean())
-        for k, a in enumerate(_coefficients(window_name)):
+        for k, a in enumerate(_coefficients(taper)):
             xf[k] -= mean * n * (a if k == 0 else (-1) ** k * a / 2.0)
     power = xf.real * xf.real
     power += xf.imag * xf.imag
@@ -209,7 +209,7 @@ def power_spectrum(x: np.ndarray, sample_rate: float, window_name: str = "blackm
     power[0] *= 0.5
     if n % 2 == 0:
         power[-1] *= 0.5
-    return Spectrum(power=power, n=n, sample_rate=float(sample_rate), window=window_name)
+    return Spectrum(power=power, n=n, sample_rate=float(sample_rate), taper=taper)
 
 
 def interpolated_peak(mag: np.ndarray, k: int) -> float:
@@ -244,11 +244,11 @@ def interpolated_peak(mag: np.ndarray, k: int) -> float:
 
 
 def coarse_frequency(x: np.ndarray, sample_rate: float) -> float:
-    """First estimate of the strongest tone's frequency (Hz) from an interpolated windowed DFT.
+    """First estimate of the strongest tone's frequency (Hz) from an interpolated tapered DFT.
 
-    Short records (≤ 65536 samples) use a Hann window zero-padded eight times, long ones a
-    Blackman–Harris window without padding. Bins below one cycle per record are skipped.
-    Returns 0.0 when there is no peak (e.g. a constant record).
+    Short captures (≤ 65536 samples) use a Hann taper zero-padded eight times, long ones a
+    Blackman–Harris taper without padding. Bins below one cycle per capture are skipped.
+    Returns 0.0 when there is no peak (e.g. a constant capture).
 
     References
     ----------
@@ -261,11 +261,11 @@ def coarse_frequency(x: np.ndarray, sample_rate: float) -> float:
     x = x - x.mean()
     if n <= 65536:
         pad = 8
-        mag = np.abs(np.fft.rfft(x * _periodic_window("hann", n)[0], n * pad))
+        mag = np.abs(np.fft.rfft(x * _periodic_taper("hann", n)[0], n * pad))
     else:
         pad = 1
-        mag = np.abs(np.fft.rfft(x * _periodic_window("blackmanharris", n)[0]))
-    lo = pad  # one cycle per record
+        mag = np.abs(np.fft.rfft(x * _periodic_taper("blackmanharris", n)[0]))
+    lo = pad  # one cycle per capture
     if mag.size <= lo + 1 or not np.any(mag[lo:] > 0):
         return 0.0
     k = lo + int(np.argmax(mag[lo:]))
@@ -273,7 +273,7 @@ def coarse_frequency(x: np.ndarray, sample_rate: float) -> float:
 
 
 def peak_frequency(spec: Spectrum) -> float:
-    """Interpolated frequency (Hz) of the largest peak above one cycle per record, 0.0 if none."""
+    """Interpolated frequency (Hz) of the largest peak above one cycle per capture, 0.0 if none."""
     p = spec.power
     if p.size < 4 or not np.any(p[1:] > 0):
         return 0.0

@@ -9,7 +9,7 @@ from benchgate.analysis.context import Context, get_context
 from benchgate.analysis.measurement import Measurement
 from benchgate.analysis.uncertainty import expand
 
-#: envelope points (one-period windows, overlapping) needed after start-up
+#: envelope points (one-period spans, overlapping) needed after start-up
 MIN_POINTS = 16
 #: the envelope counts as settled once it reaches this fraction of its typical level
 SETTLED = 0.98
@@ -20,20 +20,21 @@ def amplitude_dip(capture: Capture, *, context: Context | None = None) -> Measur
 
     An intermittent contact, a dropping-out oscillator or a squegging one shows as the envelope
     falling well below its typical level for a while; a steady oscillation keeps it within its
-    noise. The value is 100·(1 − min(envelope) / median(envelope)) over the part of the record
+    noise. The value is 100·(1 − min(envelope) / median(envelope)) over the part of the capture
     from where the envelope, after start-up, first comes within 2 % of its typical level (the
-    median over the last half of the record).
+    median over the last half of the capture).
 
     Parameters
     ----------
     capture : Capture
+        An oscillation (V), from its start-up or already running.
     context : Context, optional
 
     Returns
     -------
     Measurement
         In %, 0 for a perfectly steady envelope, 100 for a complete dropout. Invalid when there
-        is no oscillation or too little record after start-up.
+        is no oscillation or too little of the capture after start-up.
 
     Notes
     -----
@@ -48,21 +49,18 @@ def amplitude_dip(capture: Capture, *, context: Context | None = None) -> Measur
     no source. JCGM 100:2008 for the expression of U.
     """
     ctx = get_context(capture, context)
-    if ctx.fatal:
-        return Measurement.invalid("amplitude_dip", "%", ctx.fatal)
-    tone = ctx.tone
-    if not tone.ok:
-        return Measurement.invalid("amplitude_dip", "%", tone.reason or "no oscillation")
+    if (problem := ctx.oscillation_problem) is not None:
+        return Measurement.invalid("amplitude_dip", "%", problem)
     env = ctx.envelope
     if env is None or env.level.size == 0:
-        return Measurement.invalid("amplitude_dip", "%", "no envelope: record too short")
+        return Measurement.invalid("amplitude_dip", "%", "no envelope: capture too short")
     steady = ctx.steady
     start = steady.startup_index if steady.startup_index is not None else 0.0
-    begins = env.centre - env.window / 2.0
+    begins = env.centre - env.span / 2.0
     after = begins >= start
     tail = env.level[begins >= capture.n / 2.0]
     if tail.size == 0 or not np.any(after):
-        return Measurement.invalid("amplitude_dip", "%", "too little record after start-up to judge the envelope")
+        return Measurement.invalid("amplitude_dip", "%", "too little of the capture after start-up to judge the envelope")
     # judged from where the envelope first settles within SETTLED of its typical level, so the
     # slow end of a start-up is not counted as a dip, while every later dropout is
     level, begins = env.level[after], begins[after]
@@ -73,7 +71,7 @@ def amplitude_dip(capture: Capture, *, context: Context | None = None) -> Measur
     first = float(begins[settled[0]])
     if level.size < MIN_POINTS:
         return Measurement.invalid("amplitude_dip", "%",
-                                   "too little record after start-up to judge the envelope")
+                                   "too little of the capture after start-up to judge the envelope")
     typical = float(np.median(level))
     if not typical > 0:
         return Measurement.invalid("amplitude_dip", "%", "envelope is zero after start-up")
@@ -82,5 +80,5 @@ def amplitude_dip(capture: Capture, *, context: Context | None = None) -> Measur
     value = max(0.0, 100.0 * (1.0 - lowest / typical))
     u = expand(100.0 * scatter / typical)
     details = {"typical_envelope_v": typical, "lowest_envelope_v": lowest,
-               "from_s": first / capture.sample_rate, "envelope_window_s": env.window / capture.sample_rate}
+               "from_s": first / capture.sample_rate, "envelope_span_s": env.span / capture.sample_rate}
     return Measurement("amplitude_dip", value, "%", u, details=details)

@@ -1,4 +1,4 @@
-"""Start-up: time from the start of the record (or the recorded power-on instant) until the
+"""Start-up: time from the start of the capture (or the recorded power-on instant) until the
 oscillation is established."""
 
 from __future__ import annotations
@@ -14,7 +14,7 @@ from benchgate.analysis.uncertainty import clock_std, expand
 def startup_time(capture: Capture, *, context: Context | None = None) -> Measurement:
     """Time (s) from the first sample until the envelope first reaches 90 % of its steady amplitude.
 
-    When the record began before the unit was powered (a start-up capture), the runner stores
+    When the capture began before the unit was powered (a start-up capture), the runner stores
     the power-on instant in the capture's metadata: ``power_on_at`` (s from the first sample)
     and ``power_on_halfwidth`` (s, half the interval within which the switch-on happened). The
     time is then measured from that instant instead of the first sample, and the half-width
@@ -23,19 +23,20 @@ def startup_time(capture: Capture, *, context: Context | None = None) -> Measure
     Parameters
     ----------
     capture : Capture
+        An oscillation (V) from before power-on, ``power_on_at`` in its metadata when known.
     context : Context, optional
 
     Returns
     -------
     Measurement
-        0 when the record already starts at the steady amplitude. Invalid when there is no
-        oscillation, when the amplitude is still changing at the end of the record (no steady
-        part to refer to), or when the record is shorter than 8 cycles.
+        0 when the capture already starts at the steady amplitude. Invalid when there is no
+        oscillation, when the amplitude is still changing at the end of the capture (no steady
+        part to refer to), or when the capture is shorter than 8 cycles.
 
     Notes
     -----
     The envelope is √2 times the sliding standard deviation over one period (local mean
-    removed), the steady amplitude its median over the last quarter of the record. In noise
+    removed), the steady amplitude its median over the last quarter of the capture. In noise
     the envelope is first averaged over enough periods (centred) that a noise excursion
     cannot cross early; the crossing is interpolated between envelope points. U (k = 2)
     combines a rectangular half-period resolution of the one-period envelope, the remaining
@@ -49,17 +50,15 @@ def startup_time(capture: Capture, *, context: Context | None = None) -> Measure
     JCGM 100:2008 for the budget. See docs/references.md.
     """
     ctx = get_context(capture, context)
-    if ctx.fatal:
-        return Measurement.invalid("startup_time", "s", ctx.fatal)
+    if (problem := ctx.oscillation_problem) is not None:
+        return Measurement.invalid("startup_time", "s", problem)
     tone = ctx.tone
-    if not tone.ok:
-        return Measurement.invalid("startup_time", "s", tone.reason or "no oscillation")
     steady = ctx.steady
     fs = capture.sample_rate
     if capture.n * tone.frequency / fs < 8:
-        return Measurement.invalid("startup_time", "s", "record shorter than 8 cycles: no start-up to see")
+        return Measurement.invalid("startup_time", "s", "capture shorter than 8 cycles: no start-up to see")
     if steady.growing:
-        return Measurement.invalid("startup_time", "s", "amplitude still changing at the end of the record")
+        return Measurement.invalid("startup_time", "s", "amplitude still changing at the end of the capture")
     if steady.startup_index is None:
         return Measurement.invalid("startup_time", "s", "envelope never reaches 90 % of its steady amplitude")
     value = 0.0 if steady.startup_index == 0.0 else steady.startup_index / fs
@@ -67,7 +66,7 @@ def startup_time(capture: Capture, *, context: Context | None = None) -> Measure
     if origin is not None:
         if not (math.isfinite(origin) and 0.0 <= origin < capture.duration):
             return Measurement.invalid("startup_time", "s",
-                                       f"recorded power-on instant {origin!r} s lies outside the record")
+                                       f"recorded power-on instant {origin!r} s lies outside the capture")
         if value <= origin:
             return Measurement.invalid(
                 "startup_time", "s", f"oscillation already at 90 % of its steady amplitude "
@@ -77,8 +76,8 @@ def startup_time(capture: Capture, *, context: Context | None = None) -> Measure
     u = expand(0.5 * period / math.sqrt(3.0), steady.startup_u / fs, u_origin,
                clock_std(value, capture.clock_ppm))
     details = {"steady_amplitude_v": steady.level, "steady_start_s": ctx.steady_start_time,
-               "envelope_window_s": ctx.envelope.window / fs if ctx.envelope else None,
-               "measured_from": "record start" if origin is None else "power-on instant",
+               "envelope_span_s": ctx.envelope.span / fs if ctx.envelope else None,
+               "measured_from": "capture start" if origin is None else "power-on instant",
                "power_on_at_s": origin}
     return Measurement("startup_time", value, "s", u, details=details)
 

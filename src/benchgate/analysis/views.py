@@ -3,7 +3,7 @@
 :func:`capture_views` gathers them, with the fundamental, harmonics, steady part and start-up
 instant, into one :class:`CaptureViews` computed from the same analysis context as the
 measurements (``analyze(..., views=True)``), so a report draws what was judged without
-analysing the capture a second time. A view is small (a few thousand points at most) and is
+analyzing the capture a second time. A view is small (a few thousand points at most) and is
 kept in the run record.
 """
 
@@ -31,7 +31,7 @@ SPECTRUM_POINTS = 1024  # a report's plot is 640 px wide; the reduction keeps ev
 
 def spectrum_db(capture: Capture, *, steady_start: float = 0.0,
                 max_points: int = 2048) -> tuple[np.ndarray, np.ndarray]:
-    """Blackman–Harris power spectrum of the record from ``steady_start`` (s) on, in dB
+    """Blackman–Harris power spectrum of the capture from ``steady_start`` (s) on, in dB
     relative to its largest bin (the fundamental), reduced to at most ``max_points`` points
     by keeping the largest bin of each group (peaks survive the reduction).
 
@@ -61,7 +61,7 @@ def spectrum_levels(spec: Spectrum, max_points: int = 2048) -> tuple[np.ndarray,
 
 
 def envelope(capture: Capture, points: int = 600) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Min/max per bucket over the whole record: (bucket start times s, low V, high V)."""
+    """Min/max per bucket over the whole capture: (bucket start times s, low V, high V)."""
     x = capture.samples
     if x.size == 0:
         return np.zeros(0), np.zeros(0), np.zeros(0)
@@ -77,9 +77,9 @@ def envelope(capture: Capture, points: int = 600) -> tuple[np.ndarray, np.ndarra
 
 def cycles(capture: Capture, fundamental: float | None, n_cycles: int = 4,
            start: float | None = None) -> tuple[np.ndarray, np.ndarray]:
-    """A few cycles of the waveform: ``n_cycles`` periods from ``start`` (s from the record
-    start), or the last ``n_cycles`` periods of the record when ``start`` is None.
-    Without a fundamental, the last 1 % of the record (at least 200 samples)."""
+    """A few cycles of the waveform: ``n_cycles`` periods from ``start`` (s from the capture
+    start), or the last ``n_cycles`` periods of the capture when ``start`` is None.
+    Without a fundamental, the last 1 % of the capture (at least 200 samples)."""
     n = capture.n
     fs = capture.sample_rate
     if fundamental and fundamental > 0:
@@ -101,7 +101,7 @@ def _floats(a: Any) -> np.ndarray:
 class CaptureViews:
     """What a report draws of one capture, from the analysis the checks were judged on.
 
-    Times are seconds from the record start; voltages in V; ``spectrum_db`` in dB relative to
+    Times are seconds from the capture start; voltages in V; ``spectrum_db`` in dB relative to
     the largest bin (the fundamental when there is one); ``harmonics`` holds ``(order,
     frequency Hz, level dBc)``. ``fundamental`` and ``startup`` are None when not found.
     ``full_scale`` is the converter's range (V), or None, for the least span a plot draws.

@@ -19,7 +19,7 @@ COMMANDS = (
     "demo",
     "run",
     "serve",
-    "check",
+    "inspect",
     "analyze",
     "capture",
     "station",

@@ -14,7 +14,7 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
         help="measure a recorded capture (CSV, WAV or .npz)",
         description="Measure frequency, levels, distortion, start-up, duty cycle and drift of a "
         "recorded capture, each with its expanded uncertainty (k = 2) and a validity flag.",
-        epilog="Exit codes: 0 analysed (some measurements may be invalid, with a reason), "
+        epilog="Exit codes: 0 analyzed (some measurements may be invalid, with a reason), "
         "2 the file cannot be read.",
     )
     parser.add_argument("file", metavar="FILE", help="capture file: .csv, .wav or .npz")

@@ -1,4 +1,4 @@
-"""``benchgate capture STATION --instrument NAME --duration 1s --out FILE.npz``: one record."""
+"""``benchgate capture STATION --instrument NAME --duration 1s --out FILE.npz``: one capture."""
 
 from __future__ import annotations
 
@@ -12,8 +12,8 @@ from benchgate.cli._argtypes import rate as _rate
 def add_parser(subparsers) -> argparse.ArgumentParser:
     parser = subparsers.add_parser(
         "capture",
-        help="record one capture through a station's instrument into a .npz file",
-        description="Record one capture through an instrument of a station (the serial ADC or "
+        help="take one capture through a station's instrument into a .npz file",
+        description="Take one capture through an instrument of a station (the serial ADC or "
         "the digitizer) into the .npz capture format, with the instrument's identity, "
         "calibration and loss counts in its metadata. `benchgate analyze FILE.npz` measures it.",
         epilog="Exit codes: 0 written, 2 bad station file or arguments, 3 instrument error "
@@ -21,13 +21,13 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     )
     parser.add_argument("station", metavar="STATION", help="station file (YAML)")
     parser.add_argument("--instrument", default="adc", metavar="NAME",
-                        help="instrument role to record with: adc or digitizer (default adc)")
+                        help="instrument role to capture with: adc or digitizer (default adc)")
     parser.add_argument("--duration", required=True, type=_quantity("s"), metavar="TIME",
-                        help="record length, e.g. 1s, 250ms")
+                        help="capture length, e.g. 1s, 250ms")
     parser.add_argument("--rate", type=_rate, metavar="RATE",
                         help="sample rate, e.g. 50k or 50 kHz (default: the station's or the device's)")
     parser.add_argument("--channel", metavar="NAME",
-                        help="channel to record (default: the instrument's first channel)")
+                        help="channel to capture (default: the instrument's first channel)")
     parser.add_argument("--out", required=True, metavar="FILE.npz", help="where to write the capture")
     parser.add_argument("--supply", type=_quantity("V"), metavar="VOLTS",
                         help="power the unit from the station's supply at this voltage for the capture "
@@ -67,7 +67,7 @@ def run(args) -> int:
         except InstrumentDisconnected as exc:
             if exc.partial is not None:
                 save_capture(exc.partial.with_metadata(partial=True), args.out)
-                print(f"benchgate: {role}: partial record ({exc.partial.n} samples) written to {args.out}",
+                print(f"benchgate: {role}: partial capture ({exc.partial.n} samples) written to {args.out}",
                       file=sys.stderr)
             raise
     digest = save_capture(capture, args.out)

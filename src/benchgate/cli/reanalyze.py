@@ -8,7 +8,7 @@ import argparse
 def add_parser(subparsers) -> argparse.ArgumentParser:
     p = subparsers.add_parser(
         "reanalyze", help="re-judge a stored run against another plan version (no hardware)",
-        description="Read a unit's JSON report and its stored captures, analyse the captures again "
+        description="Read a unit's JSON report and its stored captures, analyze the captures again "
         "and judge every check against PLAN. Writes a new JSON and HTML report that says it is a "
         "reanalysis and of which run.",
         epilog="Exit codes as for 'benchgate run': 0 pass, 1 fail, 2 bad input, 3 error or inconclusive.")

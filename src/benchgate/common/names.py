@@ -39,7 +39,7 @@ MEASUREMENT_TITLES: dict[str, str] = {
     "snr": "signal to noise ratio (harmonics excluded)",
     "sfdr": "spurious-free dynamic range",
     "enob": "effective number of bits",
-    "startup_time": "time from record start to 90 % of steady amplitude",
+    "startup_time": "time from capture start to 90 % of steady amplitude",
     "duty_cycle": "high-time duty cycle at the 50 % reference level",
     "frequency_drift": "slope of frequency over the steady part",
     "amplitude_dip": "deepest dip of the envelope below its median after start-up (dropouts)",

@@ -65,12 +65,12 @@ class Bench:
         return inst
 
     def recorder(self, role: str) -> Recorder:
-        """The instrument open as ``role``, checked to record waveforms (an ADC or a digitizer)."""
+        """The instrument open as ``role``, checked to capture waveforms (an ADC or a digitizer)."""
         from benchgate.instruments.base import Recorder
 
         inst = self[role]
         if not isinstance(inst, Recorder):
-            raise InstrumentError(role, f"the {role} of station {self.station.id!r} cannot record a "
+            raise InstrumentError(role, f"the {role} of station {self.station.id!r} cannot capture a "
                                         f"waveform (it is a {type(inst).__name__})")
         return inst
 

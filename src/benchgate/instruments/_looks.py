@@ -1,10 +1,10 @@
-"""Handing a growing record to an adaptive capture's ``decide`` while the recording goes on.
+"""Handing a growing capture to an adaptive capture step's ``decide`` while capturing goes on.
 
-The reader calls a :class:`Looks` after every chunk of data. When the record reaches the next
-look length, the record so far (built by the driver with every check a finished capture gets)
+The reader calls a :class:`Looks` after every chunk of data. When the capture reaches the next
+look length, the capture so far (built by the driver with every check a finished capture gets)
 goes to ``decide`` on a worker thread, so the reader never stalls (a stalled reader would also
 fail the arrival-rate check). When a decision comes back True the reader stops, and
-:attr:`stopped` holds the record decided on. A look passed while the previous one is still
+:attr:`stopped` holds the capture decided on. A look passed while the previous one is still
 being decided is skipped (its share of the error budget stays unspent;
 ``benchgate.judge.sequential``).
 """
@@ -18,7 +18,7 @@ from benchgate.analysis.capture import Capture
 
 
 class Looks:
-    """Looks at sample counts ``at``; ``build(k)`` makes the record of the first ``k`` samples."""
+    """Looks at sample counts ``at``; ``build(k)`` makes the capture of the first ``k`` samples."""
 
     def __init__(self, at: Sequence[int], build: Callable[[int], Capture | None],
                  decide: Callable[[Capture], bool]):
@@ -33,18 +33,18 @@ class Looks:
         """After ``received`` samples: True when the capture should stop now. An exception
         raised by ``decide`` is raised here."""
         if self._asked is not None and self._asked[0].done():
-            fut, record = self._asked
+            fut, capture = self._asked
             self._asked = None
             if fut.result():
-                self.stopped = record
+                self.stopped = capture
                 return True
         if self._asked is not None or not self.pending or received < self.pending[0]:
             return False
         while len(self.pending) > 1 and received >= self.pending[1]:
             self.pending.pop(0)
-        record = self.build(self.pending.pop(0))
-        if record is not None:
-            self._asked = (self._worker.submit(self.decide, record), record)
+        capture = self.build(self.pending.pop(0))
+        if capture is not None:
+            self._asked = (self._worker.submit(self.decide, capture), capture)
         return False
 
     def close(self) -> None:

@@ -10,7 +10,7 @@ from typing import Any
 
 from benchgate.common.fields import Collector
 from benchgate.common.yamlpos import YNode, load_file
-from benchgate.errors import NotFiniteError, StationError, StationErrors, UnitError
+from benchgate.errors import NotFiniteError, QuantityError, StationError, StationErrors
 from benchgate.instruments.options import OptionSpec, check_value
 from benchgate.instruments.registry import KIND_ROLES
 from benchgate.instruments.station import ROLES, Calibration, InstrumentConfig, Station
@@ -200,7 +200,7 @@ class StationReader(Collector):
             return default
         try:
             q = parse_quantity(node.value, unit)
-        except UnitError as exc:
+        except QuantityError as exc:
             self.err(str(exc), node)
             return default
         if positive and not q.value > 0:
@@ -217,7 +217,7 @@ class StationReader(Collector):
     def fraction(self, node: YNode) -> float | None:
         try:
             q = parse_quantity(node.value)
-        except UnitError as exc:
+        except QuantityError as exc:
             self.err(str(exc), node)
             return None
         if q.unit not in ("", "%"):
@@ -302,7 +302,7 @@ class StationReader(Collector):
             except NotFiniteError as exc:  # "nan", "inf V", "1e999": never a setting
                 self.err(f"{key}: {exc}", node)
                 return None
-            except UnitError:
+            except QuantityError:
                 return node.value
             if q.unit == "%":
                 return q.value / 100.0

@@ -48,7 +48,7 @@ class Instrument(Protocol):
 
 @runtime_checkable
 class Recorder(Instrument, Protocol):
-    """Anything that records a waveform of one channel into a :class:`Capture`."""
+    """Anything that captures a waveform of one channel into a :class:`Capture`."""
 
     def capture(self, channel: str, *, duration: float, rate: float | None = None,
                 progress: Progress | None = None) -> Capture:
@@ -61,7 +61,7 @@ class Recorder(Instrument, Protocol):
 
 @runtime_checkable
 class Adc(Recorder, Protocol):
-    """Serial ADC streamer: the record starts when samples start arriving."""
+    """Serial ADC streamer: the capture starts when samples start arriving."""
 
     channels: tuple[str, ...]
 
@@ -70,11 +70,11 @@ class Adc(Recorder, Protocol):
 
 @runtime_checkable
 class Digitizer(Recorder, Protocol):
-    """A triggered recorder: its record starts when it is armed.
+    """A triggered recorder: its capture starts when it is armed.
 
     ``capture`` does everything; ``setup``, ``arm``, ``wait``, ``fetch`` and ``to_capture`` are
     the same steps one at a time, so a runner can switch a supply on between ``arm`` and
-    ``wait`` and have the start-up in the record.
+    ``wait`` and have the start-up in the capture.
     """
 
     def setup(self, channel: str, *, duration: float, rate: float | None = None,

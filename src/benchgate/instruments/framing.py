@@ -27,7 +27,7 @@ step): D. V. Sarwate, "Computation of cyclic redundancy checks via table look-up
 per-position tables extend the same method: the CRC is linear over GF(2), so the contribution
 of each byte at each distance from the end can be tabulated and XOR-ed (R. N. Williams, "A
 painless guide to CRC error detection algorithms", 1993, on table-driven and parametrised
-CRCs). CRC-16/CCITT-FALSE parameters and its check value 0x29B1 for ``123456789``: the
+CRCs). CRC-16/CCITT-FALSE parameters and its reference CRC (the catalogue's "check") 0x29B1 for ``123456789``: the
 parametrised CRC model of the same guide (width 16, poly 0x1021, init 0xFFFF, no reflection,
 xorout 0), as listed in the published CRC catalogues.
 """
@@ -111,7 +111,7 @@ def crc16(data: bytes | np.ndarray) -> int:
     ----------
     D. V. Sarwate, "Computation of cyclic redundancy checks via table look-up", Commun. ACM
     31(8), 1988 (the byte-at-a-time table; the two-byte and per-position tables extend it, the
-    latter by the CRC's linearity over GF(2)). Parameters and check value 0x29B1 for
+    latter by the CRC's linearity over GF(2)). Parameters and reference CRC 0x29B1 for
     "123456789": the published CRC catalogue (docs/references.md).
     """
     buf = np.frombuffer(bytes(data), dtype=np.uint8) if not isinstance(data, np.ndarray) else data

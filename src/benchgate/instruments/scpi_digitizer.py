@@ -110,7 +110,7 @@ class ScpiDigitizer(ScpiInstrument):
             raise InstrumentError(self.name, f"operation-complete query returned {reply[:30]!r}, not 1")
 
     def fetch(self) -> np.ndarray:
-        """The acquired record in volts (float64)."""
+        """The acquired samples in volts (float64)."""
         if self._setup is None:
             raise InstrumentError(self.name, "fetch() before setup()")
         points = self._setup["points"]

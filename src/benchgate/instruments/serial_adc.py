@@ -31,8 +31,8 @@ from benchgate.instruments.options import OptionSpec
 from benchgate.instruments.serial_lines import LinesDecoder
 
 RATE_TOLERANCE = 0.05  # declared vs host-measured arrival rate
-MIN_CHECK_WALL = 0.3  # s of wall time a capture must span before the rate check means anything
-MIN_CHECK_POINTS = 12
+MIN_VERIFY_WALL = 0.3  # s of wall time a capture must span before verifying its rate means anything
+MIN_VERIFY_POINTS = 12
 WALL_GRACE = 1.0  # s of wall time added to accelerated deadlines
 
 
@@ -183,13 +183,13 @@ class SerialAdc:
 
     def capture_growing(self, channel: str, *, looks: Sequence[float], rate: float | None = None,
                         progress=None, decide: Callable[[Capture], bool]) -> Capture:
-        """Record up to ``looks[-1]`` s of ``channel``, handing the record so far to ``decide``
+        """Capture up to ``looks[-1]`` s of ``channel``, handing the capture so far to ``decide``
         each time it reaches the next length in ``looks`` (s, increasing); stop as soon as
-        ``decide`` returns True and return that record (the device is told to stop).
+        ``decide`` returns True and return that capture (the device is told to stop).
 
-        Each record handed over passed the same checks as a finished capture (loss, arrival
+        Each capture handed over passed the same verifications as a finished capture (loss, arrival
         rate). Framed protocol only: lines mode cannot place samples before its END count, so
-        there it records the whole longest record (``decide`` is called once, at the end).
+        there it takes the whole longest capture (``decide`` is called once, at the end).
         """
         if self.protocol != "framed":
             return self.capture(channel, duration=float(looks[-1]), rate=rate, progress=progress)
@@ -226,7 +226,7 @@ class SerialAdc:
             port.flush_input()  # start at the next line boundary, with nothing stale
         else:
             port.write_line(f"START {n} {mask}")
-        if progress is not None:  # lets a caller tie its own events to the record's time axis
+        if progress is not None:  # lets a caller tie its own events to the capture's time axis
             progress(0.0, f"acquisition of {n} samples started")
         looker = None
         if looks and decide is not None:  # an adaptive capture (instruments/_looks.py)
@@ -253,7 +253,7 @@ class SerialAdc:
             if looker is not None:
                 looker.close()
         capture = self._build(channel, state, actual, decoder, n, complete=True)
-        if capture is None:  # only a partial record can be empty
+        if capture is None:  # only a partial capture can be empty
             raise InstrumentError(self.name, f"adc on {self.address} delivered no samples")
         return capture
 
@@ -341,7 +341,7 @@ class SerialAdc:
         measured = arrival_rate(state.points, declared)
         span = state.points[-1][0] - state.points[0][0] if len(state.points) > 1 else 0.0
         wall = span / (getattr(self.clock, "speed", 1.0) or 1.0)
-        checkable = measured is not None and wall >= MIN_CHECK_WALL and len(state.points) >= MIN_CHECK_POINTS
+        verifiable = measured is not None and wall >= MIN_VERIFY_WALL and len(state.points) >= MIN_VERIFY_POINTS
         warnings: list[str] = []
         if state.commanded_at is not None and complete:
             # too fast is decided causally: a sample cannot arrive before it was taken, so a device
@@ -357,7 +357,7 @@ class SerialAdc:
             too_far = measured is not None and measured < declared * (1 - RATE_TOLERANCE)
         else:
             too_far = measured is not None and abs(measured / declared - 1) > RATE_TOLERANCE
-        if measured is not None and checkable and complete and too_far:
+        if measured is not None and verifiable and complete and too_far:
             raise InstrumentError(self.name, f"adc on {self.address} declares {declared:.6g} Hz but samples "
                                              f"arrived at {measured:.6g} Hz by the host clock "
                                              f"({100 * (measured / declared - 1):+.1f} %, limit "
@@ -368,11 +368,11 @@ class SerialAdc:
                                              f"({100 * fraction:.3g} %) in {len(gaps)} gap(s), more than "
                                              f"max_loss {100 * self.max_loss:.3g} %; capture refused")
         if lost:
-            warnings.append(f"{lost} samples lost in {len(gaps)} gap(s) were left out; the record is "
+            warnings.append(f"{lost} samples lost in {len(gaps)} gap(s) were left out; the capture is "
                             f"joined at those points")
         if extra.get("unlocated"):
             warnings.append(f"{extra['unlocated']} of the samples the device sent are missing at places "
-                            "lines mode cannot locate; the record is joined at its end")
+                            "lines mode cannot locate; the capture is joined at its end")
         if self.protocol == "lines" and not self.free_running and end_total is None and complete:
             warnings.append("the device sent no readable END line; the lines were counted against the "
                             f"{n} samples asked for")
@@ -396,7 +396,7 @@ class SerialAdc:
             # docs/serial-protocol.md for what such a capture cannot detect
             "framing": self.protocol,
             "rate": {"declared": declared, "device_reply": actual, "host_measured": measured,
-                     "check": "ok" if checkable else f"not checked (needs {MIN_CHECK_WALL:g} s of wall time)"},
+                     "verified": "ok" if verifiable else f"not verified (needs {MIN_VERIFY_WALL:g} s of wall time)"},
             "warnings": warnings,
         }
         return Capture(samples=volts, sample_rate=declared, start_time=0.0, channel=channel,
@@ -409,7 +409,7 @@ _warm = False
 
 def _warm_up() -> None:
     """Run the decoder once before any capture: numpy's first calls cost several ms, which
-    would otherwise fall into the first frames of a capture and skew the arrival-rate check."""
+    would otherwise fall into the first frames of a capture and skew the arrival-rate verification."""
     global _warm
     if not _warm:
         frame = encode_frame(0, 20_000_000, 1, np.zeros(4, dtype=np.uint16))

@@ -36,7 +36,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 _END = re.compile(rb"END[ \t]+([0-9]+)")
-MEDIAN_WINDOW = 5  # running median over time residuals: up to two adjacent spikes are rejected
+MEDIAN_SPAN = 5  # running median over time residuals: up to two adjacent spikes are rejected
 SPIKE_FRACTION = 0.5  # a time stamp this many periods off its neighbours' line is an outlier
 
 
@@ -131,7 +131,7 @@ class LinesDecoder:
     def result(self, n: int, *, complete: bool = True) -> LinesResult:
         """Place every line received on the sample index axis; ``n`` samples were asked for.
 
-        ``complete`` is False for the partial record of a capture cut short (no tail loss
+        ``complete`` is False for the partial samples of a capture cut short (no tail loss
         is counted then).
         """
         codes = np.asarray(self.codes, dtype=np.int64)
@@ -198,12 +198,12 @@ def _merge(gaps: list[tuple[int, int]]) -> list[tuple[int, int]]:
     return out
 
 
-def _running_median(x: np.ndarray, window: int) -> np.ndarray:
-    half = window // 2
+def _running_median(x: np.ndarray, span: int) -> np.ndarray:
+    half = span // 2
     if x.size <= half:
         return np.full(x.size, np.median(x)) if x.size else x.astype(np.float64)
     padded = np.concatenate([x[half:0:-1], x, x[-2:-half - 2:-1]])
-    return np.median(np.lib.stride_tricks.sliding_window_view(padded, window), axis=1)
+    return np.median(np.lib.stride_tricks.sliding_window_view(padded, span), axis=1)
 
 
 def _place_by_time(codes: np.ndarray, times: np.ndarray):
@@ -233,7 +233,7 @@ def _place_by_time(codes: np.ndarray, times: np.ndarray):
         period = float(np.diff(t)[single].mean())
     # 3. spikes: time residual against line order, compared with its running median
     resid = t - period * j
-    spike = np.abs(resid - _running_median(resid, MEDIAN_WINDOW)) > SPIKE_FRACTION * period
+    spike = np.abs(resid - _running_median(resid, MEDIAN_SPAN)) > SPIKE_FRACTION * period
     # 4. chain the good lines: each step of k periods (k >= 1) moves the index by k
     good = valid[~spike]
     outliers[valid[spike]] = True

@@ -17,7 +17,7 @@ from benchgate.judge.risk import (
     specific_risk,
 )
 from benchgate.plan.limits import Window, window_problem
-from benchgate.units.format import format_quantity
+from benchgate.units.format import format_quantity, window_text
 
 DECISION_RULES = ("simple", "guarded", "risk")
 
@@ -216,11 +216,7 @@ def _untrusted(x: object, u: object) -> str | None:
 
 
 def _window_text(w: Window) -> str:
-    if w.low is not None and w.high is not None:
-        return f"{_fmt(w.low, w.unit)} … {_fmt(w.high, w.unit)}"
-    if w.low is not None:
-        return f"≥ {_fmt(w.low, w.unit)}"
-    return f"≤ {_fmt(w.high, w.unit)}"
+    return window_text(w.low, w.high, w.unit)
 
 
 def combine(verdicts: Iterable[Verdict]) -> Verdict:

@@ -1,38 +1,38 @@
-"""Deciding a check before the whole record is in: a group-sequential rule with alpha spending.
+"""Deciding a check before the whole capture is in: a group-sequential rule with alpha spending.
 
-An adaptive capture grows its record block by block and re-measures after each block ("a
+An adaptive capture grows its capture block by block and re-measures after each block ("a
 look"). Applying the plan's decision rule at every look would inflate the chance of a wrong
 decision: every look is another chance for noise to carry an estimate across a limit. This
 module decides at look ``j`` only with a per-look error budget ``α_j`` taken from an alpha
 spending function, so the budgets of all looks together never exceed the stated total.
 
 The rule at a look before the last
-    With the measured value ``y_j`` and standard uncertainty ``u_j = U_j/2`` of the record so far,
+    With the measured value ``y_j`` and standard uncertainty ``u_j = U_j/2`` of the capture so far,
     form the interval ``y_j ± z_j·u_j`` with ``z_j = Φ⁻¹(1 − α_j/2)``. The check is decided as
     *pass* when the interval lies wholly inside the window, as *fail* when it lies wholly
     outside, and stays open otherwise. For any true value μ a wrong decision at look ``j``
     needs μ outside that interval, which has probability at most ``α_j`` under the normal model.
     By the union bound, the probability of any wrong early decision is at most
-    ``Σ_{j<J} α_j = A(t_{J−1})`` whatever the correlation between looks (the records are nested,
+    ``Σ_{j<J} α_j = A(t_{J−1})`` whatever the correlation between looks (the captures are nested,
     so the estimates are strongly correlated; the union bound does not need the independent
     increments an exact group-sequential boundary would assume).
 
-The last look (the longest record)
-    Judged exactly as a fixed-length capture: the plan's rule. Because the adaptive record is a
+The last look (the longest capture)
+    Judged exactly as a fixed-length capture: the plan's rule. Because the adaptive capture is a
     prefix of the fixed one, every wrong adaptive decision is either a wrong early decision or
     a wrong decision the fixed-length capture would also have made, so
 
         P(wrong, adaptive) ≤ P(wrong, fixed) + A(t_{J−1}).
 
 The spending function
-    Lan & DeMets' O'Brien-Fleming-type function A(t) = 2 − 2Φ(z_{1−a/2}/√t) for record fraction
+    Lan & DeMets' O'Brien-Fleming-type function A(t) = 2 − 2Φ(z_{1−a/2}/√t) for capture fraction
     ``t`` in (0, 1]; it spends almost nothing at early looks (a decision there needs a wide
     margin) and reaches its total a at t = 1. Only looks before the last spend from it, and its
     total is a = :data:`EARLY_SHARE` · α, so the early looks add at most a tenth of α.
 
 α is the plan's own risk: ``max_risk`` under the ``risk`` rule, Φ(−2) ≈ 2.3 % under
 ``guarded`` (the specific risk at the acceptance limit with w = U). Since α_j < α, an early
-decision always agrees with the plan's rule applied to the same record (the interval half-width
+decision always agrees with the plan's rule applied to the same capture (the interval half-width
 z_j·u exceeds U = 2u, and each tail is below α_j/2).
 
 References
@@ -97,11 +97,11 @@ def obf_spending(t: np.ndarray | float, alpha: float) -> np.ndarray:
 
 def look_budgets(fractions: Sequence[float], alpha: float, share: float = EARLY_SHARE) -> np.ndarray:
     """α_j for each look before the last: A(t_j) − A(t_{j−1}) with A the spending function of
-    total ``share·alpha``, ``fractions`` the record fractions of all looks (increasing, the last
+    total ``share·alpha``, ``fractions`` the capture fractions of all looks (increasing, the last
     = 1). The last look gets 0 (it is judged by the plan's rule, not by the spending)."""
     t = np.asarray(fractions, dtype=float)
     if t.ndim != 1 or t.size == 0 or np.any(np.diff(t) <= 0) or t[0] <= 0 or abs(t[-1] - 1.0) > 1e-12:
-        raise ValueError("record fractions must increase from above 0 to 1")
+        raise ValueError("capture fractions must increase from above 0 to 1")
     a = obf_spending(t, share * alpha)
     out = np.diff(np.concatenate(([0.0], a)))
     out[-1] = 0.0
@@ -125,8 +125,8 @@ def rule_alpha(rule: str, max_risk: float | None) -> float:
 
 
 def look_schedule(shortest: float, longest: float, block: float | None = None) -> list[float]:
-    """Record lengths (s) at which to look: ``shortest``, then every ``block`` (default: the
-    shortest record) up to ``longest``, which is always the last look."""
+    """Capture lengths (s) at which to look: ``shortest``, then every ``block`` (default: the
+    shortest capture) up to ``longest``, which is always the last look."""
     if not (0 < shortest <= longest) or not math.isfinite(longest):
         raise ValueError(f"need 0 < shortest <= longest, got {shortest!r}, {longest!r}")
     block = shortest if block is None else block
@@ -199,7 +199,7 @@ class SequentialState:
         return float(np.sum(self.budgets))
 
     def look(self, j: int, results: dict[str, tuple[float | None, float | None, float | None, float | None]]) -> bool:
-        """Record look ``j``: ``results`` maps a check key to (value, U, low, high). True when
+        """Note look ``j``: ``results`` maps a check key to (value, U, low, high). True when
         every check is decided (the capture may stop) or this was the last look."""
         last = j == len(self.schedule) - 1
         all_decided = True
@@ -212,7 +212,7 @@ class SequentialState:
                 LookRecord(self.schedule[j], value, u, float(self.budgets[j]), decided))
             all_decided = all_decided and decided is not None
         if last:
-            self.stopped = (f"longest record {self.schedule[-1]:g} s reached; judged as a fixed-length "
+            self.stopped = (f"longest capture {self.schedule[-1]:g} s reached; judged as a fixed-length "
                             "capture")
             return True
         if all_decided:

@@ -7,13 +7,13 @@ from typing import Any
 
 from benchgate.common.bounds import bounds_of
 from benchgate.common.yamlpos import YNode
-from benchgate.errors import UnitError
+from benchgate.errors import QuantityError
 from benchgate.plan import derive
 from benchgate.plan.fields import PlanCollector
 from benchgate.plan.limits import Window
 from benchgate.plan.model import DECISIONS
 from benchgate.units.eseries import is_preferred, nearest_preferred, series_for_tolerance
-from benchgate.units.format import format_quantity
+from benchgate.units.format import format_quantity, window_text
 from benchgate.units.tolerance import Part, Tolerance, parse_part, parse_tolerance
 
 LIMIT_KEYS = ("min", "max", "nominal", "tolerance", "from_circuit", "margin", "decision", "max_risk")
@@ -59,7 +59,7 @@ def parse_max_risk(c: PlanCollector, node: YNode, path: str) -> float | None:
 
 def _passable(c: PlanCollector, node: YNode, path: str, measurement: str, w: Window) -> Window | None:
     """``w`` when some value can pass it; an error at the limit otherwise."""
-    text = _window_text(w)
+    text = window_text(w.low, w.high, w.unit)
     if w.low is not None and w.high is not None and w.low == w.high:
         c.error(node, f"{path}: the window {text} has zero width; no measured value, which "
                       "carries an uncertainty, can be shown to lie in it")
@@ -71,13 +71,6 @@ def _passable(c: PlanCollector, node: YNode, path: str, measurement: str, w: Win
         return None
     return w
 
-
-def _window_text(w: Window) -> str:
-    if w.low is not None and w.high is not None:
-        return f"{format_quantity(w.low, w.unit)} … {format_quantity(w.high, w.unit)}"
-    if w.low is not None:
-        return f"≥ {format_quantity(w.low, w.unit)}"
-    return f"≤ {format_quantity(w.high, w.unit)}"
 
 
 def _parse_window(c: PlanCollector, node: YNode, path: str, measurement: str, unit: str,
@@ -140,7 +133,7 @@ def _parse_window(c: PlanCollector, node: YNode, path: str, measurement: str, un
                     "toleranced parts, or share one from_circuit between checks with a YAML anchor")
         return None
     try:
-        d = _analyse(circuit, measurement, unit, mc, given)
+        d = _analyze(circuit, measurement, unit, mc, given)
     except ValueError as exc:
         c.error(fc, f"{path}.from_circuit: {exc}")
         return None
@@ -154,7 +147,7 @@ def _parse_window(c: PlanCollector, node: YNode, path: str, measurement: str, un
 def _tolerance(c: PlanCollector, node: YNode, path: str, unit: str) -> Tolerance | None:
     try:
         return parse_tolerance(node.plain(), unit, field=path)
-    except UnitError as exc:
+    except QuantityError as exc:
         c.error(node, str(exc))
         return None
 
@@ -166,14 +159,14 @@ def _key(circuit: derive.Circuit, measurement: str, unit: str, mc: dict[str, Any
             measurement, unit, mc["draws"], mc["seed"], mc["distribution"], win)
 
 
-def _analyse(circuit: derive.Circuit, measurement: str, unit: str, mc: dict[str, Any],
+def _analyze(circuit: derive.Circuit, measurement: str, unit: str, mc: dict[str, Any],
              given: Window | None) -> derive.Derivation:
     win = None if given is None else (given.low, given.high)
     key = _key(circuit, measurement, unit, mc, given)
     if key not in _CACHE:
         if len(_CACHE) >= _CACHE_MAX:
             _CACHE.clear()
-        _CACHE[key] = derive.analyse(circuit, measurement, draws=mc["draws"], seed=mc["seed"],
+        _CACHE[key] = derive.analyze(circuit, measurement, draws=mc["draws"], seed=mc["seed"],
                                      distribution=mc["distribution"], window=win, unit=unit)
     return _CACHE[key]
 
@@ -280,7 +273,7 @@ def _ladder_parts(c: PlanCollector, node: YNode, path: str, key: str, n: int, pa
 def _part(c: PlanCollector, node: YNode, path: str, unit: str, *, note: bool = True) -> Part | None:
     try:
         p = parse_part(node.plain(), unit, field=path)
-    except UnitError as exc:
+    except QuantityError as exc:
         c.error(node, str(exc))
         return None
     lo_ok, hi_ok = PART_RANGES[unit]

@@ -27,7 +27,7 @@ from typing import Any
 
 import numpy as np
 
-from benchgate.plan import circuits
+from benchgate.plan import network
 from benchgate.plan.limits import Window
 from benchgate.units.format import format_quantity
 from benchgate.units.tolerance import Part, Tolerance
@@ -37,7 +37,7 @@ DEFAULT_DRAWS = 20_000
 MIN_DRAWS = 10_000
 MAX_DRAWS = 1_000_000
 #: circuit evaluations (corners + Monte Carlo draws, weighted by :func:`work_weight`) one plan
-#: may ask for, so that loading and `benchgate check` finish within a few seconds on any plan
+#: may ask for, so that loading and `benchgate inspect` finish within a few seconds on any plan
 #: the loader accepts; one unit is about a microsecond on a small CI machine.
 MAX_PLAN_WORK = 1_500_000
 DISTRIBUTIONS = ("uniform", "normal")
@@ -110,16 +110,16 @@ def evaluate(circuit: Circuit, values: dict[str, np.ndarray]) -> dict[str, np.nd
         n = circuit.options["sections"]
         R = np.stack([values[f"R{i + 1}"] for i in range(n)], axis=-1)
         C = np.stack([values[f"C{i + 1}"] for i in range(n)], axis=-1)
-        return circuits.rc_ladder(R, C, form=circuit.options["form"], source=values.get("source"),
+        return network.rc_ladder(R, C, form=circuit.options["form"], source=values.get("source"),
                                   load=values.get("load"))
     if t == "wien_bridge":
-        return circuits.wien_bridge(values["R1"], values["R2"], values["C1"], values["C2"])
+        return network.wien_bridge(values["R1"], values["R2"], values["C1"], values["C2"])
     if t == "timer_astable":
-        return circuits.timer_astable(values["R1"], values["R2"], values["C"])
+        return network.timer_astable(values["R1"], values["R2"], values["C"])
     if t == "lc_tank":
         if circuit.options["type"] == "colpitts":
-            return circuits.colpitts(values["L"], values["C1"], values["C2"])
-        return circuits.hartley(values["L1"], values["L2"], values["C"], values.get("M", 0.0))
+            return network.colpitts(values["L"], values["C1"], values["C2"])
+        return network.hartley(values["L1"], values["L2"], values["C"], values.get("M", 0.0))
     raise ValueError(f"unknown topology {t!r}")
 
 
@@ -179,7 +179,7 @@ def work_weight(circuit: Circuit) -> int:
 
 
 def work(circuit: Circuit, draws: int) -> int:
-    """The evaluation work of :func:`analyse` for ``circuit`` and ``draws``: nominal, corners, draws."""
+    """The evaluation work of :func:`analyze` for ``circuit`` and ``draws``: nominal, corners, draws."""
     varied = sum(1 for p in circuit.parts.values() if p.low != p.high)
     corners = 2 ** min(varied, MAX_CORNER_PARTS)
     return (1 + corners + draws) * work_weight(circuit)
@@ -229,7 +229,7 @@ def draw(circuit: Circuit, draws: int, seed: int, distribution: str = "uniform")
     return out
 
 
-def analyse(circuit: Circuit, measurement: str, *, draws: int = DEFAULT_DRAWS, seed: int = 1,
+def analyze(circuit: Circuit, measurement: str, *, draws: int = DEFAULT_DRAWS, seed: int = 1,
             distribution: str = "uniform", window: tuple[float | None, float | None] | None = None,
             unit: str = "Hz") -> Derivation:
     """Worst case over every tolerance corner and a seeded Monte Carlo run of one output.
@@ -242,7 +242,7 @@ def analyse(circuit: Circuit, measurement: str, *, draws: int = DEFAULT_DRAWS, s
     draws, seed, distribution
         Monte Carlo size (>= 10⁴), generator seed, part distribution.
     window : (low, high), optional
-        An explicitly given acceptance window (measurement units); the yield inside it is
+        An explicitly given acceptance window (in the measurement's SI unit); the yield inside it is
         reported.
 
     Raises

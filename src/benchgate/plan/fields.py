@@ -5,7 +5,7 @@ from __future__ import annotations
 
 from benchgate.common.fields import Collector
 from benchgate.common.yamlpos import YNode
-from benchgate.errors import PlanErrors, UnitError
+from benchgate.errors import PlanErrors, QuantityError
 from benchgate.units.parse import parse_quantity
 
 
@@ -22,7 +22,7 @@ class PlanCollector(Collector):
             return None
         try:
             q = parse_quantity(node.plain(), unit, field=path)
-        except UnitError as exc:
+        except QuantityError as exc:
             self.error(node, str(exc))
             return None
         v = q.value

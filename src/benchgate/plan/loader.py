@@ -147,20 +147,20 @@ def _risk_rule_limits(c: PlanCollector, steps: list[Step], decision: str, max_ri
 def _adaptive_checks(c: PlanCollector, steps: list[Step], positions: list[dict[str, tuple[int, int]]],
                      decision: str) -> None:
     """An adaptive capture stops on decided checks, so each of its checks must be decidable
-    before the whole record is in, under a rule that states a risk."""
+    before the whole capture is in, under a rule that states a risk."""
     for s, pos in zip(steps, positions, strict=False):
         if not isinstance(s, CaptureStep) or s.adaptive is None:
             continue
         where = pos.get("adaptive", pos[""])
         if s.power_on:
-            c.error(where, f"step {s.id!r}: a power_on capture records the start-up and needs its "
-                           "whole record; it cannot be adaptive")
+            c.error(where, f"step {s.id!r}: a power_on capture takes in the start-up and needs its "
+                           "whole capture; it cannot be adaptive")
         if not s.checks:
             c.error(where, f"step {s.id!r}: an adaptive capture needs checks to decide")
         for ch in s.checks:
             at = (ch.line, ch.column) if ch.line else where
             if ch.measurement not in ADAPTIVE_MEASUREMENTS:
-                c.error(at, f"step {s.id!r}: {ch.measurement} needs the whole record and cannot be "
+                c.error(at, f"step {s.id!r}: {ch.measurement} needs the whole capture and cannot be "
                             "judged early; move it to a capture that is not adaptive (early: "
                             f"{', '.join(ADAPTIVE_MEASUREMENTS)})")
             rule = ch.window.decision or decision
@@ -308,7 +308,7 @@ def _step(c: PlanCollector, node: YNode, path: str, defaults: dict[str, Any],
 
 
 def _adaptive(c: PlanCollector, m: dict[str, YNode], path: str, values: dict[str, Any]) -> None:
-    """Read ``adaptive: {shortest, longest, block}``; the longest record becomes the duration."""
+    """Read ``adaptive: {shortest, longest, block}``; the longest capture becomes the duration."""
     node = m["adaptive"]
     a = c.mapping(node, f"{path}.adaptive", ADAPTIVE_KEYS, required=("shortest", "longest"))
     if a is None:

@@ -14,9 +14,9 @@ from benchgate.common.names import CAPABILITIES, READING_UNITS
 from benchgate.plan.limits import Window
 
 STEP_KINDS = ("supply", "wait", "prompt", "capture", "reading")
-#: measurements an adaptive capture may decide before its longest record: estimates that
-#: converge as the record grows and state their uncertainty. Start-up time, drift, dips,
-#: peak-to-peak and SFDR (extremes over the whole record) need the whole record.
+#: measurements an adaptive capture may decide before its longest capture: estimates that
+#: converge as the capture grows and state their uncertainty. Start-up time, drift, dips,
+#: peak-to-peak and SFDR (extremes over the whole capture) need the whole capture.
 ADAPTIVE_MEASUREMENTS = ("frequency", "amplitude", "rms", "dc_offset", "thd", "thd_n", "sinad",
                          "snr", "enob", "duty_cycle")
 #: decision rules that state a risk an adaptive capture can stop on
@@ -25,7 +25,7 @@ ADAPTIVE_KEYS = ("shortest", "longest", "block")
 MAX_LOOKS = 200  # re-measurements of one adaptive capture
 ON_FAIL = ("stop", "continue")
 DECISIONS = ("simple", "guarded", "risk")
-MAX_STEPS = 500  # keeps loading and `check` within a few seconds; real plans have tens
+MAX_STEPS = 500  # keeps loading and `inspect` within a few seconds; real plans have tens
 MAX_SAMPLES = 50_000_000  # samples in one capture (rate × duration)
 #: hazards a plan may declare; each needs an explicit acknowledgement before a run.
 HAZARD_NAMES = ("mains", "high_voltage", "hot_surfaces", "stored_energy", "moving_parts",
@@ -138,15 +138,15 @@ class PromptStep(Step):
 
 @dataclass(frozen=True)
 class Adaptive:
-    """An adaptive capture: record in blocks, stop once every check is decided (judge/sequential)."""
+    """An adaptive capture: capture in blocks, stop once every check is decided (judge/sequential)."""
 
-    shortest: float = field(metadata=spec("the first look: shortest record", kind="quantity", unit="s",
+    shortest: float = field(metadata=spec("the first look: shortest capture", kind="quantity", unit="s",
                                           minimum=0, maximum=600, required=True))
-    longest: float = field(metadata=spec("the longest record (the step's duration); judged as a "
+    longest: float = field(metadata=spec("the longest capture (the step's duration); judged as a "
                                          "fixed-length capture when reached", kind="quantity", unit="s",
                                          minimum=0, maximum=600, required=True))
     block: float | None = field(default=None, metadata=spec(
-        "record added between looks (default: the shortest record)", kind="quantity", unit="s",
+        "capture added between looks (default: the shortest capture)", kind="quantity", unit="s",
         minimum=0, maximum=600))
 
     def to_dict(self) -> dict[str, Any]:
@@ -155,7 +155,7 @@ class Adaptive:
 
 @dataclass(frozen=True, kw_only=True)
 class CaptureStep(Step):
-    """Record a waveform and judge measurements made on it."""
+    """Capture a waveform and judge measurements made on it."""
 
     kind: str = field(default="capture", metadata=_COMMON["kind"])
     instrument: str = field(default="adc", metadata=spec(
@@ -165,22 +165,22 @@ class CaptureStep(Step):
         "sample rate (Hz or S/s); absent: the instrument's default", kind="quantity", unit="Hz",
         minimum=0, maximum=1e10))
     duration: float = field(default=0.0, metadata=spec(
-        "record length (or give `samples` with `rate`)", kind="quantity", unit="s", minimum=0,
+        "capture length (or give `samples` with `rate`)", kind="quantity", unit="s", minimum=0,
         maximum=600))
     range: float | None = field(default=None, metadata=spec(
         "input range (full-scale voltage) when the recorder has ranges", kind="quantity", unit="V",
         minimum=0, maximum=1000))
     power_on: bool = field(default=False, metadata=spec(
-        "switch the supply output on right after the record starts, to capture the start-up",
+        "switch the supply output on right after the capture starts, to capture the start-up",
         kind="bool"))
     harmonics: int = field(default=10, metadata=spec(
         "harmonics summed for THD and excluded from SNR", kind="int", minimum=1, maximum=50))
     checks: tuple[Check, ...] = field(default=(), metadata=spec(
         "measurement name -> limit", kind="checks"))
     adaptive: Adaptive | None = field(default=None, metadata=spec(
-        "record in blocks and stop as soon as every check is decided under the plan's decision "
+        "capture in blocks and stop as soon as every check is decided under the plan's decision "
         "rule (guarded or risk), with an error bound that holds under the repeated looks: "
-        "{shortest, longest, block}; the longest record replaces duration", kind="adaptive"))
+        "{shortest, longest, block}; the longest capture replaces duration", kind="adaptive"))
 
 
 @dataclass(frozen=True, kw_only=True)

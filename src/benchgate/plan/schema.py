@@ -93,7 +93,7 @@ def _step_schema(kind: str) -> dict[str, Any]:
             required.append(key)
     if kind == "capture":
         props["samples"] = {"type": "integer", "minimum": 16,
-                            "description": "record length in samples (instead of duration; needs rate)"}
+                            "description": "capture length in samples (instead of duration; needs rate)"}
     if kind == "reading":
         required.append("limit")
     return {"type": "object", "title": f"{kind} step", "description": (cls.__doc__ or "").strip(),

@@ -6,11 +6,11 @@ executable path. Playwright is an optional dependency (``pip install 'benchgate[
 without it, or without Chromium, every function raises :class:`BrowserError` with one line
 saying what to install (:func:`unavailable` says so before any work is done).
 
-- :func:`check_page` loads an HTML file and returns a :class:`PageCheck`: console errors and
+- :func:`check_page` loads an HTML file and returns a :class:`PageFindings`: console errors and
   uncaught exceptions, every request other than the file itself and ``data:`` URIs (and those
-  requests are refused and the page is kept offline, so a check never reaches the network),
+  requests are refused and the page is kept offline, so a loaded page never reaches the network),
   the size of each ``<svg>``, and the page text.
-- :func:`overflow` lists what does not fit a window of a given width.
+- :func:`overflow` lists what does not fit a viewport of a given width.
 - :func:`screenshot` writes a PNG, :func:`print_pdf` a PDF (A4 or Letter, print styles).
 """
 
@@ -37,7 +37,7 @@ PAPER = {"a4": "A4", "letter": "Letter"}  # ISO 216 A4 (210 mm × 297 mm); ANSI 
 NO_BROWSER = "no Chromium found; install Debian's chromium package"
 NO_PLAYWRIGHT = ("Playwright for Python is not installed; install it with "
                  "pip install 'benchgate[browser]' (it drives the system's Chromium)")
-#: requests a page may make while being checked: its own file, and inline data.
+#: requests a page may make while being loaded: its own file, and inline data.
 _NETWORK = re.compile(r"^(?!file:|data:|about:|blob:)[a-z][a-z0-9+.-]*:", re.I)
 
 
@@ -61,7 +61,7 @@ def unavailable() -> str | None:
 
 
 @dataclass
-class PageCheck:
+class PageFindings:
     """What loading one page did."""
 
     url: str
@@ -108,7 +108,7 @@ def _file_url(html_path: str | Path) -> str:
 
 @contextlib.contextmanager
 def _page(url: str, *, width: int = 1000, media: str = "screen", timeout: float = 30.0,
-          browser: Any = None) -> Iterator[tuple[Any, PageCheck]]:
+          browser: Any = None) -> Iterator[tuple[Any, PageFindings]]:
     """Open ``url`` in a fresh page; yields the page and what it did while loading."""
     from playwright.sync_api import Error as PlaywrightError
 
@@ -118,33 +118,33 @@ def _page(url: str, *, width: int = 1000, media: str = "screen", timeout: float 
         context = browser.new_context(viewport={"width": width, "height": 800}, device_scale_factor=1,
                                       java_script_enabled=True, offline=True)
         stack.callback(context.close)
-        check = PageCheck(url=url)
+        found = PageFindings(url=url)
         own = unquote(url.split("#")[0])
 
         def on_request(request: Any) -> None:
             u = request.url
             if unquote(u.split("#")[0]) != own and not u.startswith("data:"):
-                check.requests.append(u)
+                found.requests.append(u)
 
         def on_console(msg: Any) -> None:
             if msg.type in ("error", "assert"):
-                check.console_errors.append(f"console.{msg.type}: {msg.text}")
+                found.console_errors.append(f"console.{msg.type}: {msg.text}")
 
         context.on("request", on_request)
-        context.on("requestfailed", lambda r: check.console_errors.append(
+        context.on("requestfailed", lambda r: found.console_errors.append(
             f"request failed: {r.url} ({r.failure})") if _NETWORK.match(r.url) is None else None)
-        context.route(_NETWORK, lambda route: route.abort())  # a check never reaches the network
+        context.route(_NETWORK, lambda route: route.abort())  # a loaded page never reaches the network
         page = context.new_page()
         page.set_default_timeout(timeout * 1000)
         page.on("console", on_console)
-        page.on("pageerror", lambda exc: check.console_errors.append(f"exception: {exc}"))
+        page.on("pageerror", lambda exc: found.console_errors.append(f"exception: {exc}"))
         page.emulate_media(media=media)
         try:
             page.goto(url, wait_until="load")
             page.wait_for_load_state("networkidle")  # late requests after the load event
         except PlaywrightError as exc:
             raise BrowserError(f"{url}: the page did not load: {_first_line(exc)}") from None
-        yield page, check
+        yield page, found
 
 
 _SVG_SIZES = """() => Array.from(document.querySelectorAll('svg')).map(function (s) {
@@ -152,7 +152,7 @@ _SVG_SIZES = """() => Array.from(document.querySelectorAll('svg')).map(function 
   return [s.getAttribute('aria-label') || s.id || '', r.width, r.height]; })"""
 
 
-def check_page(html_path: str | Path, *, timeout: float = 30.0, browser: Any = None) -> PageCheck:
+def check_page(html_path: str | Path, *, timeout: float = 30.0, browser: Any = None) -> PageFindings:
     """Load ``html_path`` in headless Chromium and report what happened.
 
     Parameters
@@ -166,16 +166,16 @@ def check_page(html_path: str | Path, *, timeout: float = 30.0, browser: Any = N
 
     Returns
     -------
-    PageCheck
+    PageFindings
         Console errors (``console.error``/``console.assert`` calls, uncaught exceptions, error
         messages the browser logged, failed loads), every request other than the page's own
         file and ``data:`` URIs, the rendered size of each ``<svg>`` and the page's visible text.
     """
     url = _file_url(html_path)
-    with _page(url, timeout=timeout, browser=browser) as (page, check):
-        check.svg_sizes = [(str(a), float(w), float(h)) for a, w, h in page.evaluate(_SVG_SIZES)]
-        check.text = page.inner_text("body") if page.query_selector("body") else ""
-    return check
+    with _page(url, timeout=timeout, browser=browser) as (page, found):
+        found.svg_sizes = [(str(a), float(w), float(h)) for a, w, h in page.evaluate(_SVG_SIZES)]
+        found.text = page.inner_text("body") if page.query_selector("body") else ""
+    return found
 
 
 _OVERFLOW = """() => {
@@ -194,7 +194,7 @@ _OVERFLOW = """() => {
 
 
 def overflow(html_path: str | Path, *, width: int = 700, timeout: float = 30.0, browser: Any = None) -> list[str]:
-    """Elements of ``html_path`` that do not fit a ``width``-pixel-wide window.
+    """Elements of ``html_path`` that do not fit a ``width``-pixel-wide viewport.
 
     Anything ending right of the viewport, and any box whose content is wider than the box
     (text running into the next table cell); an empty list when the page fits.

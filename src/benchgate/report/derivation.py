@@ -28,7 +28,7 @@ LABELS = {
     "high_corner": "parts at the highest corner",
     "margin": "margin added",
     "gain_needed": "amplifier gain needed",
-    "monte_carlo": "Monte Carlo check",
+    "monte_carlo": "Monte Carlo spread",
     "draws": "draws",
     "seed": "seed",
     "distribution": "distribution",

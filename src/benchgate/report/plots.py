@@ -3,7 +3,7 @@
 Plot data (cycles, envelope, spectrum, fundamental, harmonics, steady part, start-up instant)
 comes from :class:`benchgate.analysis.views.CaptureViews`, computed once with the measurements
 and carried in the run record; drawing is :mod:`benchgate.report.svg`. Only a record from before
-views were kept is analysed again (:func:`views_of`). A figure that cannot be drawn says why
+views were kept is analyzed again (:func:`views_of`). A figure that cannot be drawn says why
 instead of breaking the report.
 """
 
@@ -60,7 +60,7 @@ def capture_figures(views: CaptureViews | Capture | None, checks: Iterable[Check
     Parameters
     ----------
     views : CaptureViews
-        The capture's plot data from its analysis (a bare ``Capture`` is analysed here, for
+        The capture's plot data from its analysis (a bare ``Capture`` is analyzed here, for
         records that kept no views).
     checks : iterable of CheckRecord
         The step's checks: a valid ``startup_time`` check gives the start-up instant drawn
@@ -113,9 +113,9 @@ def capture_figures(views: CaptureViews | Capture | None, checks: Iterable[Check
                             y_label="level re fundamental" if fundamental else "level re largest bin")
 
     n_text = f"the last {CYCLES} cycles" if fundamental else "the end (no fundamental found)"
-    draw("waveform", f"Waveform: {n_text} of the record", wave)
-    draw("envelope", "Envelope of the whole record (min/max), start-up instant marked" if startup is not None
-         else "Envelope of the whole record (min/max); no start-up instant was measured", env)
+    draw("waveform", f"Waveform: {n_text} of the capture", wave)
+    draw("envelope", "Envelope of the whole capture (min/max), start-up instant marked" if startup is not None
+         else "Envelope of the whole capture (min/max); no start-up instant was measured", env)
     draw("spectrum", "Spectrum in dB relative to the fundamental (Blackman–Harris window), harmonics marked"
          if fundamental else "Spectrum in dB relative to its largest bin (no fundamental found)", spec)
     return figures, notes

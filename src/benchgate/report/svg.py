@@ -200,9 +200,9 @@ def waveform(t: Sequence[float], v: Sequence[float], *, label: str = "waveform",
 def envelope(t: Sequence[float], low: Sequence[float], high: Sequence[float], *, startup: float | None = None,
              steady_start: float | None = None, label: str = "envelope", unit: str = "V",
              min_span: float = 0.0, width: int = 640, height: int = 220) -> str:
-    """The whole record as a min/max band, with the start-up instant and the steady part marked.
+    """The whole capture as a min/max band, with the start-up instant and the steady part marked.
 
-    ``t`` is time from the record start (s); ``startup`` and ``steady_start`` are in the same time.
+    ``t`` is time from the capture start (s); ``startup`` and ``steady_start`` are in the same time.
     """
     t = np.asarray(t, dtype=float)
     lo = np.asarray(low, dtype=float)
@@ -213,13 +213,13 @@ def envelope(t: Sequence[float], low: Sequence[float], high: Sequence[float], *,
     t, lo, hi = t[ok], lo[ok], hi[ok]
     ax = Axes(width, height, (0.0, max(float(t[-1]), 1e-12)), _padded(float(lo.min()), float(hi.max()),
                                                                          min_span=min_span))
-    ax.frame("time from record start", "voltage", "s", unit)
+    ax.frame("time from capture start", "voltage", "s", unit)
     if steady_start is not None and math.isfinite(steady_start) and 0 <= steady_start < t[-1]:
         x = ax.px(steady_start)
         ax.add(f'<rect x="{x:.1f}" y="{ax.y1}" width="{ax.x1 - x:.1f}" height="{ax.y0 - ax.y1}" '
                'fill="#e8f1f7" opacity="0.8"/>')
         ax.add(f'<text x="{ax.x1}" y="{ax.y1 - 9}" text-anchor="end" fill="{MUTED}">'
-               'shaded: steady part (analysed)</text>')
+               'shaded: steady part (analyzed)</text>')
     pts = [f"{ax.px(a):.1f},{ax.py(b):.1f}" for a, b in zip(t, hi, strict=True)]
     pts += [f"{ax.px(a):.1f},{ax.py(b):.1f}" for a, b in zip(t[::-1], lo[::-1], strict=True)]
     ax.add(f'<polygon points="{" ".join(pts)}" fill="{FILL}" stroke="{TRACE}" stroke-width="0.8"/>')

@@ -1,11 +1,11 @@
-"""An adaptive capture step: record in blocks, re-measure after each, stop once decided.
+"""An adaptive capture step: capture in blocks, re-measure after each, stop once decided.
 
-The recorder hands over its growing record at each look (``capture_growing``); the checks are
+The recorder hands over its growing capture at each look (``capture_growing``); the checks are
 measured on it and given to the sequential rule (:mod:`benchgate.judge.sequential`), which says
 whether every check is decided with the per-look error budget. The returned capture carries
 the whole look-by-look story in its metadata (``adaptive``): per check the value and U at each
 look, the budget spent, and why the capture stopped. The runner then analyses and judges the
-returned record exactly as a fixed-length one.
+returned capture exactly as a fixed-length one.
 """
 
 from __future__ import annotations
@@ -20,7 +20,7 @@ from benchgate.judge.sequential import SequentialState, look_schedule, rule_alph
 
 @runtime_checkable
 class GrowingRecorder(Protocol):
-    """A recorder that can hand over its record while recording (the serial ADC)."""
+    """A recorder that can hand over its capture while capturing (the serial ADC)."""
 
     def capture_growing(self, channel: str, *, looks: Sequence[float], rate: float | None = None,
                         progress: Any = None, decide: Callable[[Capture], bool]) -> Capture: ...
@@ -35,7 +35,7 @@ def step_alpha(step: Any, decision: str, max_risk: float | None) -> float:
 
 def acquire_adaptive(instrument: Any, step: Any, decision: str, max_risk: float | None,
                      analyze: Callable[..., Any], progress: Any = None) -> Capture:
-    """Record ``step`` adaptively on ``instrument``; the capture it stopped at, with the story
+    """Capture ``step`` adaptively on ``instrument``; the capture it stopped at, with the story
     of its looks in ``metadata["adaptive"]``."""
     a = step.adaptive
     looks = look_schedule(a.shortest, a.longest, a.block)
@@ -56,7 +56,7 @@ def acquire_adaptive(instrument: Any, step: Any, decision: str, max_risk: float 
         return out
 
     def decide(capture: Capture) -> bool:
-        # the look this record belongs to (a recorder may skip a look it had no time for;
+        # the look this capture belongs to (a recorder may skip a look it had no time for;
         # that look's error budget then stays unspent)
         j = min(range(len(looks) - 1), key=lambda i: abs(looks[i] - capture.duration))
         return state.look(j, results(capture))
@@ -66,11 +66,11 @@ def acquire_adaptive(instrument: Any, step: Any, decision: str, max_risk: float 
                                              progress=progress, decide=decide)
     else:
         capture = instrument.capture(step.channel, duration=looks[-1], rate=step.rate, progress=progress)
-    if not state.stopped:  # the longest record: its look, judged as a fixed-length capture
+    if not state.stopped:  # the longest capture: its look, judged as a fixed-length capture
         looked = len(next(iter(state.looks.values()), []))
         state.look(len(looks) - 1, results(capture))
         if looked == 0 and len(looks) > 1:
-            state.stopped = (f"the recorder cannot hand over its record while recording; recorded "
+            state.stopped = (f"the recorder cannot hand over its capture while capturing; captured "
                              f"{capture.duration:g} s and judged it as a fixed-length capture")
         elif looked < len(looks) - 1:
             state.stopped += (f" ({looked} of the {len(looks) - 1} earlier looks were made; the others "

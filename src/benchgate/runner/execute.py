@@ -1,8 +1,8 @@
 """Executes a plan's steps, in order, on an open bench, filling the unit record as it goes.
 
 Step kinds: ``supply`` (set voltage / current limit / output), ``wait`` (on the injected clock),
-``prompt`` (operator instruction or yes/no question), ``capture`` (ADC or digitizer record, saved
-at once, analysed, judged) and ``reading`` (settle, read one value, judge). ``on_fail`` and
+``prompt`` (operator instruction or yes/no question), ``capture`` (ADC or digitizer capture, saved
+at once, analyzed, judged) and ``reading`` (settle, read one value, judge). ``on_fail`` and
 ``retries`` are applied here; every attempt is noted in the step's record.
 
 Instrument errors (and Ctrl-C) end the unit: the step is marked and the exception travels on to
@@ -211,7 +211,7 @@ class Executor:
         warnings: list[str] = []
         views = None
         try:
-            # the views (plot data) come from this one analysis: the report does not analyse again
+            # the views (plot data) come from this one analysis: the report does not analyze again
             analysis = self.analyze(capture, names, harmonics=step.harmonics, views=True)
             measurements = analysis.measurements
             warnings = list(analysis.warnings)
@@ -248,11 +248,11 @@ class Executor:
             kwargs["range"] = step.range  # an ADC's range is fixed by its reference
         if not step.power_on:
             return instrument.capture(step.channel, **kwargs)
-        # Acquisition first, then the supply: the record must hold the start-up transient. The
+        # Acquisition first, then the supply: the capture must hold the start-up transient. The
         # driver's first progress call means samples are arriving; only then is the supply
-        # switched on (never before, which could hide a slow start behind the record's start).
+        # switched on (never before, which could hide a slow start behind the capture's start).
         self._power_down_first(srec)
-        if isinstance(instrument, Digitizer):  # a triggered recorder: its record starts when armed
+        if isinstance(instrument, Digitizer):  # a triggered recorder: its capture starts when armed
             return self._acquire_armed(step, instrument, srec, kwargs)
         result: dict[str, Any] = {}
 
@@ -272,7 +272,7 @@ class Executor:
             self.bench["supply"].output(True)
             t_ack = self.clock.monotonic()
             t_first, delivered = first
-            # Where the switch-on falls in the record's own time: the part already delivered at
+            # Where the switch-on falls in the capture's own time: the part already delivered at
             # the first progress report, plus the clock time from then to the middle of the
             # output command; half the command's duration bounds where in it the output rose.
             # The analysis times the start-up from this instant (``power_on_at``).
@@ -281,7 +281,7 @@ class Executor:
             srec.notes.append(
                 f"supply output switched on {(t_ack - t_first) * 1e3:.1f} ms after the first samples "
                 f"arrived, {power_on['power_on_at'] * 1e3:.1f} ms ± {power_on['power_on_halfwidth'] * 1e3:.1f} ms "
-                "into the record; start-up is timed from there")
+                "into the capture; start-up is timed from there")
         while worker.is_alive():
             worker.join(timeout=0.05)
         if "error" in result:
@@ -294,7 +294,7 @@ class Executor:
     def _acquire_armed(self, step: Any, instrument: Any, srec: StepRecord, kwargs: dict[str, Any]):
         """Power-on capture with a digitizer: set up, arm, switch the supply on, wait, fetch.
 
-        The record starts somewhere inside the arm command, the switch-on somewhere inside the
+        The capture starts somewhere inside the arm command, the switch-on somewhere inside the
         output command; ``power_on_at`` is the middle of the interval that leaves, and
         ``power_on_halfwidth`` its half-width.
         """

@@ -1,4 +1,4 @@
-"""Checks made before anything on the bench is touched.
+"""The preflight: what is verified before anything on the bench is touched.
 
 1. The station provides every instrument role the plan ``requires`` (and every role a step uses).
 2. No instrument's calibration is past due, unless the run allows it (then it is recorded).

@@ -1,7 +1,7 @@
 """Re-judge a stored run against another plan version, without hardware.
 
 The captures named in a unit's JSON report are read back (their SHA-256 checked against the
-report), analysed again, and judged against the new plan's windows and decision rule; stored
+report), analyzed again, and judged against the new plan's windows and decision rule; stored
 single readings are re-judged as they were measured. Steps with nothing to re-judge (supply,
 wait, prompt) keep their recorded outcome. The new report says it is a reanalysis, and of what
 (``reanalysis_of``: the original report, run id, plan id, version and hash).

@@ -9,7 +9,7 @@ the fixture relay is closed; its waveform runs from the instant it was powered.
 the supply delivers the unit's draw up to its current limit (in limit the voltage sags; below
 60 % of the board's supply the unit stops oscillating), the DMM reads the rail (DC), the test
 point (AC rms) and the draw (DC current), the counter counts the test point's cycles over a
-0.1 s gate (0 Hz when it does not oscillate) and the digitizer records the test point in volts.
+0.1 s gate (0 Hz when it does not oscillate) and the digitizer captures the test point in volts.
 The circuits are simulated at the board's nominal supply; another supply voltage scales the
 unit's output and current in proportion (a first-order model of a resistive, linear board).
 """
@@ -26,7 +26,7 @@ from benchgate.sim.boards import Unit
 BROWN_OUT = 0.6  # fraction of the nominal supply below which the unit does not run
 DMM_NOISE = 50e-6  # V rms on DC readings
 AVERAGE = 0.02  # s over which the supply and DMM average the current
-GATE = 0.1  # s counter gate and AC-rms window
+GATE = 0.1  # s counter gate and AC-rms span
 HISTORY = 32  # power intervals remembered
 
 
@@ -159,7 +159,7 @@ class BenchState:
 def count_frequency(v: np.ndarray, rate: float, *, min_pp: float = 0.05) -> float:
     """Reciprocal counting: cycles between the first and last rising edges (with hysteresis of
     10 % of the span about the mid level) divided by the time between them; 0.0 if the signal's
-    span is below ``min_pp`` volts or fewer than two edges fall in the record."""
+    span is below ``min_pp`` volts or fewer than two edges fall in the capture."""
     v = np.asarray(v, dtype=np.float64)
     lo, hi = float(v.min()), float(v.max())
     if hi - lo < min_pp:

@@ -16,7 +16,7 @@ its link (``firmware/harness/link.h``) from a thread:
 Time: the bench clock is the AVR's own cycle count (:class:`HarnessClock`), published by the
 harness, divided by its crystal frequency (16 MHz off by ``crystal_ppm``). The harness runs at
 most ``speed`` times real time; when it cannot keep up, the whole bench (runner waits, SCPI
-instruments, the host's arrival-rate check) runs slower with it instead of drifting apart, and
+instruments, the host's arrival-rate verification) runs slower with it instead of drifting apart, and
 :meth:`HarnessClock.measured_speed` states what it achieved.
 """
 

@@ -23,7 +23,7 @@ from benchgate.sim.scpi_parse import (
     _Command,
     _compile,
     _matches,
-    _split_units,
+    _split_message_units,
     parse_bool,
     parse_number,
 )
@@ -113,9 +113,9 @@ class EmulatedInstrument:
         replies: list[str | bytes] = []
         with self.lock:
             self.received.append(message)
-            for unit in _split_units(message):
+            for message_unit in _split_message_units(message):
                 try:
-                    out = self._execute(unit)
+                    out = self._execute(message_unit)
                 except ScpiCommandError as exc:
                     self.push_error(exc.code, exc.text)
                     continue
@@ -130,13 +130,13 @@ class EmulatedInstrument:
             return b";".join(r if isinstance(r, bytes) else r.encode() for r in replies)
         return ";".join(replies)  # type: ignore[arg-type]
 
-    def _execute(self, unit: str) -> str | bytes | None:
-        header, _, arg = unit.partition(" ")
+    def _execute(self, message_unit: str) -> str | bytes | None:
+        header, _, arg = message_unit.partition(" ")
         arg = arg.strip() or None
         query = header.endswith("?")
         header = header.rstrip("?").lstrip(":").upper()
         if not header or not re.fullmatch(r"\*?[A-Z0-9:]+", header):
-            raise ScpiCommandError(-102, f"bad header {unit!r}")
+            raise ScpiCommandError(-102, f"bad header {message_unit!r}")
         words = [header] if header.startswith("*") else [w for w in header.split(":")]
         for cmd in self._commands:
             if cmd.query == query and _matches(words, cmd.pattern):
@@ -274,7 +274,7 @@ class EmulatedDigitizer(EmulatedInstrument):
         self._block = None
         self._done_at = self._armed_at + self.points / self.rate
         if hasattr(self.backend, "digitizer_record_at"):
-            # the record is taken when the acquisition completes, so whatever happens to the
+            # the capture is taken when the acquisition completes, so whatever happens to the
             # unit while it runs (e.g. the supply switched on) is in it
             self._record = _PENDING
         else:
@@ -300,12 +300,12 @@ class EmulatedDigitizer(EmulatedInstrument):
             raise ScpiCommandError(-230, "no acquisition since the last reset")
         self._wait_done()
         order = "<f4" if self.little_endian else ">f4"
-        if self._block is None or self._block[0] != order:  # encode once per record and order
+        if self._block is None or self._block[0] != order:  # encode once per capture and order
             self._block = (order, definite_block(self._record.astype(order).tobytes()))
         return self._block[1]
 
 
-_PENDING = np.empty(0)  # an acquisition armed whose record is taken at completion
+_PENDING = np.empty(0)  # an acquisition armed whose capture is taken at completion
 
 
 def definite_block(data: bytes) -> bytes:

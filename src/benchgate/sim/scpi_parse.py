@@ -101,8 +101,8 @@ class _Command:
     takes_argument: bool
 
 
-def _split_units(message: str) -> list[str]:
-    """Split a program message at ``;`` outside quoted strings."""
+def _split_message_units(message: str) -> list[str]:
+    """Split a program message into its message units (IEEE 488.2) at ``;`` outside quoted strings."""
     parts, cur, quote = [], [], None
     for ch in message:
         if quote:

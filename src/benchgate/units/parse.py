@@ -17,7 +17,7 @@ import math
 import re
 from dataclasses import dataclass
 
-from benchgate.errors import NotFiniteError, UnitError
+from benchgate.errors import NotFiniteError, QuantityError
 
 #: SI prefix letter -> factor. ``u`` is accepted for micro; both micro signs are accepted.
 PREFIXES: dict[str, float] = {
@@ -142,13 +142,13 @@ def dimension_name(unit: str) -> str:
 
 
 def canonical_unit(unit: str) -> str:
-    """The canonical symbol for an accepted spelling (``ohm`` -> ``Ω``); raises UnitError."""
+    """The canonical symbol for an accepted spelling (``ohm`` -> ``Ω``); raises QuantityError."""
     if unit == "":
         return ""
     try:
         return UNIT_ALIASES[unit]
     except KeyError:
-        raise UnitError(f"unknown unit {unit!r}") from None
+        raise QuantityError(f"unknown unit {unit!r}") from None
 
 
 def _split_unit(rest: str) -> tuple[float, str]:
@@ -161,7 +161,7 @@ def _split_unit(rest: str) -> tuple[float, str]:
             return PREFIXES[prefix], ""
         if sym in UNIT_ALIASES and UNIT_ALIASES[sym] not in _NO_PREFIX and sym != "R":
             return PREFIXES[prefix], UNIT_ALIASES[sym]
-    raise UnitError(f"unknown unit {rest!r}")
+    raise QuantityError(f"unknown unit {rest!r}")
 
 
 def _parse_rkm(text: str, expected: str | None = None) -> Quantity | None:
@@ -178,7 +178,7 @@ def _parse_rkm(text: str, expected: str | None = None) -> Quantity | None:
     else:
         unit = expected if expected in implied else implied[0]
     if implied and unit and unit not in implied:
-        raise UnitError(f"letter code {text.strip()!r} mixes {letter!r} with unit {sym!r}")
+        raise QuantityError(f"letter code {text.strip()!r} mixes {letter!r} with unit {sym!r}")
     return Quantity(value, unit)
 
 
@@ -203,7 +203,7 @@ def parse_quantity(text: str | int | float, unit: str | None = None, *, field: s
 
     Raises
     ------
-    UnitError
+    QuantityError
         Not a number, an unknown unit, or the wrong dimension (the message names ``field``).
 
     References
@@ -213,7 +213,7 @@ def parse_quantity(text: str | int | float, unit: str | None = None, *, field: s
     where = f"{field}: " if field else ""
     expected = None if unit is None else canonical_unit(unit)
     if isinstance(text, bool):
-        raise UnitError(f"{where}expected a number, got {text!r}")
+        raise QuantityError(f"{where}expected a number, got {text!r}")
     if isinstance(text, (int, float)):
         try:
             value = float(text)
@@ -223,14 +223,14 @@ def parse_quantity(text: str | int | float, unit: str | None = None, *, field: s
     elif isinstance(text, str):
         try:
             q = _parse_text(text, expected)
-        except UnitError as exc:
+        except QuantityError as exc:
             raise type(exc)(f"{where}{exc}") from None
         value, got = q.value, q.unit
     else:
-        raise UnitError(f"{where}expected a number, got {type(text).__name__}")
+        raise QuantityError(f"{where}expected a number, got {type(text).__name__}")
     finite(value, text, where)
     if expected is not None and got and got != expected:
-        raise UnitError(
+        raise QuantityError(
             f"{where}expected {_a(dimension_name(expected))} in {expected}, "
             f"got {_a(dimension_name(got))} ({text!r})"
         )
@@ -240,7 +240,7 @@ def parse_quantity(text: str | int | float, unit: str | None = None, *, field: s
 def _parse_text(text: str, expected: str | None = None) -> Quantity:
     s = text.strip()
     if not s:
-        raise UnitError("expected a number, got an empty string")
+        raise QuantityError("expected a number, got an empty string")
     if _NONFINITE_RE.match(s):
         raise NotFiniteError(f"value must be a finite number, got {text!r}")
     rkm = _parse_rkm(s, expected)
@@ -248,7 +248,7 @@ def _parse_text(text: str, expected: str | None = None) -> Quantity:
         return rkm
     m = _QUANTITY_RE.match(s)
     if not m:
-        raise UnitError(f"expected a number with an optional unit, got {text!r}")
+        raise QuantityError(f"expected a number with an optional unit, got {text!r}")
     number, rest = m.groups()
     factor, unit = _split_unit(rest) if rest else (1.0, "")
     return Quantity(_scaled(number, factor), unit)
@@ -274,7 +274,7 @@ def parse_positive(text: str | int | float, unit: str, *, field: str | None = No
     value = parse_value(text, unit, field=field)
     if not value > 0:
         where = f"{field}: " if field else ""
-        raise UnitError(f"{where}must be greater than zero, got {text!r}")
+        raise QuantityError(f"{where}must be greater than zero, got {text!r}")
     return value
 
 

@@ -9,7 +9,7 @@ from __future__ import annotations
 import re
 from dataclasses import dataclass
 
-from benchgate.errors import NotFiniteError, UnitError
+from benchgate.errors import NotFiniteError, QuantityError
 from benchgate.units.parse import PREFIXES, canonical_unit, dimension_name, finite, parse_quantity
 
 #: IEC 60062 tolerance letters for resistors and capacitors -> ± percent
@@ -57,7 +57,7 @@ class Tolerance:
         if self.relative:
             return self.minus, self.plus
         if nominal == 0:
-            raise UnitError("an absolute tolerance needs a non-zero nominal to become relative")
+            raise QuantityError("an absolute tolerance needs a non-zero nominal to become relative")
         return self.minus / abs(nominal), self.plus / abs(nominal)
 
     def __str__(self) -> str:
@@ -84,20 +84,20 @@ def parse_tolerance(text: str | int | float, unit: str | None = None, *, field: 
 
     Raises
     ------
-    UnitError
+    QuantityError
         Unreadable text, a negative width, or an absolute tolerance of the wrong dimension.
     """
     where = f"{field}: " if field else ""
     expected = None if unit is None else canonical_unit(unit)
     if isinstance(text, bool) or not isinstance(text, (str, int, float)):
-        raise UnitError(f"{where}expected a tolerance such as '±5 %', got {text!r}")
+        raise QuantityError(f"{where}expected a tolerance such as '±5 %', got {text!r}")
     if isinstance(text, (int, float)):
         try:
             pct = finite(float(text), text, where)
         except OverflowError:
             raise NotFiniteError(f"{where}value must be a finite number, got {str(text)[:20]}...") from None
         if pct < 0:
-            raise UnitError(f"{where}a tolerance cannot be negative ({text!r})")
+            raise QuantityError(f"{where}a tolerance cannot be negative ({text!r})")
         return Tolerance(pct / 100, pct / 100, True)
     s = text.strip()
     if _NONFINITE_TOL_RE.match(s):
@@ -110,9 +110,9 @@ def parse_tolerance(text: str | int | float, unit: str | None = None, *, field: 
         plus_n, plus_u, minus_n, minus_u = m.groups()
         u = minus_u or plus_u
         if plus_u and minus_u and plus_u != minus_u:
-            raise UnitError(f"{where}tolerance {text!r} mixes units {plus_u!r} and {minus_u!r}")
+            raise QuantityError(f"{where}tolerance {text!r} mixes units {plus_u!r} and {minus_u!r}")
         if not u:
-            raise UnitError(f"{where}tolerance {text!r} has no unit: write '%' for a relative "
+            raise QuantityError(f"{where}tolerance {text!r} has no unit: write '%' for a relative "
                             "band or the value's unit for an absolute one (e.g. '+10/-5 %')")
         plus = _width(plus_n, u, expected, text, where)
         minus = _width(minus_n, u, expected, text, where)
@@ -121,11 +121,11 @@ def parse_tolerance(text: str | int | float, unit: str | None = None, *, field: 
     if m:
         n, u = m.groups()
         if not u and _PM_START_RE.match(s):
-            raise UnitError(f"{where}tolerance {text!r} is ambiguous without a unit: write "
+            raise QuantityError(f"{where}tolerance {text!r} is ambiguous without a unit: write "
                             f"'{s} %' for a relative band or '{s} <unit>' for an absolute one")
         w, rel, cu = _width(n, u, expected, text, where)
         return Tolerance(w, w, rel, cu)
-    raise UnitError(f"{where}expected a tolerance such as '±5 %', '+10/-5 %' or '±12 Hz', got {text!r}")
+    raise QuantityError(f"{where}expected a tolerance such as '±5 %', '+10/-5 %' or '±12 Hz', got {text!r}")
 
 
 def _width(number: str, unit: str, expected: str | None, text: str, where: str) -> tuple[float, bool, str]:
@@ -133,13 +133,13 @@ def _width(number: str, unit: str, expected: str | None, text: str, where: str) 
         return finite(float(number), text, where) / 100, True, ""
     try:
         q = parse_quantity(f"{number} {unit}", expected)
-    except UnitError as exc:
+    except QuantityError as exc:
         msg = str(exc)
         if expected is not None and "expected a" in msg:
             got = parse_quantity(f"{number} {unit}").unit
             msg = (f"an absolute tolerance on a {dimension_name(expected)} needs {expected} "
                    f"or %, got {dimension_name(got)} ({text!r})")
-        raise UnitError(f"{where}{msg}") from None
+        raise QuantityError(f"{where}{msg}") from None
     if not q.unit:
         return finite(float(number), text, where) / 100, True, ""
     return q.value, False, q.unit
@@ -174,14 +174,14 @@ def parse_part(text: str | int | float, unit: str, *, field: str | None = None,
     where = f"{field}: " if field else ""
     cu = canonical_unit(unit)
     if isinstance(text, bool) or not isinstance(text, (str, int, float)):
-        raise UnitError(f"{where}expected a component value such as '6k8 ±5%', got {text!r}")
+        raise QuantityError(f"{where}expected a component value such as '6k8 ±5%', got {text!r}")
     if isinstance(text, (int, float)):
         value_text, tol_text = text, ""
     else:
         value_text, tol_text = _split_part(text, cu)
     q = parse_quantity(value_text, cu, field=field)
     if q.value <= 0:
-        raise UnitError(f"{where}a component value must be positive, got {text!r}")
+        raise QuantityError(f"{where}a component value must be positive, got {text!r}")
     if tol_text:
         tol = parse_tolerance(tol_text, cu, field=field)
     elif default_tolerance is not None:
@@ -190,7 +190,7 @@ def parse_part(text: str | int | float, unit: str, *, field: str | None = None,
         tol = Tolerance(0.0, 0.0, True)
     lo, _ = tol.bounds(q.value)
     if lo <= 0:
-        raise UnitError(f"{where}tolerance {tol} would allow a value of zero or less")
+        raise QuantityError(f"{where}tolerance {tol} would allow a value of zero or less")
     return Part(q.value, tol, cu)
 
 
@@ -205,7 +205,7 @@ def _split_part(text: str, unit: str) -> tuple[str, str]:
         # or the unit, never silently a tolerance code; "47 J" is neither.
         if parts[1] in PREFIXES or canonical_unit_or_none(parts[1]) == unit:
             return s, ""
-        raise UnitError(f"{s!r}: {parts[1]!r} after a bare number is not an SI prefix; for a "
+        raise QuantityError(f"{s!r}: {parts[1]!r} after a bare number is not an SI prefix; for a "
                         f"tolerance write '{parts[0]} ±{TOLERANCE_LETTERS[parts[1]]:g} %'")
     if len(parts) >= 2:
         last = parts[-1]
@@ -228,5 +228,5 @@ _BARE_NUMBER = re.compile(r"^(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?$")
 def canonical_unit_or_none(text: str) -> str | None:
     try:
         return canonical_unit(text)
-    except UnitError:
+    except QuantityError:
         return None

@@ -9,7 +9,7 @@ low-pass form). The test point is the collector. The circuit starts from a tiny 
 saturation has cut the effective gain down to what the ladder needs: start-up time, amplitude
 and distortion all come out of the simulation.
 
-Handbook check (docs/references.md): three equal sections, ideal source and load, high-pass form
+Handbook values (docs/references.md): three equal sections, ideal source and load, high-pass form
 oscillates at 1/(2πRC√6) with |gain| ≥ 29; the low-pass form at √6/(2πRC).
 """
 

@@ -2,7 +2,7 @@
 
 :class:`LoopTrace` integrates a :class:`~benchgate.sim.circuits.engine.LoopStepper` in chunks as
 later times are asked for. After each chunk it checks whether the limit cycle has settled
-(peak-to-peak of the last few windows of about five periods agreeing to 2e-4) or the circuit has
+(peak-to-peak of the last few segments of about five periods agreeing to 2e-4) or the circuit has
 died out (below 1 µV); from then on the waveform is continued periodically from the last
 simulated period (or held at its final value), so hour-long captures cost no more than the
 start-up. Thread-safe: the serial device and the SCPI server read the same trace.
@@ -25,7 +25,7 @@ class LoopTrace:
         self.nominal_frequency = float(nominal_frequency)
         self.max_time = float(max_time)
         self._chunk = max(1, int(round(chunk * self.rate)))
-        self._window = max(8, int(round(5.0 * self.rate / self.nominal_frequency)))
+        self._segment = max(8, int(round(5.0 * self.rate / self.nominal_frequency)))
         self._v = np.empty(0)
         self._lock = threading.Lock()
         self.state = "running"  # running | periodic | constant
@@ -47,7 +47,7 @@ class LoopTrace:
                 self._check()
 
     def _check(self) -> None:
-        w = self._window
+        w = self._segment
         v = self._v
         if v.size < 6 * w:
             return

@@ -9,7 +9,7 @@ feedback element's voltage is ``rp·i + (rf - rp)·i_k·s(i/i_k)`` with the smoo
 at the diode voltage; ``p`` sets how sharp the knee is), so the gain falls back to 3 at a
 steady amplitude. The op-amp output saturates softly ``headroom`` volts from each rail.
 
-Handbook check (docs/references.md): equal R and C give f = 1/(2πRC) and feedback 1/3; in general
+Handbook values (docs/references.md): equal R and C give f = 1/(2πRC) and feedback 1/3; in general
 f = 1/(2π√(R1R2C1C2)).
 """
 

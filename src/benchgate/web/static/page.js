@@ -367,7 +367,7 @@
       g.fillText(a, left, top + panelH + 14);
       g.fillText(b, w - right - g.measureText(b).width, top + panelH + 14);
     };
-    // whole record: min and max of each column
+    // whole capture: min and max of each column
     const cols = wave.lo.length;
     const x = (i, n) => left + (w - left - right) * (i / Math.max(1, n - 1));
     axes(4, 0, wave.duration);
@@ -379,7 +379,7 @@
       g.lineTo(x(i, cols), y(wave.hi[i], 4) - 0.5);
     }
     g.stroke();
-    // detail: consecutive samples from the middle of the record
+    // detail: consecutive samples from the middle of the capture
     const det = wave.detail || [];
     const top2 = 4 + panelH + gap;
     axes(top2, wave.detail_start, wave.detail_start + det.length / wave.rate);
@@ -394,7 +394,7 @@
     g.stroke();
     canvas.dataset.points = String(cols);
     text($("wave-caption"), "Capture of step " + (wave.step || "?") + ", channel " + wave.channel + ": " +
-      wave.n + " samples at " + Math.round(wave.rate) + " S/s, drawn once recorded. Top: the whole record; " +
+      wave.n + " samples at " + Math.round(wave.rate) + " S/s, drawn once taken. Top: the whole capture; " +
       "bottom: " + (wave.detail || []).length + " consecutive samples from its middle.");
   }
   window.addEventListener("resize", drawWave);

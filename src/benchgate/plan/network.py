@@ -1,4 +1,4 @@
-"""Oscillator circuits the plan format knows, computed numerically (vectorised over parts).
+"""Network analysis of the oscillator circuits the plan format knows, numerically (vectorised over parts).
 
 Every function takes numpy arrays of component values in SI units (Ω, F, H), all of the same
 shape (one element per corner or Monte Carlo draw), and returns arrays of the same shape.
@@ -99,7 +99,7 @@ def rc_ladder(R: np.ndarray, C: np.ndarray, *, form: str = "highpass",
 
     References
     ----------
-    Handbook check (docs/references.md): three equal sections give 1/(2πRC√6) (high-pass) or
+    Handbook values (docs/references.md): three equal sections give 1/(2πRC√6) (high-pass) or
     √6/(2πRC) (low-pass) with attenuation 1/29.
     """
     R = np.atleast_2d(np.asarray(R, float))

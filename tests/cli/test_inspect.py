@@ -1,4 +1,4 @@
-"""``benchgate check PLAN [--json]``."""
+"""``benchgate inspect PLAN [--json]``."""
 
 from __future__ import annotations
 
@@ -18,7 +18,7 @@ PLANS = ROOT / "testplans"
 
 @pytest.mark.parametrize("name", ["tb3", "wo1", "pf2"])
 def test_json_shape(name, capsys):
-    code = main(["check", str(PLANS / f"{name}.yaml"), "--json"])
+    code = main(["inspect", str(PLANS / f"{name}.yaml"), "--json"])
     out, err = capsys.readouterr()
     assert code == 0 and err == ""
     data = json.loads(out)
@@ -37,7 +37,7 @@ def test_json_shape(name, capsys):
 
 
 def test_tb3_numbers(capsys):
-    main(["check", str(PLANS / "tb3.yaml"), "--json"])
+    main(["inspect", str(PLANS / "tb3.yaml"), "--json"])
     data = json.loads(capsys.readouterr().out)
     steady = next(s for s in data["steps"] if s["id"] == "steady")
     f = steady["checks"][0]
@@ -52,7 +52,7 @@ def test_tb3_numbers(capsys):
 
 
 def test_text_output(capsys):
-    code = main(["check", str(PLANS / "tb3.yaml")])
+    code = main(["inspect", str(PLANS / "tb3.yaml")])
     out = capsys.readouterr().out
     assert code == 0
     for text in ("tb3-final", "cautions:", "supply-current", "940.7 Hz", "256 tolerance corners",
@@ -63,7 +63,7 @@ def test_text_output(capsys):
 def test_errors_plain(tmp_path, capsys):
     p = tmp_path / "bad.yaml"
     p.write_text("plan: x\nversion: 1\nproduct: p\nsteps:\n  - id: a\n    kind: suply\n    title: t\n")
-    code = main(["check", str(p)])
+    code = main(["inspect", str(p)])
     out, err = capsys.readouterr()
     assert code == 2 and out == ""
     assert err.strip() == f"benchgate: {p}:6:11: steps[0].kind: unknown value 'suply'; expected one of " \
@@ -72,7 +72,7 @@ def test_errors_plain(tmp_path, capsys):
 
 def test_errors_json(capsys):
     p = ROOT / "tests" / "plan" / "broken" / "many_errors.yaml"
-    code = main(["check", str(p), "--json"])
+    code = main(["inspect", str(p), "--json"])
     out, err = capsys.readouterr()
     assert code == 2
     data = json.loads(out)
@@ -81,7 +81,7 @@ def test_errors_json(capsys):
 
 
 def test_missing_file(tmp_path, capsys):
-    code = main(["check", str(tmp_path / "nope.yaml")])
+    code = main(["inspect", str(tmp_path / "nope.yaml")])
     assert code == 2
     assert capsys.readouterr().err.strip() == f"benchgate: {tmp_path / 'nope.yaml'}: no such file"
 
@@ -90,13 +90,13 @@ def test_notes_shown(tmp_path, capsys):
     text = (PLANS / "wo1.yaml").read_text().replace("R1: 16k ±1%", "R1: 16k3 ±1%", 1)
     p = tmp_path / "wo1.yaml"
     p.write_text(text)
-    assert main(["check", str(p)]) == 0
+    assert main(["inspect", str(p)]) == 0
     out = capsys.readouterr().out
     assert "note:" in out and "not an E96 value" in out
 
 
 def test_subprocess_entry_point():
-    r = subprocess.run([sys.executable, "-m", "benchgate", "check", str(PLANS / "pf2.yaml"), "--json"],
+    r = subprocess.run([sys.executable, "-m", "benchgate", "inspect", str(PLANS / "pf2.yaml"), "--json"],
                        capture_output=True, text=True, timeout=60)
     assert r.returncode == 0, r.stderr
     assert json.loads(r.stdout)["plan"] == "pf2-final"
@@ -105,7 +105,7 @@ def test_subprocess_entry_point():
 def test_rich_table_on_a_terminal(capsys, monkeypatch):
     monkeypatch.setattr(sys.stdout, "isatty", lambda: True)
     monkeypatch.setenv("COLUMNS", "160")
-    assert main(["check", str(PLANS / "tb3.yaml")]) == 0
+    assert main(["inspect", str(PLANS / "tb3.yaml")]) == 0
     out = capsys.readouterr().out
     for text in ("[capture]", "940.7 Hz", "789.0 Hz", "1.135 kHz", "256 tolerance corners",
                  "gain needed 34.11", "plan is valid"):

@@ -9,7 +9,7 @@ import pytest
 from numpy.testing import assert_allclose
 from scipy.optimize import brentq
 
-from benchgate.plan.circuits import colpitts, hartley, rc_ladder, timer_astable, wien_bridge
+from benchgate.plan.network import colpitts, hartley, rc_ladder, timer_astable, wien_bridge
 
 
 def _nodal_transfer(w: float, R, C, form: str, source: float, load: float) -> complex:
@@ -146,7 +146,7 @@ class TestWien:
 
 
 class TestTimer:
-    def test_check_values(self):
+    def test_reference_values(self):
         # docs/references.md check: R1 = 1k, R2 = 10k, C = 10n -> 6870 Hz, duty 52.38 %
         out = timer_astable(1e3, 10e3, 10e-9)
         assert_allclose(out["frequency"], 6870, atol=0.5)

@@ -1,4 +1,4 @@
-"""``benchgate check PLAN [--json]``: validate a plan and show every step, check and window."""
+"""``benchgate inspect PLAN [--json]``: validate a plan and show every step, check and window."""
 
 from __future__ import annotations
 
@@ -10,7 +10,7 @@ from typing import Any
 
 def add_parser(subparsers) -> None:
     p = subparsers.add_parser(
-        "check",
+        "inspect",
         help="validate a test plan and show its steps, windows and how they were derived",
         description="Validate a test plan. Prints each step with its checks and windows (nominal, "
         "low, high, unit), how each window was derived (formula and tolerance corner), the "
@@ -85,7 +85,7 @@ _SETTINGS = {
 
 
 def plan_summary(plan) -> dict[str, Any]:
-    """The ``check --json`` object for a loaded plan."""
+    """The ``inspect --json`` object for a loaded plan."""
     steps = []
     for s in plan.steps:
         steps.append({

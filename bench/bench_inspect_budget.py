@@ -1,11 +1,11 @@
-"""`benchgate check` on the heaviest plans the loader accepts, measured in one run.
+"""`benchgate inspect` on the heaviest plans the loader accepts, measured in one run.
 
 The loader bounds the work of a plan (YAML values, steps, and circuit evaluations counted in
 units of about 1 µs: ``benchgate.plan.derive.MAX_PLAN_WORK``). This prints, for a plan that
 spends the whole evaluation budget and for one with the most steps, the load time, the work
 counted, the measured µs per work unit (the ratio the budget assumes is 1) and the ratio of
 the load time to a 3 s target. Not a test.
-Run: .venv/bin/python bench/bench_check_budget.py
+Run: .venv/bin/python bench/bench_inspect_budget.py
 """
 
 from __future__ import annotations
