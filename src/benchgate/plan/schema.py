@@ -122,7 +122,7 @@ def _circuit_schema(topology: str) -> list[dict[str, Any]]:
                         "description": "one shared value (each section its own part) or one per section"}
         else:
             props[p] = part
-    required = ["topology", *info["required"]] + (["form"] if topology == "rc_ladder" else [])
+    required = ["topology", *info["required"]] + [o for o, v in info["options"].items() if v != "int"]
     return [{"type": "object", "additionalProperties": False, "required": required, "properties": props}]
 
 
