@@ -147,7 +147,7 @@ class TestOutputThd:
 
 
 def test_registry_names_match_units():
-    from benchgate.analysis.names import RESPONSE_UNITS
+    from benchgate.common.names import RESPONSE_UNITS
 
     assert tuple(RESPONSE_MEASUREMENTS) == tuple(RESPONSE_UNITS)
     rec = _pair(_tone(1000, 0.5), _tone(1000, 1.0), 1000)

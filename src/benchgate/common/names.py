@@ -101,4 +101,4 @@ READING_SOURCES: dict[str, tuple[str, ...]] = {
 }
 
 #: instrument roles a station may provide and a plan may `require`.
-CAPABILITIES: tuple[str, ...] = ("adc", "supply", "dmm", "counter", "digitizer")
+CAPABILITIES: tuple[str, ...] = ("adc", "supply", "dmm", "counter", "digitizer", "generator")
