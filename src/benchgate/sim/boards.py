@@ -21,8 +21,9 @@ from benchgate.errors import SimError
 from benchgate.sim.circuits import astable, rc_ladder, stimulated, wien
 from benchgate.sim.circuits.trace import LoopTrace
 
-DEFECTS = ("wrong_capacitor", "low_gain", "high_gain", "open_section", "supply_noise", "intermittent",
-           "wrong_gain_resistor", "open_coupling", "rail_clipping")
+#: the oscillators' defects (TB-3, WO-1), and every defect the simulator knows
+OSCILLATOR_DEFECTS = ("wrong_capacitor", "low_gain", "high_gain", "open_section", "supply_noise", "intermittent")
+DEFECTS = (*OSCILLATOR_DEFECTS, "wrong_gain_resistor", "open_coupling", "rail_clipping")
 #: boards driven by the generator (their output is a response, not an oscillation)
 STIMULATED = ("aa1", "lp2")
 #: quiescent supply current of the stimulated boards (A): op-amp and bias network
@@ -66,13 +67,13 @@ BOARDS: dict[str, Board] = {
         _parts(R1=(6.8e3, 0.05, "Ω"), R2=(6.8e3, 0.05, "Ω"), R3=(6.8e3, 0.05, "Ω"),
                C1=(10e-9, 0.10, "F"), C2=(10e-9, 0.10, "F"), C3=(10e-9, 0.10, "F"),
                gain=(40.0, 0.04, ""), Rc=(1.0e3, 0.05, "Ω"), Rin=(47e3, 0.10, "Ω")),
-        DEFECTS, "ac", 0.36, 4.6),
+        OSCILLATOR_DEFECTS, "ac", 0.36, 4.6),
     "wo1": Board(
         "wo1", "WO-1 Wien-bridge oscillator", 12.0,
         _parts(R1=(16e3, 0.01, "Ω"), R2=(16e3, 0.01, "Ω"), C1=(10e-9, 0.05, "F"),
                C2=(10e-9, 0.05, "F"), Rf=(21e3, 0.01, "Ω"), Rg=(10e3, 0.01, "Ω"),
                Rd=(15e3, 0.05, "Ω")),
-        DEFECTS, "ac", 1.0, 6.0),
+        OSCILLATOR_DEFECTS, "ac", 1.0, 6.0),
     "pf2": Board(
         "pf2", "PF-2 pulse board", 9.0,
         _parts(R1=(1e3, 0.05, "Ω"), R2=(6.8e3, 0.05, "Ω"), C=(100e-9, 0.10, "F")),
