@@ -42,8 +42,9 @@ def test_good_lp2_passes_every_check(lp2_runs):
     rec = lp2_runs[None].record
     assert rec.verdict == Verdict.PASS, rec.reason
     sweep = _checks(lp2_runs[None], "response")
-    mask = [c for c in sweep.checks if c.measurement == "gain_db"]
+    mask = [c for c in sweep.checks if c.measurement.startswith("gain_db at ")]
     assert len(mask) == 17  # every one of the 17 points lies inside the mask's span
+    assert mask[0].measurement == "gain_db at 100.0 Hz" and mask[0].result.name == "gain_db"
     assert all("frequency_hz" in c.result.details and "phase_deg" in c.result.details for c in mask)
     f3 = [c for c in sweep.checks if c.measurement == "f_3db_high"][0]
     assert f3.verdict == Verdict.PASS and f3.result.uncertainty > 0
@@ -55,7 +56,7 @@ def test_wrong_capacitor_fails_the_corner_and_the_mask(lp2_runs):
     sweep = _checks(outcome, "response")
     f3 = [c for c in sweep.checks if c.measurement == "f_3db_high"][0]
     assert f3.verdict == Verdict.FAIL and "below" in f3.reason
-    assert any(c.verdict == Verdict.FAIL for c in sweep.checks if c.measurement == "gain_db")
+    assert any(c.verdict == Verdict.FAIL for c in sweep.checks if c.measurement.startswith("gain_db at "))
 
 
 def test_generator_left_off_and_both_channels_kept(lp2_runs):
@@ -63,3 +64,5 @@ def test_generator_left_off_and_both_channels_kept(lp2_runs):
     folder = Path(lp2_runs[None].paths["json"]).parent
     assert list(folder.glob("*pass-band-in.npz")) and list(folder.glob("*pass-band-out.npz"))
     assert len(list(folder.glob("*response-p*-out.npz"))) == 17
+    html = Path(lp2_runs[None].paths["html"]).read_text(encoding="utf-8")
+    assert 'aria-label="gain, response"' in html and 'aria-label="phase, response"' in html

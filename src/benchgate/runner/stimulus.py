@@ -35,6 +35,7 @@ from benchgate.plan.limits import Window
 from benchgate.plan.stimulus import sweep_frequencies
 from benchgate.record import CaptureRecord, StepRecord
 from benchgate.runner.execute import Executor, register_step
+from benchgate.units.format import format_quantity
 
 
 def _generator(ex: Executor) -> Generator:
@@ -151,6 +152,9 @@ def run_sweep(ex: Executor, step: Any, srec: StepRecord, attempt: int) -> None:
                 m = mask_check(point, window)
                 if m is not None and window is not None:
                     _judge_mask(ex, step, srec, m, window)
+        _keep_points(srec, "response_points", [_point_row(p) for p in points])
+        if step.mask is not None and srec.capture is not None:
+            srec.capture.metadata["mask"] = [[c.frequency, c.low, c.high] for c in step.mask.points]
         sweep = FrequencySweep(tuple(points), step.reference_frequency, step.passband)
         _judge_all(ex, step, srec, {c.measurement: FREQUENCY_SWEEP_MEASUREMENTS[c.measurement](sweep)
                                     for c in step.checks})
@@ -160,10 +164,31 @@ def run_sweep(ex: Executor, step: Any, srec: StepRecord, attempt: int) -> None:
                       f"{points[-1].frequency:g} Hz" if points else "sweep: no point measured")
 
 
+def _ok(m: Measurement | None) -> float | None:
+    return m.value if m is not None and m.valid else None
+
+
+def _point_row(p: ResponsePoint) -> dict[str, Any]:
+    return {"frequency": p.frequency, "gain_db": _ok(p.gain_db), "gain_u": p.gain_db.uncertainty,
+            "phase": _ok(p.phase), "phase_u": p.phase.uncertainty if p.phase is not None else None}
+
+
+def _keep_points(srec: StepRecord, key: str, rows: list[dict[str, Any]]) -> None:
+    """The sweep's points, for the report's plots, in the metadata of the step's capture record."""
+    if srec.capture is not None:
+        srec.capture.metadata[key] = rows
+
+
 def _judge_mask(ex: Executor, step: Any, srec: StepRecord, m: Measurement, window: Window) -> None:
     from benchgate.plan.model import Check
 
-    ex._judge(step, srec, Check("gain_db", window), m)
+    # one check per frequency ("gain_db at 1 kHz"), so a lot's statistics keep the points apart
+    ex._judge(step, srec, Check(mask_check_name(m.details["frequency_hz"]), window), m)
+
+
+def mask_check_name(frequency: float) -> str:
+    """The name of the mask check at ``frequency`` (Hz)."""
+    return f"gain_db at {format_quantity(frequency, 'Hz')}"
 
 
 def run_level_sweep(ex: Executor, step: Any, srec: StepRecord, attempt: int) -> None:
@@ -178,6 +203,9 @@ def run_level_sweep(ex: Executor, step: Any, srec: StepRecord, attempt: int) -> 
             ctx = ResponseContext(rec, harmonics=10)
             points.append(LevelPoint(input_amplitude(rec, context=ctx), output_amplitude(rec, context=ctx),
                                      output_thd(rec, context=ctx)))
+        _keep_points(srec, "transfer_points", [
+            {"input": _ok(p.input_amplitude), "output": _ok(p.output_amplitude), "thd": _ok(p.thd)}
+            for p in points])
         sweep = LevelSweep(tuple(points), step.output_level, step.thd_limit)
         _judge_all(ex, step, srec, {c.measurement: LEVEL_SWEEP_MEASUREMENTS[c.measurement](sweep)
                                     for c in step.checks})
