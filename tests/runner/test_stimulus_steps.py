@@ -66,3 +66,45 @@ def test_generator_left_off_and_both_channels_kept(lp2_runs):
     assert len(list(folder.glob("*response-p*-out.npz"))) == 17
     html = Path(lp2_runs[None].paths["html"]).read_text(encoding="utf-8")
     assert 'aria-label="gain, response"' in html and 'aria-label="phase, response"' in html
+
+
+def test_generator_switched_off_when_the_recorder_fails():
+    from types import SimpleNamespace
+
+    from benchgate.errors import InstrumentError
+    from benchgate.plan import loads_plan
+    from benchgate.runner.stimulus import run_tone
+
+    class Gen:
+        name, address, identity = "generator", "sim", "gen"
+        on = False
+
+        def close(self): ...
+        def set_waveform(self, w): ...
+        def set_frequency(self, f): ...
+        def set_amplitude(self, v, unit="Vpp"): ...
+        def set_offset(self, v): ...
+        def set_load(self, r): ...
+        def output_state(self): return self.on
+
+        def output(self, on):
+            self.on = bool(on)
+
+    class BrokenRecorder:
+        name, address, identity = "digitizer", "sim", "dig"
+
+        def close(self): ...
+        def capture(self, channel, *, duration, rate=None, progress=None): ...
+
+        def capture_channels(self, channels, *, duration, rate=None, progress=None):
+            assert gen.on  # the stimulus is on while recording
+            raise InstrumentError("digitizer", "link lost")
+
+    gen = Gen()
+    plan = loads_plan('plan: t\nversion: "1"\nproduct: p\nrequires: [generator, digitizer]\nsteps:\n'
+                      '  - {id: s, title: t, kind: tone, frequency: 1 kHz, level: 1 Vpp, settle: 0 s}\n', "t.yaml")
+    ex = SimpleNamespace(bench={"generator": gen, "digitizer": BrokenRecorder()}, sleep=lambda s, t: None,
+                         hooks=SimpleNamespace(progress=lambda *a: None))
+    with pytest.raises(InstrumentError, match="link lost"):
+        run_tone(ex, plan.steps[0], SimpleNamespace(capture=None), 1)
+    assert gen.on is False
