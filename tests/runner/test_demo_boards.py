@@ -26,6 +26,10 @@ def test_lp2_lot_good_passes_defect_fails(tmp_path):
     assert good.defect is None and good.verdict == "pass"
     assert bad.defect is not None and bad.verdict == "fail"
     assert result.summary_html.is_file()
+    page = result.summary_html.read_text(encoding="utf-8")
+    # the lot statistics include the sweep's −3 dB frequency and the tone's gain
+    assert 'aria-label="f_3db_high histogram, 2 values"' in page
+    assert 'aria-label="gain_db histogram, 2 values"' in page
 
 
 def test_unknown_board_is_refused(tmp_path):
