@@ -121,7 +121,7 @@ class TestOutputThd:
         assert m.value == pytest.approx(1.0, rel=1e-6)
 
     def test_band_limited_square(self):
-        # REFERENCES "Analytic THD of ideal waveforms": square wave band-limited to 10 harmonics,
+        # docs/references.md "Analytic THD of ideal waveforms": square wave band-limited to 10 harmonics,
         # 42.88 % (Fourier series of the square wave)
         t = np.arange(9600) / FS
         sq = sum(np.sin(2 * np.pi * k * 500 * t) / k for k in (1, 3, 5, 7, 9))

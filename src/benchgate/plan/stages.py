@@ -4,8 +4,8 @@ Like :mod:`benchgate.plan.circuits` (the oscillators), every function takes nump
 component values in SI units, one element per tolerance corner or Monte Carlo draw, and
 returns arrays of the same shape. The filters are computed from their transfer functions'
 denominators; the −3 dB frequency of the second-order sections comes from solving
-|H(jω)|² = 1/2 exactly (a quadratic in ω²). The handbook shortcuts (REFERENCES.md "Filters and
-gain stages", from memory) and scipy.signal.freqs are what the tests compare with.
+|H(jω)|² = 1/2 exactly (a quadratic in ω²). The handbook shortcuts (docs/references.md "Oscillator and
+filter formulas", from memory) and scipy.signal.freqs are what the tests compare with.
 
 Corner enumeration gives the extremes when each output is monotonic in each part. The gain
 stages and the first-order filter are (closed forms). The unity-gain Sallen–Key −3 dB frequency
