@@ -67,7 +67,7 @@ def test_errors_plain(tmp_path, capsys):
     out, err = capsys.readouterr()
     assert code == 2 and out == ""
     assert err.strip() == f"benchgate: {p}:6:11: steps[0].kind: unknown value 'suply'; expected one of " \
-                          "supply, wait, prompt, capture, reading; did you mean 'supply'?"
+                          "supply, wait, prompt, capture, reading, tone, sweep, level_sweep; did you mean 'supply'?"
 
 
 def test_errors_json(capsys):

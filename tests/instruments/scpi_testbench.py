@@ -7,7 +7,7 @@ from benchgate.instruments.station import InstrumentConfig
 from benchgate.sim.scpi_server import ConstantBackend, ScpiBench
 
 KINDS = {"supply": "scpi-supply", "dmm": "scpi-dmm", "counter": "scpi-counter",
-         "digitizer": "scpi-digitizer"}
+         "digitizer": "scpi-digitizer", "generator": "scpi-generator"}
 
 
 def make_bench(**backend_args) -> ScpiBench:

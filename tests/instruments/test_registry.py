@@ -160,7 +160,8 @@ class TestRegistry:
             reg.driver("y", "adc")
 
     def test_default_table_names_every_kind(self):
-        assert set(DEFAULT_DRIVERS) == {"serial-adc", "scpi-supply", "scpi-dmm", "scpi-counter", "scpi-digitizer"}
+        assert set(DEFAULT_DRIVERS) == {"serial-adc", "scpi-supply", "scpi-dmm", "scpi-counter", "scpi-digitizer",
+                                        "scpi-generator"}
 
     def test_instances_do_not_share_registrations(self):
         a, b = Registry(), Registry()

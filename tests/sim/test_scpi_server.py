@@ -65,12 +65,12 @@ def supply(bench):
 
 
 def test_resources_and_loopback_only(bench):
-    assert set(bench.resources) == {"supply", "dmm", "counter", "digitizer"}
+    assert set(bench.resources) == {"supply", "generator", "dmm", "counter", "digitizer"}
     for role, res in bench.resources.items():
         assert res == f"TCPIP0::127.0.0.1::{bench.ports[role]}::SOCKET"
     for listener in bench._listeners.values():
         assert listener.sock.getsockname()[0] == "127.0.0.1"
-    assert len(set(bench.ports.values())) == 4
+    assert len(set(bench.ports.values())) == len(bench.ports) == 5  # supply, generator, dmm, counter, digitizer
 
 
 def test_identity_and_common_commands(bench, supply):

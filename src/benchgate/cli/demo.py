@@ -17,8 +17,11 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
     p.add_argument("--speed", type=float, default=4.0, metavar="X",
                    help="how much faster than real time the understudy bench runs (default 4)")
     p.add_argument("--reports", default="reports", metavar="DIR", help="report folder (default: reports)")
-    p.add_argument("--lot", default="TB3-2612", metavar="LOT",
-                   help="lot name; serials are LOT-001 … (default TB3-2612: running the demo again "
+    p.add_argument("--board", default="tb3", choices=("tb3", "aa1", "lp2"),
+                   help="which board's lot: tb3 (tone board, default), aa1 (audio amplifier) or lp2 "
+                   "(low-pass filter); aa1 and lp2 are driven by the signal generator")
+    p.add_argument("--lot", default=None, metavar="LOT",
+                   help="lot name; serials are LOT-001 … (default <BOARD>-2612, e.g. TB3-2612: running the demo again "
                    "retests the same units, which the summary counts as retests)")
     p.add_argument("--json", action="store_true", help="print the lot as JSON instead of a table")
     p.set_defaults(func=run)
@@ -75,7 +78,7 @@ def run(args) -> int:
             print(text, file=sys.stderr, flush=True)
 
     result = run_demo(units=args.units, speed=args.speed, reports_dir=Path(args.reports), lot=args.lot,
-                      on_unit=progress,
+                      board=args.board, on_unit=progress,
                       on_start=started)
     if args.json:
         print(json.dumps(result.to_dict(), ensure_ascii=False, default=str))

@@ -81,6 +81,12 @@ _SETTINGS = {
     "prompt": ("text", "ask", "expect", "unattended_answer"),
     "capture": ("instrument", "channel", "rate", "duration", "range", "power_on", "harmonics"),
     "reading": ("instrument", "quantity", "settle"),
+    "tone": ("instrument", "input_channel", "output_channel", "frequency", "level", "level_unit", "settle",
+             "duration"),
+    "sweep": ("instrument", "input_channel", "output_channel", "frequencies", "start", "stop",
+              "points_per_decade", "level", "level_unit", "settle"),
+    "level_sweep": ("instrument", "input_channel", "output_channel", "frequency", "levels", "level_unit",
+                    "output_level", "thd_limit", "settle"),
 }
 
 
@@ -133,7 +139,26 @@ def _settings_text(step: dict[str, Any]) -> str:
         rate = "default rate" if st["rate"] is None else _q(st["rate"], "S/s")
         return (f"{st['instrument']}:{st['channel']}, {rate}, {_q(st['duration'], 's')}"
                 + (", power on at start" if st["power_on"] else "") + f", {st['harmonics']} harmonics")
+    if k in ("tone", "sweep", "level_sweep"):
+        return _stimulus_text(k, st)
     return f"{st['quantity']} from the {st['instrument']}, settle {_q(st['settle'], 's')}"
+
+
+def _stimulus_text(kind: str, st: dict[str, Any]) -> str:
+    """A generator-driven step: what is driven, where it is recorded."""
+    where = f"{st['instrument']}:{st['input_channel']}+{st['output_channel']}"
+    unit = st["level_unit"]
+    if kind == "tone":
+        what = f"{_q(st['frequency'], 'Hz')} at {st['level']:g} {unit}"
+    elif kind == "sweep":
+        if st["frequencies"]:
+            span = f"{len(st['frequencies'])} points {_q(st['frequencies'][0], 'Hz')} … {_q(st['frequencies'][-1], 'Hz')}"
+        else:
+            span = f"{_q(st['start'], 'Hz')} … {_q(st['stop'], 'Hz')}, {st['points_per_decade']} per decade"
+        what = f"{span} at {st['level']:g} {unit}"
+    else:
+        what = f"{_q(st['frequency'], 'Hz')} at {len(st['levels'])} levels {st['levels'][0]:g} … {st['levels'][-1]:g} {unit}"
+    return f"generator {what}; recorded on {where}, settle {_q(st['settle'], 's')}"
 
 
 def derivation_lines(ch: dict[str, Any]) -> list[str]:

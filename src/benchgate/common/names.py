@@ -45,6 +45,41 @@ MEASUREMENT_TITLES: dict[str, str] = {
     "amplitude_dip": "deepest dip of the envelope below its median after start-up (dropouts)",
 }
 
+#: measurements of a two-channel record of one sine stimulus (input reference and output).
+RESPONSE_UNITS: dict[str, str] = {
+    "gain": "V/V",
+    "gain_db": "dB",
+    "phase": "deg",
+    "input_amplitude": "V",
+    "output_amplitude": "V",
+    "output_thd": "%",
+}
+
+#: measurements over a stepped frequency sweep (f_3db_*, ripple) or a level sweep.
+SWEEP_UNITS: dict[str, str] = {
+    "f_3db_low": "Hz",
+    "f_3db_high": "Hz",
+    "passband_gain_db": "dB",
+    "ripple": "dB",
+    "thd_at_level": "%",
+    "clip_level": "V",
+}
+
+RESPONSE_TITLES: dict[str, str] = {
+    "gain": "voltage gain |Vout/Vin| at the stimulus frequency (three-parameter fits)",
+    "gain_db": "voltage gain in dB at the stimulus frequency",
+    "phase": "phase of the output relative to the input",
+    "input_amplitude": "peak amplitude of the stimulus at the unit's input",
+    "output_amplitude": "peak amplitude of the output at the stimulus frequency",
+    "output_thd": "THD of the output (harmonics of the stimulus fitted)",
+    "f_3db_low": "lower half-power (−3 dB) frequency, interpolated over the sweep",
+    "f_3db_high": "upper half-power (−3 dB) frequency, interpolated over the sweep",
+    "passband_gain_db": "gain at the sweep's reference frequency",
+    "ripple": "pass-band ripple (largest minus smallest gain)",
+    "thd_at_level": "output THD at the stated output level",
+    "clip_level": "input amplitude at which the output THD reaches the stated limit",
+}
+
 #: single readings a `reading` step can take from a dmm, counter or supply -> unit.
 READING_UNITS: dict[str, str] = {
     "dc_voltage": "V",
@@ -66,4 +101,4 @@ READING_SOURCES: dict[str, tuple[str, ...]] = {
 }
 
 #: instrument roles a station may provide and a plan may `require`.
-CAPABILITIES: tuple[str, ...] = ("adc", "supply", "dmm", "counter", "digitizer")
+CAPABILITIES: tuple[str, ...] = ("adc", "supply", "dmm", "counter", "digitizer", "generator")

@@ -20,8 +20,11 @@ if TYPE_CHECKING:
 
 __all__ = ["Bench", "InstrumentFacts", "load_station", "open_station"]
 
-#: the supply is opened first (and switched off at once), so a later failure finds it safe
-_OPEN_ORDER = ("supply", "adc", "dmm", "counter", "digitizer")
+#: the supply and the generator are opened first (and switched off at once), so a later failure
+#: finds them safe
+_OPEN_ORDER = ("supply", "generator", "adc", "dmm", "counter", "digitizer")
+#: roles with an output that the safe state switches off, in that order
+SWITCHED_OUTPUTS = ("supply", "generator")
 
 
 def load_station(path, registry=None):
@@ -94,13 +97,22 @@ class Bench:
         return out
 
     def safe(self) -> None:
-        """Switch the supply output off now. Raises what the supply raised."""
-        supply = self.supply
-        if supply is not None:
-            supply.output(False)
+        """Switch the supply and generator outputs off now (each is tried); raises the first error."""
+        errors: list[BaseException] = []
+        for role in SWITCHED_OUTPUTS:
+            inst = self._instruments.get(role)
+            if inst is None:
+                continue
+            try:
+                inst.output(False)
+            except BaseException as exc:  # noqa: BLE001 - the next output must still be switched off
+                errors.append(exc)
+        if errors:
+            raise errors[0]
 
     def close(self) -> None:
-        """Supply output off first, then close everything; errors are collected, first re-raised."""
+        """Supply and generator outputs off first, then close everything; errors are collected,
+        the first re-raised."""
         if self._closed:
             return
         self._closed = True
@@ -157,7 +169,7 @@ def open_station(station, *, clock=None, roles: Iterable[str] | None = None, reg
             inst = registry.open(station.instruments[role], clock=clock)
             opened[role] = inst
             bench._instruments[role] = inst
-            if role == "supply":
+            if role in SWITCHED_OUTPUTS:
                 inst.output(False)
     except BaseException as exc:
         try:

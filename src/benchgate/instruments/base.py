@@ -27,8 +27,8 @@ if TYPE_CHECKING:
     from benchgate.instruments.options import OptionSpec
     from benchgate.instruments.station import InstrumentConfig
 
-__all__ = ["Adc", "Counter", "Digitizer", "Dmm", "DriverClass", "Instrument", "InstrumentFacts",
-           "Progress", "READINGS", "Recorder", "Supply", "take_reading"]
+__all__ = ["Adc", "Counter", "Digitizer", "Dmm", "DriverClass", "Generator", "Instrument", "InstrumentFacts",
+           "MultiRecorder", "Progress", "READINGS", "Recorder", "Supply", "take_reading"]
 
 #: progress callback for long operations: (fraction done 0..1, text)
 Progress = Callable[[float, str], None]
@@ -93,6 +93,28 @@ class Supply(Instrument, Protocol):
     def output_state(self) -> bool: ...
     def measure_voltage(self) -> Measurement: ...  # name "supply_voltage"
     def measure_current(self) -> Measurement: ...  # name "supply_current"
+
+
+@runtime_checkable
+class Generator(Instrument, Protocol):
+    """A signal generator: one output, switched off on every fault like a supply."""
+
+    def set_waveform(self, waveform: str) -> None: ...  # "sine", "square", "triangle"
+    def set_frequency(self, hz: float) -> None: ...
+    def set_amplitude(self, value: float, unit: str = "Vpp") -> None: ...  # Vpp, Vrms or Vpk
+    def set_offset(self, volts: float) -> None: ...
+    def set_load(self, ohms: float | None) -> None: ...  # None: high impedance
+    def output(self, on: bool) -> None: ...
+    def output_state(self) -> bool: ...
+
+
+@runtime_checkable
+class MultiRecorder(Recorder, Protocol):
+    """A recorder that samples several channels at the same instants (two-channel response)."""
+
+    def capture_channels(self, channels: tuple[str, ...], *, duration: float, rate: float | None = None,
+                         progress: Progress | None = None) -> tuple[Capture, ...]:
+        """Record ``channels`` together: one Capture each, same rate, length and start time."""
 
 
 @runtime_checkable

@@ -20,6 +20,7 @@ DEFAULT_DRIVERS: Mapping[str, str] = {
     "scpi-dmm": "benchgate.instruments.scpi_dmm:ScpiDmm",
     "scpi-counter": "benchgate.instruments.scpi_counter:ScpiCounter",
     "scpi-digitizer": "benchgate.instruments.scpi_digitizer:ScpiDigitizer",
+    "scpi-generator": "benchgate.instruments.scpi_generator:ScpiGenerator",
 }
 
 #: which roles each kind may serve
@@ -29,6 +30,7 @@ KIND_ROLES: Mapping[str, str] = {
     "scpi-dmm": "dmm",
     "scpi-counter": "counter",
     "scpi-digitizer": "digitizer",
+    "scpi-generator": "generator",
 }
 
 

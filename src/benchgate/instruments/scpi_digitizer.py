@@ -46,6 +46,7 @@ class ScpiDigitizer(ScpiInstrument):
         "channels": OptionSpec("list_or_mapping", "plan channel names, or plan name -> instrument channel"),
         "clock_ppm": OptionSpec("number", "time-base tolerance, ± ppm", minimum=0.0, maximum=1e6),
         "range": OptionSpec("quantity", "default input range", unit="V", positive=True, maximum=1000.0),
+        "channel_match": OptionSpec("fraction", "gain match between channels (relative bound, e.g. 0.001)"),
     }
 
     def __init__(self, config, session, *, clock=None):
@@ -63,8 +64,15 @@ class ScpiDigitizer(ScpiInstrument):
     def setup(self, channel: str, *, duration: float, rate: float | None = None,
               range: float | None = None) -> dict:
         """Configure one acquisition; returns what was set (rate as the instrument reports it)."""
-        if self.channel_map and channel not in self.channel_map:
-            raise InstrumentError(self.name, f"no channel {channel!r} (station lists: {', '.join(self.channels)})")
+        return self._configure((channel,), duration=duration, rate=rate, range=range)
+
+    def _configure(self, channels: tuple[str, ...], *, duration: float, rate: float | None,
+                   range: float | None) -> dict:
+        for channel in channels:
+            if self.channel_map and channel not in self.channel_map:
+                raise InstrumentError(self.name, f"no channel {channel!r} (station lists: {', '.join(self.channels)})")
+        if len(set(channels)) != len(channels):
+            raise InstrumentError(self.name, f"channels named twice: {', '.join(channels)}")
         rate = rate if rate is not None else self.config.option("rate")
         if rate is None:
             raise InstrumentError(self.name, "no sample rate: give one in the step or the station option 'rate'")
@@ -76,9 +84,9 @@ class ScpiDigitizer(ScpiInstrument):
         points = int(round(duration * rate))
         if points < 2:
             raise InstrumentError(self.name, f"{duration:g} s at {rate:g} Hz is fewer than 2 points")
-        inst_channel = self.channel_map.get(channel, channel)
+        inst_channels = tuple(self.channel_map.get(c, c) for c in channels)
         range = range if range is not None else self.config.option("range")
-        self.configure("select_channel", channel=inst_channel)
+        self.configure("select_channel", channel=",".join(inst_channels))
         self.configure("data_format")
         self.configure("byte_order")
         self.configure("set_rate", value=rate)
@@ -88,8 +96,9 @@ class ScpiDigitizer(ScpiInstrument):
         actual = self.session.query_float(self.session.command("rate_query"), check=True)
         if not (math.isfinite(actual) and actual > 0):
             raise InstrumentError(self.name, f"instrument reports a sample rate of {actual!r}")
-        self._setup = {"channel": channel, "instrument_channel": inst_channel, "rate": actual,
-                       "requested_rate": rate, "points": points, "range": range}
+        self._setup = {"channel": channels[0], "instrument_channel": inst_channels[0], "rate": actual,
+                       "requested_rate": rate, "points": points, "range": range,
+                       "channels": channels, "instrument_channels": inst_channels}
         return dict(self._setup)
 
     def arm(self) -> None:
@@ -113,7 +122,7 @@ class ScpiDigitizer(ScpiInstrument):
         """The acquired samples in volts (float64)."""
         if self._setup is None:
             raise InstrumentError(self.name, "fetch() before setup()")
-        points = self._setup["points"]
+        points = self._setup["points"] * len(self._setup.get("channels", (None,)))
         wall_per_mb = 0.5  # generous allowance for slow links on top of the station timeout
         timeout = self.session.timeout + wall_per_mb * points * 4 / 1e6
         return self.session.query_binary_values(self.session.command("fetch"), datatype="f",
@@ -133,8 +142,42 @@ class ScpiDigitizer(ScpiInstrument):
             progress(1.0, f"{self.name}: {samples.size} points fetched")
         return self.to_capture(samples)
 
-    def to_capture(self, samples: np.ndarray) -> Capture:
-        setup = self._setup or {}
+    def capture_channels(self, channels: tuple[str, ...], *, duration: float, rate: float | None = None,
+                         progress=None, range: float | None = None) -> tuple[Capture, ...]:
+        """Record ``channels`` at the same instants (one acquisition): one Capture per channel.
+
+        The block interleaves the channels sample by sample. Each capture's metadata states
+        ``channel_skew_s`` (0: the channels are sampled together) and, when the station gives
+        ``channel_match``, the relative gain tolerance between channels (``channel_gain_tolerance``).
+        """
+        channels = tuple(channels)
+        if not channels:
+            raise InstrumentError(self.name, "no channel to record")
+        setup = self._configure(channels, duration=duration, rate=rate, range=range)
+        self.arm()
+        if progress:
+            progress(0.0, f"{self.name}: acquiring {setup['points']} points on {len(channels)} channels")
+        self.wait()
+        block = self.fetch()
+        if progress:
+            progress(1.0, f"{self.name}: {block.size} values fetched")
+        table = block.reshape(setup["points"], len(channels))
+        match = self.config.option("channel_match")
+        out = []
+        for i, channel in enumerate(channels):
+            cap = self.to_capture(np.ascontiguousarray(table[:, i]), channel=channel,
+                                  instrument_channel=setup["instrument_channels"][i])
+            extra = {"channel_skew_s": 0.0, "channels_together": list(channels)}
+            if match is not None:
+                extra["channel_gain_tolerance"] = float(match)
+            out.append(cap.with_metadata(**extra))
+        return tuple(out)
+
+    def to_capture(self, samples: np.ndarray, *, channel: str | None = None,
+                   instrument_channel: str | None = None) -> Capture:
+        setup = dict(self._setup or {})
+        if channel is not None:
+            setup["channel"], setup["instrument_channel"] = channel, instrument_channel
         cal = self.calibration.for_channel(setup.get("channel", "")) if self.calibration else None
         if cal is not None and (cal.gain != 1.0 or cal.offset != 0.0):
             samples = cal.gain * samples + cal.offset

@@ -179,7 +179,7 @@ class SerialAdc:
         if not self._port.alive:
             raise InstrumentDisconnected(self.name, f"adc on {self.address} was disconnected; "
                                                     f"reconnect it and open the station again")
-        return self._call(self._capture, channel, float(duration), rate, progress)
+        return self._call(self._capture, (channel,), float(duration), rate, progress)[0]
 
     def capture_growing(self, channel: str, *, looks: Sequence[float], rate: float | None = None,
                         progress=None, decide: Callable[[Capture], bool]) -> Capture:
@@ -199,11 +199,27 @@ class SerialAdc:
         if not self._port.alive:
             raise InstrumentDisconnected(self.name, f"adc on {self.address} was disconnected; "
                                                     f"reconnect it and open the station again")
-        return self._call(self._capture, channel, float(looks[-1]), rate, progress,
-                          looks=[float(x) for x in looks[:-1]], decide=decide)
+        return self._call(self._capture, (channel,), float(looks[-1]), rate, progress,
+                          looks=[float(x) for x in looks[:-1]], decide=decide)[0]
 
-    def _capture(self, channel: str, duration: float, rate: float | None, progress,
-                 looks: Sequence[float] = (), decide: Callable[[Capture], bool] | None = None) -> Capture:
+    def capture_channels(self, channels: tuple[str, ...], *, duration: float, rate: float | None = None,
+                         progress=None) -> tuple[Capture, ...]:
+        """Record several channels at the same instants (framed protocol: one channel mask)."""
+        channels = tuple(channels)
+        unknown = [c for c in channels if c not in self.channels]
+        if unknown or not channels or len(set(channels)) != len(channels):
+            raise InstrumentError(self.name, f"channels {', '.join(channels) or 'none'}: each must be one of "
+                                             f"{', '.join(self.channels)}, named once")
+        if len(channels) > 1 and self.protocol != "framed":
+            raise InstrumentError(self.name, "lines mode streams one channel; two-channel capture needs "
+                                             "protocol: framed")
+        if not duration > 0:
+            raise InstrumentError(self.name, f"capture duration must be > 0 s, got {duration!r}")
+        return self._call(self._capture, channels, float(duration), rate, progress)
+
+    def _capture(self, channels: tuple[str, ...], duration: float, rate: float | None, progress,
+                 looks: Sequence[float] = (), decide: Callable[[Capture], bool] | None = None
+                 ) -> tuple[Capture, ...]:
         port = self._port
         wanted = rate or self.config.options.get("rate")
         timestamps = bool(self.config.options.get("timestamps", False))
@@ -216,7 +232,7 @@ class SerialAdc:
             reply = port.command(f"RATE {wanted:.6f}" if wanted else "RATE?", "OK RATE")
             actual = float(reply.split()[2])
         n = max(1, int(round(duration * actual)))
-        mask = 1 << self.channels.index(channel)
+        mask = sum(1 << self.channels.index(c) for c in channels)
         decoder = FrameDecoder(mask=mask) if self.protocol == "framed" else LinesDecoder(
             self.bits, timestamps=timestamps, skip_first=self.free_running, expect_end=not self.free_running)
         state = _Progress(n)
@@ -231,16 +247,17 @@ class SerialAdc:
         looker = None
         if looks and decide is not None:  # an adaptive capture (instruments/_looks.py)
             looker = Looks([max(1, int(round(x * actual))) for x in looks],
-                           lambda k: self._build(channel, state, actual, decoder, k, complete=True), decide)
+                           lambda k: self._build(channels, state, actual, decoder, k, complete=True)[0], decide)
         try:
             self._receive(decoder, state, n, duration, progress, looker)
             if looker is not None and looker.stopped is not None:
                 if not self.free_running:
                     port.stop_stream()
-                return looker.stopped
+                return (looker.stopped,)
         except InstrumentDisconnected as exc:
             elapsed = self.clock.monotonic() - t_start
-            partial = self._build(channel, state, actual, decoder, n, complete=False)
+            partial = self._build(channels, state, actual, decoder, n, complete=False)
+            partial = partial[0] if partial else None
             port.close()
             raise InstrumentDisconnected(
                 self.name, f"adc on {self.address} disconnected after {elapsed:.1f} s of a "
@@ -252,10 +269,10 @@ class SerialAdc:
         finally:
             if looker is not None:
                 looker.close()
-        capture = self._build(channel, state, actual, decoder, n, complete=True)
-        if capture is None:  # only a partial capture can be empty
+        captures = self._build(channels, state, actual, decoder, n, complete=True)
+        if not captures:  # only a partial capture can be empty
             raise InstrumentError(self.name, f"adc on {self.address} delivered no samples")
-        return capture
+        return captures
 
     def _receive(self, decoder, state: _Progress, n: int, duration: float, progress, look=None) -> None:
         """Read until the device has sent ``n`` samples (or END), within the deadlines.
@@ -301,11 +318,11 @@ class SerialAdc:
                 raise InstrumentError(self.name, f"adc on {self.address}: capture did not finish within "
                                                  f"{budget:.1f} s ({state.index} of {n} samples)")
 
-    def _build(self, channel, state: _Progress, actual: float, decoder, n: int, *,
-               complete: bool) -> Capture | None:
+    def _build(self, channels: tuple[str, ...], state: _Progress, actual: float, decoder, n: int, *,
+               complete: bool) -> tuple[Capture, ...]:
         codes = state.codes()
         if complete is False and state.index == 0:
-            return None
+            return ()
         extra: dict = {}
         if self.protocol == "framed":
             periods = sorted(state.periods)
@@ -379,8 +396,16 @@ class SerialAdc:
         if extra.get("time_outliers"):
             warnings.append(f"{len(extra['time_outliers'])} samples with an implausible time stamp were "
                             "counted as lost")
+        # the frame's columns are the selected channels in channel-index order
+        by_index = sorted(channels, key=self.channels.index)
+        return tuple(self._one(c, codes[:, by_index.index(c)], declared, actual, measured, verifiable, lost, n,
+                               gaps, rejected, garbage, end_total, extra, warnings, fraction, len(channels))
+                     for c in channels)
+
+    def _one(self, channel, column, declared, actual, measured, verifiable, lost, n, gaps, rejected, garbage,
+             end_total, extra, warnings, fraction, together) -> Capture:
         cal = self.calibration.for_channel(channel) if self.calibration else None
-        volts = codes[:, 0].astype(np.float64) * (self.vref / 2.0**self.bits)
+        volts = column.astype(np.float64) * (self.vref / 2.0**self.bits)
         if cal is not None:
             volts = cal.gain * volts + cal.offset
         meta = {
@@ -399,6 +424,8 @@ class SerialAdc:
                      "verified": "ok" if verifiable else f"not verified (needs {MIN_VERIFY_WALL:g} s of wall time)"},
             "warnings": warnings,
         }
+        if together > 1:  # one converter, channels multiplexed within each sample period
+            meta["channel_skew_s"] = 1.0 / declared
         return Capture(samples=volts, sample_rate=declared, start_time=0.0, channel=channel,
                        adc=AdcInfo(self.bits, self.vref), clock_ppm=self.config.options.get("clock_ppm"),
                        metadata=meta)

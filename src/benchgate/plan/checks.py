@@ -240,6 +240,11 @@ def parse_circuit(c: PlanCollector, node: YNode, path: str, measurement: str,
                 if key in info["parts"] and key not in required + optional:
                     c.error(c.key_pos(node, key), f"{path}: {key!r} is not a part of a {kind} tank "
                                                   f"(parts: {', '.join(required + optional)})")
+        else:
+            for opt, allowed_values in info["options"].items():  # gain stages and filters
+                if opt not in m:
+                    c.error(node, f"{path}: missing required key {opt!r} ({', '.join(allowed_values)})")
+                options[opt] = c.choice(m.get(opt), f"{path}.{opt}", allowed_values)
         for key in required:
             if key not in m:
                 c.error(node, f"{path}: missing required part {key!r}")

@@ -27,7 +27,7 @@ from typing import Any
 
 import numpy as np
 
-from benchgate.plan import network
+from benchgate.plan import network, stages
 from benchgate.plan.limits import Window
 from benchgate.units.format import format_quantity
 from benchgate.units.tolerance import Part, Tolerance
@@ -83,6 +83,8 @@ TOPOLOGIES: dict[str, dict[str, Any]] = {
     },
 }
 
+TOPOLOGIES.update(stages.TOPOLOGIES)  # gain stages and filters (plan/stages.py)
+
 LC_PARTS = {"colpitts": (("L", "C1", "C2"), ()), "hartley": (("L1", "L2", "C"), ("M",))}
 
 
@@ -100,6 +102,8 @@ class Circuit:
             return f"rc_ladder {self.options['form']} {self.options['sections']} sections"
         if t == "lc_tank":
             return f"lc_tank {self.options['type']}"
+        if t in stages.TOPOLOGIES:
+            return stages.describe(t, self.options)
         return t
 
 
@@ -120,6 +124,8 @@ def evaluate(circuit: Circuit, values: dict[str, np.ndarray]) -> dict[str, np.nd
         if circuit.options["type"] == "colpitts":
             return network.colpitts(values["L"], values["C1"], values["C2"])
         return network.hartley(values["L1"], values["L2"], values["C"], values.get("M", 0.0))
+    if t in stages.TOPOLOGIES:
+        return stages.evaluate(t, circuit.options, values)
     raise ValueError(f"unknown topology {t!r}")
 
 
@@ -267,6 +273,9 @@ def analyze(circuit: Circuit, measurement: str, *, draws: int = DEFAULT_DRAWS, s
         raise ValueError(f"Monte Carlo needs {MIN_DRAWS} to {MAX_DRAWS} draws, got {draws}")
     nominal_vals = {n: np.array([p.nominal]) for n, p in circuit.parts.items()}
     nom_out = evaluate(circuit, nominal_vals)
+    if key not in nom_out:  # e.g. a low-pass filter has no lower cut-off
+        raise ValueError(f"{circuit.describe()} gives {', '.join(k for k in info['outputs'] if info['outputs'][k] in nom_out)}"
+                         f", not {measurement}")
     nominal = float(nom_out[key][0]) * scale
     cvals, varied, bits = _corner_values(circuit)
     cout = evaluate(circuit, cvals)

@@ -15,7 +15,7 @@ from benchgate.common.fields import described
 from benchgate.common.names import CAPABILITIES, MEASUREMENT_UNITS, READING_SOURCES, READING_UNITS
 from benchgate.common.yamlpos import YNode, load_file, load_text
 from benchgate.errors import PlanErrors
-from benchgate.plan import derive
+from benchgate.plan import derive, stimulus
 from benchgate.plan.checks import parse_limit, parse_max_risk, parse_monte_carlo
 from benchgate.plan.fields import PlanCollector
 from benchgate.plan.hashing import content_hash
@@ -250,7 +250,8 @@ def _step(c: PlanCollector, node: YNode, path: str, defaults: dict[str, Any],
     sid = m.get("id").value if m.get("id") is not None and isinstance(m["id"].value, str) else path
     values: dict[str, Any] = {}
     for key, f in fields.items():
-        if key not in m or f.metadata["kind"] in ("checks", "limit", "adaptive"):
+        if key not in m or f.metadata["kind"] in ("checks", "limit", "adaptive", "quantities", "band", "mask",
+                                                  "level", "levels"):
             continue
         v = _field(c, f, m[key], f"{path}.{key}")
         if v is not None:
@@ -266,6 +267,10 @@ def _step(c: PlanCollector, node: YNode, path: str, defaults: dict[str, Any],
         _capture_extras(c, m, node, path, values)
         checks = _checks(c, m.get("checks"), f"{path}.checks", defaults, budget)
         values["checks"] = tuple(checks)
+    elif kind in stimulus.STIMULUS_KINDS:
+        stimulus.parse_extras(c, kind, m, node, path, values)
+        values["checks"] = tuple(_checks(c, m.get("checks"), f"{path}.checks", defaults, budget,
+                                         stimulus.CHECK_UNITS[kind]))
     elif kind == "reading":
         q = values.get("quantity")
         if q is not None:
@@ -366,17 +371,18 @@ def _capture_extras(c: PlanCollector, m: dict[str, YNode], node: YNode, path: st
 
 
 def _checks(c: PlanCollector, node: YNode | None, path: str, defaults: dict[str, Any],
-            budget: derive.WorkBudget) -> list[Check]:
+            budget: derive.WorkBudget, units: dict[str, str] | None = None) -> list[Check]:
     if node is None:
         return []
-    m = c.mapping(node, path, MEASUREMENT_UNITS)
+    units = MEASUREMENT_UNITS if units is None else units
+    m = c.mapping(node, path, units)
     if m is None:
         return []
     out = []
     for name, lim in m.items():
-        if name not in MEASUREMENT_UNITS:
+        if name not in units:
             continue  # reported by mapping()
-        w = parse_limit(c, lim, f"{path}.{name}", name, MEASUREMENT_UNITS[name], defaults["monte_carlo"],
+        w = parse_limit(c, lim, f"{path}.{name}", name, units[name], defaults["monte_carlo"],
                         budget)
         if w is not None:
             line, col = node.key_pos[name]

@@ -13,7 +13,7 @@ from typing import Any
 from benchgate.common.names import CAPABILITIES, READING_UNITS
 from benchgate.plan.limits import Window
 
-STEP_KINDS = ("supply", "wait", "prompt", "capture", "reading")
+STEP_KINDS = ("supply", "wait", "prompt", "capture", "reading", "tone", "sweep", "level_sweep")
 #: measurements an adaptive capture may decide before its longest capture: estimates that
 #: converge as the capture grows and state their uncertainty. Start-up time, drift, dips,
 #: peak-to-peak and SFDR (extremes over the whole capture) need the whole capture.
@@ -254,3 +254,8 @@ DEFAULTS_SPEC: dict[str, dict[str, Any]] = {
 }
 
 CAPTURE_DEFAULT_KEYS = ("instrument", "channel", "rate", "duration", "range", "harmonics")
+
+
+# the generator-driven step kinds live in their own module, which builds on Step and spec above
+# and adds its classes to STEP_CLASSES when it is imported (here, whichever module comes first)
+from benchgate.plan import stimulus as _stimulus  # noqa: E402, F401

@@ -28,6 +28,7 @@ from benchgate.plan.model import (
     Hazard,
     Plan,
 )
+from benchgate.plan.stimulus import CHECK_UNITS
 
 SCHEMA_ID = "https://owl-hollow.invalid/benchgate/plan.schema.json"
 _BOOL_WORDS = [True, False, "on", "off", "yes", "no", "true", "false"]
@@ -61,6 +62,19 @@ def _field_schema(md: dict[str, Any]) -> dict[str, Any]:
     if kind == "list":
         item = {"enum": list(md["choices"])} if md["choices"] else {"type": "string"}
         return {"type": "array", "items": item, "description": doc}
+    if kind == "level":
+        return {**_NUMBER_OR_TEXT, "description": f"{doc} (a number of volts or text such as '200 mVpp')"}
+    if kind == "levels":
+        return {"type": "array", "items": {**_NUMBER_OR_TEXT}, "minItems": 1, "description": doc}
+    if kind in ("quantities", "band"):
+        n = {"minItems": 2, "maxItems": 2} if kind == "band" else {"minItems": 1}
+        return {"type": "array", "items": _quantity(md["unit"], "value"), **n, "description": doc}
+    if kind == "mask":
+        corner = {"type": "object", "additionalProperties": False, "required": ["frequency"],
+                  "properties": {"frequency": _quantity("Hz", "corner frequency"),
+                                 "min": _quantity("dB", "lower limit line"),
+                                 "max": _quantity("dB", "upper limit line")}}
+        return {"type": "array", "items": corner, "minItems": 2, "description": doc}
     raise ValueError(kind)
 
 
@@ -76,9 +90,10 @@ def _step_schema(kind: str) -> dict[str, Any]:
     for key, f in _keys(cls):
         md = f.metadata
         if md["kind"] == "checks":
+            names = CHECK_UNITS.get(kind, MEASUREMENT_UNITS)
             props[key] = {"type": "object", "description": md["doc"], "additionalProperties": False,
                           "properties": {n: {"$ref": "#/$defs/limit", "description": f"{n} ({u})"}
-                                         for n, u in MEASUREMENT_UNITS.items()}}
+                                         for n, u in names.items()}}
         elif md["kind"] == "limit":
             props[key] = {"$ref": "#/$defs/limit", "description": md["doc"]}
         elif md["kind"] == "adaptive":
@@ -96,6 +111,8 @@ def _step_schema(kind: str) -> dict[str, Any]:
                             "description": "capture length in samples (instead of duration; needs rate)"}
     if kind == "reading":
         required.append("limit")
+    if kind in ("tone", "sweep"):
+        required.append("level")
     return {"type": "object", "title": f"{kind} step", "description": (cls.__doc__ or "").strip(),
             "additionalProperties": False, "required": required, "properties": props}
 
@@ -122,7 +139,7 @@ def _circuit_schema(topology: str) -> list[dict[str, Any]]:
                         "description": "one shared value (each section its own part) or one per section"}
         else:
             props[p] = part
-    required = ["topology", *info["required"]] + (["form"] if topology == "rc_ladder" else [])
+    required = ["topology", *info["required"]] + [o for o, v in info["options"].items() if v != "int"]
     return [{"type": "object", "additionalProperties": False, "required": required, "properties": props}]
 
 

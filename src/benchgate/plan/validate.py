@@ -12,6 +12,7 @@ from __future__ import annotations
 
 from benchgate.plan.fields import PlanCollector
 from benchgate.plan.model import CaptureStep, ReadingStep, Step, SupplyStep
+from benchgate.plan.stimulus import StimulusStep
 from benchgate.units.format import format_quantity
 
 MIN_CYCLES = 5
@@ -54,11 +55,12 @@ def validate_steps(c: PlanCollector, steps: list[Step], positions: list[Pos], re
             c.error(where_id, f"step id {step.id!r} is used twice (first at line {line}, column {col})")
         else:
             seen[step.id] = where_id
-        role = _instrument_role(step)
-        if role is not None and role not in requires:
-            c.error(pos.get("instrument", pos.get("kind", pos[""])),
-                    f"step {step.id!r} uses the {role}, but the plan does not require it "
-                    f"(add {role} to requires)")
+        roles = ("generator", step.instrument) if isinstance(step, StimulusStep) else (_instrument_role(step),)
+        for role in roles:
+            if role is not None and role not in requires:
+                c.error(pos.get("instrument", pos.get("kind", pos[""])),
+                        f"step {step.id!r} uses the {role}, but the plan does not require it "
+                        f"(add {role} to requires)")
         if isinstance(step, SupplyStep):
             if step.voltage is not None:
                 voltage_set = True

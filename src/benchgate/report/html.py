@@ -17,7 +17,7 @@ from benchgate.common.evidence import file_sha256, write_atomic
 from benchgate.common.names import MEASUREMENT_TITLES
 from benchgate.judge.risk import format_risk
 from benchgate.record import CheckRecord, StepRecord, UnitRecord
-from benchgate.report import plots
+from benchgate.report import plots, response_plots
 from benchgate.report.cautions import GENERAL_CAUTIONS
 from benchgate.report.derivation import derivation_rows, value_text
 from benchgate.report.svg import esc
@@ -120,7 +120,7 @@ def _file_sha256(path: Path) -> str | None:
 
 
 #: capture metadata not repeated in the facts list (shown elsewhere, or local to the machine).
-_META_HIDDEN = {"file", "format", "warnings"}
+_META_HIDDEN = {"file", "format", "warnings", "response_points", "transfer_points", "mask"}
 
 UNFRAMED_NOTE = ("Taken without framing (serial lines mode): the device sends one text line per sample "
                  "with no checksum or sequence number, so a corrupted line that still reads as a "
@@ -193,6 +193,7 @@ def _step_view(step: StepRecord, captures: Mapping[str, Capture], verify: Path |
         else:
             figures, more = plots.capture_figures(source, step.checks, channel=cap.channel)
             notes.extend(n for n in more if n not in cap.warnings and n not in notes)
+    figures = [*response_plots.step_figures(step), *figures]  # Bode / transfer plots of driven steps
     bars = [plots.check_figure(c) for c in step.checks]
     return {
         "id": step.id, "kind": step.kind, "title": step.title or step.id, "status": step.status,

@@ -109,8 +109,13 @@ def write_lot_summary(db: Any, lot: str, path: Path) -> dict:
     return summary.to_dict()
 
 
+#: boards the demo can run, each with its plan in testplans/ (the TB-3 is the default lot)
+DEMO_BOARDS = ("tb3", "aa1", "lp2")
+
+
 def run_demo(*, units: int = 14, speed: float = 4.0, reports_dir: Path | None = None,
-             lot: str = "TB3-2612", on_unit: Any = None, on_start: Any = None) -> DemoResult:
+             lot: str | None = None, on_unit: Any = None, on_start: Any = None,
+             board: str = "tb3") -> DemoResult:
     """Run the demo lot; ``on_start(text)`` is called once the bench is up, ``on_unit(index,
     total, unit)`` as each unit finishes."""
     import time
@@ -121,15 +126,20 @@ def run_demo(*, units: int = 14, speed: float = 4.0, reports_dir: Path | None = 
     from benchgate.sim import bench as bench_module
 
     t0 = time.monotonic()
-    plan = load_plan(find_plan())
+    if board not in DEMO_BOARDS:
+        from benchgate.errors import PreflightError
+
+        raise PreflightError(f"no demo for board {board!r} (boards: {', '.join(DEMO_BOARDS)})")
+    lot = lot or f"{board.upper()}-2612"
+    plan = load_plan(find_plan(f"{board}.yaml"))
     reports_dir = Path(reports_dir) if reports_dir is not None else Path("reports")
     reports_dir.mkdir(parents=True, exist_ok=True)
-    lot_units = make_lot(units, lot, defects("tb3"))
+    lot_units = make_lot(units, lot, defects(board))
     workdir = tempfile.mkdtemp(prefix="benchgate-demo-")
     # the serial ADC: the reference firmware on simavr when its harness is built (sim.firmware)
-    with bench_module.UnderstudyBench("tb3", speed=speed, workdir=workdir, adc_device="auto") as vb:
+    with bench_module.UnderstudyBench(board, speed=speed, workdir=workdir, adc_device="auto") as vb:
         station = load_station(vb.station_path)
-        note = lot_note(len(lot_units), defects("tb3"))
+        note = lot_note(len(lot_units), defects(board))
         if on_start is not None and note is not None:
             on_start(note)
         if on_start is not None:

@@ -32,6 +32,15 @@ POWER_CYCLE_OFF_S = 0.5
 _YES = ("y", "yes")
 _NO = ("n", "no")
 
+#: step kind -> ``run(executor, step, step_record, attempt)``, for kinds added by registration
+#: (:func:`register_step`); the built-in kinds are the executor's ``_do_<kind>`` methods.
+STEP_RUNNERS: dict[str, Callable[..., None]] = {}
+
+
+def register_step(kind: str, run: Callable[..., None]) -> None:
+    """Add a step kind: ``run(executor, step, step_record, attempt)`` does one attempt."""
+    STEP_RUNNERS[kind] = run
+
 
 
 def utc_now() -> str:
@@ -107,7 +116,11 @@ class Executor:
             srec.attempts = attempt
             srec.checks = []
             srec.error = None
-            getattr(self, f"_do_{step.kind}")(step, srec, attempt)
+            registered = STEP_RUNNERS.get(step.kind)
+            if registered is not None:
+                registered(self, step, srec, attempt)
+            else:
+                getattr(self, f"_do_{step.kind}")(step, srec, attempt)
             srec.status = step_status(srec)
             if srec.status == "done" or attempt > step.retries:
                 break
@@ -389,3 +402,7 @@ def error_reason(exc: BaseException) -> str:
             text += f" (instrument error {code}" + (f", {exc.code_text}" if exc.code_text else "") + ")"
         return text
     return f"{type(exc).__name__}: {exc}"
+
+
+# the generator-driven step kinds register themselves (tone, sweep, level_sweep)
+from benchgate.runner import stimulus as _stimulus  # noqa: E402, F401

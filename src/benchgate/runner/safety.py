@@ -5,8 +5,8 @@ SIGINT (Ctrl-C), SIGTERM (a cancelled CI job, ``timeout``, ``kill``) and SIGHUP 
 terminal). The first one raises :class:`StopRequested` where the run is, so the unit stops
 there; every later one — and any that arrives while :attr:`StopSignals.shielded` is set for the
 safe-state sequence and the evidence — is only counted: nothing can cut the supply-off command
-or the reports short. :func:`make_safe` switches the supply off (retrying a lost command, not a
-dead link) and closes the bench through its own context manager.
+or the reports short. :func:`make_safe` switches the supply and the generator off (retrying a lost
+command, not a dead link) and closes the bench through its own context manager.
 """
 
 from __future__ import annotations
@@ -28,6 +28,8 @@ if hasattr(signal, "SIGHUP"):  # not on every platform
 
 #: the console line when the supply output cannot be confirmed off
 SUPPLY_ALARM = "SWITCH THE SUPPLY OFF BY HAND"
+#: the console line when the generator output cannot be confirmed off
+GENERATOR_ALARM = "SWITCH THE GENERATOR OFF BY HAND"
 
 
 class StopRequested(KeyboardInterrupt):
@@ -124,36 +126,45 @@ def link_is_dead(err: BaseException) -> bool:
     return isinstance(err, InstrumentDisconnected)
 
 
+def _switch_off(bench: _OpenBench | None, role: str, attempts: int,
+                notes: list[str]) -> tuple[bool, BaseException | None]:
+    """Switch the output of ``role`` off (retrying a lost command, not a dead link)."""
+    inst: _Supply | None = None
+    if bench is not None:
+        try:
+            inst = bench.get(role)
+        except Exception:  # a broken bench object: the context manager still closes it
+            inst = None
+    if inst is None:
+        return True, None
+    last_error: BaseException | None = None
+    for attempt in range(1, attempts + 1):
+        try:
+            inst.output(False)
+            return True, None
+        except Exception as err:  # keep trying: this is the one command that must get through
+            last_error = err
+            notes.append(f"{role} output off failed (attempt {attempt}): {err}")
+            if link_is_dead(err):
+                break
+    return False, last_error
+
+
 def make_safe(bench_cm: AbstractContextManager[Any] | None, bench: _OpenBench | None,
               exc: BaseException | None, attempts: int = 3,
               alarm: Callable[[str], None] | None = None) -> list[str]:
-    """Switch the supply output off and close the bench; returns notes on anything that went wrong.
+    """Switch the supply and generator outputs off and close the bench; returns notes on
+    anything that went wrong.
 
-    The supply is switched off here first (a lost command is retried up to ``attempts`` times; a
+    Each output is switched off here first (a lost command is retried up to ``attempts`` times; a
     link that no longer answers is not waited on again) and again by the bench's own exit, so one
-    lost command cannot leave the unit powered. When the output cannot be confirmed off,
-    ``alarm`` is called with one line starting with :data:`SUPPLY_ALARM`.
+    lost command cannot leave the unit powered or driven. When an output cannot be confirmed off,
+    ``alarm`` is called with one line starting with :data:`SUPPLY_ALARM` or
+    :data:`GENERATOR_ALARM`.
     """
     notes: list[str] = []
-    supply: _Supply | None = None
-    if bench is not None:
-        try:
-            supply = bench.get("supply")
-        except Exception:  # a broken bench object: the context manager below still closes it
-            supply = None
-    confirmed = supply is None
-    last_error: BaseException | None = None
-    if supply is not None:
-        for attempt in range(1, attempts + 1):
-            try:
-                supply.output(False)
-                confirmed = True
-                break
-            except Exception as err:  # keep trying: this is the one command that must get through
-                last_error = err
-                notes.append(f"supply output off failed (attempt {attempt}): {err}")
-                if link_is_dead(err):
-                    break
+    confirmed, last_error = _switch_off(bench, "supply", attempts, notes)
+    gen_confirmed, gen_error = _switch_off(bench, "generator", attempts, notes)
     close_error: BaseException | None = None
     if bench_cm is not None:
         try:
@@ -167,10 +178,12 @@ def make_safe(bench_cm: AbstractContextManager[Any] | None, bench: _OpenBench | 
         for err in getattr(bench, "close_errors", None) or ():
             if err is not close_error and f"closing the instruments: {err}" not in notes:
                 notes.append(f"closing the instruments: {err}")
-    if not confirmed:
-        why = f" ({last_error})" if last_error is not None else ""
-        line = f"{SUPPLY_ALARM}: the supply did not confirm that its output is off{why}"
-        notes.append(line)
-        if alarm is not None:
-            alarm(line)
+    for ok, err, head, what in ((confirmed, last_error, SUPPLY_ALARM, "supply"),
+                                (gen_confirmed, gen_error, GENERATOR_ALARM, "generator")):
+        if not ok:
+            why = f" ({err})" if err is not None else ""
+            line = f"{head}: the {what} did not confirm that its output is off{why}"
+            notes.append(line)
+            if alarm is not None:
+                alarm(line)
     return notes

@@ -4,7 +4,8 @@ It samples the simulated unit in bench-clock time, from the instant acquisition 
 capture started before power-on sees the flat line of an unpowered unit, then the start-up.
 Channel ``out`` is the fixture test point: AC-coupled boards (TB-3, WO-1) are coupled to the
 ADC's mid-rail (vref/2), the DC-coupled PF-2 is read as is. Channel ``rail`` is the unit's
-supply rail through a 1/4 divider. Each sample gets input noise, is quantised to ``bits``
+supply rail through a 1/4 divider. A board the generator drives (AA-1, LP-2) has channel ``in``
+too: its input, AC-coupled to mid-rail like ``out``. Each sample gets input noise, is quantised to ``bits``
 (code = round(v / vref · 2^bits)) and clipped at the rails; the ADC's own crystal is off by
 ``clock_error_ppm`` so its samples are really taken at ``rate · (1 + error)``.
 """
@@ -13,7 +14,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from benchgate.sim.backend import BenchState
+from benchgate.sim.backend import BenchState, _grid
 
 RAIL_DIVIDER = 0.25
 
@@ -28,7 +29,8 @@ class VirtualAdc:
         self.vref = float(vref)
         self.noise = float(noise)
         self.clock_error_ppm = float(clock_error_ppm)
-        self.channels: tuple[str, ...] = ("out", "rail")
+        # a board the generator drives has its input on a third channel (AC-coupled to mid-rail)
+        self.channels: tuple[str, ...] = ("out", "rail", "in") if state.unit.stimulated else ("out", "rail")
         self._rng = np.random.default_rng(seed)
         self._rate = 1.0
         self._mask = 1
@@ -53,6 +55,9 @@ class VirtualAdc:
             return tp + self.vref / 2.0 if self.state.unit.board.coupling == "ac" else tp
         if channel == "rail":
             return RAIL_DIVIDER * self.state.rail(t)
+        if channel == "in" and "in" in self.channels:
+            start, rate, n = _grid(t)
+            return self.state.stimulus_response(start, rate, n)[0] + self.vref / 2.0
         raise ValueError(f"no channel {channel!r}")
 
     def quantise(self, v: np.ndarray) -> np.ndarray:

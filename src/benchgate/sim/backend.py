@@ -21,13 +21,16 @@ import threading
 import numpy as np
 
 from benchgate.clock import Clock, SystemClock
+from benchgate.errors import SimError
 from benchgate.sim.boards import Unit
+from benchgate.sim.circuits.stimulated import Drive
 
 BROWN_OUT = 0.6  # fraction of the nominal supply below which the unit does not run
 DMM_NOISE = 50e-6  # V rms on DC readings
 AVERAGE = 0.02  # s over which the supply and DMM average the current
 GATE = 0.1  # s counter gate and AC-rms span
 HISTORY = 32  # power intervals remembered
+SOURCE_OHMS = 50.0  # the emulated generator's output resistance
 
 
 class BenchState:
@@ -44,6 +47,8 @@ class BenchState:
         self._on: list[float] = []  # power-on instants
         self._off: list[float] = []  # matching power-off instants (inf while on)
         self.rng = np.random.default_rng(seed)
+        self.generator: dict | None = None  # the emulated generator's settings, when it has any
+        self.generator_since = 0.0  # bench time of its last change
 
     # -- power ------------------------------------------------------------------------------
     @property
@@ -80,6 +85,55 @@ class BenchState:
             if self.powered:
                 self._on.append(self.clock.monotonic())
                 self._off.append(np.inf)
+
+    def set_generator(self, settings: dict) -> None:
+        with self._lock:
+            self.generator = dict(settings)
+            self.generator_since = self.clock.monotonic()
+
+    def drive(self) -> Drive | None:
+        """The generator's sine at the unit's input (its 50 Ω source into the board's bias
+        resistor; a load setting of R_L makes the generator raise its EMF by (R_L + 50)/R_L, as
+        real ones do), or None while its output is off."""
+        with self._lock:
+            g, since = self.generator, self.generator_since
+        if not g or not g.get("output"):
+            return None
+        if g.get("waveform", "sine") != "sine":
+            raise SimError(f"the simulated {self.unit.board.name} is driven with a sine only")
+        load = g.get("load")
+        emf = float(g["vpp"]) / 2.0 * ((load + SOURCE_OHMS) / load if load else 1.0)
+        r_in = float(self.unit.values.get("Rb", 1e9))
+        at_input = r_in / (r_in + SOURCE_OHMS)
+        offset = float(g.get("offset", 0.0)) * ((load + SOURCE_OHMS) / load if load else 1.0) * at_input
+        return Drive(float(g["frequency"]), emf * at_input, offset, since)
+
+    def stimulus_response(self, t0: float, rate: float, n: int) -> tuple[np.ndarray, np.ndarray]:
+        """Input and output (V) of a stimulated unit at ``t0 + k/rate``: the output is 0 while
+        the unit is unpowered, and its capacitors start discharged at the later of the power-on
+        and the generator's last change."""
+        times = t0 + np.arange(int(n)) / float(rate)
+        drive = self.drive()
+        if drive is None:
+            return np.zeros(times.shape), np.zeros(times.shape)
+        phase = 2 * np.pi * drive.frequency * (times - drive.since)
+        u = np.where(times >= drive.since, drive.amplitude * np.sin(phase) + drive.offset, 0.0)
+        if not self.unit.stimulated:  # an oscillator board has no input to respond with
+            return u, np.zeros(times.shape)
+        tau = self._tau(times)
+        live = ~np.isnan(tau)
+        y = np.zeros(times.shape)
+        scale = self.supply_scale()
+        if live.any() and scale >= BROWN_OUT:
+            k = int(np.argmax(live))
+            powered_at = float(times[k] - tau[k])
+            since = max(drive.since, powered_at)
+            d = Drive(drive.frequency, drive.amplitude, drive.offset, since, drive.since)
+            stop = k + int(np.argmin(live[k:])) if not live[k:].all() else int(n)
+            k = max(k, int(np.searchsorted(times, since - 1e-12)))  # nothing before the setting
+            if k < stop:
+                y[k:stop] = self.unit.respond(d, float(times[k]), rate, stop - k, swing_scale=scale)[1]
+        return u, y
 
     # -- what the unit does -----------------------------------------------------------------
     def _tau(self, times: np.ndarray) -> np.ndarray:
@@ -137,6 +191,8 @@ class BenchState:
     def test_point(self, times: np.ndarray, *, noise: bool = True) -> np.ndarray:
         """Fixture test-point voltage (V) at bench-clock ``times``: 0 while unpowered."""
         times = np.asarray(times, dtype=np.float64)
+        if self.unit.stimulated:  # the output of a driven board, on a uniform grid of times
+            return self.stimulus_response(*_grid(times))[1]
         tau = self._tau(times)
         scale = self.supply_scale()
         live = ~np.isnan(tau)
@@ -154,6 +210,16 @@ class BenchState:
         if live.any():
             out[live] = self.rail_voltage() + self.unit.rail_ripple(tau[live])
         return out
+
+
+def _grid(times: np.ndarray) -> tuple[float, float, int]:
+    """(start, rate, count) of uniformly spaced ``times``; SimError when they are not."""
+    if times.size < 2:
+        return (float(times[0]) if times.size else 0.0), 1.0, int(times.size)
+    step = float(times[1] - times[0])
+    if not step > 0 or not np.allclose(np.diff(times), step, rtol=1e-6, atol=0):
+        raise SimError("a driven board is sampled on a uniform grid of times only")
+    return float(times[0]), 1.0 / step, int(times.size)
 
 
 def count_frequency(v: np.ndarray, rate: float, *, min_pp: float = 0.05) -> float:
@@ -220,6 +286,20 @@ class BoardBackend:
         v = self.state.test_point(now - GATE + np.arange(int(GATE * rate)) / rate, noise=False)
         f = count_frequency(v, rate)
         return f * (1.0 + float(self.state.rng.normal(0.0, self.counter_ppm * 1e-6))) if f else 0.0
+
+    def generator_changed(self, settings: dict) -> None:
+        self.state.set_generator(settings)
+
+    def digitizer_channels_at(self, start: float, rate: float, points: int,
+                              channels: tuple[str, ...]) -> np.ndarray:
+        """Several channels at the same instants, shape (points, channels): an instrument channel
+        called ``IN`` is the unit's input (what the generator delivers), any other its output."""
+        u, y = self.state.stimulus_response(start, rate, points)
+        if not self.state.unit.stimulated:
+            y = self.state.test_point(start + np.arange(int(points)) / float(rate))
+        cols = [u if c.strip().upper() == "IN" else y for c in channels]
+        noisy = [c + self.state.rng.normal(0.0, self.digitizer_noise, size=c.shape) for c in cols]
+        return np.column_stack(noisy)
 
     def digitizer_record(self, rate: float, points: int) -> np.ndarray:
         return self.digitizer_record_at(self._now(), rate, points)

@@ -153,7 +153,12 @@ class UnderstudyBench:
 
     @property
     def resources(self) -> dict[str, str]:
-        return dict(self.server.resources)
+        """role -> VISA resource of the SCPI instruments on the station (the generator only
+        with a board it can drive)."""
+        res = dict(self.server.resources)
+        if not self.unit.stimulated:
+            res.pop("generator", None)
+        return res
 
     @property
     def supply_output(self) -> bool:
@@ -164,6 +169,7 @@ class UnderstudyBench:
         due = today + dt.timedelta(days=365)
         cal = f"date: {today.isoformat()}, due: {due.isoformat()}"
         res = self.resources
+        driven = self.unit.stimulated  # a board with an input: the generator is on the station
         lines = [
             "# A understudy bench (benchgate sim): the serial ADC on a pseudo-terminal and the SCPI",
             "# instruments on loopback ports of this machine. Valid while that process runs.",
@@ -175,7 +181,7 @@ class UnderstudyBench:
             f"    port: {_q(self.serial_port)}",
             f"    baudrate: {ADC_BAUD}",
             f"    protocol: {self.protocol}",
-            "    channels: [out, rail]",
+            "    channels: [out, rail, in]" if driven else "    channels: [out, rail]",
             f"    bits: {ADC_BITS}",
             f"    vref: {ADC_VREF:g} V",
             "    clock_ppm: 50",
@@ -186,6 +192,7 @@ class UnderstudyBench:
             "    calibration:",
             f"      out: {{gain: 1.0, offset: 0 mV, {cal}}}",
             f"      rail: {{gain: 4.0, offset: 0 mV, {cal}}}",
+            *([f"      in: {{gain: 1.0, offset: 0 mV, {cal}}}"] if driven else []),
         ]
         extra = {
             # Reading bounds per quantity: a voltage offset must not be read as amps.
@@ -197,9 +204,14 @@ class UnderstudyBench:
                     "      ac_voltage: {gain: 0.1 %, offset: 1 mV}",
                     "      dc_current: {gain: 0.05 %, offset: 5 µA}"],
             "counter": ["    accuracy: {gain: 0.0002 %, offset: 0.01 Hz}"],
-            "digitizer": ["    channels: [out]", "    rate: 200 kHz", "    range: 5 V", "    clock_ppm: 20"],
+            "digitizer": (["    channels: {out: OUT, in: IN}", "    rate: 200 kHz", "    range: 10 V",
+                           "    clock_ppm: 20", "    channel_match: 0.001"] if driven else
+                          ["    channels: [out]", "    rate: 200 kHz", "    range: 5 V", "    clock_ppm: 20"]),
+            "generator": ["    max_amplitude: 10 V", "    max_frequency: 1 MHz", "    load: high"],
         }
-        for role in ("supply", "dmm", "counter", "digitizer"):
+        roles = ("supply", "generator", "dmm", "counter", "digitizer") if driven else (
+            "supply", "dmm", "counter", "digitizer")
+        for role in roles:
             lines += [f"  {role}:", f"    kind: scpi-{role}", f"    resource: {_q(res[role])}",
                       "    timeout: 2 s", "    reset: true", *extra[role], f"    calibration: {{{cal}}}"]
         return "\n".join(lines) + "\n"

@@ -1,7 +1,7 @@
-"""The three Owl Hollow boards, and units drawn from them.
+"""The Owl Hollow boards, and units drawn from them.
 
 A :class:`Board` lists its parts with nominal values and tolerances (the TB-3, WO-1 and PF-2
-designs agreed in the interfaces); :func:`draw_unit` draws one unit's values within tolerance,
+oscillators, and the AA-1 amplifier and LP-2 filter that the generator drives); :func:`draw_unit` draws one unit's values within tolerance,
 seeded by a stable hash of its serial number (same serial, same parts), and applies a defect.
 A :class:`Unit` builds the circuit simulation from its parts and answers, for times since
 power-on: the board's output node, the fixture test point, and the supply current.
@@ -18,10 +18,18 @@ from types import MappingProxyType
 import numpy as np
 
 from benchgate.errors import SimError
-from benchgate.sim.circuits import astable, rc_ladder, wien
+from benchgate.sim.circuits import astable, rc_ladder, stimulated, wien
 from benchgate.sim.circuits.trace import LoopTrace
 
-DEFECTS = ("wrong_capacitor", "low_gain", "high_gain", "open_section", "supply_noise", "intermittent")
+#: the oscillators' defects (TB-3, WO-1), and every defect the simulator knows
+OSCILLATOR_DEFECTS = ("wrong_capacitor", "low_gain", "high_gain", "open_section", "supply_noise", "intermittent")
+DEFECTS = (*OSCILLATOR_DEFECTS, "wrong_gain_resistor", "open_coupling", "rail_clipping")
+#: boards driven by the generator (their output is a response, not an oscillation)
+STIMULATED = ("aa1", "lp2")
+#: quiescent supply current of the stimulated boards (A): op-amp and bias network
+QUIESCENT = {"aa1": 6e-3, "lp2": 2.5e-3}
+#: output swing of the AA-1 stage about its bias (V peak), and with a rail clipping fault
+AA1_SWING, AA1_FAULT_SWING = 4.5, 1.5
 
 #: simulation steps per second for the oscillator models (~100 steps a period at 1 kHz)
 SIM_RATE = 100_000.0
@@ -59,17 +67,27 @@ BOARDS: dict[str, Board] = {
         _parts(R1=(6.8e3, 0.05, "Ω"), R2=(6.8e3, 0.05, "Ω"), R3=(6.8e3, 0.05, "Ω"),
                C1=(10e-9, 0.10, "F"), C2=(10e-9, 0.10, "F"), C3=(10e-9, 0.10, "F"),
                gain=(40.0, 0.04, ""), Rc=(1.0e3, 0.05, "Ω"), Rin=(47e3, 0.10, "Ω")),
-        DEFECTS, "ac", 0.36, 4.6),
+        OSCILLATOR_DEFECTS, "ac", 0.36, 4.6),
     "wo1": Board(
         "wo1", "WO-1 Wien-bridge oscillator", 12.0,
         _parts(R1=(16e3, 0.01, "Ω"), R2=(16e3, 0.01, "Ω"), C1=(10e-9, 0.05, "F"),
                C2=(10e-9, 0.05, "F"), Rf=(21e3, 0.01, "Ω"), Rg=(10e3, 0.01, "Ω"),
                Rd=(15e3, 0.05, "Ω")),
-        DEFECTS, "ac", 1.0, 6.0),
+        OSCILLATOR_DEFECTS, "ac", 1.0, 6.0),
     "pf2": Board(
         "pf2", "PF-2 pulse board", 9.0,
         _parts(R1=(1e3, 0.05, "Ω"), R2=(6.8e3, 0.05, "Ω"), C=(100e-9, 0.10, "F")),
         ("wrong_capacitor", "supply_noise", "intermittent"), "dc", 1.0 / 3.0, 0.0),
+    "aa1": Board(
+        "aa1", "AA-1 audio amplifier", 12.0,
+        _parts(Cin=(220e-9, 0.10, "F"), Rb=(33e3, 0.05, "Ω"), Rf=(22e3, 0.01, "Ω"), Rg=(2.2e3, 0.01, "Ω"),
+               Rt=(1.5e3, 0.05, "Ω"), Ct=(10e-9, 0.10, "F")),
+        ("wrong_capacitor", "wrong_gain_resistor", "open_coupling", "rail_clipping"), "ac", 1.0, 0.0),
+    "lp2": Board(
+        "lp2", "LP-2 active low-pass filter", 9.0,
+        _parts(Cin=(1e-6, 0.10, "F"), Rb=(100e3, 0.05, "Ω"), R1=(11e3, 0.01, "Ω"), R2=(11e3, 0.01, "Ω"),
+               C1=(22e-9, 0.05, "F"), C2=(10e-9, 0.05, "F")),
+        ("wrong_capacitor", "open_coupling"), "ac", 1.0, 0.0),
 }
 
 
@@ -113,10 +131,33 @@ class Unit:
         if self.board.model == "wo1":
             return wien.WienParams(r1=v["R1"], r2=v["R2"], c1=v["C1"], c2=v["C2"], rf=v["Rf"],
                                    rg=v["Rg"], rd=v["Rd"], supply=self.board.supply)
+        if self.board.model == "aa1":
+            swing = AA1_FAULT_SWING if self.defect == "rail_clipping" else AA1_SWING
+            return stimulated.AmplifierParams(cin=v["Cin"], rb=v["Rb"], rf=v["Rf"], rg=v["Rg"], rt=v["Rt"],
+                                              ct=v["Ct"], swing=swing)
+        if self.board.model == "lp2":
+            return stimulated.FilterParams(cin=v["Cin"], rb=v["Rb"], r1=v["R1"], r2=v["R2"], c1=v["C1"],
+                                           c2=v["C2"])
         return astable.AstableParams(r1=v["R1"], r2=v["R2"], c=v["C"], supply=self.board.supply)
 
+    @property
+    def stimulated(self) -> bool:
+        """True for a board driven by the generator (see :func:`respond`)."""
+        return self.board.model in STIMULATED
+
+    def respond(self, drive: stimulated.Drive | None, t0: float, rate: float, n: int,
+                swing_scale: float = 1.0) -> tuple[np.ndarray, np.ndarray]:
+        """Input and output (V) of a stimulated board at ``t0 + k/rate`` (bench time), for the
+        generator's ``drive``; ``swing_scale`` scales the output swing with a sagging supply."""
+        p = self.circuit()
+        if swing_scale != 1.0 and isinstance(p, stimulated.AmplifierParams):
+            from dataclasses import replace
+
+            p = replace(p, swing=p.swing * swing_scale)
+        return stimulated.respond(p, drive, t0, rate, n)
+
     def _trace(self) -> LoopTrace | None:
-        if self.board.model == "pf2":
+        if self.board.model == "pf2" or self.stimulated:
             return None
         if "trace" not in self._cache:
             p = self.circuit()
@@ -128,18 +169,24 @@ class Unit:
     def node(self, tau: np.ndarray) -> np.ndarray:
         """The board's output node (V) at ``tau`` s after power-on (continuously powered)."""
         tau = np.asarray(tau, dtype=np.float64)
+        if self.stimulated:  # nothing oscillates: the output is a response (see respond)
+            return np.zeros(tau.shape)
         trace = self._trace()
         if trace is None:
             return astable.output(self.circuit(), tau)
         return trace.values(tau)
 
     def steady_frequency(self) -> float | None:
+        if self.stimulated:
+            return None
         trace = self._trace()
         return self.circuit().frequency if trace is None else trace.steady_frequency
 
     def current(self, tau: np.ndarray) -> np.ndarray:
         """Supply current (A) at ``tau`` s after power-on (continuously powered)."""
         tau = np.asarray(tau, dtype=np.float64)
+        if self.stimulated:
+            return np.full(tau.shape, QUIESCENT[self.board.model])
         p = self.circuit()
         if self.board.model == "pf2":
             return astable.supply_current(p, tau)
@@ -210,6 +257,9 @@ class Unit:
 
 def _apply_defect(board: Board, values: dict[str, float], defect: str, rng: np.random.Generator) -> None:
     m = board.model
+    if m in STIMULATED:
+        _stimulated_defect(m, values, defect)
+        return
     if defect == "wrong_capacitor":
         caps = sorted(k for k in values if k.startswith("C"))
         values[caps[int(rng.integers(len(caps)))]] *= 2.2  # e.g. 22n fitted for 10n
@@ -228,6 +278,22 @@ def _apply_defect(board: Board, values: dict[str, float], defect: str, rng: np.r
             values[f"C{int(rng.integers(1, 4))}"] = OPEN_CAPACITOR
         else:
             values["R1"] = OPEN_RESISTOR
+
+
+def _stimulated_defect(model: str, values: dict[str, float], defect: str) -> None:
+    """The AA-1 and LP-2 faults: a capacitor of ten (AA-1 tone) or 2.2 (LP-2 C2) times its
+    value, a gain resistor of 1k0 fitted for 2k2, an open input coupling capacitor (its stray
+    capacitance left), and a rail clipping fault (the AA-1 output swing cut to 1.5 V, applied in
+    :meth:`Unit.circuit`)."""
+    if defect == "wrong_capacitor":
+        if model == "aa1":
+            values["Ct"] *= 10.0  # 100n fitted for 10n: the tone filter cuts at a tenth
+        else:
+            values["C2"] *= 2.2  # 22n fitted for 10n: lower f0, lower Q
+    elif defect == "wrong_gain_resistor":
+        values["Rg"] = 1.0e3  # 1k0 for 2k2: gain 23 instead of 11
+    elif defect == "open_coupling":
+        values["Cin"] = OPEN_CAPACITOR
 
 
 def draw_unit(board: str | Board, serial: str, defect: str | None = None) -> Unit:

@@ -56,3 +56,8 @@ class ScpiBackend(Protocol):
 
     def digitizer_record(self, rate: float, points: int) -> np.ndarray:
         """``points`` samples of the unit's output at ``rate`` Hz, in volts, starting now."""
+
+    # Optional (a backend without them has no generator input / one digitizer channel):
+    # ``generator_changed(settings: dict)`` — the emulated generator's waveform, frequency, vpp,
+    # offset, load and output changed; ``digitizer_channels_at(start, rate, points, channels)`` —
+    # ``points`` samples of each named channel at the same instants, shape (points, channels).

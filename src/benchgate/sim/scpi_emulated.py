@@ -1,4 +1,4 @@
-"""The four emulated SCPI instruments behind the loopback server (``sim.scpi_server``).
+"""The emulated SCPI instruments (supply, generator, DMM, counter, digitizer) behind the loopback server (``sim.scpi_server``).
 
 Each :class:`EmulatedInstrument` parses program messages (IEEE 488.2 common commands and
 SCPI-99 style headers with short/long forms and optional nodes), keeps a SCPI error queue and
@@ -188,6 +188,91 @@ class EmulatedSupply(EmulatedInstrument):
         self._notify()
 
 
+class EmulatedGenerator(EmulatedInstrument):
+    """A one-output function generator: SOURce FUNCtion / FREQuency / VOLTage (Vpp) / OFFSet,
+    OUTPut:LOAD and OUTPut[:STATe]. Every change is told to the backend (``generator_changed``)."""
+
+    role = "generator"
+    model = "SG1"
+    MAX_FREQUENCY = 1e6
+    MAX_VPP = 20.0
+    SHAPES = {"SIN": "sine", "SINUSOID": "sine", "SQU": "square", "SQUARE": "square",
+              "TRI": "triangle", "TRIANGLE": "triangle"}
+
+    def __init__(self, backend: ScpiBackend, clock: Clock | None = None, serial: str = "0001"):
+        super().__init__(backend, clock, serial)
+        self.add("[SOURce:]FUNCtion[:SHAPe]", False, self._set_shape)
+        self.add("[SOURce:]FUNCtion[:SHAPe]", True, lambda _a: self._shape_mnemonic(), False)
+        self.add("[SOURce:]FREQuency[:CW]", False, self._set_frequency)
+        self.add("[SOURce:]FREQuency[:CW]", True, lambda _a: f"{self.frequency:.12g}", False)
+        self.add("[SOURce:]VOLTage:UNIT", False, self._set_unit)
+        self.add("[SOURce:]VOLTage:UNIT", True, lambda _a: "VPP", False)
+        self.add("[SOURce:]VOLTage:OFFSet", False, self._set_offset)
+        self.add("[SOURce:]VOLTage:OFFSet", True, lambda _a: f"{self.offset:.6g}", False)
+        self.add("[SOURce:]VOLTage[:LEVel][:IMMediate][:AMPLitude]", False, self._set_vpp)
+        self.add("[SOURce:]VOLTage[:LEVel][:IMMediate][:AMPLitude]", True, lambda _a: f"{self.vpp:.6g}", False)
+        self.add("OUTPut:LOAD", False, self._set_load)
+        self.add("OUTPut:LOAD", True, lambda _a: "INF" if self.load is None else f"{self.load:.6g}", False)
+        self.add("OUTPut[:STATe]", False, self._set_output)
+        self.add("OUTPut[:STATe]", True, lambda _a: "1" if self.output else "0", False)
+
+    def reset(self) -> None:
+        self.shape, self.frequency, self.vpp, self.offset = "sine", 1000.0, 0.1, 0.0
+        self.load: float | None = None
+        self.output = False
+        self._notify()
+
+    def settings(self) -> dict:
+        return {"waveform": self.shape, "frequency": self.frequency, "vpp": self.vpp,
+                "offset": self.offset, "load": self.load, "output": self.output}
+
+    def _notify(self) -> None:
+        changed = getattr(self.backend, "generator_changed", None)
+        if changed is not None:
+            changed(self.settings())
+
+    def _shape_mnemonic(self) -> str:
+        return {"sine": "SIN", "square": "SQU", "triangle": "TRI"}[self.shape]
+
+    def _set_shape(self, arg: str | None) -> None:
+        key = (arg or "").strip().upper()
+        if key not in self.SHAPES:
+            raise ScpiCommandError(-224, f"unknown function {key!r}")
+        self.shape = self.SHAPES[key]
+        self._notify()
+
+    def _set_frequency(self, arg: str | None) -> None:
+        self.frequency = parse_number(arg or "", 1e-3, self.MAX_FREQUENCY)
+        self._notify()
+
+    def _set_unit(self, arg: str | None) -> None:
+        if (arg or "").strip().upper() != "VPP":
+            raise ScpiCommandError(-224, "only VPP is supported")
+
+    def _set_vpp(self, arg: str | None) -> None:
+        vpp = parse_number(arg or "", 0.0, self.MAX_VPP)
+        if abs(self.offset) + vpp / 2 > self.MAX_VPP / 2:
+            raise ScpiCommandError(-221, "amplitude and offset together exceed the output range")
+        self.vpp = vpp
+        self._notify()
+
+    def _set_offset(self, arg: str | None) -> None:
+        offset = parse_number(arg or "", -self.MAX_VPP / 2, self.MAX_VPP / 2)
+        if abs(offset) + self.vpp / 2 > self.MAX_VPP / 2:
+            raise ScpiCommandError(-221, "amplitude and offset together exceed the output range")
+        self.offset = offset
+        self._notify()
+
+    def _set_load(self, arg: str | None) -> None:
+        a = (arg or "").strip().upper()
+        self.load = None if a in ("INF", "INFINITY", "MAX") else parse_number(a, 1.0, 1e6)
+        self._notify()
+
+    def _set_output(self, arg: str | None) -> None:
+        self.output = parse_bool(arg or "")
+        self._notify()
+
+
 class EmulatedDmm(EmulatedInstrument):
     role = "dmm"
     model = "DM6"
@@ -213,6 +298,7 @@ class EmulatedDigitizer(EmulatedInstrument):
     model = "DG2"
     MAX_RATE = 10e6
     MAX_POINTS = 16_000_000
+    MAX_CHANNELS = 2
 
     def __init__(self, backend: ScpiBackend, clock: Clock | None = None, serial: str = "0001"):
         super().__init__(backend, clock, serial)
@@ -248,10 +334,17 @@ class EmulatedDigitizer(EmulatedInstrument):
         self.points = int(value)
 
     def _set_channel(self, arg: str | None) -> None:
-        name = (arg or "").strip().strip("\"'")
-        if not re.fullmatch(r"[A-Za-z][A-Za-z0-9_]{0,11}", name):
-            raise ScpiCommandError(-224, f"bad channel name {name!r}")
-        self.channel = name
+        """One channel name, or up to :data:`MAX_CHANNELS` separated by commas (sampled at the
+        same instants; the block then interleaves them sample by sample)."""
+        names = [n.strip().strip("\"'") for n in (arg or "").split(",")]
+        if not 1 <= len(names) <= self.MAX_CHANNELS or len(set(names)) != len(names):
+            raise ScpiCommandError(-224, f"one to {self.MAX_CHANNELS} distinct channels, got {arg!r}")
+        for name in names:
+            if not re.fullmatch(r"[A-Za-z][A-Za-z0-9_]{0,11}", name):
+                raise ScpiCommandError(-224, f"bad channel name {name!r}")
+        if len(names) > 1 and not hasattr(self.backend, "digitizer_channels_at"):
+            raise ScpiCommandError(-221, "this input has one channel only")
+        self.channel = ",".join(names)
 
     def _set_range(self, arg: str | None) -> None:
         self.range = parse_number(arg or "", 0.01, 100.0)
@@ -273,7 +366,7 @@ class EmulatedDigitizer(EmulatedInstrument):
         self._armed_at = self.clock.monotonic()
         self._block = None
         self._done_at = self._armed_at + self.points / self.rate
-        if hasattr(self.backend, "digitizer_record_at"):
+        if "," in self.channel or hasattr(self.backend, "digitizer_record_at"):
             # the capture is taken when the acquisition completes, so whatever happens to the
             # unit while it runs (e.g. the supply switched on) is in it
             self._record = _PENDING
@@ -288,7 +381,12 @@ class EmulatedDigitizer(EmulatedInstrument):
         if remaining > 0:
             self.clock.sleep(remaining)
         if self._record is _PENDING:
-            self._record = self._clip(self.backend.digitizer_record_at(self._armed_at, self.rate, self.points))
+            if "," in self.channel:  # several channels: (points, channels), interleaved by sample
+                names = tuple(self.channel.split(","))
+                block = self.backend.digitizer_channels_at(self._armed_at, self.rate, self.points, names)
+                self._record = self._clip(np.asarray(block, dtype=np.float64).reshape(-1))
+            else:
+                self._record = self._clip(self.backend.digitizer_record_at(self._armed_at, self.rate, self.points))
 
     def operation_complete(self) -> str:
         if self._record is not None:
@@ -318,6 +416,7 @@ def definite_block(data: bytes) -> bytes:
 
 EMULATED = {
     "supply": EmulatedSupply,
+    "generator": EmulatedGenerator,
     "dmm": EmulatedDmm,
     "counter": EmulatedCounter,
     "digitizer": EmulatedDigitizer,

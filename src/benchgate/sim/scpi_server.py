@@ -25,7 +25,7 @@ from benchgate.clock import Clock, SystemClock
 from benchgate.sim.interfaces import ScpiBackend
 from benchgate.sim.scpi_emulated import EMULATED, EmulatedInstrument, EmulatedSupply
 
-ROLES: tuple[str, ...] = ("supply", "dmm", "counter", "digitizer")
+ROLES: tuple[str, ...] = ("supply", "generator", "dmm", "counter", "digitizer")
 HOST = "127.0.0.1"
 
 
@@ -70,6 +70,30 @@ class ConstantBackend:
     def digitizer_record(self, rate: float, points: int) -> np.ndarray:
         t = np.arange(points) / rate
         return self.amplitude * np.sin(2 * math.pi * self.frequency * t) + self.offset
+
+    # -- the generator and a two-channel response (a fixed gain and phase shift)
+    generator: dict | None = None
+    response_gain = 2.0
+    response_phase_deg = -45.0
+
+    def generator_changed(self, settings: dict) -> None:
+        self.generator = dict(settings)
+
+    def digitizer_channels_at(self, start: float, rate: float, points: int,
+                              channels: tuple[str, ...]) -> np.ndarray:
+        """The first channel sees the generator's sine (zero while its output is off), the
+        others that sine times ``response_gain``, shifted by ``response_phase_deg``."""
+        g = self.generator or {}
+        t = np.arange(points) / rate
+        on = bool(g.get("output"))
+        amp = 0.5 * float(g.get("vpp", 0.0)) if on else 0.0
+        f = float(g.get("frequency", 1000.0))
+        offset = float(g.get("offset", 0.0)) if on else 0.0
+        cols = [amp * np.sin(2 * math.pi * f * t) + offset]
+        shift = math.radians(self.response_phase_deg)
+        for _ in channels[1:]:
+            cols.append(self.response_gain * amp * np.sin(2 * math.pi * f * t + shift))
+        return np.column_stack(cols)
 
 
 @dataclass

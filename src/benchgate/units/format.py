@@ -6,7 +6,7 @@ import math
 
 _PREFIXES = [(1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""), (1e-3, "m"), (1e-6, "µ"), (1e-9, "n"), (1e-12, "p")]
 # Units printed without an SI prefix: they are ratios or already scaled.
-_NO_PREFIX = {"%", "dB", "dBc", "bits", "ppm", ""}
+_NO_PREFIX = {"%", "dB", "dBc", "bits", "ppm", "", "deg", "V/V"}
 
 
 def format_quantity(value: float | None, unit: str, digits: int = 4) -> str:

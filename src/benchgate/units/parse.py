@@ -57,6 +57,9 @@ UNIT_ALIASES: dict[str, str] = {
     "bits": "bits",
     "bit": "bits",
     "Hz/s": "Hz/s",
+    "V/V": "V/V",
+    "deg": "deg",
+    "\u00b0": "deg",  # DEGREE SIGN
 }
 
 #: canonical unit -> what it measures, for error messages.
@@ -72,11 +75,13 @@ DIMENSIONS: dict[str, str] = {
     "H": "inductance",
     "bits": "number of bits",
     "Hz/s": "frequency drift",
+    "V/V": "voltage ratio",
+    "deg": "angle in degrees",
     "": "plain number",
 }
 
 # Units that take no SI prefix (a prefix letter before them is an error).
-_NO_PREFIX = {"%", "dB", "bits"}
+_NO_PREFIX = {"%", "dB", "bits", "deg", "V/V"}
 
 _NUMBER = r"[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?"
 _QUANTITY_RE = re.compile(rf"^\s*({_NUMBER})\s*(.*?)\s*$")
