@@ -45,7 +45,7 @@ class TestGainStage:
         c = derive.Circuit("gain_stage", {"type": "noninverting"},
                            {"Rf": Part(47e3, Tolerance(0.01, 0.01, True), "Ω"),
                             "Rg": Part(4.7e3, Tolerance(0.01, 0.01, True), "Ω")})
-        d = derive.analyse(c, "gain", unit="V/V")
+        d = derive.analyze(c, "gain", unit="V/V")
         assert d.low == pytest.approx(1 + 47e3 * 0.99 / (4.7e3 * 1.01))
         assert d.high == pytest.approx(1 + 47e3 * 1.01 / (4.7e3 * 0.99))
         assert d.low <= d.monte_carlo["min"] and d.monte_carlo["max"] <= d.high
@@ -70,8 +70,8 @@ class TestRcFilter:
                            {"R": Part(10e3, Tolerance(0.05, 0.05, True), "Ω"),
                             "C": Part(10e-9, Tolerance(0.1, 0.1, True), "F")})
         with pytest.raises(ValueError, match="gives f_3db_high, not f_3db_low"):
-            derive.analyse(c, "f_3db_low")
-        d = derive.analyse(c, "f_3db_high")
+            derive.analyze(c, "f_3db_low")
+        d = derive.analyze(c, "f_3db_high")
         assert d.low == pytest.approx(1 / (2 * math.pi * 10.5e3 * 11e-9))
         assert d.high == pytest.approx(1 / (2 * math.pi * 9.5e3 * 9e-9))
 
@@ -117,7 +117,7 @@ class TestSallenKey:
         c = derive.Circuit("sallen_key", {"form": "lowpass"},
                            {k: Part(v, Tolerance(tol[k], tol[k], True), "Ω" if k[0] == "R" else "F")
                             for k, v in nominal.items()})
-        d = derive.analyse(c, "f_3db_high", seed=3)
+        d = derive.analyze(c, "f_3db_high", seed=3)
         grid = [np.linspace(v * (1 - tol[k]), v * (1 + tol[k]), 5) for k, v in nominal.items()]
         vals = np.array(list(itertools.product(*grid)))
         f3 = stages.sallen_key(vals[:, 0], vals[:, 1], vals[:, 2], vals[:, 3])["f_3db_high"]

@@ -21,7 +21,7 @@ import numpy as np
 
 from benchgate.analysis import sinefit
 from benchgate.analysis._detect import detection_threshold
-from benchgate.analysis._validate import check_capture
+from benchgate.analysis._validate import validate_capture
 from benchgate.analysis.capture import Capture
 from benchgate.analysis.measurement import Measurement
 from benchgate.analysis.uncertainty import crlb_amplitude_std, expand, quantisation_std
@@ -93,11 +93,11 @@ class ResponseContext:
 
     @cached_property
     def ref_checked(self):
-        return check_capture(self.record.reference)
+        return validate_capture(self.record.reference)
 
     @cached_property
     def out_checked(self):
-        return check_capture(self.record.output)
+        return validate_capture(self.record.output)
 
 
 def get_response_context(record: Stimulated, context: ResponseContext | None) -> ResponseContext:
@@ -116,7 +116,7 @@ def _pair_problem(record: Stimulated) -> str | None:
     if ref.n != out.n or ref.start_time != out.start_time:
         return "the channels do not cover the same sample instants"
     for name, cap in (("reference", ref), ("output", out)):
-        checked = check_capture(cap)
+        checked = validate_capture(cap)
         if checked.fatal and not checked.flat:
             return f"{name} channel: {checked.fatal}"
     return None
@@ -133,7 +133,7 @@ def _fit(record: Stimulated) -> ToneFit:
     cycles = f * n / fs
     if cycles < MIN_CYCLES:
         return ToneFit(f"fewer than {MIN_CYCLES:g} stimulus cycles in the record ({cycles:.2f})")
-    ref_checked = check_capture(ref)
+    ref_checked = validate_capture(ref)
     if ref_checked.flat:
         return ToneFit("no stimulus on the reference channel (flat line)")
     if ref_checked.clipped:

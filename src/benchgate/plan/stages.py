@@ -11,7 +11,7 @@ Corner enumeration gives the extremes when each output is monotonic in each part
 stages and the first-order filter are (closed forms). The unity-gain Sallen–Key −3 dB frequency
 is monotonic in every part when C2·(R1+R2) > R2·C1 at the corner frequency (derived from
 ∂|D(jω)|²/∂R, with C2 the capacitor to ground), which holds for the usual designs (Q ≤ 0.7);
-for others the Monte Carlo comparison in :func:`benchgate.plan.derive.analyse` widens the
+for others the Monte Carlo comparison in :func:`benchgate.plan.derive.analyze` widens the
 window and says so.
 """
 
