@@ -141,8 +141,9 @@ def fake_runner(monkeypatch, plan):
     verdicts = {("steady", "frequency"): Verdict.FAIL, ("steady", "thd"): Verdict.INCONCLUSIVE,
                 ("power-on", "amplitude"): Verdict.ERROR, ("supply-current", None): None}
 
-    def run_unit(plan_, station, serial, options):
-        calls.append(SimpleNamespace(plan=plan_, station=station, serial=serial, options=options))
+    def run_unit(plan_, station, serial, options, attendant=None):
+        calls.append(SimpleNamespace(plan=plan_, station=station, serial=serial, options=options,
+                                     attendant=attendant))
         return SimpleNamespace(record=_fake_record(plan_, serial, verdicts),
                                paths={"html": Path("reports/x.html"), "json": Path("reports/x.json")},
                                exit_code=1)
@@ -172,7 +173,10 @@ def test_outcomes_map_to_pytest(plan_dir, pytester, fake_runner, plan):
     (call,) = fake_runner
     assert call.serial == "SN-7" and call.plan.id == plan.id
     o = call.options
-    assert (o.unattended, o.ui, o.accept_hazards, o.reports_dir) == (True, "quiet", True, Path("rep"))
+    assert (o.unattended, o.accept_hazards, o.reports_dir) == (True, True, Path("rep"))
+    from benchgate.pytest_plugin import PytestAttendant
+
+    assert isinstance(call.attendant, PytestAttendant)  # asks nobody, shows nothing while running
     assert (o.db_path, o.lot, o.clock) == (Path("db/r.sqlite"), "L9", None)
     suite, cases = _junit(junit)
     assert suite.get("failures") == "1" and suite.get("errors") == "3"
@@ -188,9 +192,10 @@ def test_outcomes_map_to_pytest(plan_dir, pytester, fake_runner, plan):
 def test_a_run_that_cannot_start_errors_every_item(plan_dir, pytester, monkeypatch, plan):
     import benchgate.runner as runner
     from benchgate.errors import PreflightError
+    from benchgate.runner.attendant import Hint
 
     def refuse(*a, **k):
-        raise PreflightError("plan has hazards: pass --accept-hazards for an unattended run")
+        raise PreflightError("hazards not acknowledged: plan has hazards", hint=Hint.ACCEPT_HAZARDS)
 
     monkeypatch.setattr(runner, "run_unit", refuse)
     (plan_dir / "station.yaml").unlink()
@@ -200,7 +205,10 @@ def test_a_run_that_cannot_start_errors_every_item(plan_dir, pytester, monkeypat
     monkeypatch.setattr(station_module, "load_station", lambda path: SimpleNamespace(id="fake"))
     result = pytester.runpytest("--bench-station", "station.yaml", "--bench-serial", "SN-8", "tb3.yaml")
     result.assert_outcomes(errors=len(_expected_ids(plan)))
-    assert "ERROR: benchgate could not run the plan: plan has hazards" in result.stdout.str()
+    out = result.stdout.str()
+    assert "ERROR: benchgate could not run the plan: hazards not acknowledged: plan has hazards" in out
+    # the plugin words the runner's hint with its own option, never the command line's
+    assert "--bench-accept-hazards accepts them" in out and " --accept-hazards" not in out
 
 
 # ------------------------------------------------------------------ a CI-style session on the understudy bench

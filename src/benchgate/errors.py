@@ -248,14 +248,19 @@ class CaptureError(BenchgateError):
 
 
 class PreflightError(BenchgateError):
-    """The run was refused before anything was touched (station, calibration, hazards)."""
+    """The run was refused before anything was touched (station, calibration, hazards).
+
+    ``hint`` names what a face could offer to get past it (``benchgate.runner.attendant.Hint``:
+    an option of its own, a button); the message itself never names one.
+    """
 
     exit_code = EXIT_USAGE
 
-    def __init__(self, message: str, where: str | None = None):
+    def __init__(self, message: str, where: str | None = None, hint: str | None = None):
         super().__init__(message)
         self.message = message
         self._where = where
+        self.hint = hint
 
     def where(self) -> str | None:
         return self._where

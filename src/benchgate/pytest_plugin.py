@@ -17,7 +17,7 @@ pytest *errors* (raised while setting the item up), so ``--junitxml`` shows them
 from __future__ import annotations
 
 import re
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
@@ -136,6 +136,62 @@ class PlanRun:
 
     outcome: Any = None
     error: str | None = None
+    notices: list[str] = field(default_factory=list)
+
+
+#: how this plugin words what the runner says a face could offer (runner.attendant.Hint)
+_HINTS = {
+    "accept_hazards": "--bench-accept-hazards accepts them for this run, and the report records it",
+    "allow_expired_calibration": "the station's calibration is past due; renew it to run under pytest",
+}
+
+
+class PytestAttendant:
+    """The pytest face of the person at the bench: nobody is asked (an unattended run); what
+    would be shown is kept for the terminal summary, and an alarm goes to stderr at once."""
+
+    def __init__(self) -> None:
+        self.lines: list[str] = []
+
+    def announce(self, notice: Any) -> None:
+        if notice.kind != "info":
+            self.lines.append(notice.line())
+
+    def alarm(self, text: str) -> None:
+        import sys
+
+        self.lines.append(text)
+        print(f"benchgate: {text}", file=sys.stderr, flush=True)
+
+    def run_started(self, record: Any, total_steps: int) -> None: ...
+    def step_started(self, index: int, total: int, step: Any) -> None: ...
+    def progress(self, fraction: float, text: str, time_left: float | None) -> None: ...
+    def check(self, check: Any) -> None: ...
+    def step_finished(self, step: Any) -> None: ...
+    def run_finished(self, record: Any, paths: Any) -> None: ...
+
+    def ask_yes_no(self, question: str) -> bool:
+        from benchgate.runner.attendant import NobodyAnswers
+
+        raise NobodyAnswers(question)
+
+    def wait_until_done(self, instruction: str) -> str:
+        from benchgate.runner.attendant import NobodyAnswers
+
+        raise NobodyAnswers(instruction)
+
+    def ask_retry(self, question: str) -> Any:
+        from benchgate.runner.attendant import NobodyAnswers
+
+        raise NobodyAnswers(question)
+
+    def ask_serial(self, prompt: str) -> str | None:
+        return None
+
+    def acknowledge(self, name: str, text: str) -> bool:
+        return False
+
+    def close(self) -> None: ...
 
 
 def _run_plan(config, plan) -> PlanRun:
@@ -144,6 +200,7 @@ def _run_plan(config, plan) -> PlanRun:
     from benchgate.instruments.station import load_station
 
     speed = config.getoption("bench_clock_speed")
+    attendant = PytestAttendant()
     try:
         station = load_station(config.getoption("bench_station"))
         clock = None
@@ -156,14 +213,16 @@ def _run_plan(config, plan) -> PlanRun:
             reports_dir=Path(config.getoption("bench_reports")),
             db_path=config.getoption("bench_db"),
             unattended=True, accept_hazards=bool(config.getoption("bench_accept_hazards")),
-            clock=clock, ui="quiet", extra_flags={"pytest": True})
-        outcome = runner.run_unit(plan, station, config.getoption("bench_serial"), options)
+            clock=clock, extra_flags={"pytest": True})
+        outcome = runner.run_unit(plan, station, config.getoption("bench_serial"), options,
+                                  attendant=attendant)
     except BenchgateError as exc:
         lines = exc.lines() if hasattr(exc, "lines") else [exc.one_line()]
-        return PlanRun(error="; ".join(lines))
+        hint = _HINTS.get(str(getattr(exc, "hint", None)))
+        return PlanRun(error="; ".join(lines) + (f" ({hint})" if hint else ""), notices=attendant.lines)
     except Exception as exc:  # noqa: BLE001 - every item must say why it has no result
-        return PlanRun(error=f"internal error: {type(exc).__name__}: {exc}")
-    return PlanRun(outcome=outcome)
+        return PlanRun(error=f"internal error: {type(exc).__name__}: {exc}", notices=attendant.lines)
+    return PlanRun(outcome=outcome, notices=attendant.lines)
 
 
 def _session_run(item: CheckItem) -> PlanRun:
@@ -237,6 +296,8 @@ def pytest_terminal_summary(terminalreporter, exitstatus, config):
     terminalreporter.section("benchgate")
     for plan_path, run in runs.items():
         name = Path(plan_path).name
+        for line in run.notices:
+            terminalreporter.write_line(f"{name}: {line}")
         if run.error is not None:
             terminalreporter.write_line(f"{name}: not run: {run.error}")
             continue

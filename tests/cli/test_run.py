@@ -300,7 +300,7 @@ def test_hazards_need_accept_flag_when_unattended_and_are_recorded(ubench, tmp_p
     assert main(base + ["--accept-hazards"]) == 0
     (row,) = rows(tmp_path / "r" / "results.sqlite")
     report = valid_report(row[4])
-    assert report["hazards_acknowledged"] == "--accept-hazards"
+    assert report["hazards_acknowledged"] == "accepted in advance for this run"
     assert report["hazards"] == ["hot_surfaces: The regulator <U1> reaches 70 °C; let it cool before handling."]
     conn = sqlite3.connect(tmp_path / "r" / "results.sqlite")
     assert conn.execute("SELECT accept_hazards FROM runs").fetchone() == (1,)

@@ -325,3 +325,38 @@ def services(bench, db=None):
     return Services(open_bench=lambda station, clock=None, roles=None: bench, save_capture=fake_save_capture,
                     analyze=fake_analyze, write_reports=fake_write_reports, layout=FakeLayout,
                     open_db=lambda path: db), db
+
+
+# ---------------------------------------------------------------- the person at the bench
+
+
+def no_input(prompt):
+    raise EOFError
+
+
+def terminal(read=no_input, display=None):
+    """The terminal face reading answers from ``read`` (a stand-in for stdin)."""
+    from benchgate.cli.terminal import QuietDisplay, Terminal
+
+    return Terminal(display or QuietDisplay(), read=read)
+
+
+class Recording:
+    """The terminal face on a display that keeps what it was told to show (``lines``)."""
+
+    def __new__(cls, read=no_input):
+        from benchgate.cli.terminal import QuietDisplay, Terminal
+
+        class _Keep(QuietDisplay):
+            def __init__(self):
+                self.lines = []
+
+            def announce(self, notice):
+                self.lines.append(notice.line())
+
+            def alarm(self, text):
+                self.lines.append(text)
+
+        face = Terminal(_Keep(), read=read)
+        face.lines = face.display.lines
+        return face

@@ -28,7 +28,7 @@ def lot(tmp_path_factory):
     svc = Services(open_bench=lambda station, clock=None, roles=None: bench, save_capture=fake_save_capture,
                    analyze=fake_analyze, write_reports=write_reports, layout=ReportLayout,
                    open_db=ResultsDB.open)
-    options = RunOptions(reports_dir=root / "reports", ui="quiet", clock=ManualClock(), operator="<b>op</b>")
+    options = RunOptions(reports_dir=root / "reports", clock=ManualClock(), operator="<b>op</b>")
     with Runner(standard_plan(), Station(), options, services=svc) as runner:
         outcomes = [runner.run(s) for s in HOSTILE]
     return root, options, outcomes
@@ -76,7 +76,7 @@ def test_blank_serial_is_refused_before_anything(tmp_path, serial):
 
     bench = make_bench()
     svc, db = services(bench)
-    options = RunOptions(reports_dir=tmp_path, ui="quiet", clock=ManualClock())
+    options = RunOptions(reports_dir=tmp_path, clock=ManualClock())
     with Runner(standard_plan(), Station(), options, services=svc) as runner:
         with pytest.raises(PreflightError, match="serial number is empty"):
             runner.run(serial)
@@ -92,13 +92,13 @@ class _Tty(io.StringIO):
 def test_markup_in_serial_operator_lot_and_reasons_is_shown_as_text(tmp_path, serial):
     from runner_fakes import services
 
-    from benchgate.runner.ui import RichDisplay
+    from benchgate.cli.terminal import RichDisplay, Terminal
 
     out = _Tty()
     svc, _ = services(make_bench(frequency=1100.0))  # fails: the reason reaches the display too
     options = RunOptions(reports_dir=tmp_path, clock=ManualClock(), operator="[/i]", lot="[blink]L")
     with Runner(standard_plan(cautions=("[/] keep [bold]clear",)), Station(), options, services=svc,
-                display=RichDisplay(out)) as runner:
+                attendant=Terminal(RichDisplay(out))) as runner:
         outcome = runner.run(serial)
     assert outcome.record.verdict.value == "fail" and outcome.exit_code == 1
     text = out.getvalue()
@@ -111,9 +111,10 @@ def test_display_fuzz_markup_and_control_text_never_raise():
     from types import SimpleNamespace
 
     from benchgate.analysis.measurement import Measurement
+    from benchgate.cli.terminal import RichDisplay
     from benchgate.judge.rules import Verdict
     from benchgate.plan.limits import Window
-    from benchgate.runner.ui import RichDisplay
+    from benchgate.runner.attendant import Notice
 
     rng = random.Random(9)
     alphabet = "[]/\\ab =#@:;,.!~|{}()<>'\"\x1b\t\n\r" + "bold red link on /"
@@ -130,7 +131,7 @@ def test_display_fuzz_markup_and_control_text_never_raise():
                                status="failed", error=text(), notes=["retry " + note], answer=None)
         check = SimpleNamespace(verdict=Verdict.FAIL, measurement=text(), reason=reason,
                                 result=Measurement.invalid("x", "V", "r" + text()), window=Window(unit="V", high=1.0))
-        d.info(text())
+        d.announce(Notice("caution", text()))
         d.alarm(text())
         d.run_started(rec, 3)
         d.step_started(1, 3, step)

@@ -14,27 +14,28 @@ from benchgate.runner.lock import StationLock
 
 def test_second_lock_is_refused_until_the_first_is_released(tmp_path):
     first = StationLock(Station(), tmp_path).acquire()
-    with pytest.raises(StationBusy, match=r"^station busy: station 'fake-bench' .*pid \d+"):
+    with pytest.raises(StationBusy, match=r"^station busy: the adc of station 'fake-bench' \(fake://\) .*pid \d+"):
         StationLock(Station(), tmp_path).acquire()
     first.release()
     with StationLock(Station(), tmp_path) as again:
         assert again.held
 
 
-def test_another_station_file_on_the_same_instruments_is_busy_too(tmp_path):
+def test_the_lock_is_on_the_instruments_not_the_station_name(tmp_path):
     with StationLock(Station(), tmp_path):
         copy = Station(id="renamed-copy")  # same instrument addresses under another id
-        with pytest.raises(StationBusy, match="instrument fake://"):
+        with pytest.raises(StationBusy, match="fake://"):
             StationLock(copy, tmp_path).acquire()
-        other = Station(id="other", instruments={"supply": InstrumentConfig("supply", address="fake://2")})
-        with StationLock(other, tmp_path) as lock:
+        other = Station(id="fake-bench", instruments={"supply": InstrumentConfig("supply", address="fake://2")})
+        with StationLock(other, tmp_path) as lock:  # the same id on other instruments (two simulated benches)
             assert lock.held
 
 
 def test_the_kernel_frees_the_lock_when_the_holder_dies(tmp_path):
     holder = subprocess.Popen(
         [sys.executable, "-c", "import sys, types; from benchgate.runner.lock import StationLock; "
-         "held = StationLock(types.SimpleNamespace(id='fake-bench', instruments={}), sys.argv[1]).acquire(); "
+         "cfg = types.SimpleNamespace(address='fake://'); "
+         "held = StationLock(types.SimpleNamespace(id='x', instruments={'adc': cfg}), sys.argv[1]).acquire(); "
          "print('locked', flush=True); sys.stdin.read()", str(tmp_path)],
         stdin=subprocess.PIPE, stdout=subprocess.PIPE, text=True)
     try:

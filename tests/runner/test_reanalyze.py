@@ -38,7 +38,7 @@ def load_capture(path):
 
 def stored_run(tmp_path):
     svc, _ = services(make_bench(frequency=1000.0))
-    with Runner(standard_plan(), Station(), RunOptions(reports_dir=tmp_path, ui="quiet", clock=ManualClock()),
+    with Runner(standard_plan(), Station(), RunOptions(reports_dir=tmp_path, clock=ManualClock()),
                 services=svc) as runner:
         return runner.run("SN7")
 

@@ -8,7 +8,7 @@ import pytest
 from runner_fakes import make_bench
 
 from benchgate.errors import InstrumentDisconnected
-from benchgate.runner.safety import SUPPLY_ALARM, StopRequested, StopSignals, make_safe
+from benchgate.runner.safety import SUPPLY_ALARM, StopRequested, StopSignals, safe_bench
 
 
 def stop_self(signum=signal.SIGINT):
@@ -60,38 +60,79 @@ def test_ignore_after_stop_leaves_the_signals_ignored():
         signal.signal(signal.SIGHUP, signal.SIG_DFL)
 
 
-def test_make_safe_retries_the_off_command_and_closes():
+def opened(bench):
+    return lambda: bench  # the fake bench is its own context manager
+
+
+def test_safe_bench_retries_the_off_command_and_closes():
     bench = make_bench()
-    bench.supply.on = True
-    bench.supply.fail_off = 2
-    notes = make_safe(bench, bench, None)
+    notes: list[str] = []
+    with safe_bench(opened(bench), notes=notes) as b:
+        b.supply.on = True
+        b.supply.fail_off = 2
     assert bench.supply.on is False and bench.exited
     assert [n.split(" (")[0] for n in notes] == ["supply output off failed"] * 2
 
 
-def test_make_safe_raises_the_alarm_when_the_supply_never_answers():
+def test_safe_bench_raises_the_alarm_when_the_supply_never_answers():
     bench = make_bench()
-    bench.supply.on = True
-    bench.supply.fail_off = 10
     alarms: list[str] = []
-    notes = make_safe(bench, bench, None, alarm=alarms.append)
+    notes: list[str] = []
+    with pytest.raises(RuntimeError, match="the step's own error"):
+        with safe_bench(opened(bench), notes=notes, alarm=alarms.append) as b:
+            b.supply.on = True
+            b.supply.fail_off = 10
+            raise RuntimeError("the step's own error")  # travels on unchanged
     (line,) = alarms
-    assert line.startswith("SWITCH THE SUPPLY OFF BY HAND") and line == SUPPLY_ALARM + line[len(SUPPLY_ALARM):]
-    assert line in notes
+    assert line.startswith(SUPPLY_ALARM + ": ") and line in notes
 
 
-def test_make_safe_does_not_wait_again_on_a_dead_link():
+def test_safe_bench_does_not_wait_again_on_a_dead_link():
     bench = make_bench()
-    bench.supply.on = True
     calls = []
 
     def dead(on):
         calls.append(bench.exited)
         raise InstrumentDisconnected("supply", "link given up")
 
-    bench.supply.output = dead
     alarms: list[str] = []
-    make_safe(bench, bench, None, alarm=alarms.append)
-    # one try by make_safe (retrying a dead link only costs time), then the bench's own exit
+    with safe_bench(opened(bench), notes=[], alarm=alarms.append):
+        bench.supply.output = dead
+    # one try here (retrying a dead link only costs time), then the bench's own exit
     assert calls == [False, True]
     assert len(alarms) == 1
+
+
+def test_safe_bench_shields_the_way_out_from_stop_signals():
+    bench = make_bench()
+    seen = []
+    with StopSignals() as signals:
+        original = bench.supply.output
+
+        def off_with_a_signal(on):
+            seen.append(signals.shielded)
+            stop_self(signal.SIGTERM)  # arrives while the supply is being switched off: only counted
+            original(on)
+
+        with pytest.raises(StopRequested):
+            with safe_bench(opened(bench), notes=[], signals=signals):
+                bench.supply.on = True
+                bench.supply.output = off_with_a_signal
+                stop_self(signal.SIGINT)
+    assert seen and all(seen) and bench.supply.on is False and bench.exited
+    assert signals.deferred == len(seen)
+
+
+def test_close_errors_are_notes_not_the_outcome():
+    bench = make_bench()
+
+    class Failing(type(bench)):
+        def __exit__(self, *exc):
+            super().__exit__(*exc)
+            raise OSError("port already gone")
+
+    failing = Failing(bench.instruments)
+    notes: list[str] = []
+    with safe_bench(lambda: failing, notes=notes):
+        pass
+    assert notes == ["closing the instruments: port already gone"]

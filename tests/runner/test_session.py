@@ -12,8 +12,10 @@ from runner_fakes import (
     Step,
     freq_window,
     make_bench,
+    no_input,
     services,
     standard_plan,
+    terminal,
 )
 
 from benchgate.clock import ManualClock
@@ -23,12 +25,13 @@ from benchgate.runner.options import RunOptions
 from benchgate.runner.session import Runner
 
 
-def run(plan, bench, tmp_path, serial="SN1", db=None, **opts):
+def run(plan, bench, tmp_path, serial="SN1", db=None, ask=no_input, ui="quiet", **opts):
+    from benchgate.cli.terminal import make_display
+
     svc, db = services(bench, db)
-    opts.setdefault("ui", "quiet")
     opts.setdefault("clock", ManualClock())
     options = RunOptions(reports_dir=tmp_path, **opts)
-    with Runner(plan, Station(), options, services=svc) as runner:
+    with Runner(plan, Station(), options, services=svc, attendant=terminal(ask, make_display(ui))) as runner:
         outcome = runner.run(serial)
     return outcome, db
 
@@ -235,7 +238,7 @@ def test_bench_that_cannot_open_is_error_with_row(tmp_path):
 
     svc, db = services(make_bench())
     svc = Services(**{**svc.__dict__, "open_bench": refuse})
-    with Runner(standard_plan(), Station(), RunOptions(reports_dir=tmp_path, ui="quiet"),
+    with Runner(standard_plan(), Station(), RunOptions(reports_dir=tmp_path),
                 services=svc) as runner:
         outcome = runner.run("SN9")
     assert outcome.record.verdict == Verdict.ERROR and "no such port" in outcome.record.reason
@@ -259,7 +262,7 @@ def test_guarded_rule_near_limit_is_inconclusive(tmp_path):
 
 def test_one_db_for_many_units(tmp_path):
     svc, db = services(make_bench())
-    with Runner(standard_plan(), Station(), RunOptions(reports_dir=tmp_path, ui="quiet",
+    with Runner(standard_plan(), Station(), RunOptions(reports_dir=tmp_path,
                                                       clock=ManualClock()), services=svc) as runner:
         outcomes = [runner.run(f"SN{i}") for i in range(3)]
     assert len(db.rows) == 3 and all(r["complete"] for r in db.rows.values())
@@ -292,7 +295,7 @@ def test_junit_lists_every_unit_of_the_session(tmp_path):
 
     svc, _ = services(make_bench())
     junit = tmp_path / "junit.xml"
-    options = RunOptions(reports_dir=tmp_path, ui="quiet", clock=ManualClock(), junit=junit)
+    options = RunOptions(reports_dir=tmp_path, clock=ManualClock(), junit=junit)
     with Runner(standard_plan(), Station(), options, services=svc) as runner:
         first = runner.run("J1")
         assert first.paths["junit"] == junit
@@ -321,7 +324,7 @@ def test_unwritable_events_file_is_one_clear_error(tmp_path):
     blocker = tmp_path / "file"
     blocker.write_text("x")
     svc, db = services(make_bench())
-    options = RunOptions(reports_dir=tmp_path / "r", ui="quiet", events=blocker / "events.jsonl")
+    options = RunOptions(reports_dir=tmp_path / "r", events=blocker / "events.jsonl")
     with pytest.raises(PreflightError) as err:
         Runner(standard_plan(), Station(), options, services=svc)
     assert "events" in err.value.one_line() and db.rows == {}

@@ -34,7 +34,7 @@ def test_thousand_units_rows_and_memory(tmp_path):
     svc = Services(open_bench=lambda station, clock=None, roles=None: bench, save_capture=save_capture,
                    analyze=fake_analyze, write_reports=_json_only_reports, layout=ReportLayout,
                    open_db=ResultsDB.open)
-    options = RunOptions(reports_dir=tmp_path, ui="quiet", clock=ManualClock(), unattended=True)
+    options = RunOptions(reports_dir=tmp_path, clock=ManualClock(), unattended=True)
     plan = standard_plan()
     with Runner(plan, Station(), options, services=svc) as runner:
         for i in range(100):  # warm up caches, imports, the database's page cache

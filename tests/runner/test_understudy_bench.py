@@ -35,7 +35,7 @@ def ubench(tmp_path_factory):
 def run_units(vb, plan, tmp_path, units, **opts):
     from benchgate.instruments.station import load_station
 
-    options = RunOptions(reports_dir=tmp_path / "reports", unattended=True, clock=vb.clock, ui="quiet", **opts)
+    options = RunOptions(reports_dir=tmp_path / "reports", unattended=True, clock=vb.clock, **opts)
     out = []
     with Runner(plan, load_station(vb.station_path), options) as runner:
         for serial, defect in units:
@@ -188,7 +188,7 @@ def test_scpi_error_during_setup_reports_the_code(plan, tmp_path):
             def __exit__(self, *exc):
                 return self.cm.__exit__(*exc)
 
-        options = RunOptions(reports_dir=tmp_path / "r", unattended=True, clock=vb.clock, ui="quiet",
+        options = RunOptions(reports_dir=tmp_path / "r", unattended=True, clock=vb.clock,
                              open_bench=InjectAfterOpen)
         vb.load_unit("OH-SCPI-1")
         with Runner(plan, load_station(vb.station_path), options) as runner:
@@ -203,17 +203,17 @@ def test_scpi_error_during_setup_reports_the_code(plan, tmp_path):
 
 def test_supply_stops_answering_mid_run(plan, tmp_path):
     from benchgate.instruments.station import load_station
-    from benchgate.runner.ui import QuietDisplay
+    from benchgate.runner.attendant import Silent
 
     with _fresh_bench(tmp_path) as vb:
-        class DropOnReading(QuietDisplay):
+        class DropOnReading(Silent):
             def step_started(self, index, total, step):
                 if step.id == "supply-current":
                     vb.faults.scpi.drop("supply")  # the next reply never comes
 
         options = RunOptions(reports_dir=tmp_path / "r", unattended=True, clock=vb.clock)
         vb.load_unit("OH-LOST-1")
-        with Runner(plan, load_station(vb.station_path), options, display=DropOnReading()) as runner:
+        with Runner(plan, load_station(vb.station_path), options, attendant=DropOnReading()) as runner:
             outcome = runner.run("OH-LOST-1")
         assert vb.supply_output is False  # the off command after the timeout got through
     rec = outcome.record

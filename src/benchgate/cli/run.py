@@ -6,6 +6,12 @@ import argparse
 import os
 import sys
 from pathlib import Path
+from typing import TYPE_CHECKING
+
+if TYPE_CHECKING:
+    from benchgate.errors import PreflightError
+    from benchgate.runner.attendant import Attendant
+    from benchgate.runner.safety import StopSignals
 
 EPILOG = ("Exit codes: 0 every check passed, 1 a check failed, 2 plan/station/usage error or "
           "station busy (nothing was run), 3 error or inconclusive (could not decide), 130 aborted "
@@ -57,7 +63,7 @@ def is_unattended(args) -> bool:
     return os.environ.get("CI", "").strip().lower() == "true" and not tty
 
 
-def run(args) -> int:
+def run(args: argparse.Namespace) -> int:
     from benchgate.runner.safety import StopRequested, StopSignals
 
     # The one signal handler of the run (SIGINT, SIGTERM, SIGHUP): the runner uses it too. Once a
@@ -71,11 +77,38 @@ def run(args) -> int:
             return stop.exit_code
 
 
-def _run(args, signals) -> int:
+#: how this command words what the runner says a face could offer (runner.attendant.Hint)
+HINTS = {
+    "accept_hazards": "--accept-hazards accepts them for this run, and the report records it",
+    "allow_expired_calibration": "--allow-expired-calibration runs anyway, and the report and database "
+                                 "record it",
+    "serial_needed": "give --serial",
+}
+
+
+def _with_hint(exc: PreflightError) -> PreflightError:
+    """The runner's refusal with this command's own hint added."""
+    from benchgate.errors import PreflightError
+
+    if exc.hint is None or str(exc.hint) not in HINTS:
+        return exc
+    return PreflightError(f"{exc.message} ({HINTS[str(exc.hint)]})", where=exc.where(), hint=exc.hint)
+
+
+def make_attendant(args: argparse.Namespace, unattended: bool) -> Attendant:
+    """The terminal face (a person at stdin) or the unattended one (CI), on the chosen display."""
+    from benchgate.cli.terminal import Terminal, Unattended, make_display
+
+    display = make_display(args.display, unattended=unattended)
+    return Unattended(display) if unattended else Terminal(display)
+
+
+def _run(args: argparse.Namespace, signals: StopSignals) -> int:
     from benchgate.errors import PreflightError
     from benchgate.instruments.station import load_station
     from benchgate.plan import load_plan
-    from benchgate.runner.batch import read_serial, run_batch
+    from benchgate.runner.attendant import Notice
+    from benchgate.runner.batch import run_batch
     from benchgate.runner.options import RunOptions, check_serial, worst_exit_code
     from benchgate.runner.session import Runner
 
@@ -100,18 +133,21 @@ def _run(args, signals) -> int:
         db_path=args.db, unattended=unattended,
         accept_hazards=args.accept_hazards, allow_expired_calibration=args.allow_expired_calibration,
         events=None if args.events is None else Path(args.events),
-        junit=None if args.junit is None else Path(args.junit), clock=clock,
-        ui=args.display, extra_flags=flags)
-    with Runner(plan, station, options, signals=signals) as runner:
+        junit=None if args.junit is None else Path(args.junit), clock=clock, extra_flags=flags)
+    try:
+        runner = Runner(plan, station, options, attendant=make_attendant(args, unattended), signals=signals)
+    except PreflightError as exc:
+        raise _with_hint(exc) from None
+    with runner:
         if args.batch:
-            outcomes = run_batch(runner, runner.ask_operator, runner.display.info)
+            outcomes = run_batch(runner)
             if not outcomes:
-                runner.display.info("no units tested")
+                runner.hooks.announce(Notice("info", "no units tested"))
                 return 0
             return worst_exit_code([o.exit_code for o in outcomes])
         serial = args.serial
         if serial is None:
-            serial = read_serial(runner.ask_operator, "serial number (scan or type): ")
+            serial = runner.attendant.ask_serial("serial number (scan or type): ")
             if serial is None:
                 raise PreflightError("no serial number given")
         return runner.run(serial).exit_code

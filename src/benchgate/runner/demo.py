@@ -147,7 +147,7 @@ def run_demo(*, units: int = 14, speed: float = 4.0, reports_dir: Path | None = 
                      f"plan {plan.id} v{plan.version}; lot {lot}, {len(lot_units)} units; "
                      f"time runs x{speed:g}; {vb.adc_note}")
         options = RunOptions(operator="demo", lot=lot, reports_dir=reports_dir, unattended=True,
-                             accept_hazards=True, clock=vb.clock, ui="quiet",
+                             accept_hazards=True, clock=vb.clock,
                              extra_flags={"demo": True, "clock_speed": speed})
         with Runner(plan, station, options) as runner:
             for index, unit in enumerate(lot_units, 1):

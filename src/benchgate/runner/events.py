@@ -10,8 +10,15 @@ from __future__ import annotations
 import datetime as _dt
 import json
 import math
+from collections.abc import Mapping
 from pathlib import Path
-from typing import Any, TextIO
+from typing import TYPE_CHECKING, Any, TextIO
+
+from benchgate.runner.attendant import Notice
+
+if TYPE_CHECKING:
+    from benchgate.plan.model import Step
+    from benchgate.record import CheckRecord, StepRecord, UnitRecord
 
 
 def _now() -> str:
@@ -42,26 +49,26 @@ class EventLog:
         self._file.write(json.dumps(obj, ensure_ascii=False, default=str) + "\n")
         self._file.flush()
 
-    # hooks, same names as the displays'
-    def info(self, text: str) -> None:
-        self.emit("message", text=text)
+    # the RunListener calls, as the attendant gets them
+    def announce(self, notice: Notice) -> None:
+        self.emit("message", kind=notice.kind, text=notice.text)
 
     def alarm(self, text: str) -> None:
         self.emit("alarm", text=text)
 
-    def run_started(self, record: Any, total_steps: int) -> None:
+    def run_started(self, record: UnitRecord, total_steps: int) -> None:
         self._run_id, self._serial = record.run_id, record.serial
         self.emit("run_started", plan=record.plan_id, plan_version=record.plan_version,
                   plan_hash=record.plan_hash, station=record.station_id, lot=record.lot,
                   operator=record.operator, steps=total_steps)
 
-    def step_started(self, index: int, total: int, step: Any) -> None:
+    def step_started(self, index: int, total: int, step: Step) -> None:
         self.emit("step_started", step=step.id, kind=step.kind, title=step.title, index=index, of=total)
 
     def progress(self, fraction: float, text: str, time_left: float | None) -> None:
         pass  # too chatty for a log; the step events carry the progress
 
-    def check(self, check: Any) -> None:
+    def check(self, check: CheckRecord) -> None:
         m = check.result
         self.emit("check", step=check.step_id, measurement=check.measurement,
                   value=None if m is None else _num(m.value),
@@ -69,30 +76,15 @@ class EventLog:
                   unit=check.window.unit, low=check.window.low, high=check.window.high,
                   verdict=check.verdict.value, reason=check.reason)
 
-    def step_finished(self, step: Any) -> None:
+    def step_finished(self, step: StepRecord) -> None:
         self.emit("step_finished", step=step.id, status=step.status, attempts=step.attempts,
                   error=step.error)
 
-    def run_finished(self, record: Any, paths: dict) -> None:
+    def run_finished(self, record: UnitRecord, paths: Mapping[str, Path]) -> None:
         self.emit("run_finished", verdict=record.verdict.value, reason=record.reason,
                   report=str(paths.get("json")) if paths.get("json") else None)
-
-    def pause(self) -> None: ...
 
     def close(self) -> None:
         if self._file is not None:
             self._file.close()
             self._file = None
-
-
-class Hooks:
-    """Fans each hook out to several listeners (the display and the event log)."""
-
-    def __init__(self, *listeners: Any):
-        self.listeners = [x for x in listeners if x is not None]
-
-    def __getattr__(self, name: str):
-        def call(*args: Any, **kw: Any) -> None:
-            for listener in self.listeners:
-                getattr(listener, name)(*args, **kw)
-        return call

@@ -13,24 +13,40 @@ from __future__ import annotations
 
 import datetime as _dt
 import os
-import threading
 from collections.abc import Callable
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any, TypeVar, cast
 
+from benchgate.analysis.capture import Capture
 from benchgate.analysis.measurement import Measurement
 from benchgate.errors import BenchgateError, InstrumentDisconnected, StepError
-from benchgate.instruments.base import Digitizer, take_reading
+from benchgate.instruments.base import take_reading
 from benchgate.judge.rules import Verdict, combine, judge
-from benchgate.record import CaptureRecord, CheckRecord, StepRecord
+from benchgate.record import CaptureRecord, CheckRecord, StepRecord, UnitRecord
+from benchgate.runner.acquire import POWER_CYCLE_OFF_S, Acquisition, Recorder
 from benchgate.runner.adaptive import acquire_adaptive
+from benchgate.runner.attendant import Attendant, RunListener
 from benchgate.runner.safety import as_stop
 
-#: how long (clock seconds) a unit is left unpowered before a repeated start-up capture
-POWER_CYCLE_OFF_S = 0.5
+if TYPE_CHECKING:
+    from benchgate.clock import Clock
+    from benchgate.instruments import Bench
+    from benchgate.instruments.base import Supply
+    from benchgate.plan.model import (
+        CaptureStep,
+        Check,
+        Plan,
+        PromptStep,
+        ReadingStep,
+        Step,
+        SupplyStep,
+        WaitStep,
+    )
+    from benchgate.report.layout import ReportLayout
 
-_YES = ("y", "yes")
-_NO = ("n", "no")
+__all__ = ["POWER_CYCLE_OFF_S", "Executor", "StepError", "error_reason", "step_status", "utc_now"]
+
+T = TypeVar("T")
 
 #: step kind -> ``run(executor, step, step_record, attempt)``, for kinds added by registration
 #: (:func:`register_step`); the built-in kinds are the executor's ``_do_<kind>`` methods.
@@ -54,8 +70,8 @@ class Executor:
     Analysis`` are passed in, so the executor does not care where they come from.
     """
 
-    def __init__(self, plan: Any, bench: Any, record: Any, layout: Any, *, hooks: Any, clock: Any,
-                 ask: Callable[[str], str], unattended: bool,
+    def __init__(self, plan: Plan, bench: Bench | None, record: UnitRecord, layout: ReportLayout, *,
+                 hooks: RunListener, clock: Clock, attendant: Attendant, unattended: bool,
                  save_capture: Callable[..., str], analyze: Callable[..., Any]):
         self.plan = plan
         self.bench = bench
@@ -63,11 +79,11 @@ class Executor:
         self.layout = layout
         self.hooks = hooks
         self.clock = clock
-        self.ask = ask
+        self.attendant = attendant
         self.unattended = unattended
         self.save_capture = save_capture
         self.analyze = analyze
-        self.captures: dict[str, Any] = {}  # step id -> Capture (the attempt the record names)
+        self.captures: dict[str, Capture] = {}  # step id -> Capture (the attempt the record names)
         self.capture_paths: dict[str, Path] = {}  # file key -> path, every attempt
         self.current: StepRecord | None = None
         if not record.steps:
@@ -108,7 +124,28 @@ class Executor:
         srec.ended = utc_now()
         self.hooks.step_finished(srec)
 
-    def _run_step(self, step: Any, srec: StepRecord) -> None:
+    @property
+    def _bench(self) -> Bench:
+        if self.bench is None:
+            raise RuntimeError("the executor runs steps on an open bench only")
+        return self.bench
+
+    def _do(self, step: Step, srec: StepRecord, attempt: int) -> None:
+        """One attempt of ``step`` (its kind says which class the loader made of it)."""
+        if step.kind == "supply":
+            self._do_supply(cast("SupplyStep", step), srec)
+        elif step.kind == "wait":
+            self._do_wait(cast("WaitStep", step))
+        elif step.kind == "prompt":
+            self._do_prompt(cast("PromptStep", step), srec)
+        elif step.kind == "reading":
+            self._do_reading(cast("ReadingStep", step), srec)
+        elif step.kind == "capture":
+            self._do_capture(cast("CaptureStep", step), srec, attempt)
+        else:
+            raise StepError(step.id, f"unknown step kind {step.kind!r}")
+
+    def _run_step(self, step: Step, srec: StepRecord) -> None:
         srec.started = utc_now()
         attempt = 0
         while True:
@@ -117,10 +154,10 @@ class Executor:
             srec.checks = []
             srec.error = None
             registered = STEP_RUNNERS.get(step.kind)
-            if registered is not None:
+            if registered is not None:  # a kind added by registration (the generator-driven ones)
                 registered(self, step, srec, attempt)
             else:
-                getattr(self, f"_do_{step.kind}")(step, srec, attempt)
+                self._do(step, srec, attempt)
             srec.status = step_status(srec)
             if srec.status == "done" or attempt > step.retries:
                 break
@@ -130,27 +167,26 @@ class Executor:
                 break
         srec.ended = utc_now()
 
-    def _confirm_retry(self, step: Any, srec: StepRecord, attempt: int) -> bool:
+    def _confirm_retry(self, step: Step, srec: StepRecord, attempt: int) -> bool:
         text = step.retry_prompt or f"Step {step.id} did not pass; try again?"
         if self.unattended:
             srec.notes.append(f"retry {attempt}: unattended, retried without asking ({text})")
             return True
-        self.hooks.pause()
-        answer = self._read(step, f"{text} [Enter = retry, n = stop] ")
-        if answer.strip().casefold() in _NO:
+        reply = self._answer(step, lambda: self.attendant.ask_retry(text))
+        if not reply.yes:
             return False
-        srec.notes.append(f"retry {attempt}: {text}" + (f" (operator: {answer.strip()})" if answer.strip() else ""))
+        srec.notes.append(f"retry {attempt}: {text}" + (f" (operator: {reply.remark})" if reply.remark else ""))
         return True
 
-    def _read(self, step: Any, prompt: str) -> str:
+    def _answer(self, step: Step, question: Callable[[], T]) -> T:
         try:
-            return self.ask(prompt)
-        except EOFError:
+            return question()
+        except EOFError:  # NobodyAnswers too
             raise StepError(step.id, "no operator input (end of input) while the step waited for an answer") from None
 
     # ------------------------------------------------------------------ step kinds
-    def _do_supply(self, step: Any, srec: StepRecord, attempt: int) -> None:
-        supply = self.bench["supply"]
+    def _do_supply(self, step: SupplyStep, srec: StepRecord) -> None:
+        supply: Supply = self._bench["supply"]
         done = []
         if step.voltage is not None:
             supply.set_voltage(step.voltage)
@@ -163,7 +199,7 @@ class Executor:
             done.append("output on" if step.output else "output off")
         srec.notes.append("supply: " + (", ".join(done) or "unchanged"))
 
-    def _do_wait(self, step: Any, srec: StepRecord, attempt: int) -> None:
+    def _do_wait(self, step: WaitStep) -> None:
         self.sleep(step.seconds, f"wait {step.seconds:g} s")
 
     def sleep(self, seconds: float, text: str) -> None:
@@ -176,30 +212,23 @@ class Executor:
             done = (i + 1) / chunks
             self.hooks.progress(done, text, seconds * (1 - done))
 
-    def _do_prompt(self, step: Any, srec: StepRecord, attempt: int) -> None:
+    def _do_prompt(self, step: PromptStep, srec: StepRecord) -> None:
         if self.unattended:
             if step.unattended_answer is None:
                 raise StepError(step.id, f"prompt {step.text!r} needs an operator, and the plan gives no "
                                          "unattended_answer for it, so an unattended run cannot go on")
             answer = str(step.unattended_answer)
             srec.notes.append("answered by the plan's unattended_answer")
+        elif step.ask:
+            answer = "yes" if self._answer(step, lambda: self.attendant.ask_yes_no(step.text)) else "no"
         else:
-            self.hooks.pause()
-            if step.ask:
-                while True:
-                    answer = self._read(step, f"{step.text} [y/n] ").strip().casefold()
-                    if answer in _YES or answer in _NO:
-                        answer = "yes" if answer in _YES else "no"
-                        break
-                    self.hooks.info("please answer y or n")
-            else:
-                answer = self._read(step, f"{step.text} [Enter when done] ").strip()
+            answer = self._answer(step, lambda: self.attendant.wait_until_done(step.text)).strip()
         srec.answer = answer
         if step.ask and step.expect is not None and answer.casefold() != str(step.expect).casefold():
             srec.error = f"answer {answer!r} to {step.text!r} (the run goes on only with {step.expect!r})"
 
-    def _do_reading(self, step: Any, srec: StepRecord, attempt: int) -> None:
-        instrument = self.bench[step.instrument]
+    def _do_reading(self, step: ReadingStep, srec: StepRecord) -> None:
+        instrument = self._bench[step.instrument]
         if step.settle:
             self.sleep(step.settle, f"settle {step.settle:g} s")
         measurement = take_reading(instrument, step.quantity)
@@ -207,15 +236,17 @@ class Executor:
             m = measurement if measurement.name == check.measurement else _renamed(measurement, check.measurement)
             self._judge(step, srec, check, m)
 
-    def _do_capture(self, step: Any, srec: StepRecord, attempt: int) -> None:
-        instrument = self.bench[step.instrument]
+    def _do_capture(self, step: CaptureStep, srec: StepRecord, attempt: int) -> None:
+        recorder: Recorder = self._bench[step.instrument]
         key = step.id if attempt == 1 else f"{step.id}-{attempt}"
+        supply: Supply | None = self._bench["supply"] if step.power_on else None
         try:
             if getattr(step, "adaptive", None) is not None:  # record in blocks, stop once decided
-                capture = acquire_adaptive(instrument, step, self.plan.decision, getattr(self.plan, "max_risk", None),
+                capture = acquire_adaptive(recorder, step, self.plan.decision, getattr(self.plan, "max_risk", None),
                                            self.analyze, self._capture_progress(step))
             else:
-                capture = self._acquire(step, instrument, srec)
+                capture = Acquisition(step, recorder, supply=supply, clock=self.clock, hooks=self.hooks,
+                                      notes=srec.notes, sleep=self.sleep).take()
         except InstrumentDisconnected as exc:
             if exc.partial is not None and getattr(exc.partial, "n", 0) > 0:
                 self._keep(step, srec, key, exc.partial.with_metadata(partial=True), [])
@@ -240,111 +271,13 @@ class Executor:
         for check in step.checks:
             self._judge(step, srec, check, measurements.get(check.measurement))
 
-    def _capture_progress(self, step: Any) -> Callable[..., None]:
+    def _capture_progress(self, step: CaptureStep) -> Callable[[float, str], None]:
         def progress(fraction: float, text: str = "") -> None:
             self.hooks.progress(fraction, f"capture {step.channel}", step.duration * (1 - fraction))
         return progress
 
-    def _acquire(self, step: Any, instrument: Any, srec: StepRecord):
-        first: list[float] = []  # clock time and fraction delivered at the first progress report
-
-        def progress(fraction: float, text: str = "") -> None:
-            if not first:  # a driver's report at 0 marks the start of acquisition itself
-                first.extend((self.clock.monotonic(), float(fraction)))
-            if fraction > 0:  # samples are arriving: the recorder really runs
-                started.set()
-            self.hooks.progress(fraction, f"capture {step.channel}", step.duration * (1 - fraction))
-
-        started = threading.Event()
-        kwargs: dict[str, Any] = {"duration": step.duration, "rate": step.rate, "progress": progress}
-        if getattr(step, "range", None) is not None and isinstance(instrument, Digitizer):
-            kwargs["range"] = step.range  # an ADC's range is fixed by its reference
-        if not step.power_on:
-            return instrument.capture(step.channel, **kwargs)
-        # Acquisition first, then the supply: the capture must hold the start-up transient. The
-        # driver's first progress call means samples are arriving; only then is the supply
-        # switched on (never before, which could hide a slow start behind the capture's start).
-        self._power_down_first(srec)
-        if isinstance(instrument, Digitizer):  # a triggered recorder: its capture starts when armed
-            return self._acquire_armed(step, instrument, srec, kwargs)
-        result: dict[str, Any] = {}
-
-        def work() -> None:
-            try:
-                result["capture"] = instrument.capture(step.channel, **kwargs)
-            except BaseException as exc:  # handed to the main thread below
-                result["error"] = exc
-
-        worker = threading.Thread(target=work, name=f"capture-{step.id}", daemon=True)
-        worker.start()
-        while not started.is_set() and worker.is_alive():
-            started.wait(timeout=0.02)
-        power_on: dict[str, float] = {}
-        if started.is_set() and "error" not in result:
-            t_sent = self.clock.monotonic()
-            self.bench["supply"].output(True)
-            t_ack = self.clock.monotonic()
-            t_first, delivered = first
-            # Where the switch-on falls in the capture's own time: the part already delivered at
-            # the first progress report, plus the clock time from then to the middle of the
-            # output command; half the command's duration bounds where in it the output rose.
-            # The analysis times the start-up from this instant (``power_on_at``).
-            power_on["power_on_at"] = delivered * step.duration + (t_sent - t_first) + (t_ack - t_sent) / 2
-            power_on["power_on_halfwidth"] = (t_ack - t_sent) / 2
-            srec.notes.append(
-                f"supply output switched on {(t_ack - t_first) * 1e3:.1f} ms after the first samples "
-                f"arrived, {power_on['power_on_at'] * 1e3:.1f} ms ± {power_on['power_on_halfwidth'] * 1e3:.1f} ms "
-                "into the capture; start-up is timed from there")
-        while worker.is_alive():
-            worker.join(timeout=0.05)
-        if "error" in result:
-            raise result["error"]
-        if not started.is_set():
-            srec.notes.append("the recorder reported no progress; the supply was not switched on")
-        capture = result["capture"]
-        return capture.with_metadata(**power_on) if power_on else capture
-
-    def _acquire_armed(self, step: Any, instrument: Any, srec: StepRecord, kwargs: dict[str, Any]):
-        """Power-on capture with a digitizer: set up, arm, switch the supply on, wait, fetch.
-
-        The capture starts somewhere inside the arm command, the switch-on somewhere inside the
-        output command; ``power_on_at`` is the middle of the interval that leaves, and
-        ``power_on_halfwidth`` its half-width.
-        """
-        instrument.setup(step.channel, duration=step.duration, rate=step.rate, range=kwargs.get("range"))
-        t_arm = self.clock.monotonic()
-        instrument.arm()
-        t_armed = self.clock.monotonic()
-        self.hooks.progress(0.0, f"capture {step.channel}", step.duration)
-        t_sent = self.clock.monotonic()
-        self.bench["supply"].output(True)
-        t_ack = self.clock.monotonic()
-        earliest, latest = t_sent - t_armed, t_ack - t_arm
-        power_on = {"power_on_at": (earliest + latest) / 2, "power_on_halfwidth": (latest - earliest) / 2}
-        srec.notes.append(
-            f"supply output switched on {power_on['power_on_at'] * 1e3:.1f} ms ± "
-            f"{power_on['power_on_halfwidth'] * 1e3:.1f} ms after the {step.instrument} was armed; "
-            "start-up is timed from there")
-        instrument.wait()
-        capture = instrument.to_capture(instrument.fetch())
-        self.hooks.progress(1.0, f"capture {step.channel}", 0.0)
-        return capture.with_metadata(**power_on)
-
-    def _power_down_first(self, srec: StepRecord) -> None:
-        """A start-up capture needs an unpowered unit (a retry finds the supply on): power cycle."""
-        supply = self.bench["supply"]
-        try:
-            on = bool(supply.output_state())
-        except Exception:  # cannot tell: switch off to be sure
-            on = True
-        if on:
-            supply.output(False)
-            srec.notes.append(f"supply output switched off for {POWER_CYCLE_OFF_S:g} s before the "
-                              "start-up capture (the unit must start from unpowered)")
-            self.sleep(POWER_CYCLE_OFF_S, "power off before the start-up capture")
-
     # ------------------------------------------------------------------ helpers
-    def _keep(self, step: Any, srec: StepRecord, key: str, capture: Any, warnings: list[str]) -> None:
+    def _keep(self, step: CaptureStep, srec: StepRecord, key: str, capture: Capture, warnings: list[str]) -> None:
         path = Path(self.layout.capture_path(key))
         path.parent.mkdir(parents=True, exist_ok=True)
         sha = self.save_capture(capture, path)
@@ -355,7 +288,7 @@ class Executor:
             sample_rate=capture.sample_rate, samples=capture.n, instrument=step.instrument,
             warnings=list(warnings), metadata=dict(capture.metadata))
 
-    def _judge(self, step: Any, srec: StepRecord, check: Any, measurement: Measurement | None) -> None:
+    def _judge(self, step: Step, srec: StepRecord, check: Check, measurement: Measurement | None) -> None:
         cv = judge(measurement, check.window, self.plan.decision, getattr(self.plan, "max_risk", None))
         rec = CheckRecord(step_id=step.id, measurement=check.measurement, window=check.window,
                           result=measurement, verdict=cv.verdict, reason=cv.reason, rule=cv.rule,
@@ -369,7 +302,7 @@ def _renamed(m: Measurement, name: str) -> Measurement:
                        reason=m.reason, details=m.details)
 
 
-def wrong_answer_stops(step: Any, srec: StepRecord) -> bool:
+def wrong_answer_stops(step: Step, srec: StepRecord) -> bool:
     """A prompt answered against its ``expect`` stops the unit unless the plan says
     ``on_wrong_answer: continue`` for that step."""
     return (step.kind == "prompt" and srec.status == "failed"

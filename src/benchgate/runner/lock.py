@@ -2,10 +2,11 @@
 
 A second ``benchgate run`` on a station that is already testing a unit must not open the supply
 (opening resets it and switches its output off, which would cut the power of the unit under
-test). :class:`StationLock` takes an exclusive, non-blocking ``flock`` on one lock file for the
-station id and one for each instrument address of the station (so a copied station file under
-another id is caught too). The kernel releases the locks when the process ends, however it ends
-(``kill -9`` included): a lock file left behind never blocks the next run.
+test). :class:`StationLock` takes an exclusive, non-blocking ``flock`` on one lock file for each
+instrument address of the station (a serial port by its real path), so a copy of the station
+file under another id is caught too, while two simulated benches (which share a station id but
+not their ports) never block each other. The kernel releases the locks when the process ends,
+however it ends (``kill -9`` included): a lock file left behind never blocks the next run.
 
 The lock files live in ``$BENCHGATE_RUNTIME_DIR``, else ``$XDG_RUNTIME_DIR/benchgate``, else
 ``<temp dir>/benchgate-<uid>``: runs by the same user on one machine exclude each other.
@@ -46,13 +47,17 @@ def lock_name(kind: str, key: str) -> str:
 
 
 def station_keys(station: Any) -> list[tuple[str, str]]:
-    """(kind, key) of every lock a station needs: its id and each instrument's address."""
-    keys = [("station", str(station.id))]
-    for config in getattr(station, "instruments", {}).values():
-        address = getattr(config, "address", None)
-        if address:
-            keys.append(("instrument", str(address)))
-    return list(dict.fromkeys(keys))
+    """(role, key) of every lock a station needs: one per instrument address (serial ports by
+    their real path, so a symlink and its target are one port)."""
+    keys: dict[str, str] = {}
+    for role, config in sorted(getattr(station, "instruments", {}).items()):
+        address = str(getattr(config, "address", "") or "")
+        if not address:
+            continue
+        if address.startswith("/"):
+            address = os.path.realpath(address)
+        keys.setdefault(address, role)
+    return [(role, address) for address, role in keys.items()]
 
 
 class StationLock:
@@ -73,8 +78,8 @@ class StationLock:
         except OSError as exc:
             raise PreflightError(f"cannot create the lock folder: {exc.strerror}",
                                  where=str(self.directory)) from exc
-        for kind, key in self.keys:
-            path = self.directory / lock_name(kind, key)
+        for role, key in self.keys:
+            path = self.directory / lock_name("instrument", key)
             try:
                 handle = open(path, "a+", encoding="utf-8")  # noqa: SIM115 - kept open while locked
             except OSError as exc:
@@ -86,9 +91,8 @@ class StationLock:
                 holder = _holder(handle)
                 handle.close()
                 self.release()
-                what = f"station {self.station_id!r}" if kind == "station" else f"instrument {key}"
-                raise StationBusy(f"station busy: {what} is in use by another benchgate run"
-                                  f"{holder}; nothing was touched") from None
+                raise StationBusy(f"station busy: the {role} of station {self.station_id!r} ({key}) is in "
+                                  f"use by another benchgate run{holder}; nothing was touched") from None
             handle.seek(0)
             handle.truncate()
             handle.write(f"{os.getpid()}\n")

@@ -19,12 +19,17 @@ from __future__ import annotations
 
 import datetime as _dt
 from collections.abc import Callable
+from contextlib import AbstractContextManager
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from benchgate.errors import PreflightError
 from benchgate.judge.rules import Verdict
+
+if TYPE_CHECKING:
+    from benchgate.clock import Clock
+    from benchgate.record import UnitRecord
 
 EXIT_PASS = 0
 EXIT_FAIL = 1
@@ -77,7 +82,6 @@ def check_serial(serial: str | None) -> str:
 class RunOptions:
     """How to run a plan on a unit.
 
-    ``ask`` reads one line of operator input for a prompt (default :func:`input`).
     ``open_bench`` opens the station's instruments (default
     :func:`benchgate.instruments.open_station`); tests and the soak pass a fake.
     ``today`` is the date calibration is judged against (default: today, UTC).
@@ -92,10 +96,8 @@ class RunOptions:
     allow_expired_calibration: bool = False
     events: Path | None = None
     junit: Path | None = None
-    clock: Any = None
-    ui: str = "auto"
-    ask: Callable[[str], str] | None = None
-    open_bench: Callable[..., Any] | None = None
+    clock: Clock | None = None
+    open_bench: Callable[..., AbstractContextManager[Any]] | None = None
     today: _dt.date | None = None
     extra_flags: dict[str, Any] = field(default_factory=dict)
 
@@ -103,8 +105,6 @@ class RunOptions:
         self.reports_dir = Path(self.reports_dir)
         if self.db_path is not None and not str(self.db_path).lower().startswith(("postgresql://", "postgres://")):
             self.db_path = Path(self.db_path)
-        if self.ui not in ("auto", "rich", "plain", "quiet"):
-            raise ValueError(f"ui must be auto, rich, plain or quiet, got {self.ui!r}")
 
     @property
     def database(self) -> Path:
@@ -118,7 +118,7 @@ class RunOptions:
 class RunOutcome:
     """One unit's run: the record, the files written (json, html, junit, captures…), the exit code."""
 
-    record: Any  # benchgate.record.UnitRecord
+    record: UnitRecord
     paths: dict[str, Path]
     exit_code: int
 

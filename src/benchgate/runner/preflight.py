@@ -2,24 +2,30 @@
 
 1. The station provides every instrument role the plan ``requires`` (and every role a step uses).
 2. No instrument's calibration is past due, unless the run allows it (then it is recorded).
-3. The plan's cautions are shown; each hazard needs a typed acknowledgement — the operator types
-   the hazard's name or ``yes I understand`` — or ``accept_hazards`` (recorded either way).
+3. The plan's cautions are shown; each hazard needs the operator's acknowledgement (each face asks
+   in its own way) or ``accept_hazards`` (recorded either way).
 """
 
 from __future__ import annotations
 
 import datetime as _dt
-from collections.abc import Callable
+from collections.abc import Iterator
 from dataclasses import dataclass, field
-from typing import Any
+from typing import TYPE_CHECKING
 
 from benchgate.errors import PreflightError
+from benchgate.runner.attendant import Attendant, Hint, Notice
 from benchgate.runner.options import RunOptions
 
-ACK_PHRASE = "yes I understand"
+if TYPE_CHECKING:
+    from benchgate.instruments.station import Calibration, Station
+    from benchgate.plan.model import Plan
+
+#: how hazards accepted before the run (``RunOptions.accept_hazards``) are recorded
+ACCEPTED_IN_ADVANCE = "accepted in advance for this run"
 
 
-def roles_used(plan: Any) -> frozenset[str]:
+def roles_used(plan: Plan) -> frozenset[str]:
     """Instrument roles the plan needs: its ``requires`` plus those its steps name."""
     roles = set(plan.requires)
     for step in plan.steps:
@@ -41,7 +47,7 @@ class Preflight:
     hazards_acknowledged: str | None = None
 
 
-def check_station(plan: Any, station: Any) -> frozenset[str]:
+def check_station(plan: Plan, station: Station) -> frozenset[str]:
     """Raise :class:`PreflightError` naming every role the station lacks; return the roles used."""
     roles = roles_used(plan)
     provided = frozenset(station.instruments)
@@ -55,7 +61,7 @@ def check_station(plan: Any, station: Any) -> frozenset[str]:
     return roles
 
 
-def _calibrations(role: str, cal: Any):
+def _calibrations(role: str, cal: Calibration | None) -> Iterator[tuple[str, Calibration]]:
     if cal is None:
         return
     channels = getattr(cal, "channels", None) or {}
@@ -65,7 +71,7 @@ def _calibrations(role: str, cal: Any):
         yield f"{role} (channel {channel})", sub
 
 
-def expired_calibrations(station: Any, roles: frozenset[str], today: _dt.date) -> list[str]:
+def expired_calibrations(station: Station, roles: frozenset[str], today: _dt.date) -> list[str]:
     """Each instrument (or ADC channel) among ``roles`` whose calibration is past due."""
     out = []
     for role in sorted(roles):
@@ -78,7 +84,7 @@ def expired_calibrations(station: Any, roles: frozenset[str], today: _dt.date) -
     return out
 
 
-def first_expired_position(station: Any, roles: frozenset[str], today: _dt.date) -> str:
+def first_expired_position(station: Station, roles: frozenset[str], today: _dt.date) -> str:
     """file:line of the first instrument with an expired calibration (or the station file)."""
     for role in sorted(roles):
         config = station.instruments.get(role)
@@ -90,8 +96,7 @@ def first_expired_position(station: Any, roles: frozenset[str], today: _dt.date)
     return str(station.path)
 
 
-def acknowledge_hazards(plan: Any, options: RunOptions, ask: Callable[[str], str],
-                        show: Callable[[str], None]) -> str | None:
+def acknowledge_hazards(plan: Plan, options: RunOptions, attendant: Attendant) -> str | None:
     """Get the acknowledgement of every hazard, or raise :class:`PreflightError`.
 
     Returns how the hazards were acknowledged (for the record), None when there are none.
@@ -100,40 +105,33 @@ def acknowledge_hazards(plan: Any, options: RunOptions, ask: Callable[[str], str
     if not hazards:
         return None
     for hazard in hazards:
-        show(f"HAZARD {hazard.name}: {hazard.text}")
+        attendant.announce(Notice("hazard", f"{hazard.name}: {hazard.text}"))
     if options.accept_hazards:
-        return "--accept-hazards"
+        return ACCEPTED_IN_ADVANCE
+    names = ", ".join(h.name for h in hazards)
     if options.unattended:
-        names = ", ".join(h.name for h in hazards)
-        raise PreflightError(
-            f"plan {plan.id!r} has hazards ({names}); an unattended run needs --accept-hazards",
-            where=plan.path,
-        )
+        raise PreflightError(f"hazards not acknowledged: plan {plan.id!r} has hazards ({names}) and an "
+                             "unattended run has nobody to acknowledge them; nothing was switched on",
+                             where=str(plan.path), hint=Hint.ACCEPT_HAZARDS)
     for hazard in hazards:
-        try:
-            typed = ask(f"Type {hazard.name!r} or {ACK_PHRASE!r} to acknowledge: ")
-        except EOFError:
-            typed = ""
-        if typed.strip().casefold() not in (hazard.name.casefold(), ACK_PHRASE.casefold()):
+        if not attendant.acknowledge(hazard.name, hazard.text):
             raise PreflightError(f"hazard {hazard.name!r} was not acknowledged; nothing was switched on",
-                                 where=plan.path)
+                                 where=str(plan.path), hint=Hint.ACCEPT_HAZARDS)
     return "typed by operator"
 
 
-def preflight(plan: Any, station: Any, options: RunOptions, ask: Callable[[str], str],
-              show: Callable[[str], None]) -> Preflight:
+def preflight(plan: Plan, station: Station, options: RunOptions, attendant: Attendant) -> Preflight:
     """Run every check before the bench is touched (see the module docstring)."""
     roles = check_station(plan, station)
     expired = expired_calibrations(station, roles, options.today_utc())
     if expired and not options.allow_expired_calibration:
-        raise PreflightError(
-            "; ".join(expired) + "; nothing was switched on (--allow-expired-calibration runs anyway, "
-            "and the report and database record it)",
-            where=first_expired_position(station, roles, options.today_utc()),
-        )
+        raise PreflightError("; ".join(expired) + "; nothing was switched on",
+                             where=first_expired_position(station, roles, options.today_utc()),
+                             hint=Hint.ALLOW_EXPIRED_CALIBRATION)
     for caution in plan.cautions:
-        show(f"CAUTION: {caution}")
+        attendant.announce(Notice("caution", caution))
     for line in expired:
-        show(f"WARNING: {line}; running anyway (--allow-expired-calibration)")
-    ack = acknowledge_hazards(plan, options, ask, show)
+        attendant.announce(Notice("warning", f"{line}; running anyway (expired calibration allowed for "
+                                             "this run, recorded)"))
+    ack = acknowledge_hazards(plan, options, attendant)
     return Preflight(roles=roles, expired=expired, hazards_acknowledged=ack)

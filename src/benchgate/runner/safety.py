@@ -5,18 +5,20 @@ SIGINT (Ctrl-C), SIGTERM (a cancelled CI job, ``timeout``, ``kill``) and SIGHUP 
 terminal). The first one raises :class:`StopRequested` where the run is, so the unit stops
 there; every later one — and any that arrives while :attr:`StopSignals.shielded` is set for the
 safe-state sequence and the evidence — is only counted: nothing can cut the supply-off command
-or the reports short. :func:`make_safe` switches the supply and the generator off (retrying a lost
-command, not a dead link) and closes the bench through its own context manager.
+:func:`safe_bench` opens the bench as one context manager that switches the supply and the
+generator off (retrying a lost command, not a dead link) and closes it, whatever happened.
 """
 
 from __future__ import annotations
 
 import signal
 import threading
-from collections.abc import Callable
-from contextlib import AbstractContextManager
+from collections.abc import Callable, Iterator
+from contextlib import AbstractContextManager, contextmanager
 from types import FrameType
-from typing import Any, Protocol
+from typing import Any, Protocol, TypeVar
+
+B = TypeVar("B")
 
 #: the signals that stop a run, and how the run's reason names them
 STOP_SIGNALS: dict[int, str] = {
@@ -116,6 +118,8 @@ class _Supply(Protocol):
 
 
 class _OpenBench(Protocol):
+    """What the safe-state sequence needs of an open bench."""
+
     def get(self, role: str, default: Any = None) -> Any: ...
 
 
@@ -126,64 +130,77 @@ def link_is_dead(err: BaseException) -> bool:
     return isinstance(err, InstrumentDisconnected)
 
 
-def _switch_off(bench: _OpenBench | None, role: str, attempts: int,
-                notes: list[str]) -> tuple[bool, BaseException | None]:
-    """Switch the output of ``role`` off (retrying a lost command, not a dead link)."""
-    inst: _Supply | None = None
-    if bench is not None:
-        try:
-            inst = bench.get(role)
-        except Exception:  # a broken bench object: the context manager still closes it
-            inst = None
+#: the outputs made safe on the way out, and the console line when one cannot be confirmed off
+OUTPUTS = (("supply", SUPPLY_ALARM), ("generator", GENERATOR_ALARM))
+
+
+def switch_off(bench: _OpenBench, notes: list[str], role: str = "supply", attempts: int = 3) -> BaseException | None:
+    """Switch the output of ``role`` off (a lost command is retried up to ``attempts`` times; a
+    link that no longer answers is not waited on again). Returns the last error when it could not
+    be confirmed off, None when it is off (or there is no such instrument); notes every failed
+    attempt."""
+    try:
+        inst: _Supply | None = bench.get(role)
+    except Exception:  # a broken bench object: its own exit still closes it
+        inst = None
     if inst is None:
-        return True, None
-    last_error: BaseException | None = None
+        return None
+    last: BaseException | None = None
     for attempt in range(1, attempts + 1):
         try:
             inst.output(False)
-            return True, None
+            return None
         except Exception as err:  # keep trying: this is the one command that must get through
-            last_error = err
+            last = err
             notes.append(f"{role} output off failed (attempt {attempt}): {err}")
             if link_is_dead(err):
                 break
-    return False, last_error
+    return last
 
 
-def make_safe(bench_cm: AbstractContextManager[Any] | None, bench: _OpenBench | None,
-              exc: BaseException | None, attempts: int = 3,
-              alarm: Callable[[str], None] | None = None) -> list[str]:
-    """Switch the supply and generator outputs off and close the bench; returns notes on
-    anything that went wrong.
+@contextmanager
+def safe_bench(opener: Callable[[], AbstractContextManager[B]], *, notes: list[str],
+               signals: StopSignals | None = None,
+               alarm: Callable[[str], None] | None = None) -> Iterator[B]:
+    """The open bench, as one context manager that always leaves it safe.
 
-    Each output is switched off here first (a lost command is retried up to ``attempts`` times; a
-    link that no longer answers is not waited on again) and again by the bench's own exit, so one
-    lost command cannot leave the unit powered or driven. When an output cannot be confirmed off,
-    ``alarm`` is called with one line starting with :data:`SUPPLY_ALARM` or
-    :data:`GENERATOR_ALARM`.
+    On the way out, whatever happened: stop signals are held back (``signals.shielded``), the
+    supply and generator outputs are switched off here (:func:`switch_off`) and again by the
+    bench's own exit, which closes every instrument. What went wrong on the way out is appended
+    to ``notes`` (closing errors do not change how the block ended); when an output could not be
+    confirmed off, ``alarm`` gets one line starting with :data:`SUPPLY_ALARM` or
+    :data:`GENERATOR_ALARM`. An error while opening propagates (the bench's opener has closed
+    what it opened).
     """
-    notes: list[str] = []
-    confirmed, last_error = _switch_off(bench, "supply", attempts, notes)
-    gen_confirmed, gen_error = _switch_off(bench, "generator", attempts, notes)
-    close_error: BaseException | None = None
-    if bench_cm is not None:
-        try:
-            if exc is None:
-                bench_cm.__exit__(None, None, None)
-            else:
-                bench_cm.__exit__(type(exc), exc, exc.__traceback__)
-        except Exception as err:
-            close_error = err
-            notes.append(f"closing the instruments: {err}")
-        for err in getattr(bench, "close_errors", None) or ():
-            if err is not close_error and f"closing the instruments: {err}" not in notes:
+    opened: B | None = None
+    body_error: BaseException | None = None
+    unconfirmed: dict[str, BaseException] = {}
+    try:
+        with opener() as bench:
+            opened = bench
+            try:
+                yield bench
+            except BaseException as exc:
+                body_error = exc
+                raise
+            finally:
+                if signals is not None:
+                    signals.shielded = True
+                for role, _ in OUTPUTS:
+                    err = switch_off(bench, notes, role)
+                    if err is not None:
+                        unconfirmed[role] = err
+    except BaseException as exc:
+        if opened is None or exc is body_error:
+            raise
+        notes.append(f"closing the instruments: {exc}")  # the bench's own exit failed
+    finally:
+        for err in getattr(opened, "close_errors", None) or ():
+            if f"closing the instruments: {err}" not in notes:
                 notes.append(f"closing the instruments: {err}")
-    for ok, err, head, what in ((confirmed, last_error, SUPPLY_ALARM, "supply"),
-                                (gen_confirmed, gen_error, GENERATOR_ALARM, "generator")):
-        if not ok:
-            why = f" ({err})" if err is not None else ""
-            line = f"{head}: the {what} did not confirm that its output is off{why}"
-            notes.append(line)
-            if alarm is not None:
-                alarm(line)
-    return notes
+        for role, head in OUTPUTS:
+            if opened is not None and role in unconfirmed:
+                line = f"{head}: the {role} did not confirm that its output is off ({unconfirmed[role]})"
+                notes.append(line)
+                if alarm is not None:
+                    alarm(line)

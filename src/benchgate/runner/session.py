@@ -3,23 +3,25 @@
 For every unit, whatever happens: a database row inserted at the start and completed at the end,
 the supply output switched off, and a JSON + HTML report written. A lost instrument makes the
 unit ``error`` with the reason; Ctrl-C, SIGTERM or SIGHUP make it ``aborted`` (exit 130, 143,
-129). The station is locked for the runner's life (:mod:`benchgate.runner.lock`).
+129). The station is locked for the runner's life (:mod:`benchgate.runner.lock`). Everything
+the run needs from the person at the bench goes through its :class:`~benchgate.runner.attendant.Attendant`.
 """
 
 from __future__ import annotations
 
 import uuid
-from collections.abc import Callable
+from collections.abc import Callable, Iterable, Mapping
+from contextlib import AbstractContextManager, ExitStack
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any, Protocol
 
 from benchgate import __version__
-from benchgate.analysis.context import NO_OSCILLATION
 from benchgate.errors import BenchgateError, PreflightError
-from benchgate.judge.rules import Verdict, combine
+from benchgate.judge.rules import Verdict
 from benchgate.record import InstrumentRecord, UnitRecord
-from benchgate.runner.events import EventLog, Hooks
+from benchgate.runner.attendant import Attendant, Fanout, Notice, Silent
+from benchgate.runner.events import EventLog
 from benchgate.runner.execute import Executor, error_reason, utc_now
 from benchgate.runner.lock import StationLock
 from benchgate.runner.options import (
@@ -29,99 +31,91 @@ from benchgate.runner.options import (
     exit_code_for,
     is_abort_code,
 )
-from benchgate.runner.preflight import preflight
-from benchgate.runner.safety import StopSignals, as_stop, make_safe
-from benchgate.runner.ui import make_display
+from benchgate.runner.preflight import ACCEPTED_IN_ADVANCE, preflight
+from benchgate.runner.safety import StopSignals, as_stop, safe_bench
+from benchgate.runner.verdict import unit_verdict
 
-_STEP_VERDICT = {"failed": Verdict.FAIL, "error": Verdict.ERROR, "aborted": Verdict.ABORTED}
+if TYPE_CHECKING:
+    from benchgate.analysis.capture import Capture
+    from benchgate.clock import Clock
+    from benchgate.instruments import Bench, InstrumentFacts
+    from benchgate.instruments.station import Station
+    from benchgate.plan.model import Plan
+    from benchgate.report.layout import ReportLayout
+
+__all__ = ["Runner", "Services", "run_unit", "unit_verdict"]
+
+
+class ResultsStore(Protocol):
+    """What the runner needs of the results database."""
+
+    def begin_run(self, record: UnitRecord) -> None: ...
+    def finish_run(self, record: UnitRecord, report_path: str | None) -> None: ...
+    def close(self) -> None: ...
 
 
 @dataclass
 class Services:
     """The other parts of benchgate the runner calls (swappable for tests)."""
 
-    open_bench: Callable[..., Any]
-    save_capture: Callable[..., str]
+    open_bench: Callable[..., AbstractContextManager[Bench]]
+    save_capture: Callable[[Capture, Path], str]
     analyze: Callable[..., Any]
-    write_reports: Callable[..., dict]
-    layout: Callable[..., Any]
-    open_db: Callable[[Path], Any]
+    write_reports: Callable[[UnitRecord, ReportLayout, Mapping[str, Capture]], dict[str, Path]]
+    layout: Callable[[Path, str, str, str], ReportLayout]
+    open_db: Callable[[Path], ResultsStore]
 
     @classmethod
     def default(cls, options: RunOptions) -> Services:
         from benchgate.analysis import analyze
         from benchgate.capfile import save_capture
+        from benchgate.instruments import open_station
         from benchgate.report import write_reports
         from benchgate.report.layout import ReportLayout
         from benchgate.store import open_results
 
-        open_bench = options.open_bench
-        if open_bench is None:
-            from benchgate.instruments import open_station as open_bench
-        return cls(open_bench=open_bench, save_capture=save_capture, analyze=analyze,
+        return cls(open_bench=options.open_bench or open_station, save_capture=save_capture, analyze=analyze,
                    write_reports=write_reports, layout=ReportLayout,
                    # the one setting (option, BENCHGATE_DB, default) decides; see store/setting.py
                    open_db=lambda _: open_results(options.db_path,
                                                   local_default=options.reports_dir / "results.sqlite"))
 
 
-def _default_ask(prompt: str) -> str:
-    return input(prompt)
-
-
 class Runner:
-    """Runs ``plan`` on ``station`` for one unit after another, sharing one database and display.
+    """Runs ``plan`` on ``station`` for one unit after another, sharing one database and attendant.
 
-    Preflight (station, calibration, cautions, hazards) happens once, when the runner is made,
-    before anything is touched; it raises :class:`~benchgate.errors.PreflightError`.
+    The station is locked first; then preflight (station, calibration, cautions, hazards) happens
+    once, before anything is touched; it raises :class:`~benchgate.errors.PreflightError`.
+    ``attendant`` is the person at the bench (default :class:`~benchgate.runner.attendant.Silent`:
+    nobody, nothing shown); ``signals`` the stop-signal handler to share (default: its own).
     """
 
-    def __init__(self, plan: Any, station: Any, options: RunOptions, *, services: Services | None = None,
-                 display: Any = None, signals: StopSignals | None = None):
+    def __init__(self, plan: Plan, station: Station, options: RunOptions, *, services: Services | None = None,
+                 attendant: Attendant | None = None, signals: StopSignals | None = None):
         self.plan = plan
         self.station = station
         self.options = options
-        self.ask = options.ask or _default_ask
-        self.display = display or make_display(options.ui, unattended=options.unattended)
-        # One station, one run: locked before anything is asked, opened or written.
-        self.lock = StationLock(station).acquire()
+        self.attendant: Attendant = attendant if attendant is not None else Silent()
+        # One station, one run: locked before anything is asked, opened or written; the lock
+        # and the signal handler are held for the runner's life (released by close()).
+        self._held = ExitStack()
+        self._held.callback(StationLock(station).acquire().release)
         self.signals = signals if signals is not None else StopSignals()
-        self.signals.__enter__()
-        try:
-            self._setup(services)
-        except BaseException:
-            self.signals.__exit__(None, None, None)
-            self.lock.release()
-            raise
-
-    def _setup(self, services: Services | None) -> None:
-        plan, station, options = self.plan, self.station, self.options
-        self.pre = preflight(plan, station, options, self.ask_operator, self.display.info)
-        self.services = services or Services.default(options)
-        self.clock = options.clock
-        if self.clock is None:
-            from benchgate.clock import SystemClock
-
-            self.clock = SystemClock()
-        try:
-            options.reports_dir.mkdir(parents=True, exist_ok=True)
-        except OSError as exc:
-            raise PreflightError(f"cannot create the report folder: {exc.strerror}",
-                                 where=str(options.reports_dir)) from exc
-        try:
-            self.events = EventLog(options.events)
-        except OSError as exc:
-            raise PreflightError(f"cannot write the events file: {exc.strerror}", where=str(options.events)) from exc
-        self.db = self.services.open_db(options.database)
-        self.hooks = Hooks(self.display, self.events)
-        self.done: list[RunOutcome] = []  # kept only for --junit
+        self.done: list[RunOutcome] = []  # kept only for JUnit
         self.count = 0
         self.late_interrupts = 0
         self._closed = False
-
-    def ask_operator(self, prompt: str) -> str:
-        self.display.pause()
-        return self.ask(prompt)
+        try:
+            self._held.enter_context(self.signals)
+            self.pre = preflight(plan, station, options, self.attendant)
+            self.services = services or Services.default(options)
+            self.clock: Clock = options.clock or _system_clock()
+            self.events = _open_events(options)
+            self.db = self.services.open_db(options.database)
+        except BaseException:
+            self._held.close()
+            raise
+        self.hooks = Fanout(self.attendant, self.events)
 
     def close(self) -> None:
         if self._closed:
@@ -129,16 +123,15 @@ class Runner:
         self._closed = True
         try:
             self.events.close()
-            self.display.close()
+            self.attendant.close()
             self.db.close()
         finally:
-            self.signals.__exit__(None, None, None)
-            self.lock.release()
+            self._held.close()
 
     def __enter__(self) -> Runner:
         return self
 
-    def __exit__(self, *exc: Any) -> None:
+    def __exit__(self, *exc: object) -> None:
         self.close()
 
     # ------------------------------------------------------------------ one unit
@@ -148,6 +141,8 @@ class Runner:
                                  "allow_expired_calibration": o.allow_expired_calibration}
         if self.pre.expired:
             flags["expired_calibration"] = list(self.pre.expired)
+        if self.pre.hazards_acknowledged == ACCEPTED_IN_ADVANCE:
+            flags["accept_hazards"] = True
         flags.update(o.extra_flags)
         return UnitRecord(
             run_id=uuid.uuid4().hex, serial=serial, plan_id=plan.id, plan_version=str(plan.version),
@@ -163,33 +158,33 @@ class Runner:
         record = self.new_record(serial)
         layout = s.layout(o.reports_dir, self.plan.id, serial, record.started)
         executor = Executor(self.plan, None, record, layout, hooks=self.hooks, clock=self.clock,
-                            ask=self.ask_operator, unattended=o.unattended,
+                            attendant=self.attendant, unattended=o.unattended,
                             save_capture=s.save_capture, analyze=s.analyze)
-        bench_cm = bench = None
         caught: BaseException | None = None
+        notes: list[str] = []
         signals = self.signals
         signals.shielded = False
         signals.stop = None
         seen_before = signals.count
+
+        def open_bench() -> AbstractContextManager[Bench]:
+            return s.open_bench(self.station, clock=self.clock, roles=self.pre.roles)
+
         try:
             try:
                 self.db.begin_run(record)
                 self.hooks.run_started(record, len(self.plan.steps))
-                bench_cm = s.open_bench(self.station, clock=self.clock, roles=self.pre.roles)
-                bench = bench_cm.__enter__()
-                executor.bench = bench
-                record.instruments = instrument_records(bench.facts())
-                executor.run()
+                with safe_bench(open_bench, notes=notes, signals=signals, alarm=self.hooks.alarm) as bench:
+                    executor.bench = bench
+                    record.instruments = instrument_records(bench.facts())
+                    executor.run()
             except BaseException as exc:  # noqa: B036 - every way out is recorded, then handled
                 caught = exc
             signals.shielded = True
-        except KeyboardInterrupt as exc:  # a stop signal just after the steps ended
+        except KeyboardInterrupt as exc:  # a stop signal just after the bench was closed
             caught = caught or exc
             signals.shielded = True
-        # from here on no signal is raised: the bench is made safe and the evidence written
-        notes = make_safe(bench_cm, bench, caught, alarm=self.hooks.alarm)
-        if bench_cm is not None and not record.instruments:
-            record.instruments = _records_or_empty(bench)
+        # from here on no signal is raised: the bench is safe, the evidence is written
         outcome = self._finish(record, layout, executor, caught, notes)
         late = signals.received[seen_before:]
         if signals.stop is not None and late:
@@ -203,8 +198,8 @@ class Runner:
             raise caught
         return outcome
 
-    def _finish(self, record: UnitRecord, layout: Any, executor: Executor, caught: BaseException | None,
-                notes: list[str]) -> RunOutcome:
+    def _finish(self, record: UnitRecord, layout: ReportLayout, executor: Executor,
+                caught: BaseException | None, notes: list[str]) -> RunOutcome:
         failure = None
         stop = as_stop(caught) if isinstance(caught, KeyboardInterrupt) else None
         if stop is not None:
@@ -223,7 +218,7 @@ class Runner:
             paths.update(self.services.write_reports(record, layout, executor.captures))
         except Exception as exc:  # the row below must still be completed
             record.flags["report_error"] = f"{type(exc).__name__}: {exc}"
-            self.display.info(f"benchgate: could not write the report: {exc}")
+            self.hooks.announce(Notice("warning", f"could not write the report: {exc}"))
         report = paths.get("json")
         self.db.finish_run(record, None if report is None else str(report))
         code = stop.exit_code if stop is not None else exit_code_for(record.verdict)
@@ -237,77 +232,39 @@ class Runner:
                 write_junit([(o.record, o.paths) for o in self.done], self.options.junit)
                 paths["junit"] = Path(self.options.junit)
             except OSError as exc:
-                self.display.info(f"benchgate: {self.options.junit}: cannot write JUnit XML: {exc.strerror}")
+                self.hooks.announce(Notice("warning", f"{self.options.junit}: cannot write JUnit XML: "
+                                                      f"{exc.strerror}"))
         self.hooks.run_finished(record, paths)
         return outcome
 
 
-def instrument_records(facts: Any) -> list[InstrumentRecord]:
+def instrument_records(facts: Iterable[InstrumentFacts]) -> list[InstrumentRecord]:
     """The record's instrument entries, from the facts the bench reports."""
     return [InstrumentRecord(role=f.role, address=f.address, identity=f.identity,
                              calibration=None if f.calibration is None else f.calibration.to_dict())
             for f in facts]
 
 
-def _records_or_empty(bench: Any) -> list:
+def _system_clock() -> Clock:
+    from benchgate.clock import SystemClock
+
+    return SystemClock()
+
+
+def _open_events(options: RunOptions) -> EventLog:
     try:
-        return instrument_records(bench.facts())
-    except Exception:
-        return []
+        options.reports_dir.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise PreflightError(f"cannot create the report folder: {exc.strerror}",
+                             where=str(options.reports_dir)) from exc
+    try:
+        return EventLog(options.events)
+    except OSError as exc:
+        raise PreflightError(f"cannot write the events file: {exc.strerror}", where=str(options.events)) from exc
 
 
-def unit_verdict(record: UnitRecord, failure: tuple[Verdict, str] | None) -> tuple[Verdict, str]:
-    """The unit's verdict and its reason from the checks, the step outcomes and how the run ended.
-
-    The reason names the most basic finding first (see :func:`findings`); how the run ended is
-    added after it when that is not what decided the verdict.
-    """
-    checks = record.checks()
-    found = [c.verdict for c in checks]
-    found += [_STEP_VERDICT[s.status] for s in record.steps if s.status in _STEP_VERDICT]
-    if failure is not None:
-        found.append(failure[0])
-    verdict = combine(found)
-    if failure is not None and failure[0] == verdict:
-        reason = failure[1]
-    elif verdict == Verdict.PASS:
-        reason = f"all {len(checks)} checks passed" if checks else "all steps done (no checks)"
-    else:
-        reason = next(iter(findings(record, verdict)), verdict.value)
-    if failure is not None and failure[0] != verdict:
-        reason += f"; then {failure[1]}"
-    return verdict, reason
-
-
-def findings(record: UnitRecord, verdict: Verdict) -> list[str]:
-    """What went wrong with a unit, most basic first.
-
-    1. A step that could not run or stopped the unit (an instrument error, a declined prompt):
-       nothing after it means much.
-    2. A capture in which nothing oscillates: every level, frequency or start-up figure of that
-       capture (and a failing check on it) only follows from that, so it is named as such,
-       whatever the order of the steps.
-    3. The checks whose verdict is the unit's, in plan order; then any other check that did
-       not pass.
-    """
-    out: list[str] = []
-    for s in record.steps:
-        if s.error and _STEP_VERDICT.get(s.status) == verdict:
-            out.append(f"{s.id}: {s.error}")
-    for s in record.steps:
-        dead = [c for c in s.checks if c.result is not None and not c.result.valid
-                and c.result.reason in NO_OSCILLATION]
-        if dead:
-            bad = next((c for c in s.checks if c.verdict == verdict), None)
-            detail = f" ({bad.reason})" if bad is not None and bad not in dead else ""
-            out.append(f"{s.id}: no oscillation in the {s.id} record{detail}")
-    checks = record.checks()
-    out += [f"{c.step_id}: {c.reason}" for c in checks if c.verdict == verdict]
-    out += [f"{c.step_id}: {c.reason}" for c in checks if c.verdict not in (verdict, Verdict.PASS)]
-    return list(dict.fromkeys(out))
-
-
-def run_unit(plan: Any, station: Any, serial: str, options: RunOptions) -> RunOutcome:
+def run_unit(plan: Plan, station: Station, serial: str, options: RunOptions, *,
+             attendant: Attendant | None = None) -> RunOutcome:
     """Run ``plan`` on the unit ``serial`` at ``station``: record, reports, database row."""
-    with Runner(plan, station, options) as runner:
+    with Runner(plan, station, options, attendant=attendant) as runner:
         return runner.run(serial)
