@@ -31,7 +31,7 @@ def run_one(tmp_path, plan, arm):
 
     with UnderstudyBench("tb3", speed=SPEED, workdir=tmp_path / "vb") as vb:
         vb.load_unit("OH-ATTR-1")
-        options = RunOptions(reports_dir=tmp_path / "r", unattended=True, clock=vb.clock, ui="quiet")
+        options = RunOptions(reports_dir=tmp_path / "r", unattended=True, clock=vb.clock)
         with Runner(plan, load_station(vb.station_path), options) as runner:
             arm(vb.faults.scpi)
             outcome = runner.run("OH-ATTR-1")

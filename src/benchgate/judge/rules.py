@@ -7,6 +7,7 @@ import math
 import numbers
 from collections.abc import Iterable
 from dataclasses import dataclass
+from typing import Any
 
 from benchgate.analysis.measurement import Measurement
 from benchgate.judge.risk import (
@@ -50,15 +51,15 @@ class CheckVerdict:
     #: fail for a fail; None for other verdicts or without a stated uncertainty
     risk: Risk | None = None
 
-    def to_dict(self) -> dict:
-        out = {"verdict": self.verdict.value, "reason": self.reason, "rule": self.rule}
+    def to_dict(self) -> dict[str, Any]:
+        out: dict[str, Any] = {"verdict": self.verdict.value, "reason": self.reason, "rule": self.rule}
         if self.risk is not None:
             out["risk"] = {"probability": self.risk.probability, "kind": self.risk.kind}
         return out
 
 
-def _fmt(x: float, unit: str) -> str:
-    return format_quantity(x, unit)
+def _fmt(x: float | None, unit: str) -> str:
+    return "no limit" if x is None else format_quantity(x, unit)
 
 
 def _describe(m: Measurement) -> str:

@@ -21,7 +21,7 @@ __all__ = [
 ]
 
 
-def __getattr__(name):  # lazy: the session pulls in the instruments and reports
+def __getattr__(name: str) -> object:  # lazy: the session pulls in the instruments and reports
     if name in ("Runner", "run_unit"):
         from benchgate.runner import session
 

@@ -10,11 +10,15 @@ from __future__ import annotations
 
 import random
 import tempfile
+from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any, cast
 
 from benchgate.runner.options import RunOptions
+
+if TYPE_CHECKING:
+    from benchgate.store import ResultsDB
 
 #: every defect the TB-3 simulator knows (interfaces: UnderstudyBench.load_unit)
 KNOWN_DEFECTS = ("wrong_capacitor", "low_gain", "high_gain", "open_section", "supply_noise", "intermittent")
@@ -84,12 +88,12 @@ def lot_note(units: int, defect_names: tuple[str, ...]) -> str | None:
 class DemoResult:
     lot: str
     units: list[DemoUnit]
-    summary: dict
+    summary: dict[str, Any]
     summary_html: Path
     reports_dir: Path
     seconds: float
 
-    def to_dict(self) -> dict:
+    def to_dict(self) -> dict[str, Any]:
         return {
             "lot": self.lot,
             "units": [{"serial": u.serial, "defect": u.defect, "verdict": u.verdict, "reason": u.reason,
@@ -100,13 +104,14 @@ class DemoResult:
         }
 
 
-def write_lot_summary(db: Any, lot: str, path: Path) -> dict:
+def write_lot_summary(db: ResultsDB, lot: str, path: Path) -> dict[str, Any]:
     """Write the lot summary HTML from the database; returns the summary as a dict."""
     from benchgate.report.summary_html import write_summary_html
 
     summary = db.summary(lot=lot)
     write_summary_html(summary, path)
-    return summary.to_dict()
+    out: dict[str, Any] = summary.to_dict()
+    return out
 
 
 #: boards the demo can run, each with its plan in testplans/ (the TB-3 is the default lot)
@@ -114,8 +119,8 @@ DEMO_BOARDS = ("tb3", "aa1", "lp2")
 
 
 def run_demo(*, units: int = 14, speed: float = 4.0, reports_dir: Path | None = None,
-             lot: str | None = None, on_unit: Any = None, on_start: Any = None,
-             board: str = "tb3") -> DemoResult:
+             lot: str | None = None, on_unit: Callable[[int, int, DemoUnit], None] | None = None,
+             on_start: Callable[[str], None] | None = None, board: str = "tb3") -> DemoResult:
     """Run the demo lot; ``on_start(text)`` is called once the bench is up, ``on_unit(index,
     total, unit)`` as each unit finishes."""
     import time
@@ -162,6 +167,6 @@ def run_demo(*, units: int = 14, speed: float = 4.0, reports_dir: Path | None = 
             from benchgate.report.layout import safe_name
 
             summary_path = reports_dir / f"summary-{safe_name(lot)}.html"
-            summary = write_lot_summary(runner.db, lot, summary_path)
+            summary = write_lot_summary(cast("ResultsDB", runner.db), lot, summary_path)  # the default store
     return DemoResult(lot=lot, units=lot_units, summary=summary, summary_html=summary_path,
                       reports_dir=reports_dir, seconds=time.monotonic() - t0)

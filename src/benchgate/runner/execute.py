@@ -15,7 +15,7 @@ import datetime as _dt
 import os
 from collections.abc import Callable
 from pathlib import Path
-from typing import TYPE_CHECKING, Any, TypeVar, cast
+from typing import TYPE_CHECKING, TypeVar, cast
 
 from benchgate.analysis.capture import Capture
 from benchgate.analysis.measurement import Measurement
@@ -29,6 +29,7 @@ from benchgate.runner.attendant import Attendant, RunListener
 from benchgate.runner.safety import as_stop
 
 if TYPE_CHECKING:
+    from benchgate.analysis.core import Analysis
     from benchgate.clock import Clock
     from benchgate.instruments import Bench
     from benchgate.instruments.base import Supply
@@ -72,7 +73,7 @@ class Executor:
 
     def __init__(self, plan: Plan, bench: Bench | None, record: UnitRecord, layout: ReportLayout, *,
                  hooks: RunListener, clock: Clock, attendant: Attendant, unattended: bool,
-                 save_capture: Callable[..., str], analyze: Callable[..., Any]):
+                 save_capture: Callable[[Capture, Path], str], analyze: Callable[..., Analysis]):
         self.plan = plan
         self.bench = bench
         self.record = record
@@ -331,8 +332,9 @@ def error_reason(exc: BaseException) -> str:
     if isinstance(exc, BenchgateError):
         text = exc.one_line()
         code = getattr(exc, "code", None)
+        code_text = getattr(exc, "code_text", None)
         if code is not None and str(code) not in text:
-            text += f" (instrument error {code}" + (f", {exc.code_text}" if exc.code_text else "") + ")"
+            text += f" (instrument error {code}" + (f", {code_text}" if code_text else "") + ")"
         return text
     return f"{type(exc).__name__}: {exc}"
 

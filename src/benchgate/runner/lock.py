@@ -19,9 +19,12 @@ import os
 import re
 import tempfile
 from pathlib import Path
-from typing import IO, Any
+from typing import IO, TYPE_CHECKING
 
 from benchgate.errors import PreflightError, StationBusy
+
+if TYPE_CHECKING:
+    from benchgate.instruments.station import Station
 
 #: exit code of a run refused because the station is busy (nothing was touched: a usage error)
 EXIT_STATION_BUSY = 2
@@ -46,11 +49,11 @@ def lock_name(kind: str, key: str) -> str:
     return f"{kind}-{readable}-{digest}.lock"
 
 
-def station_keys(station: Any) -> list[tuple[str, str]]:
+def station_keys(station: Station) -> list[tuple[str, str]]:
     """(role, key) of every lock a station needs: one per instrument address (serial ports by
     their real path, so a symlink and its target are one port)."""
     keys: dict[str, str] = {}
-    for role, config in sorted(getattr(station, "instruments", {}).items()):
+    for role, config in sorted(station.instruments.items()):
         address = str(getattr(config, "address", "") or "")
         if not address:
             continue
@@ -63,7 +66,7 @@ def station_keys(station: Any) -> list[tuple[str, str]]:
 class StationLock:
     """Exclusive locks for one station; :meth:`release` (or process death) frees them."""
 
-    def __init__(self, station: Any, directory: Path | None = None):
+    def __init__(self, station: Station, directory: Path | None = None):
         self.station_id = str(station.id)
         self.directory = Path(directory) if directory is not None else runtime_dir()
         self.keys = station_keys(station)
@@ -128,7 +131,7 @@ def _holder(handle: IO[str]) -> str:
     return f" (pid {pid})" if pid.isdigit() else ""
 
 
-def acquire_station(station: Any, directory: Path | None = None) -> StationLock:
+def acquire_station(station: Station, directory: Path | None = None) -> StationLock:
     """Lock ``station`` now (see :class:`StationLock`)."""
     return StationLock(station, directory).acquire()
 

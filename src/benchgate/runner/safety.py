@@ -18,8 +18,6 @@ from contextlib import AbstractContextManager, contextmanager
 from types import FrameType
 from typing import Any, Protocol, TypeVar
 
-B = TypeVar("B")
-
 #: the signals that stop a run, and how the run's reason names them
 STOP_SIGNALS: dict[int, str] = {
     signal.SIGINT: "interrupted by the operator (Ctrl-C)",
@@ -121,6 +119,9 @@ class _OpenBench(Protocol):
     """What the safe-state sequence needs of an open bench."""
 
     def get(self, role: str, default: Any = None) -> Any: ...
+
+
+B = TypeVar("B", bound=_OpenBench)
 
 
 def link_is_dead(err: BaseException) -> bool:

@@ -37,6 +37,7 @@ from benchgate.runner.verdict import unit_verdict
 
 if TYPE_CHECKING:
     from benchgate.analysis.capture import Capture
+    from benchgate.analysis.core import Analysis
     from benchgate.clock import Clock
     from benchgate.instruments import Bench, InstrumentFacts
     from benchgate.instruments.station import Station
@@ -60,7 +61,7 @@ class Services:
 
     open_bench: Callable[..., AbstractContextManager[Bench]]
     save_capture: Callable[[Capture, Path], str]
-    analyze: Callable[..., Any]
+    analyze: Callable[..., Analysis]
     write_reports: Callable[[UnitRecord, ReportLayout, Mapping[str, Capture]], dict[str, Path]]
     layout: Callable[[Path, str, str, str], ReportLayout]
     open_db: Callable[[Path], ResultsStore]
