@@ -134,20 +134,21 @@ def _run(args: argparse.Namespace, signals: StopSignals) -> int:
         accept_hazards=args.accept_hazards, allow_expired_calibration=args.allow_expired_calibration,
         events=None if args.events is None else Path(args.events),
         junit=None if args.junit is None else Path(args.junit), clock=clock, extra_flags=flags)
+    face = make_attendant(args, unattended)
     try:
-        runner = Runner(plan, station, options, attendant=make_attendant(args, unattended), signals=signals)
+        runner = Runner(plan, station, options, attendant=face, signals=signals)
     except PreflightError as exc:
         raise _with_hint(exc) from None
     with runner:
         if args.batch:
             outcomes = run_batch(runner)
             if not outcomes:
-                runner.hooks.announce(Notice("info", "no units tested"))
+                face.announce(Notice("info", "no units tested"))
                 return 0
             return worst_exit_code([o.exit_code for o in outcomes])
         serial = args.serial
         if serial is None:
-            serial = runner.attendant.ask_serial("serial number (scan or type): ")
+            serial = face.ask_serial("serial number (scan or type): ")
             if serial is None:
                 raise PreflightError("no serial number given")
         return runner.run(serial).exit_code
