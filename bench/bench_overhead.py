@@ -48,7 +48,7 @@ def main() -> None:
     with tempfile.TemporaryDirectory() as tmp, UnderstudyBench("tb3", speed=args.speed, workdir=tmp) as vb:
         station = load_station(vb.station_path)
         options = RunOptions(reports_dir=Path(tmp) / "reports", unattended=True, accept_hazards=True,
-                             clock=vb.clock, ui="quiet")
+                             clock=vb.clock)
         walls = []
         with Runner(plan, station, options) as runner:
             for i in range(args.units + 1):
