@@ -122,3 +122,34 @@ def test_demo_runs_the_number_of_units_asked_for(tmp_path, capsys):
     data = json.loads(captured.out)
     assert code == 0 and len(data["units"]) == 2
     assert data["units"][0]["defect"] is None and data["units"][1]["defect"] in KNOWN_DEFECTS
+
+
+def test_a_stop_signal_ends_the_lot_after_the_unit_it_aborts(tmp_path):
+    import os
+    import signal
+    import sqlite3
+    import subprocess
+    import sys
+
+    env = {k: v for k, v in os.environ.items() if k != "CI"}
+    proc = subprocess.Popen([sys.executable, "-m", "benchgate", "demo", "--units", "4", "--speed", "4",
+                             "--reports", str(tmp_path)], env=env, stdin=subprocess.DEVNULL,
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    try:
+        for line in proc.stderr:  # progress lines, one per finished unit: wait for the first
+            if line.startswith("[ 1/4]"):
+                break
+        proc.send_signal(signal.SIGTERM)
+        out, err = proc.communicate(timeout=60)
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+    assert proc.returncode == 143, (out, err)
+    assert "stopped early" in out and "Traceback" not in err
+    conn = sqlite3.connect(tmp_path / "results.sqlite")
+    rows = conn.execute("SELECT serial, complete, verdict FROM runs ORDER BY started").fetchall()
+    conn.close()
+    # the signal lands in the next unit (aborted) or between two units: either way the lot ends
+    # there and every row is complete
+    assert 1 <= len(rows) < 4 and all(r[1] == 1 for r in rows)
+    assert all(r[2] != "aborted" for r in rows[:-1])

@@ -82,9 +82,11 @@ def run(args) -> int:
                       on_start=started)
     if args.json:
         print(json.dumps(result.to_dict(), ensure_ascii=False, default=str))
-        return 0
+        return result.exit_code
     _table(result)
     passed = sum(u.verdict == "pass" for u in result.units)
     print(f"{passed} of {len(result.units)} passed in {result.seconds:.1f} s")
+    if result.exit_code:
+        print("the lot was stopped early (aborted); the units above were recorded")
     print(f"lot summary: {result.summary_html}")
-    return 0
+    return result.exit_code

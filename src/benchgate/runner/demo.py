@@ -15,7 +15,8 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING, Any, cast
 
-from benchgate.runner.options import RunOptions
+from benchgate.runner.options import RunOptions, is_abort_code
+from benchgate.runner.safety import StopRequested
 
 if TYPE_CHECKING:
     from benchgate.store import ResultsDB
@@ -92,6 +93,7 @@ class DemoResult:
     summary_html: Path
     reports_dir: Path
     seconds: float
+    exit_code: int = 0  # 0, or the abort code when a stop signal ended the lot early
 
     def to_dict(self) -> dict[str, Any]:
         return {
@@ -155,18 +157,27 @@ def run_demo(*, units: int = 14, speed: float = 4.0, reports_dir: Path | None = 
                              accept_hazards=True, clock=vb.clock,
                              extra_flags={"demo": True, "clock_speed": speed})
         with Runner(plan, station, options) as runner:
-            for index, unit in enumerate(lot_units, 1):
-                vb.load_unit(unit.serial, unit.defect)
-                outcome = runner.run(unit.serial)
-                unit.verdict = outcome.record.verdict.value
-                unit.reason = outcome.record.reason
-                unit.report = None if "json" not in outcome.paths else str(outcome.paths["json"])
-                unit.html = None if "html" not in outcome.paths else str(outcome.paths["html"])
-                if on_unit is not None:
-                    on_unit(index, len(lot_units), unit)
+            stopped = 0
+            try:
+                for index, unit in enumerate(list(lot_units), 1):
+                    vb.load_unit(unit.serial, unit.defect)
+                    outcome = runner.run(unit.serial)
+                    unit.verdict = outcome.record.verdict.value
+                    unit.reason = outcome.record.reason
+                    unit.report = None if "json" not in outcome.paths else str(outcome.paths["json"])
+                    unit.html = None if "html" not in outcome.paths else str(outcome.paths["html"])
+                    if on_unit is not None:
+                        on_unit(index, len(lot_units), unit)
+                    if is_abort_code(outcome.exit_code):  # a stop signal during the unit ends the lot
+                        stopped = outcome.exit_code
+                        break
+            except StopRequested as stop:  # between two units: nothing was running
+                runner.signals.shielded = True
+                stopped = stop.exit_code
+            lot_units = [u for u in lot_units if u.verdict]
             from benchgate.report.layout import safe_name
 
             summary_path = reports_dir / f"summary-{safe_name(lot)}.html"
             summary = write_lot_summary(cast("ResultsDB", runner.db), lot, summary_path)  # the default store
     return DemoResult(lot=lot, units=lot_units, summary=summary, summary_html=summary_path,
-                      reports_dir=reports_dir, seconds=time.monotonic() - t0)
+                      reports_dir=reports_dir, seconds=time.monotonic() - t0, exit_code=stopped)
