@@ -236,8 +236,6 @@ class RichDisplay(PlainDisplay):
         self._stop_bar()
 
 
-Display = QuietDisplay  # the common base of the three displays
-
 
 def make_display(mode: str, *, unattended: bool = False, stream: TextIO | None = None) -> QuietDisplay:
     """The display for ``mode`` (auto | rich | plain | quiet).
