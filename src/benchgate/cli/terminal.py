@@ -236,7 +236,6 @@ class RichDisplay(PlainDisplay):
         self._stop_bar()
 
 
-
 def make_display(mode: str, *, unattended: bool = False, stream: TextIO | None = None) -> QuietDisplay:
     """The display for ``mode`` (auto | rich | plain | quiet).
 
