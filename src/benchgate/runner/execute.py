@@ -20,10 +20,10 @@ from typing import TYPE_CHECKING, TypeVar, cast
 from benchgate.analysis.capture import Capture
 from benchgate.analysis.measurement import Measurement
 from benchgate.errors import BenchgateError, InstrumentDisconnected, StepError
-from benchgate.instruments.base import take_reading
+from benchgate.instruments.base import Recorder, take_reading
 from benchgate.judge.rules import Verdict, combine, judge
 from benchgate.record import CaptureRecord, CheckRecord, StepRecord, UnitRecord
-from benchgate.runner.acquire import POWER_CYCLE_OFF_S, Acquisition, Recorder
+from benchgate.runner.acquire import POWER_CYCLE_OFF_S, Acquisition
 from benchgate.runner.adaptive import acquire_adaptive
 from benchgate.runner.attendant import Attendant, RunListener
 from benchgate.runner.safety import as_stop
