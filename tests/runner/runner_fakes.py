@@ -232,6 +232,12 @@ class FakeBench:
     def supply(self):
         return self.instruments["supply"]
 
+    def require_supply(self):
+        return self.instruments["supply"]
+
+    def recorder(self, role):
+        return self.instruments[role]
+
     def facts(self):
         return [InstrumentFacts(role=r, kind="fake", address=i.address, identity=i.identity, calibration=None)
                 for r, i in self.instruments.items()]

@@ -20,7 +20,7 @@ from typing import TYPE_CHECKING, TypeVar, cast
 from benchgate.analysis.capture import Capture
 from benchgate.analysis.measurement import Measurement
 from benchgate.errors import BenchgateError, InstrumentDisconnected, StepError
-from benchgate.instruments.base import Recorder, take_reading
+from benchgate.instruments.base import take_reading
 from benchgate.judge.rules import Verdict, combine, judge
 from benchgate.record import CaptureRecord, CheckRecord, StepRecord, UnitRecord
 from benchgate.runner.acquire import POWER_CYCLE_OFF_S, Acquisition
@@ -32,7 +32,6 @@ if TYPE_CHECKING:
     from benchgate.analysis.core import Analysis
     from benchgate.clock import Clock
     from benchgate.instruments import Bench
-    from benchgate.instruments.base import Supply
     from benchgate.plan.model import (
         CaptureStep,
         Check,
@@ -187,7 +186,7 @@ class Executor:
 
     # ------------------------------------------------------------------ step kinds
     def _do_supply(self, step: SupplyStep, srec: StepRecord) -> None:
-        supply: Supply = self._bench["supply"]
+        supply = self._bench.require_supply()
         done = []
         if step.voltage is not None:
             supply.set_voltage(step.voltage)
@@ -238,9 +237,9 @@ class Executor:
             self._judge(step, srec, check, m)
 
     def _do_capture(self, step: CaptureStep, srec: StepRecord, attempt: int) -> None:
-        recorder: Recorder = self._bench[step.instrument]
+        recorder = self._bench.recorder(step.instrument)
         key = step.id if attempt == 1 else f"{step.id}-{attempt}"
-        supply: Supply | None = self._bench["supply"] if step.power_on else None
+        supply = self._bench.require_supply() if step.power_on else None
         try:
             if getattr(step, "adaptive", None) is not None:  # record in blocks, stop once decided
                 capture = acquire_adaptive(recorder, step, self.plan.decision, getattr(self.plan, "max_risk", None),
