@@ -7,26 +7,17 @@ each line, so a watcher (``tail -f``) sees progress at once and several units sh
 
 from __future__ import annotations
 
-import datetime as _dt
 import json
-import math
 from collections.abc import Mapping
 from pathlib import Path
 from typing import TYPE_CHECKING, Any, TextIO
 
+from benchgate.common.evidence import finite, utc_now
 from benchgate.runner.attendant import Notice
 
 if TYPE_CHECKING:
     from benchgate.plan.model import Step
     from benchgate.record import CheckRecord, StepRecord, UnitRecord
-
-
-def _now() -> str:
-    return _dt.datetime.now(_dt.UTC).isoformat(timespec="milliseconds")
-
-
-def _num(x: float | None) -> float | None:
-    return x if x is not None and math.isfinite(x) else None
 
 
 class EventLog:
@@ -44,7 +35,7 @@ class EventLog:
     def emit(self, event: str, **fields: Any) -> None:
         if self._file is None:
             return
-        obj = {"event": event, "time": _now(), "run_id": self._run_id, "serial": self._serial}
+        obj = {"event": event, "time": utc_now(), "run_id": self._run_id, "serial": self._serial}
         obj.update(fields)
         self._file.write(json.dumps(obj, ensure_ascii=False, default=str) + "\n")
         self._file.flush()
@@ -71,8 +62,8 @@ class EventLog:
     def check(self, check: CheckRecord) -> None:
         m = check.result
         self.emit("check", step=check.step_id, measurement=check.measurement,
-                  value=None if m is None else _num(m.value),
-                  uncertainty=None if m is None else _num(m.uncertainty),
+                  value=None if m is None else finite(m.value),
+                  uncertainty=None if m is None else finite(m.uncertainty),
                   unit=check.window.unit, low=check.window.low, high=check.window.high,
                   verdict=check.verdict.value, reason=check.reason)
 

@@ -11,7 +11,6 @@ the session, which makes the bench safe and writes the reports.
 
 from __future__ import annotations
 
-import datetime as _dt
 import os
 from collections.abc import Callable
 from pathlib import Path
@@ -19,6 +18,7 @@ from typing import TYPE_CHECKING, TypeVar, cast
 
 from benchgate.analysis.capture import Capture
 from benchgate.analysis.measurement import Measurement
+from benchgate.common.evidence import utc_now
 from benchgate.errors import BenchgateError, InstrumentDisconnected, StepError
 from benchgate.instruments.base import take_reading
 from benchgate.judge.rules import Verdict, combine, judge
@@ -57,10 +57,6 @@ def register_step(kind: str, run: Callable[..., None]) -> None:
     """Add a step kind: ``run(executor, step, step_record, attempt)`` does one attempt."""
     STEP_RUNNERS[kind] = run
 
-
-
-def utc_now() -> str:
-    return _dt.datetime.now(_dt.UTC).isoformat(timespec="milliseconds")
 
 
 class Executor:
