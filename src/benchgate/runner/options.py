@@ -108,7 +108,8 @@ class RunOptions:
             self.db_path = Path(self.db_path)
 
     @property
-    def database(self) -> Path:
+    def database(self) -> Path | str:
+        """The results database: a SQLite file, or a postgresql:// URL."""
         return self.db_path if self.db_path is not None else self.reports_dir / "results.sqlite"
 
     def today_utc(self) -> _dt.date:

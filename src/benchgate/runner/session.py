@@ -64,7 +64,7 @@ class Services:
     analyze: Callable[..., Analysis]
     write_reports: Callable[[UnitRecord, ReportLayout, Mapping[str, Capture]], dict[str, Path]]
     layout: Callable[[Path, str, str, str], ReportLayout]
-    open_db: Callable[[Path], ResultsStore]
+    open_db: Callable[[Path | str], ResultsStore]
 
     @classmethod
     def default(cls, options: RunOptions) -> Services:
