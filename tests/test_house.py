@@ -54,10 +54,8 @@ KNOWN_IMPORTS: dict[tuple[str, str], str] = {
     # none left: instruments/__init__.py no longer builds run records (instr helper, issue 10)
 }
 KNOWN_TERMINAL: dict[tuple[str, str], str] = {
-    # the runner talks to the person at the bench through one typed interface (issue 10)
-    ("runner/ui.py", "print"): "runner helper (issue 10: the runner prints nothing)",
-    ("runner/ui.py", "rich"): "runner helper (issue 10: the runner never imports rich)",
-    ("runner/session.py", "input"): "runner helper (issue 10: the runner never reads stdin)",
+    # none left: the runner talks to the person at the bench through one typed interface
+    # (runner/attendant.py; the terminal faces are cli/terminal.py)
 }
 KNOWN_ERROR_CLASSES: dict[tuple[str, str], str] = {
     # the emulated instrument's own command error: a reply code for its SCPI error queue

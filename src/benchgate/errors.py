@@ -284,6 +284,13 @@ class StepError(BenchgateError):
         return f"step {self.step_id}"
 
 
+class NobodyAnswers(BenchgateError, EOFError):
+    """A face of the person at the bench that cannot ask anyone (unattended, end of input).
+
+    An :class:`EOFError` too, so a step waiting for an answer ends as "no operator input".
+    """
+
+
 class StoreError(BenchgateError):
     """A results database that cannot be opened, read or written."""
 

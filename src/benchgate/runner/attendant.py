@@ -31,9 +31,13 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING, Literal, Protocol
 
+from benchgate.errors import NobodyAnswers
+
 if TYPE_CHECKING:
     from benchgate.plan.model import Step
     from benchgate.record import CheckRecord, StepRecord, UnitRecord
+
+__all__ = ["Attendant", "Fanout", "Hint", "NobodyAnswers", "Notice", "NoticeKind", "Reply", "RunListener", "Silent"]
 
 NoticeKind = Literal["info", "caution", "hazard", "warning"]
 
@@ -65,10 +69,6 @@ class Hint(enum.StrEnum):
     ACCEPT_HAZARDS = "accept_hazards"  # the hazards could be accepted in advance for this run
     ALLOW_EXPIRED_CALIBRATION = "allow_expired_calibration"  # the run could go on, recorded
     SERIAL_NEEDED = "serial_needed"  # a serial number has to be given up front
-
-
-class NobodyAnswers(EOFError):
-    """Raised by a face that cannot ask anyone (unattended, end of input)."""
 
 
 class RunListener(Protocol):
