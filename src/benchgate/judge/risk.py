@@ -89,7 +89,8 @@ def probability_outside_array(y: np.ndarray, u: np.ndarray, low: float | None,
     u = np.asarray(u, dtype=float)
     below = np.zeros_like(y) if low is None else upper_tail((y - low) / u)
     above = np.zeros_like(y) if high is None else upper_tail((high - y) / u)
-    return np.minimum(below + above, 1.0)
+    out: np.ndarray = np.minimum(below + above, 1.0)
+    return out
 
 
 @dataclass(frozen=True)

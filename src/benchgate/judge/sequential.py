@@ -50,6 +50,7 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 
@@ -175,7 +176,7 @@ class LookRecord:
     budget: float  # α_j spent at this look (0 at the last)
     decided: str | None  # "pass" | "fail" | None
 
-    def to_dict(self) -> dict:
+    def to_dict(self) -> dict[str, Any]:
         return dict(self.__dict__)
 
 
@@ -191,7 +192,7 @@ class SequentialState:
 
     def __post_init__(self) -> None:
         t = np.asarray(self.schedule, dtype=float) / self.schedule[-1]
-        self.budgets = look_budgets(t, self.alpha)
+        self.budgets = look_budgets(t.tolist(), self.alpha)
 
     @property
     def bound(self) -> float:
@@ -222,7 +223,7 @@ class SequentialState:
             return True
         return False
 
-    def to_dict(self) -> dict:
+    def to_dict(self) -> dict[str, Any]:
         return {"schedule": list(self.schedule), "alpha": self.alpha, "early_bound": self.bound,
                 "stopped": self.stopped,
                 "looks": {k: [lk.to_dict() for lk in v] for k, v in self.looks.items()}}

@@ -42,7 +42,7 @@ def acquire_adaptive(instrument: Any, step: Any, decision: str, max_risk: float 
     state = SequentialState(looks, step_alpha(step, decision, max_risk))
     names = [c.measurement for c in step.checks]
 
-    def results(capture: Capture) -> dict[str, tuple]:
+    def results(capture: Capture) -> dict[str, tuple[float | None, float | None, float | None, float | None]]:
         try:
             ms = analyze(capture, names, harmonics=step.harmonics).measurements
         except (BenchgateError, ValueError):
