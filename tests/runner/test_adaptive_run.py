@@ -60,7 +60,7 @@ def run(vb, tmp_path, freq: str, serial: str = "OH-AD-1"):
     from benchgate.instruments.station import load_station
 
     plan = loads_plan(PLAN.replace("{FREQ}", freq), "adaptive.yaml")
-    options = RunOptions(reports_dir=tmp_path / "reports", unattended=True, clock=vb.clock, ui="quiet")
+    options = RunOptions(reports_dir=tmp_path / "reports", unattended=True, clock=vb.clock)
     with Runner(plan, load_station(vb.station_path), options) as runner:
         vb.load_unit(serial, None)
         out = runner.run(serial)
