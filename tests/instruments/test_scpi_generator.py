@@ -117,8 +117,10 @@ def test_bench_safe_switches_both_outputs_off(bench):
     assert not _generator_output(bench)  # the bench's exit as well
 
 
-def test_make_safe_switches_the_generator_off_and_alarms_when_it_cannot():
-    from benchgate.runner.safety import GENERATOR_ALARM, make_safe
+def test_safe_bench_switches_the_generator_off_and_alarms_when_it_cannot():
+    from contextlib import nullcontext
+
+    from benchgate.runner.safety import GENERATOR_ALARM, safe_bench
 
     class Stuck:
         def output(self, on):
@@ -132,7 +134,9 @@ def test_make_safe_switches_the_generator_off_and_alarms_when_it_cannot():
             return self.parts.get(role, default)
 
     alarms: list[str] = []
-    notes = make_safe(None, FakeBench(), None, alarm=alarms.append)
+    notes: list[str] = []
+    with safe_bench(lambda: nullcontext(FakeBench()), notes=notes, alarm=alarms.append):
+        pass
     assert [n.split(" (")[0] for n in notes[:3]] == ["generator output off failed"] * 3
     assert alarms and alarms[0].startswith(GENERATOR_ALARM)
 

@@ -120,8 +120,8 @@ class Executor:
         srec.ended = utc_now()
         self.hooks.step_finished(srec)
 
-    @property
-    def _bench(self) -> Bench:
+    def require_bench(self) -> Bench:
+        """The open bench the steps run on (step runners registered from other modules use it)."""
         if self.bench is None:
             raise RuntimeError("the executor runs steps on an open bench only")
         return self.bench
@@ -182,7 +182,7 @@ class Executor:
 
     # ------------------------------------------------------------------ step kinds
     def _do_supply(self, step: SupplyStep, srec: StepRecord) -> None:
-        supply = self._bench.require_supply()
+        supply = self.require_bench().require_supply()
         done = []
         if step.voltage is not None:
             supply.set_voltage(step.voltage)
@@ -224,7 +224,7 @@ class Executor:
             srec.error = f"answer {answer!r} to {step.text!r} (the run goes on only with {step.expect!r})"
 
     def _do_reading(self, step: ReadingStep, srec: StepRecord) -> None:
-        instrument = self._bench[step.instrument]
+        instrument = self.require_bench()[step.instrument]
         if step.settle:
             self.sleep(step.settle, f"settle {step.settle:g} s")
         measurement = take_reading(instrument, step.quantity)
@@ -233,9 +233,9 @@ class Executor:
             self._judge(step, srec, check, m)
 
     def _do_capture(self, step: CaptureStep, srec: StepRecord, attempt: int) -> None:
-        recorder = self._bench.recorder(step.instrument)
+        recorder = self.require_bench().recorder(step.instrument)
         key = step.id if attempt == 1 else f"{step.id}-{attempt}"
-        supply = self._bench.require_supply() if step.power_on else None
+        supply = self.require_bench().require_supply() if step.power_on else None
         try:
             if getattr(step, "adaptive", None) is not None:  # record in blocks, stop once decided
                 capture = acquire_adaptive(recorder, step, self.plan.decision, getattr(self.plan, "max_risk", None),

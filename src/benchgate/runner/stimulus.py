@@ -9,6 +9,7 @@ the step ends, whatever happened (the session's safe state switches it off too).
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from typing import Any
 
 from benchgate.analysis.measurement import Measurement
@@ -39,14 +40,14 @@ from benchgate.units.format import format_quantity
 
 
 def _generator(ex: Executor) -> Generator:
-    inst = ex.bench["generator"]
+    inst = ex.require_bench()["generator"]
     if not isinstance(inst, Generator):
         raise InstrumentError("generator", f"the generator is not a signal generator ({type(inst).__name__})")
     return inst
 
 
 def _recorder(ex: Executor, step: Any) -> MultiRecorder:
-    inst = ex.bench[step.instrument]
+    inst = ex.require_bench()[step.instrument]
     if not isinstance(inst, MultiRecorder):
         raise InstrumentError(step.instrument, "this recorder cannot record two channels at the same instants")
     return inst
@@ -88,7 +89,7 @@ def _record(ex: Executor, step: Any, srec: StepRecord, frequency: float, key: st
     return Stimulated(ref, out, frequency)
 
 
-def _stopped(ex: Executor, work) -> None:
+def _stopped(ex: Executor, work: Callable[[], None]) -> None:
     """Run ``work`` and switch the generator output off afterwards, whatever happened."""
     try:
         work()
@@ -183,7 +184,8 @@ def _judge_mask(ex: Executor, step: Any, srec: StepRecord, m: Measurement, windo
     from benchgate.plan.model import Check
 
     # one check per frequency ("gain_db at 1 kHz"), so a lot's statistics keep the points apart
-    ex._judge(step, srec, Check(mask_check_name(m.details["frequency_hz"]), window), m)
+    details = m.details or {}
+    ex._judge(step, srec, Check(mask_check_name(details["frequency_hz"]), window), m)
 
 
 def mask_check_name(frequency: float) -> str:
