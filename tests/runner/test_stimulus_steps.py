@@ -24,7 +24,7 @@ def lp2_runs(tmp_path_factory):
     tmp = tmp_path_factory.mktemp("lp2")
     out = {}
     with UnderstudyBench("lp2", speed=20, workdir=tmp / "bench") as ub:
-        options = RunOptions(reports_dir=tmp / "reports", unattended=True, clock=ub.clock, ui="quiet")
+        options = RunOptions(reports_dir=tmp / "reports", unattended=True, clock=ub.clock)
         with Runner(plan, load_station(ub.station_path), options) as runner:
             for serial, defect in (("LP2-0001", None), ("LP2-0002", "wrong_capacitor")):
                 ub.load_unit(serial, defect)

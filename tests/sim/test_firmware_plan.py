@@ -30,8 +30,7 @@ def run_lot(device: str, tmp_path: Path) -> dict[str, tuple[Verdict, str, dict]]
     out = {}
     with UnderstudyBench("tb3", speed=SPEED[device], workdir=tmp_path / device, adc_device=device) as ub:
         assert ub.adc_device == device
-        options = RunOptions(reports_dir=tmp_path / device / "reports", unattended=True, clock=ub.clock,
-                             ui="quiet")
+        options = RunOptions(reports_dir=tmp_path / device / "reports", unattended=True, clock=ub.clock)
         with Runner(plan, load_station(ub.station_path), options) as runner:
             for serial, defect in UNITS:
                 ub.load_unit(serial, defect)
