@@ -103,7 +103,8 @@ def test_generator_switched_off_when_the_recorder_fails():
     gen = Gen()
     plan = loads_plan('plan: t\nversion: "1"\nproduct: p\nrequires: [generator, digitizer]\nsteps:\n'
                       '  - {id: s, title: t, kind: tone, frequency: 1 kHz, level: 1 Vpp, settle: 0 s}\n', "t.yaml")
-    ex = SimpleNamespace(bench={"generator": gen, "digitizer": BrokenRecorder()}, sleep=lambda s, t: None,
+    bench = {"generator": gen, "digitizer": BrokenRecorder()}
+    ex = SimpleNamespace(bench=bench, require_bench=lambda: bench, sleep=lambda s, t: None,
                          hooks=SimpleNamespace(progress=lambda *a: None))
     with pytest.raises(InstrumentError, match="link lost"):
         run_tone(ex, plan.steps[0], SimpleNamespace(capture=None), 1)
