@@ -9,7 +9,8 @@ import numpy as np
 import pytest
 
 from benchgate.clock import ManualClock
-from benchgate.sim.scpi_emulated import QUEUE_LENGTH, EmulatedSupply, definite_block
+from benchgate.sim.scpi_emulated import EmulatedSupply, definite_block
+from benchgate.sim.scpi_instrument_base import QUEUE_LENGTH
 from benchgate.sim.scpi_server import ConstantBackend, ScpiBench
 
 
