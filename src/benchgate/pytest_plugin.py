@@ -36,7 +36,7 @@ def pytest_addoption(parser):
                     help="folder for unit reports (default: reports)")
     group.addoption("--bench-db", default=None, metavar="PATH|URL",
                     help="results database: SQLite file or postgresql:// URL "
-                    "(default: $BENCHGATE_DB, else DIR/results.sqlite)")
+                    "(default: $BENCHGATE_DB, else the station file's 'results', else DIR/results.sqlite)")
     group.addoption("--bench-accept-hazards", action="store_true", default=False,
                     help="accept the plan's hazards for this unattended run (recorded in the report)")
     group.addoption("--bench-lot", default=None, metavar="LOT", help="lot of the unit (recorded)")

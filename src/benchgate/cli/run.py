@@ -40,7 +40,8 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
                    help="run even if an instrument's calibration is past due (recorded)")
     p.add_argument("--reports", default="reports", metavar="DIR", help="report folder (default: reports)")
     p.add_argument("--db", metavar="PATH|URL", help="results database: a SQLite file or a postgresql:// "
-                   "URL (default: $BENCHGATE_DB, else DIR/results.sqlite; with a URL every run is "
+                   "URL (default: $BENCHGATE_DB, else the station file's 'results', else "
+                   "DIR/results.sqlite; with a URL every run is "
                    "kept in DIR/results.sqlite first and forwarded)")
     p.add_argument("--events", metavar="FILE", help="append one JSON object per line as steps start and finish")
     p.add_argument("--junit", metavar="FILE", help="write JUnit XML (one testsuite per unit)")

@@ -42,7 +42,7 @@ def add_parser(subparsers) -> argparse.ArgumentParser:
                    help="run even if an instrument's calibration is past due (recorded)")
     p.add_argument("--reports", default="reports", metavar="DIR", help="report folder (default: reports)")
     p.add_argument("--db", metavar="PATH|URL", help="results database: a SQLite file or a postgresql:// URL "
-                   "(default: $BENCHGATE_DB, else DIR/results.sqlite)")
+                   "(default: $BENCHGATE_DB, else the station file's 'results', else DIR/results.sqlite)")
     p.add_argument("--open", action="store_true", help="open the page in the default browser")
     p.set_defaults(func=run)
     return p

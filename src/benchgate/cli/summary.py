@@ -25,22 +25,26 @@ def add_parser(subparsers) -> None:
     p.add_argument("--db", metavar="PATH|URL", default=None,
                    help=f"results database: a SQLite file or a postgresql:// URL (default: "
                    f"$BENCHGATE_DB, else {DEFAULT_DB}); credentials are never printed")
+    from benchgate.cli.history import add_station_option
+
+    add_station_option(p)
     p.add_argument("--html", metavar="FILE", help="also write the summary as an HTML page")
     p.add_argument("--json", action="store_true", help="print one JSON object instead of tables")
     p.set_defaults(func=run)
 
 
 def run(args: argparse.Namespace) -> int:
-    from benchgate.cli.history import shown
+    from benchgate.cli.history import shown, station_results
     from benchgate.store import open_results, resolve
     from benchgate.store.queries import fmt_ratio
     from benchgate.store.setting import unsent_note
     from benchgate.units.format import format_quantity as q
 
-    where = resolve(args.db, local_default=DEFAULT_DB).shown()
-    with open_results(args.db, local_default=DEFAULT_DB, role="reader") as db:
+    station = station_results(args.station)
+    where = resolve(args.db, local_default=DEFAULT_DB, station=station).shown()
+    with open_results(args.db, local_default=DEFAULT_DB, role="reader", station=station) as db:
         s = db.summary(plan=args.plan, lot=args.lot, since=args.since)
-    unsent, note = unsent_note(args.db, local_default=DEFAULT_DB)
+    unsent, note = unsent_note(args.db, local_default=DEFAULT_DB, station=station)
     if note:
         print(f"benchgate: {note}", file=sys.stderr)
     html_path = None

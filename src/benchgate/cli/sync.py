@@ -25,19 +25,25 @@ def add_parser(subparsers) -> None:
     p.add_argument("--db", metavar="URL", help=DB_HELP)
     p.add_argument("--reports", metavar="DIR", default="reports",
                    help="the station's report folder holding results.sqlite (default: reports)")
+    from benchgate.cli.history import add_station_option
+
+    add_station_option(p)
     p.add_argument("--all", action="store_true",
                    help="send every run again (after pointing the station at a new server)")
     p.set_defaults(func=run)
 
 
 def run(args: argparse.Namespace) -> int:
+    from benchgate.cli.history import station_results
     from benchgate.errors import StoreError
     from benchgate.store import ResultsDB, resolve
     from benchgate.store.forward import sync
 
-    setting = resolve(args.db, local_default=Path(args.reports) / "results.sqlite")
+    setting = resolve(args.db, local_default=Path(args.reports) / "results.sqlite",
+                      station=station_results(args.station))
     if setting.central is None:
-        raise StoreError("sync needs a postgresql:// URL (--db or BENCHGATE_DB); this station "
+        raise StoreError("sync needs a postgresql:// URL (--db, BENCHGATE_DB or the station "
+                         "file's 'results'); this station "
                          "writes only its own file", setting.local)
     if not setting.local.is_file():  # no queue here: create or migrate the central schema only
         with ResultsDB.open(setting.central) as central:

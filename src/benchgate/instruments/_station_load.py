@@ -6,7 +6,10 @@ Every problem is collected with its file:line:column and raised together as Stat
 from __future__ import annotations
 
 import datetime as dt
+import re
+from pathlib import Path
 from typing import Any
+from urllib.parse import urlsplit
 
 from benchgate.common.fields import Collector
 from benchgate.common.yamlpos import YNode, load_file
@@ -16,11 +19,13 @@ from benchgate.instruments.registry import KIND_ROLES
 from benchgate.instruments.station import ROLES, Calibration, InstrumentConfig, Station
 from benchgate.units import parse_quantity
 
-_TOP_KEYS = {"station", "description", "instruments"}
+_TOP_KEYS = {"station", "description", "instruments", "results"}
 _ADDRESS_KEYS = ("port", "url", "usb", "resource")
 _MAX_TIMEOUT = 3600.0  # s; longer is a typo, and would overflow some OS timeouts
 _CAL_KEYS = {"date", "due", "gain", "offset"}
 _BAD = object()  # an option value that was refused (the error is already recorded)
+_DB_SCHEMES = ("postgresql", "postgres")  # the URLs a results database may be (store/backend.py)
+_SCHEME_RE = re.compile(r"^([a-zA-Z][a-zA-Z0-9+.-]*)://")
 
 
 class StationReader(Collector):
@@ -60,8 +65,41 @@ class StationReader(Collector):
                 cfg = self.instrument(role, node, inst.key_pos[role])
                 if cfg is not None:
                     instruments[role] = cfg
+        results = self.results(top.get("results"))
         self.raise_errors()
-        return Station(id=str(sid.value).strip(), path=self.path, instruments=instruments)
+        return Station(id=str(sid.value).strip(), path=self.path, instruments=instruments,
+                       results=results)
+
+    def results(self, node: YNode | None) -> str | None:
+        """The station's results database: a SQLite file (relative to the station file's
+        folder) or a ``postgresql://`` URL. A URL is never echoed in a message (it may hold a
+        password); only its scheme or the faulty part is named."""
+        if node is None:
+            return None
+        if not isinstance(node.value, str) or not node.value.strip():
+            self.err("'results' must be a file path (SQLite) or a postgresql:// URL", node)
+            return None
+        text = node.value.strip()
+        scheme = _SCHEME_RE.match(text)
+        if scheme is None:
+            return str(Path(self.path).parent / Path(text).expanduser())
+        if scheme.group(1).lower() not in _DB_SCHEMES:
+            self.err(f"'results': a {scheme.group(1)}:// URL is not a results database "
+                     "(a file path for SQLite, or a postgresql:// URL)", node)
+            return None
+        try:
+            parts = urlsplit(text)
+            parts.port  # noqa: B018 - raises ValueError for a port that is not a number
+        except ValueError:
+            self.err("'results': the postgresql:// URL cannot be read (its port must be a "
+                     "number from 1 to 65535; write special characters of the user or password "
+                     "with %-escapes)", node)
+            return None
+        if parts.fragment:
+            self.err("'results': a postgresql:// URL has no '#' part (write '#' in a password "
+                     "as %23)", node)
+            return None
+        return text
 
     # ------------------------------------------------------------------ instruments
     def instrument(self, role: str, node: YNode, key_pos: tuple[int, int]) -> InstrumentConfig | None:

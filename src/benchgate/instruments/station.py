@@ -105,11 +105,14 @@ class InstrumentConfig:
 
 @dataclass(frozen=True)
 class Station:
-    """A bench: its id, the file it came from, and its instruments keyed by role."""
+    """A bench: its id, the file it came from, its instruments keyed by role, and the results
+    database its runs go to (``results``: a SQLite file or a ``postgresql://`` URL; None: the
+    default, unless an option or ``BENCHGATE_DB`` says otherwise)."""
 
     id: str
     path: str
     instruments: Mapping[str, InstrumentConfig] = field(default_factory=dict)
+    results: str | None = None
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "instruments", MappingProxyType(dict(self.instruments)))

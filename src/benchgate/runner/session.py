@@ -67,7 +67,7 @@ class Services:
     open_db: Callable[[Path | str], ResultsStore]
 
     @classmethod
-    def default(cls, options: RunOptions) -> Services:
+    def default(cls, options: RunOptions, station: Any = None) -> Services:
         from benchgate.analysis import analyze
         from benchgate.capfile import save_capture
         from benchgate.instruments import open_station
@@ -77,9 +77,12 @@ class Services:
 
         return cls(open_bench=options.open_bench or open_station, save_capture=save_capture, analyze=analyze,
                    write_reports=write_reports, layout=ReportLayout,
-                   # the one setting (option, BENCHGATE_DB, default) decides; see store/setting.py
+                   # the one setting (option, BENCHGATE_DB, station file, default) decides;
+                   # see store/setting.py
                    open_db=lambda _: open_results(options.db_path,
-                                                  local_default=options.reports_dir / "results.sqlite"))
+                                                  local_default=options.reports_dir / "results.sqlite",
+                                                  station=getattr(station, "results", None),
+                                                  reports=options.reports_dir))
 
 
 class Runner:
@@ -109,7 +112,7 @@ class Runner:
         try:
             self._held.enter_context(self.signals)
             self.pre = preflight(plan, station, options, self.attendant)
-            self.services = services or Services.default(options)
+            self.services = services or Services.default(options, station)
             self.clock: Clock = options.clock or _system_clock()
             self.events = _open_events(options)
             self.db = self.services.open_db(options.database)

@@ -15,6 +15,7 @@ import math
 import os
 from collections.abc import Callable, Sequence
 from datetime import UTC, datetime
+from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from benchgate.errors import StoreError
@@ -40,7 +41,7 @@ RUN_COLUMNS = ("run_id", "serial", "plan_id", "plan_version", "plan_hash", "prod
                "operator", "lot", "started", "started_epoch", "ended", "complete", "verdict",
                "reason", "decision_rule", "software_version", "accept_hazards",
                "allow_expired_calibration", "unattended", "report_path", "cut_short",
-               "report_sha256")
+               "report_sha256", "report_file")
 #: the columns of a check that travel with it (its definition as values, not as an id)
 CHECK_COLUMNS = ("seq", "plan_id", "step", "measurement", "unit", "low", "high", "value",
                  "uncertainty", "valid", "verdict", "reason", "risk", "record_seconds")
@@ -92,6 +93,9 @@ class ResultsDB:
     def __init__(self, conn: Conn):
         self.conn = conn
         self.path = conn.where  # what messages show: a file path, or a URL without password
+        # the station's report folder: a report inside it is also stored by its path relative
+        # to it (report_file), which is what a central user asks for (set by open_results)
+        self.reports_dir: Path | None = None
         self._defs: dict[tuple[Any, ...], int] = {}
 
     @classmethod
@@ -199,6 +203,9 @@ class ResultsDB:
         hazards, expired, unattended = _flags(record)
         report = None if report_path is None else str(report_path)
         sha = file_sha256(report_path)
+        from benchgate.store.evidence import relative_report
+
+        rel = relative_report(report_path, self.reports_dir)
         epoch = parse_time(record.started)
 
         def work(c: Conn) -> None:
@@ -206,9 +213,9 @@ class ResultsDB:
             c.execute(
                 "UPDATE runs SET complete = 1, verdict = ?, reason = ?, ended = ?, accept_hazards = ?,"
                 " allow_expired_calibration = ?, unattended = ?, report_path = ?, operator = ?,"
-                " lot = ?, cut_short = ?, report_sha256 = ?, sent = 0 WHERE id = ?",
+                " lot = ?, cut_short = ?, report_sha256 = ?, report_file = ?, sent = 0 WHERE id = ?",
                 (record.verdict.value, record.reason, record.ended, hazards, expired, unattended,
-                 report, record.operator, record.lot, cut_short(record), sha, pk))
+                 report, record.operator, record.lot, cut_short(record), sha, rel, pk))
             rows = []
             lengths = {s.id: s.capture.samples / s.capture.sample_rate for s in record.steps
                        if s.capture is not None and s.capture.sample_rate > 0}

@@ -88,6 +88,8 @@ class HistoryRun:
     flags: dict[str, bool]
     checks: tuple[HistoryCheck, ...] = ()
     cut_short: str | None = None  # "aborted" / "station error" for a run stopped early
+    report_file: str | None = None  # the report relative to the station's report folder
+    report_sha256: str | None = None  # the report's SHA-256 when the run finished
 
     @property
     def counts(self) -> bool:
@@ -113,7 +115,8 @@ def history(conn: Any, serial: str) -> list[HistoryRun]:
     runs = conn.execute(
         "SELECT id, run_id, serial, plan_id, plan_version, station_id, operator, lot, started,"
         " ended, complete, verdict, reason, report_path, accept_hazards,"
-        " allow_expired_calibration, unattended, cut_short FROM runs WHERE serial = ?"
+        " allow_expired_calibration, unattended, cut_short, report_file, report_sha256"
+        " FROM runs WHERE serial = ?"
         " ORDER BY started_epoch DESC, id DESC", (serial,)).fetchall()
     checks: dict[int, list[HistoryCheck]] = {}
     if runs:
@@ -132,7 +135,8 @@ def history(conn: Any, serial: str) -> list[HistoryRun]:
             verdict=r[11], reason=r[12], report_path=r[13],
             flags={"accept_hazards": bool(r[14]), "allow_expired_calibration": bool(r[15]),
                    "unattended": bool(r[16])},
-            checks=tuple(checks.get(r[0], ())), cut_short=r[17]))
+            checks=tuple(checks.get(r[0], ())), cut_short=r[17], report_file=r[18],
+            report_sha256=r[19]))
     return out
 
 

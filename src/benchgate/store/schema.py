@@ -101,15 +101,23 @@ ALTER TABLE checks ADD COLUMN risk {real};
 ALTER TABLE checks ADD COLUMN record_seconds {real}
 """
 
+# where the evidence is, as a central user can ask for it: the report's path relative to the
+# station's report folder (POSIX separators), beside report_sha256. report_path stays the path
+# as the station wrote it (its own pages link from it); rows from before version 6 have only that
+_V6 = """
+ALTER TABLE runs ADD COLUMN report_file TEXT
+"""
+
 #: ordered migrations: (version reached, SQL text that gets there from the version before).
 #: Released versions: 1 and 2 (SQLite only), 3 (cut_short); 4 adds forwarding; 5 risk and
-#: record length per check.
+#: record length per check; 6 the report's path relative to the report folder.
 MIGRATIONS: tuple[tuple[int, str], ...] = (
     (1, _V1),
     (2, _V2),
     (3, _V3),
     (4, _V4),
     (5, _V5),
+    (6, _V6),
 )
 SCHEMA_VERSION = MIGRATIONS[-1][0]
 

@@ -2,7 +2,8 @@
 
 The setting is a file path (SQLite) or a ``postgresql://`` URL (a central PostgreSQL database).
 It comes from, first to last: the command's option (``--db``, ``--bench-db``), the environment
-variable ``BENCHGATE_DB``, and the default ``<reports>/results.sqlite``.
+variable ``BENCHGATE_DB``, the station file's ``results`` key (where a station is in play), and
+the default ``<reports>/results.sqlite``.
 
 With a URL, a station that *writes* runs still writes every run to its local SQLite file first
 (the default path: its queue) and forwards it to the central database (:mod:`.forward`), so a
@@ -32,7 +33,7 @@ class Setting:
 
     central: str | None  # postgresql:// URL, or None for a station with only its SQLite file
     local: Path  # the SQLite file: the database itself, or the station's queue for ``central``
-    source: str  # where the setting came from: the option, the environment, or the default
+    source: str  # where it came from: "option", BENCHGATE_DB, "station file" or "default"
 
     def shown(self) -> str:
         """For messages: the file, or the URL without its password."""
@@ -40,12 +41,16 @@ class Setting:
 
 
 def resolve(option: str | os.PathLike[str] | None = None, *,
-            local_default: str | os.PathLike[str] = DEFAULT_LOCAL) -> Setting:
-    """The setting from the option, else ``BENCHGATE_DB``, else the default file."""
+            local_default: str | os.PathLike[str] = DEFAULT_LOCAL,
+            station: str | None = None) -> Setting:
+    """The setting from the option, else ``BENCHGATE_DB``, else ``station`` (the station file's
+    ``results``, already checked by the station loader), else the default file."""
     source = "option"
     value: Any = option
     if value is None or str(value) == "":
         value, source = os.environ.get(ENV_VAR) or None, ENV_VAR
+    if value is None and station:
+        value, source = station, "station file"
     if value is None:
         return Setting(None, Path(local_default), "default")
     text = str(value)
@@ -67,35 +72,41 @@ def _warn(message: str) -> None:
 
 def open_results(option: str | os.PathLike[str] | None = None, *,
                  local_default: str | os.PathLike[str] = DEFAULT_LOCAL, role: str = "writer",
-                 notify: Callable[[str], None] | None = None) -> Any:
+                 notify: Callable[[str], None] | None = None, station: str | None = None,
+                 reports: str | os.PathLike[str] | None = None) -> Any:
     """Open "the results database" (see the module text) for ``role`` ``writer`` or ``reader``.
 
     A writer gets a :class:`~benchgate.store.db.ResultsDB` on its SQLite file, or with a URL a
     :class:`~benchgate.store.forward.ForwardingDB` (local first, then the server); ``notify``
     receives the one-line messages for the operator (default: a logged warning, on standard error). A reader gets
-    the database to read (the file must exist, the server must have the schema).
+    the database to read (the file must exist, the server must have the schema). ``station``
+    is the station file's ``results`` (see :func:`resolve`); ``reports`` the station's report
+    folder, so that a writer stores each report's path relative to it as well.
     """
     from benchgate.store.db import ResultsDB
 
-    setting = resolve(option, local_default=local_default)
+    setting = resolve(option, local_default=local_default, station=station)
     if role == "reader":
         return ResultsDB.open(setting.central or setting.local, create=False)
     if role != "writer":
         raise ValueError(f"role must be writer or reader, got {role!r}")
+    local = ResultsDB.open(setting.local)
+    local.reports_dir = None if reports is None else Path(reports)
     if setting.central is None:
-        return ResultsDB.open(setting.local)
+        return local
     from benchgate.store.forward import ForwardingDB
 
-    return ForwardingDB(ResultsDB.open(setting.local), setting.central, notify=notify or _warn)
+    return ForwardingDB(local, setting.central, notify=notify or _warn)
 
 
 def unsent_note(option: str | os.PathLike[str] | None = None, *,
-                local_default: str | os.PathLike[str] = DEFAULT_LOCAL) -> tuple[int, str | None]:
+                local_default: str | os.PathLike[str] = DEFAULT_LOCAL,
+                station: str | None = None) -> tuple[int, str | None]:
     """(runs in the local queue not yet sent, a one-line note for the reader or None).
 
     Only meaningful when the setting is a URL: the local file is then this station's queue.
     """
-    setting = resolve(option, local_default=local_default)
+    setting = resolve(option, local_default=local_default, station=station)
     if setting.central is None or not setting.local.is_file():
         return 0, None
     from benchgate.store.db import ResultsDB

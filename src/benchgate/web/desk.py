@@ -349,7 +349,8 @@ class Desk:
         """The unit's earlier runs; a database that cannot be read is said, never fatal."""
         c = self.config
         try:
-            return lot.history(c.db_path, c.reports_dir, serial, skip_run=skip_run)
+            return lot.history(c.db_path, c.reports_dir, serial, skip_run=skip_run,
+                               station=getattr(self.station, "results", None))
         except Exception as exc:  # noqa: BLE001 - the run goes on without its history
             self.board.update(notice=f"earlier runs cannot be read: {exc}")
             return []

@@ -377,7 +377,7 @@ def make_runner(plan: Any, station: Any, options: Any, face: PageFace,
     from benchgate.instruments import open_station
     from benchgate.runner.session import Runner, Services
 
-    services = Services.default(options)
+    services = Services.default(options, station)
     opener = options.open_bench or open_station
     save = services.save_capture
 

@@ -67,17 +67,19 @@ def report_url(reports_dir: Path, path: str | Path | None) -> str | None:
     return "/reports/" + quote(rel.as_posix())
 
 
-def history(db: str | Path | None, reports_dir: Path, serial: str, skip_run: str | None = None) -> list[dict]:
+def history(db: str | Path | None, reports_dir: Path, serial: str, skip_run: str | None = None,
+            station: str | None = None) -> list[dict]:
     """The unit's earlier runs, newest first, from the results database the runs go to (the one
-    setting: ``db``, else ``BENCHGATE_DB``, else ``<reports>/results.sqlite``); none yet: empty."""
+    setting: ``db``, else ``BENCHGATE_DB``, else the station file's ``results``, else
+    ``<reports>/results.sqlite``); none yet: empty."""
     from benchgate.store import open_results
     from benchgate.store.setting import resolve
 
     default = Path(reports_dir) / "results.sqlite"
-    setting = resolve(db, local_default=default)
+    setting = resolve(db, local_default=default, station=station)
     if setting.central is None and not setting.local.is_file():
         return []  # no run yet
-    database = open_results(db, local_default=default, role="reader")
+    database = open_results(db, local_default=default, role="reader", station=station)
     try:
         runs = [r for r in database.history(serial) if r.run_id != skip_run][:HISTORY_ROWS]
     finally:
