@@ -124,3 +124,25 @@ def test_a_station_url_with_a_password_is_never_shown(tmp_path, monkeypatch, cap
     assert main(["history", "SN-1", "--station", str(bad)]) == 2
     out, err = capsys.readouterr()
     assert f"{bad}:6:10" in err and SECRET not in out + err
+
+
+def test_the_runners_services_and_the_operator_page_history_take_the_station_setting(tmp_path, monkeypatch):
+    # Services.default(options, station) is what Runner (run, the pytest plugin) and the operator
+    # page's make_runner (serve) open the database with; lot.history is the page's earlier-runs list
+    from benchgate.instruments.station import Station
+    from benchgate.runner.options import RunOptions
+    from benchgate.runner.session import Services
+    from benchgate.web import lot
+    from synthetic_runs import CheckSpec, make_record
+
+    monkeypatch.delenv("BENCHGATE_DB", raising=False)
+    own = tmp_path / "line" / "line.sqlite"
+    own.parent.mkdir()
+    station = Station(id="owl-bench-9", path=str(tmp_path / "line" / "station.yaml"), results=str(own))
+    opts = RunOptions(reports_dir=tmp_path / "rep")
+    with Services.default(opts, station).open_db(opts.database) as db:
+        assert db.path == str(own)
+        db.finish_run(make_record("SN-P", [CheckSpec("capture-tone", "frequency", 955.0, "Hz",
+                                                      860.0, 1050.0, 0.4)]), None)
+    assert [r["plan"] for r in lot.history(None, tmp_path / "rep", "SN-P", station=str(own))] == ["tb3"]
+    assert lot.history(None, tmp_path / "rep", "SN-P") == []  # the default file: no runs there
