@@ -23,7 +23,7 @@ from collections.abc import Callable, Mapping
 from pathlib import Path
 from typing import TYPE_CHECKING, Any, TextIO
 
-from benchgate.runner.attendant import NobodyAnswers, Notice, Reply
+from benchgate.runner.attendant import NobodyThere, Notice, Reply
 from benchgate.units.format import format_quantity
 
 if TYPE_CHECKING:
@@ -329,17 +329,5 @@ class Terminal(_Face):
         return typed.strip().casefold() in (name.casefold(), ACK_PHRASE.casefold())
 
 
-class Unattended(_Face):
+class Unattended(NobodyThere, _Face):
     """Nobody at the bench (a CI job): shows lines, asks nothing; serial numbers come one per line."""
-
-    def ask_yes_no(self, question: str) -> bool:
-        raise NobodyAnswers(question)
-
-    def wait_until_done(self, instruction: str) -> str:
-        raise NobodyAnswers(instruction)
-
-    def ask_retry(self, question: str) -> Reply:
-        raise NobodyAnswers(question)
-
-    def acknowledge(self, name: str, text: str) -> bool:
-        return False

@@ -110,7 +110,24 @@ class Attendant(RunListener, Protocol):
     def close(self) -> None: ...
 
 
-class Silent:
+class NobodyThere:
+    """The answers of a face with nobody at the bench (a CI job): every question raises
+    :class:`NobodyAnswers` and no hazard is acknowledged. Faces that show something mix it in."""
+
+    def ask_yes_no(self, question: str) -> bool:
+        raise NobodyAnswers(question)
+
+    def wait_until_done(self, instruction: str) -> str:
+        raise NobodyAnswers(instruction)
+
+    def ask_retry(self, question: str) -> Reply:
+        raise NobodyAnswers(question)
+
+    def acknowledge(self, name: str, text: str) -> bool:
+        return False
+
+
+class Silent(NobodyThere):
     """Shows nothing and asks nobody: every question raises :class:`NobodyAnswers`."""
 
     def announce(self, notice: Notice) -> None:
@@ -137,20 +154,8 @@ class Silent:
     def run_finished(self, record: UnitRecord, paths: Mapping[str, Path]) -> None:
         pass
 
-    def ask_yes_no(self, question: str) -> bool:
-        raise NobodyAnswers(question)
-
-    def wait_until_done(self, instruction: str) -> str:
-        raise NobodyAnswers(instruction)
-
-    def ask_retry(self, question: str) -> Reply:
-        raise NobodyAnswers(question)
-
     def ask_serial(self, prompt: str) -> str | None:
         return None
-
-    def acknowledge(self, name: str, text: str) -> bool:
-        return False
 
     def close(self) -> None:
         pass
