@@ -48,6 +48,21 @@ class TestPublishedValues:
         # JCGM 100:2008 (GUM) Table G.1: k = 2 gives a coverage probability of 95.45 %
         assert probability_inside(0.0, 1.0, -2.0, 2.0) == pytest.approx(0.9545, abs=5e-5)
 
+    def test_jcgm_106_two_limit_worked_example(self):
+        # JCGM 106:2012 clause 7.4, example (two tolerance limits): measured value y = 13.6,
+        # standard uncertainty u = 1.8, tolerance limits T_L = 12.5 and T_U = 16.3. Inputs as
+        # quoted, to check against the guide, by metrologyrules.com (2022-03, "decision rules"
+        # post); the guide's conformance probability p_c ≈ 0.66 is from memory. The two tails by
+        # the standard normal table: Φ(−0.611) = 0.2706 below T_L, 1 − Φ(1.500) = 0.0668 above T_U.
+        y, u, lo, hi = 13.6, 1.8, 12.5, 16.3
+        assert probability_inside(y, u, lo, hi) == pytest.approx(0.66, abs=0.005)
+        assert probability_outside(y, u, lo, hi) == pytest.approx(0.34, abs=0.005)
+        assert probability_outside(y, u, lo, None) == pytest.approx(0.2706, abs=5e-5)
+        assert probability_outside(y, u, None, hi) == pytest.approx(0.0668, abs=5e-5)
+        # as a decision: a pass on this value carries a ~34 % risk of a false pass (U = 2u)
+        r = specific_risk("pass", y, 2 * u, lo, hi)
+        assert r.kind == "false pass" and r.probability == pytest.approx(0.3374, abs=5e-4)
+
     def test_five_and_one_percent_quantiles(self):
         # standard normal table (handbook values, from memory): Φ(−1.645) = 5.0 %, Φ(−2.326) = 1.0 %
         assert probability_outside(1.645, 1.0, 0.0, None) == pytest.approx(0.0500, abs=5e-5)
