@@ -8,12 +8,12 @@ import signal
 import sqlite3
 import subprocess
 import sys
-import time
 from pathlib import Path
 
 import pytest
 
 from benchgate.cli import main
+from waiting import wait_until
 
 REPO = Path(__file__).resolve().parents[2]
 TB3 = REPO / "testplans" / "tb3.yaml"
@@ -125,17 +125,18 @@ def bg(*args, env=None, **kw):
 
 
 def wait_for_event(path, event, step, proc, timeout=60.0):
-    deadline = time.monotonic() + timeout
-    while time.monotonic() < deadline:
+    def found():
         if path.exists():
             for line in path.read_text().splitlines():
                 e = json.loads(line)
                 if e["event"] == event and e.get("step") == step:
                     return e
-        if proc.poll() is not None:
-            raise AssertionError(f"benchgate ended early: {proc.communicate()}")
-        time.sleep(0.01)
-    raise AssertionError(f"no {event} for {step} within {timeout} s")
+        return None
+
+    def ended():
+        return None if proc.poll() is None else f"benchgate ended early: {proc.communicate()}"
+
+    return wait_until(found, timeout=timeout, what=f"{event} for {step}", abandon=ended)
 
 
 def test_good_unit_in_process_with_junit_and_events(ubench, tmp_path, capsys):
@@ -235,9 +236,7 @@ def test_sigint_during_a_capture_switches_off_and_aborts(tmp_path):
                   "--reports", tmp_path / "r", "--events", events, "--clock-speed", 0.5,
                   stdin=subprocess.DEVNULL)
         wait_for_event(events, "step_started", "power-on", proc)
-        deadline = time.monotonic() + 5
-        while not vb.supply_output and time.monotonic() < deadline:
-            time.sleep(0.005)
+        wait_until(lambda: vb.supply_output, timeout=5, what="supply switched on")
         assert vb.supply_output is True  # switched on once the acquisition was running
         proc.send_signal(signal.SIGINT)
         out, err = proc.communicate(timeout=60)
@@ -256,13 +255,17 @@ def test_second_sigint_during_cleanup_still_leaves_supply_off(ubench_real_time, 
               "--reports", tmp_path / "r", "--events", events, stdin=subprocess.DEVNULL)
     wait_for_event(events, "step_started", "warm-up", proc)
     proc.send_signal(signal.SIGINT)
-    deadline = time.monotonic() + 30
-    while proc.poll() is None and time.monotonic() < deadline:  # an impatient operator
-        time.sleep(0.002)
+
+    def pester() -> bool:  # an impatient operator: Ctrl-C again at every look until it ends
+        if proc.poll() is not None:
+            return True
         try:
             proc.send_signal(signal.SIGINT)
         except ProcessLookupError:
-            break
+            return True
+        return False
+
+    wait_until(pester, timeout=30, what="benchgate ends under repeated Ctrl-C")
     out, err = proc.communicate(timeout=60)
     assert proc.returncode == 130, (out, err)
     assert ubench_real_time.supply_output is False

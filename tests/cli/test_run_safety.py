@@ -14,12 +14,12 @@ import sqlite3
 import subprocess
 import sys
 import threading
-import time
 from pathlib import Path
 
 import pytest
 
 from benchgate.cli import main
+from waiting import wait_until
 
 REPO = Path(__file__).resolve().parents[2]
 TB3 = REPO / "testplans" / "tb3.yaml"
@@ -51,15 +51,16 @@ def events_of(path: Path) -> list[dict]:
 
 def wait_for(path: Path, proc, *, event: str, step: str | None = None, timeout: float = 60.0) -> dict:
     """The first ``event`` (for ``step``) in the events file; fails if the run ends first."""
-    deadline = time.monotonic() + timeout
-    while time.monotonic() < deadline:
-        for e in events_of(path):
-            if e["event"] == event and (step is None or e.get("step") == step):
-                return e
-        if proc is not None and proc.poll() is not None:
-            raise AssertionError(f"benchgate ended before {event} {step}: {proc.communicate()}")
-        time.sleep(0.005)  # polling interval of the file, not a wait for the outcome
-    raise AssertionError(f"no {event} {step} within {timeout} s")
+    def found():
+        return next((e for e in events_of(path)
+                     if e["event"] == event and (step is None or e.get("step") == step)), None)
+
+    def ended():
+        if proc is None or proc.poll() is None:
+            return None
+        return f"benchgate ended first: {proc.communicate()}"
+
+    return wait_until(found, timeout=timeout, what=f"{event} {step}", abandon=ended)
 
 
 def rows(db: Path) -> list[tuple]:

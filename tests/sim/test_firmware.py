@@ -18,6 +18,7 @@ from firmware_support import ON_CI, RawPort, bench, instruments, need_firmware
 
 from benchgate.instruments.framing import FrameDecoder
 from benchgate.sim.firmware import F_AVR, build_dir, find_build
+from waiting import wait_until
 
 pytestmark = pytest.mark.skipif(sys.platform == "win32", reason="needs POSIX pseudo-terminals")
 
@@ -226,9 +227,7 @@ def test_a_board_that_goes_away_releases_its_fixture_relay():
         assert port.command("POWER ON", "OK POWER") == "OK POWER ON"
         assert vb.state.relay
         vb.faults.disconnect_adc()
-        deadline = time.monotonic() + 10
-        while vb.state.relay and time.monotonic() < deadline:
-            time.sleep(0.01)  # polling an event with a deadline
+        wait_until(lambda: not vb.state.relay, timeout=10, what="fixture relay released")
         assert not vb.state.relay
 
 
