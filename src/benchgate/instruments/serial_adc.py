@@ -6,7 +6,7 @@ read timeouts inside an overall deadline; an unplugged adapter mapped to one
 InstrumentDisconnected carrying the partial capture; exclusive opening with a clear "busy"
 message; a single owner thread for all I/O on the port; the device's declared sample rate
 cross-checked against the rate samples actually arrive at (host clock, ±5 %); losses above
-``max_loss`` refused.
+``max_loss`` refused. What arrived becomes captures in :mod:`benchgate.instruments.serial_capture`.
 """
 
 from __future__ import annotations
@@ -20,19 +20,17 @@ from typing import Any
 
 import numpy as np
 
-from benchgate.analysis.capture import AdcInfo, Capture
+from benchgate.analysis.capture import Capture
 from benchgate.clock import Clock, SystemClock
 from benchgate.errors import InstrumentDisconnected, InstrumentError
 from benchgate.instruments import serial_options
 from benchgate.instruments._looks import Looks
-from benchgate.instruments._serial_port import SerialPort, arrival_rate, least_rate
+from benchgate.instruments._serial_port import SerialPort
 from benchgate.instruments.framing import FrameDecoder, encode_frame
 from benchgate.instruments.options import OptionSpec
+from benchgate.instruments.serial_capture import RATE_TOLERANCE, Arrived, build_captures
 from benchgate.instruments.serial_lines import LinesDecoder
 
-RATE_TOLERANCE = 0.05  # declared vs host-measured arrival rate
-MIN_VERIFY_WALL = 0.3  # s of wall time a capture must span before verifying its rate means anything
-MIN_VERIFY_POINTS = 12
 WALL_GRACE = 1.0  # s of wall time added to accelerated deadlines
 
 
@@ -235,7 +233,7 @@ class SerialAdc:
         mask = sum(1 << self.channels.index(c) for c in channels)
         decoder = FrameDecoder(mask=mask) if self.protocol == "framed" else LinesDecoder(
             self.bits, timestamps=timestamps, skip_first=self.free_running, expect_end=not self.free_running)
-        state = _Progress(n)
+        state = Arrived(n)
         t_start = self.clock.monotonic()
         state.commanded_at = None if self.free_running else t_start
         if self.free_running:
@@ -247,7 +245,8 @@ class SerialAdc:
         looker = None
         if looks and decide is not None:  # an adaptive capture (instruments/_looks.py)
             looker = Looks([max(1, int(round(x * actual))) for x in looks],
-                           lambda k: self._build(channels, state, actual, decoder, k, complete=True)[0], decide)
+                           lambda k: build_captures(self, channels, state, actual, decoder, k,
+                                                    complete=True)[0], decide)
         try:
             self._receive(decoder, state, n, duration, progress, looker)
             if looker is not None and looker.stopped is not None:
@@ -256,7 +255,7 @@ class SerialAdc:
                 return (looker.stopped,)
         except InstrumentDisconnected as exc:
             elapsed = self.clock.monotonic() - t_start
-            partial = self._build(channels, state, actual, decoder, n, complete=False)
+            partial = build_captures(self, channels, state, actual, decoder, n, complete=False)
             partial = partial[0] if partial else None
             port.close()
             raise InstrumentDisconnected(
@@ -269,12 +268,12 @@ class SerialAdc:
         finally:
             if looker is not None:
                 looker.close()
-        captures = self._build(channels, state, actual, decoder, n, complete=True)
+        captures = build_captures(self, channels, state, actual, decoder, n, complete=True)
         if not captures:  # only a partial capture can be empty
             raise InstrumentError(self.name, f"adc on {self.address} delivered no samples")
         return captures
 
-    def _receive(self, decoder, state: _Progress, n: int, duration: float, progress, look=None) -> None:
+    def _receive(self, decoder, state: Arrived, n: int, duration: float, progress, look=None) -> None:
         """Read until the device has sent ``n`` samples (or END), within the deadlines.
 
         Deadlines are in the clock's time, each with a floor of wall time as well (WALL_GRACE),
@@ -318,119 +317,6 @@ class SerialAdc:
                 raise InstrumentError(self.name, f"adc on {self.address}: capture did not finish within "
                                                  f"{budget:.1f} s ({state.index} of {n} samples)")
 
-    def _build(self, channels: tuple[str, ...], state: _Progress, actual: float, decoder, n: int, *,
-               complete: bool) -> tuple[Capture, ...]:
-        codes = state.codes()
-        if complete is False and state.index == 0:
-            return ()
-        extra: dict = {}
-        if self.protocol == "framed":
-            periods = sorted(state.periods)
-            if len(periods) > 1 and complete:
-                raise InstrumentError(self.name, f"device on {self.address} changed its sample period "
-                                                 f"during the capture ({periods[0]} to {periods[-1]} ps)")
-            declared = 1e12 / periods[0] if periods else actual
-            gaps = [(a, min(b, n - a)) for a, b in state.gaps if a < n]
-            lost = sum(b for _a, b in gaps)
-            rejected, garbage = state.rejected, state.garbage
-            end_total = state.end_total
-            codes = codes[:max(0, n - lost)]
-            received = int(codes.shape[0])
-            tail = max(0, n - received - lost) if complete else 0
-            if tail:
-                gaps = [*gaps, (received + lost, tail)]
-                lost += tail
-        else:
-            res = decoder.result(n, complete=complete)
-            if res.extra and complete:
-                said = (f"says it sent {res.end_total} samples" if res.end_total is not None else
-                        f"sent no readable END line for the {n} samples asked for")
-                raise InstrumentError(self.name, f"adc on {self.address} {said} but {res.slots} lines "
-                                                 "arrived: lines were split or repeated, so samples may sit "
-                                                 "at the wrong index; capture refused (lines mode has no framing)")
-            codes, gaps, lost = res.codes, res.gaps, res.lost
-            declared = res.rate or float(self.config.options.get("rate") or actual)
-            rejected, garbage, end_total = len(res.bad_lines), 0, res.end_total
-            extra = {"bad_lines": res.bad_lines[:100], "time_outliers": res.time_outliers[:100],
-                     "repeated_lines": res.repeats, "unlocated": res.unlocated,
-                     "extra_lines": res.extra, "end_count": res.end_total,
-                     "rate_fit": res.fit or None}
-        measured = arrival_rate(state.points, declared)
-        span = state.points[-1][0] - state.points[0][0] if len(state.points) > 1 else 0.0
-        wall = span / (getattr(self.clock, "speed", 1.0) or 1.0)
-        verifiable = measured is not None and wall >= MIN_VERIFY_WALL and len(state.points) >= MIN_VERIFY_POINTS
-        warnings: list[str] = []
-        if state.commanded_at is not None and complete:
-            # too fast is decided causally: a sample cannot arrive before it was taken, so a device
-            # at the declared rate cannot have delivered c samples sooner than (c - 1)/rate after
-            # START was sent. A busy host only ever delays arrivals (and their catch-up burst keeps
-            # the bound), so load can never make a correct device look fast here.
-            fastest = least_rate(state.points, state.commanded_at)
-            if fastest is not None and fastest > declared * (1 + RATE_TOLERANCE):
-                raise InstrumentError(self.name, f"adc on {self.address} declares {declared:.6g} Hz but "
-                                                 f"samples arrived at no less than {fastest:.6g} Hz by the "
-                                                 f"host clock ({100 * (fastest / declared - 1):+.1f} %, limit "
-                                                 f"±{100 * RATE_TOLERANCE:.0f} %); capture refused")
-            too_far = measured is not None and measured < declared * (1 - RATE_TOLERANCE)
-        else:
-            too_far = measured is not None and abs(measured / declared - 1) > RATE_TOLERANCE
-        if measured is not None and verifiable and complete and too_far:
-            raise InstrumentError(self.name, f"adc on {self.address} declares {declared:.6g} Hz but samples "
-                                             f"arrived at {measured:.6g} Hz by the host clock "
-                                             f"({100 * (measured / declared - 1):+.1f} %, limit "
-                                             f"±{100 * RATE_TOLERANCE:.0f} %); capture refused")
-        fraction = lost / n
-        if complete and fraction > self.max_loss:
-            raise InstrumentError(self.name, f"adc on {self.address} lost {lost} of {n} samples "
-                                             f"({100 * fraction:.3g} %) in {len(gaps)} gap(s), more than "
-                                             f"max_loss {100 * self.max_loss:.3g} %; capture refused")
-        if lost:
-            warnings.append(f"{lost} samples lost in {len(gaps)} gap(s) were left out; the capture is "
-                            f"joined at those points")
-        if extra.get("unlocated"):
-            warnings.append(f"{extra['unlocated']} of the samples the device sent are missing at places "
-                            "lines mode cannot locate; the capture is joined at its end")
-        if self.protocol == "lines" and not self.free_running and end_total is None and complete:
-            warnings.append("the device sent no readable END line; the lines were counted against the "
-                            f"{n} samples asked for")
-        if extra.get("time_outliers"):
-            warnings.append(f"{len(extra['time_outliers'])} samples with an implausible time stamp were "
-                            "counted as lost")
-        # the frame's columns are the selected channels in channel-index order
-        by_index = sorted(channels, key=self.channels.index)
-        return tuple(self._one(c, codes[:, by_index.index(c)], declared, actual, measured, verifiable, lost, n,
-                               gaps, rejected, garbage, end_total, extra, warnings, fraction, len(channels))
-                     for c in channels)
-
-    def _one(self, channel, column, declared, actual, measured, verifiable, lost, n, gaps, rejected, garbage,
-             end_total, extra, warnings, fraction, together) -> Capture:
-        cal = self.calibration.for_channel(channel) if self.calibration else None
-        volts = column.astype(np.float64) * (self.vref / 2.0**self.bits)
-        if cal is not None:
-            volts = cal.gain * volts + cal.offset
-        meta = {
-            "source": "serial-adc",
-            "instrument": {"role": self.name, "kind": self.config.kind, "address": self.address,
-                           "identity": self._identity, "protocol": self.protocol},
-            "calibration": None if cal is None else cal.to_dict(),
-            "loss": {"lost_samples": int(lost), "requested_samples": int(n), "fraction": fraction,
-                     "gaps": [[int(a), int(b)] for a, b in gaps], "rejected_frames": int(rejected),
-                     "garbage_bytes": int(garbage), "max_loss": self.max_loss,
-                     "end_frame": end_total is not None, **extra},
-            # "lines": taken without framing (no checksum, no sequence numbers); see
-            # docs/serial-protocol.md for what such a capture cannot detect
-            "framing": self.protocol,
-            "rate": {"declared": declared, "device_reply": actual, "host_measured": measured,
-                     "verified": "ok" if verifiable else f"not verified (needs {MIN_VERIFY_WALL:g} s of wall time)"},
-            "warnings": warnings,
-        }
-        if together > 1:  # one converter, channels multiplexed within each sample period
-            meta["channel_skew_s"] = 1.0 / declared
-        return Capture(samples=volts, sample_rate=declared, start_time=0.0, channel=channel,
-                       adc=AdcInfo(self.bits, self.vref), clock_ppm=self.config.options.get("clock_ppm"),
-                       metadata=meta)
-
-
 _warm = False
 
 
@@ -442,36 +328,3 @@ def _warm_up() -> None:
         frame = encode_frame(0, 20_000_000, 1, np.zeros(4, dtype=np.uint16))
         FrameDecoder(mask=1).feed(b"\x00" + frame + frame[:5])
         _warm = True
-
-
-class _Progress:
-    """What has arrived so far in one capture."""
-
-    def __init__(self, n: int):
-        self.n = n
-        self.parts: list[np.ndarray] = []
-        self.count = 0
-        self.index = 0
-        self.points: list[tuple[float, int]] = []
-        self.commanded_at: float | None = None  # clock time START was sent (None: free-running)
-        self.last_point_index = 0
-        self.periods: set[int] = set()
-        self.gaps: list[tuple[int, int]] = []
-        self.lost = self.rejected = self.garbage = 0
-        self.end_total: int | None = None
-
-    def add(self, got, decoder, *, framed: bool) -> None:
-        if framed:
-            self.parts.append(got.samples)
-            self.count += got.samples.shape[0]
-            self.periods.update(got.periods_ps)
-            self.gaps.extend(got.gaps)
-            self.lost += got.lost
-            self.rejected += got.rejected
-            self.garbage += got.garbage_bytes
-            if got.end_total is not None:
-                self.end_total = got.end_total
-        self.index = decoder.next_index
-
-    def codes(self) -> np.ndarray:
-        return np.concatenate(self.parts) if self.parts else np.empty((0, 1), dtype=np.uint16)
