@@ -73,3 +73,23 @@ def test_unattended_face_asks_nobody_but_reads_serials():
 def test_alarm_reaches_stderr_even_when_quiet(capsys):
     QuietDisplay().alarm("SWITCH THE SUPPLY OFF BY HAND: test")
     assert capsys.readouterr().err == "benchgate: SWITCH THE SUPPLY OFF BY HAND: test\n"
+
+
+def test_a_capture_preview_is_a_count_on_a_terminal_and_nothing_in_a_log():
+    from types import SimpleNamespace
+
+    from benchgate.instruments.preview import whole_preview
+
+    preview = whole_preview("out", 50_000.0, [0.5] * 25_600, 200_000)
+    step = SimpleNamespace(id="steady", title="Tone", kind="capture")
+    rich = RichDisplay(Tty())
+    face = Terminal(rich, read=lambda p: "")
+    face.step_started(6, 7, step)
+    face.capture_preview(preview)
+    face.progress(0.128, "capture out", 3.5)
+    assert rich._progress.tasks[0].fields["left"] == "25 600 of 200 000 samples · 3.5 s left"
+    face.close()
+    out = io.StringIO()
+    for quiet in (Terminal(PlainDisplay(out), read=lambda p: ""), Unattended(PlainDisplay(out), read=lambda p: "")):
+        quiet.capture_preview(preview)  # a log gets no picture and no extra line
+    assert out.getvalue() == ""

@@ -27,6 +27,7 @@ from benchgate.runner.attendant import NobodyThere, Notice, Reply
 from benchgate.units.format import format_quantity
 
 if TYPE_CHECKING:
+    from benchgate.instruments.preview import CapturePreview
     from benchgate.plan.limits import Window
     from benchgate.plan.model import Step
     from benchgate.record import CheckRecord, StepRecord, UnitRecord
@@ -86,6 +87,7 @@ class QuietDisplay:
     def run_started(self, record: UnitRecord, total_steps: int) -> None: ...
     def step_started(self, index: int, total: int, step: Step) -> None: ...
     def progress(self, fraction: float, text: str, time_left: float | None) -> None: ...
+    def capture_preview(self, preview: CapturePreview) -> None: ...  # a picture needs a page
     def check(self, check: CheckRecord) -> None: ...
     def step_finished(self, step: StepRecord) -> None: ...
     def run_finished(self, record: UnitRecord, paths: Mapping[str, Path]) -> None: ...
@@ -158,8 +160,10 @@ class RichDisplay(PlainDisplay):
         self.console = Console(file=self.stream, highlight=False)
         self._progress: Any = None
         self._task: Any = None
+        self._samples = ""  # "12 500 of 25 000 samples" of the capture being taken
 
     def _stop_bar(self) -> None:
+        self._samples = ""
         if self._progress is not None:
             self._progress.stop()
             self._progress = None
@@ -204,7 +208,11 @@ class RichDisplay(PlainDisplay):
         if self._progress is not None:
             left = "" if time_left is None else f"{time_left:.1f} s left"
             self._progress.update(self._task, completed=max(0.0, min(1.0, fraction)), description=text,
-                                  left=left)
+                                  left=" · ".join(x for x in (self._samples, left) if x))
+
+    def capture_preview(self, preview: CapturePreview) -> None:
+        """Only the count of samples so far, beside the bar (the picture is the page's)."""
+        self._samples = f"{preview.received:,} of {preview.expected:,} samples".replace(",", " ")
 
     def check(self, check: CheckRecord) -> None:
         v = check.verdict.value
@@ -277,6 +285,9 @@ class _Face:
 
     def progress(self, fraction: float, text: str, time_left: float | None) -> None:
         self.display.progress(fraction, text, time_left)
+
+    def capture_preview(self, preview: CapturePreview) -> None:
+        self.display.capture_preview(preview)
 
     def check(self, check: CheckRecord) -> None:
         self.display.check(check)

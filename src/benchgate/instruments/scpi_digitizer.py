@@ -17,6 +17,7 @@ import numpy as np
 from benchgate.analysis.capture import Capture
 from benchgate.errors import InstrumentError
 from benchgate.instruments.options import OptionSpec
+from benchgate.instruments.preview import preview_sink, whole_preview
 from benchgate.instruments.scpi import station_error
 from benchgate.instruments.scpi_instrument import ScpiInstrument
 
@@ -136,11 +137,17 @@ class ScpiDigitizer(ScpiInstrument):
         self.arm()
         if progress:
             progress(0.0, f"{self.name}: acquiring {setup['points']} points")
+        sink = preview_sink(progress)  # the record is handed over only when complete
+        if sink is not None:
+            sink(whole_preview(channel, setup["rate"], (), setup["points"]))
         self.wait()
         samples = self.fetch()
         if progress:
             progress(1.0, f"{self.name}: {samples.size} points fetched")
-        return self.to_capture(samples)
+        capture = self.to_capture(samples)
+        if sink is not None:
+            sink(whole_preview(channel, capture.sample_rate, capture.samples, setup["points"]))
+        return capture
 
     def capture_channels(self, channels: tuple[str, ...], *, duration: float, rate: float | None = None,
                          progress=None, range: float | None = None) -> tuple[Capture, ...]:
@@ -157,6 +164,9 @@ class ScpiDigitizer(ScpiInstrument):
         self.arm()
         if progress:
             progress(0.0, f"{self.name}: acquiring {setup['points']} points on {len(channels)} channels")
+        sink = preview_sink(progress)  # of the first channel, once the record is handed over
+        if sink is not None:
+            sink(whole_preview(channels[0], setup["rate"], (), setup["points"]))
         self.wait()
         block = self.fetch()
         if progress:
@@ -171,6 +181,8 @@ class ScpiDigitizer(ScpiInstrument):
             if match is not None:
                 extra["channel_gain_tolerance"] = float(match)
             out.append(cap.with_metadata(**extra))
+        if sink is not None:
+            sink(whole_preview(channels[0], out[0].sample_rate, out[0].samples, setup["points"]))
         return tuple(out)
 
     def to_capture(self, samples: np.ndarray, *, channel: str | None = None,

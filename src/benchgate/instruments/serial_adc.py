@@ -28,7 +28,8 @@ from benchgate.instruments._looks import Looks
 from benchgate.instruments._serial_port import SerialPort
 from benchgate.instruments.framing import FrameDecoder, encode_frame
 from benchgate.instruments.options import OptionSpec
-from benchgate.instruments.serial_capture import RATE_TOLERANCE, Arrived, build_captures
+from benchgate.instruments.preview import preview_sink
+from benchgate.instruments.serial_capture import RATE_TOLERANCE, Arrived, LiveView, build_captures
 from benchgate.instruments.serial_lines import LinesDecoder
 
 WALL_GRACE = 1.0  # s of wall time added to accelerated deadlines
@@ -242,13 +243,15 @@ class SerialAdc:
             port.write_line(f"START {n} {mask}")
         if progress is not None:  # lets a caller tie its own events to the capture's time axis
             progress(0.0, f"acquisition of {n} samples started")
+        sink = preview_sink(progress)  # previews of the first channel while it records
+        live = None if sink is None else LiveView(self, channels[0], channels, state, decoder, n, actual, sink)
         looker = None
         if looks and decide is not None:  # an adaptive capture (instruments/_looks.py)
             looker = Looks([max(1, int(round(x * actual))) for x in looks],
                            lambda k: build_captures(self, channels, state, actual, decoder, k,
                                                     complete=True)[0], decide)
         try:
-            self._receive(decoder, state, n, duration, progress, looker)
+            self._receive(decoder, state, n, duration, progress, looker, live)
             if looker is not None and looker.stopped is not None:
                 if not self.free_running:
                     port.stop_stream()
@@ -273,7 +276,8 @@ class SerialAdc:
             raise InstrumentError(self.name, f"adc on {self.address} delivered no samples")
         return captures
 
-    def _receive(self, decoder, state: Arrived, n: int, duration: float, progress, look=None) -> None:
+    def _receive(self, decoder, state: Arrived, n: int, duration: float, progress, look=None,
+                 live=None) -> None:
         """Read until the device has sent ``n`` samples (or END), within the deadlines.
 
         Deadlines are in the clock's time, each with a floor of wall time as well (WALL_GRACE),
@@ -301,6 +305,8 @@ class SerialAdc:
                     state.last_point_index = state.index
                 if progress is not None:
                     progress(min(1.0, state.index / n), f"{state.index} of {n} samples")
+                if live is not None:
+                    live()
                 if look is not None and look(state.index):
                     return  # an adaptive capture decided: stop here
             if self.protocol == "lines" and not self.free_running:

@@ -1,4 +1,4 @@
-"""The build of a serial ADC's captures from what arrived.
+"""The build of a serial ADC's captures from what arrived, and its live preview while recording.
 
 :func:`build_captures` turns the samples of one capture (:class:`Arrived`) into one
 :class:`~benchgate.analysis.capture.Capture` per channel, in volts, with every verification a
@@ -9,13 +9,15 @@ one channel, as they arrive, to a :class:`~benchgate.instruments.preview.Preview
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING
+from collections.abc import Callable
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
 from benchgate.analysis.capture import AdcInfo, Capture
 from benchgate.errors import InstrumentError
 from benchgate.instruments._serial_port import arrival_rate, least_rate
+from benchgate.instruments.preview import CapturePreview, PreviewBuilder
 
 if TYPE_CHECKING:
     from benchgate.instruments.serial_adc import SerialAdc
@@ -173,3 +175,44 @@ class Arrived:
     def codes(self) -> np.ndarray:
         return np.concatenate(self.parts) if self.parts else np.empty((0, 1), dtype=np.uint16)
 
+
+class LiveView:
+    """Previews of one channel of a capture while it records (see :mod:`~benchgate.instruments.preview`).
+
+    Called after every chunk read; only when a preview is due does it take the samples that
+    arrived since the last one (framed: the channel's column of the new frames; lines: the new
+    lines, an unreadable one as NaN), so between previews a chunk costs nothing. A fault in the
+    picture turns the previews off for this capture: it never fails the capture.
+    """
+
+    def __init__(self, adc: SerialAdc, channel: str, channels: tuple[str, ...], state: Arrived,
+                 decoder: Any, n: int, rate: float, sink: Callable[[CapturePreview], None]):
+        cal = adc.calibration.for_channel(channel) if adc.calibration else None
+        lsb = adc.vref / 2.0**adc.bits
+        gain, offset = (lsb, 0.0) if cal is None else (cal.gain * lsb, cal.offset)
+        self.builder = PreviewBuilder(channel, rate, n, gain=gain, offset=offset)
+        self.column = sorted(channels, key=adc.channels.index).index(channel)
+        self.framed = adc.protocol == "framed"
+        self.state, self.decoder = state, decoder
+        self.sink: Callable[[CapturePreview], None] | None = sink
+        self._seen = 0  # frames parts (framed) or lines (lines) already in the builder
+
+    def __call__(self) -> None:
+        if self.sink is None or not self.builder.due():
+            return
+        try:
+            if self.framed:
+                parts = self.state.parts[self._seen:]
+                self._seen += len(parts)
+                for part in parts:
+                    self.builder.add(part[:, self.column])
+            else:
+                lines = self.decoder.codes[self._seen:]
+                self._seen += len(lines)
+                codes = np.asarray(lines, dtype=np.float64)
+                codes[codes < 0] = np.nan  # a line that was not a sample
+                self.builder.add(codes)
+            preview = self.builder.take()
+            self.sink(preview)
+        except Exception:  # noqa: BLE001 - the picture is a courtesy; the capture goes on without it
+            self.sink = None

@@ -15,15 +15,39 @@ from typing import TYPE_CHECKING, Any
 
 from benchgate.analysis.capture import Capture
 from benchgate.instruments.base import Digitizer, Recorder
+from benchgate.instruments.preview import whole_preview
 
 if TYPE_CHECKING:
     from benchgate.clock import Clock
     from benchgate.instruments.base import Supply
+    from benchgate.instruments.preview import CapturePreview
     from benchgate.plan.model import CaptureStep
     from benchgate.runner.attendant import RunListener
 
 #: how long (clock seconds) a unit is left unpowered before a repeated start-up capture
 POWER_CYCLE_OFF_S = 0.5
+
+
+class CaptureProgress:
+    """The progress callback a recorder gets for one capture: each fraction goes to the
+    listener's ``progress`` with the time left, each preview of the samples so far to its
+    ``capture_preview`` (a recorder that streams sends them; see instruments/preview.py).
+    ``seen(fraction)`` is told every fraction first."""
+
+    def __init__(self, hooks: RunListener, text: str, duration: float,
+                 seen: Callable[[float], None] | None = None):
+        self.hooks = hooks
+        self.text = text
+        self.duration = duration
+        self.seen = seen
+
+    def __call__(self, fraction: float, text: str = "") -> None:
+        if self.seen is not None:
+            self.seen(fraction)
+        self.hooks.progress(fraction, self.text, self.duration * (1 - fraction))
+
+    def preview(self, preview: CapturePreview) -> None:
+        self.hooks.capture_preview(preview)
 
 
 class Acquisition:
@@ -47,12 +71,13 @@ class Acquisition:
         first: list[float] = []  # clock time and fraction delivered at the first progress report
         started = threading.Event()
 
-        def progress(fraction: float, text: str = "") -> None:
+        def seen(fraction: float) -> None:
             if not first:  # a driver's report at 0 marks the start of acquisition itself
                 first.extend((self.clock.monotonic(), float(fraction)))
             if fraction > 0:  # samples are arriving: the recorder really runs
                 started.set()
-            self.hooks.progress(fraction, self._progress_text(), step.duration * (1 - fraction))
+
+        progress = CaptureProgress(self.hooks, self._progress_text(), step.duration, seen)
 
         rng = getattr(step, "range", None) if isinstance(self.recorder, Digitizer) else None
         options: dict[str, Any] = {}
@@ -104,7 +129,7 @@ class Acquisition:
         capture = result["capture"]
         return capture.with_metadata(**power_on) if power_on else capture
 
-    def _capture(self, progress: Callable[[float, str], None], options: dict[str, Any]) -> Capture:
+    def _capture(self, progress: CaptureProgress, options: dict[str, Any]) -> Capture:
         step = self.step
         if options:  # only a digitizer takes options (its range), which its capture accepts
             capture: Callable[..., Capture] = self.recorder.capture
@@ -119,11 +144,14 @@ class Acquisition:
         ``power_on_halfwidth`` its half-width.
         """
         step = self.step
-        recorder.setup(step.channel, duration=step.duration, rate=step.rate, range=rng)
+        setup = recorder.setup(step.channel, duration=step.duration, rate=step.rate, range=rng)
         t_arm = self.clock.monotonic()
         recorder.arm()
         t_armed = self.clock.monotonic()
         self.hooks.progress(0.0, self._progress_text(), step.duration)
+        # the record is handed over only when complete: a picture of nothing yet, then of all
+        points = int(setup["points"])
+        self.hooks.capture_preview(whole_preview(step.channel, float(setup["rate"]), (), points))
         t_sent = self.clock.monotonic()
         supply.output(True)
         t_ack = self.clock.monotonic()
@@ -136,6 +164,7 @@ class Acquisition:
         recorder.wait()
         capture = recorder.to_capture(recorder.fetch())
         self.hooks.progress(1.0, self._progress_text(), 0.0)
+        self.hooks.capture_preview(whole_preview(step.channel, capture.sample_rate, capture.samples, points))
         return capture.with_metadata(**power_on)
 
     def _power_down_first(self, supply: Supply) -> None:

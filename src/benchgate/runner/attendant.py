@@ -12,7 +12,9 @@ ask
 acknowledge
     :meth:`~Attendant.acknowledge` one hazard before anything is switched on.
 progress
-    the :class:`RunListener` calls, as the run goes (the events file listens to the same calls).
+    the :class:`RunListener` calls, as the run goes (the events file listens to the same calls),
+    among them :meth:`~RunListener.capture_preview`: what a capture being taken looks like so
+    far (bounded in size, at most ten a second; a face may ignore it).
 result
     :meth:`~RunListener.run_finished` with the unit record and the files written.
 
@@ -34,6 +36,7 @@ from typing import TYPE_CHECKING, Literal, Protocol
 from benchgate.errors import NobodyAnswers
 
 if TYPE_CHECKING:
+    from benchgate.instruments.preview import CapturePreview
     from benchgate.plan.model import Step
     from benchgate.record import CheckRecord, StepRecord, UnitRecord
 
@@ -79,6 +82,7 @@ class RunListener(Protocol):
     def run_started(self, record: UnitRecord, total_steps: int) -> None: ...
     def step_started(self, index: int, total: int, step: Step) -> None: ...
     def progress(self, fraction: float, text: str, time_left: float | None) -> None: ...
+    def capture_preview(self, preview: CapturePreview) -> None: ...
     def check(self, check: CheckRecord) -> None: ...
     def step_finished(self, step: StepRecord) -> None: ...
     def run_finished(self, record: UnitRecord, paths: Mapping[str, Path]) -> None: ...
@@ -125,6 +129,9 @@ class NobodyThere:
 
     def acknowledge(self, name: str, text: str) -> bool:
         return False
+
+    def capture_preview(self, preview: CapturePreview) -> None:
+        pass  # nobody watches the picture either
 
 
 class Silent(NobodyThere):
@@ -186,6 +193,10 @@ class Fanout:
     def progress(self, fraction: float, text: str, time_left: float | None) -> None:
         for x in self.listeners:
             x.progress(fraction, text, time_left)
+
+    def capture_preview(self, preview: CapturePreview) -> None:
+        for x in self.listeners:
+            x.capture_preview(preview)
 
     def check(self, check: CheckRecord) -> None:
         for x in self.listeners:

@@ -16,6 +16,7 @@ from benchgate.common.evidence import finite, utc_now
 from benchgate.runner.attendant import Notice
 
 if TYPE_CHECKING:
+    from benchgate.instruments.preview import CapturePreview
     from benchgate.plan.model import Step
     from benchgate.record import CheckRecord, StepRecord, UnitRecord
 
@@ -58,6 +59,9 @@ class EventLog:
 
     def progress(self, fraction: float, text: str, time_left: float | None) -> None:
         pass  # too chatty for a log; the step events carry the progress
+
+    def capture_preview(self, preview: CapturePreview) -> None:
+        pass  # pictures are not logged; the capture file is the evidence
 
     def check(self, check: CheckRecord) -> None:
         m = check.result

@@ -23,7 +23,7 @@ from benchgate.errors import BenchgateError, InstrumentDisconnected, StepError
 from benchgate.instruments.base import take_reading
 from benchgate.judge.rules import Verdict, combine, judge
 from benchgate.record import CaptureRecord, CheckRecord, StepRecord, UnitRecord
-from benchgate.runner.acquire import POWER_CYCLE_OFF_S, Acquisition
+from benchgate.runner.acquire import POWER_CYCLE_OFF_S, Acquisition, CaptureProgress
 from benchgate.runner.adaptive import acquire_adaptive
 from benchgate.runner.attendant import Attendant, RunListener
 from benchgate.runner.safety import as_stop
@@ -267,10 +267,8 @@ class Executor:
         for check in step.checks:
             self._judge(step, srec, check, measurements.get(check.measurement))
 
-    def _capture_progress(self, step: CaptureStep) -> Callable[[float, str], None]:
-        def progress(fraction: float, text: str = "") -> None:
-            self.hooks.progress(fraction, f"capture {step.channel}", step.duration * (1 - fraction))
-        return progress
+    def _capture_progress(self, step: CaptureStep) -> CaptureProgress:
+        return CaptureProgress(self.hooks, f"capture {step.channel}", step.duration)
 
     # ------------------------------------------------------------------ helpers
     def _keep(self, step: CaptureStep, srec: StepRecord, key: str, capture: Capture, warnings: list[str]) -> None:
