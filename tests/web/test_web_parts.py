@@ -239,3 +239,26 @@ def test_an_unconfirmed_supply_raises_the_alarm(face):
     face.alarm("SWITCH THE SUPPLY OFF BY HAND: the supply did not confirm that its output is off")
     assert face.board.get("alarm").startswith("SWITCH THE SUPPLY OFF BY HAND")
     assert face.board.get("supply")["state"] == "on"
+
+
+def test_a_preview_replaces_the_picture_until_the_step_ends(face):
+    import json
+
+    from benchgate.instruments.preview import PreviewBuilder
+
+    step = SimpleNamespace(id="steady", title="Tone", kind="capture")
+    face.step_started(1, 1, step)
+    builder = PreviewBuilder("out", 1000.0, 2000)
+    builder.add(np.sin(np.arange(500) / 10))
+    face.capture_preview(builder.take())
+    _, text = face.board.wave()
+    wave = json.loads(text)
+    assert wave["recording"] is True and wave["step"] == "steady"
+    assert wave["received"] == 500 and wave["expected"] == 2000 and len(wave["lo"]) == WAVE_COLUMNS
+    face.step_finished(SimpleNamespace(id="steady", status="aborted", error="stopped"))
+    wave = json.loads(face.board.wave()[1])
+    assert wave["recording"] is False and wave["ended"] is True  # cut short: no longer "recording"
+    face.board.set_wave({"step": "steady", "n": 3})  # a capture that landed is left as it is
+    version = face.board.wave()[0]
+    face.board.end_recording()
+    assert face.board.wave()[0] == version

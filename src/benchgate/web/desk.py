@@ -23,15 +23,9 @@ from typing import Any
 
 from benchgate.errors import BenchgateError
 from benchgate.web import lot
-from benchgate.web.face import (
-    PageFace,
-    Stop,
-    StoppableClock,
-    confirm_supply_off,
-    make_options,
-    make_runner,
-)
+from benchgate.web.face import PageFace, Stop, StoppableClock
 from benchgate.web.state import Board
+from benchgate.web.wiring import confirm_supply_off, make_options, make_runner
 
 _ACTIVE = ("starting", "preflight", "running")
 MAX_SERIAL = 120

@@ -8,8 +8,11 @@ This is the one module that knows how the runner talks to a person, and it speak
 - what main's runner has today: ``RunOptions.ask(prompt) -> str`` (the kind of question is
   recognised from the prompt's fixed ending) and the display hooks of ``runner/ui.py``.
 
-:func:`make_runner` picks whichever the installed runner takes; the desk and the server only see
-:class:`PageFace`, :class:`Stop` and :func:`make_runner`.
+:func:`benchgate.web.wiring.make_runner` picks whichever the installed runner takes; the desk
+and the server only see :class:`PageFace`, :class:`Stop` and ``make_runner``.
+
+While a capture records, each preview of it (:meth:`PageFace.capture_preview`) replaces the
+page's waveform, marked as recording, until the capture itself is saved and drawn.
 
 The Stop button reaches the runner the way a stop signal does: a :class:`KeyboardInterrupt`
 (the typed runner's ``StopRequested`` when it has one, naming the page) raised in the runner's
@@ -20,11 +23,10 @@ safe exactly as for Ctrl-C.
 
 from __future__ import annotations
 
-import inspect
 import threading
 import time
 from collections.abc import Callable
-from dataclasses import dataclass, fields
+from dataclasses import dataclass
 from typing import Any
 
 from benchgate.web.state import Board
@@ -162,6 +164,7 @@ class PageFace:
         self._answer: str | None = None
         self._hazards_asked = 0
         self._last_progress = (0.0, -1.0)
+        self._step_id: str | None = None
         stop.on_raise = self._mark_stopped
 
     def _mark_stopped(self, why: str) -> None:
@@ -278,6 +281,7 @@ class PageFace:
             if 0 < index <= len(s["steps"]):
                 s["steps"][index - 1]["status"] = "running"
         self.board.change(mark)
+        self._step_id = step.id
         self._last_progress = (0.0, -1.0)
         self.stop.check()
 
@@ -290,6 +294,11 @@ class PageFace:
         self._last_progress = (now, fraction)
         self.board.update(progress={"fraction": max(0.0, min(1.0, float(fraction))), "text": text,
                                     "left": _num(time_left)})
+
+    def capture_preview(self, preview: Any) -> None:
+        """The capture being taken, so far: the page draws it (marked recording) in place of the
+        last capture. Only the newest is kept: the page's event stream sends the latest it has."""
+        self.board.set_wave({**preview.to_dict(), "step": self._step_id, "recording": True})
 
     def check(self, check: Any) -> None:
         value, window = describe(check)
@@ -308,6 +317,7 @@ class PageFace:
                     item["status"], item["error"] = step.status, step.error
             s["progress"] = None
         self.board.change(mark)
+        self.board.end_recording()  # a capture cut short: its picture no longer says recording
 
     def run_finished(self, record: Any, paths: dict) -> None:
         pass  # the desk shows the outcome (it also knows the report's address)
@@ -315,85 +325,3 @@ class PageFace:
     def pause(self) -> None: ...
 
     def close(self) -> None: ...
-
-
-class ConfirmingBench:
-    """The bench of one run, wrapped so that closing it asks the supply whether it is off.
-
-    The runner's safe-state sequence switches the output off and then closes the bench; just
-    before the bench closes, this asks the supply for its output state (switching off once more
-    if it still says on) and reports what it said to ``confirmed(state, text)``.
-    """
-
-    def __init__(self, inner_cm: Any, confirmed: Callable[[str, str], None]):
-        self.inner_cm = inner_cm
-        self.bench: Any = None
-        self.confirmed = confirmed
-
-    def __enter__(self) -> Any:
-        self.bench = self.inner_cm.__enter__()
-        return self.bench
-
-    def __exit__(self, *exc: Any) -> Any:
-        confirm_supply_off(self.bench, self.confirmed)  # never raises
-        return self.inner_cm.__exit__(*exc)
-
-
-def confirm_supply_off(bench: Any, confirmed: Callable[[str, str], None]) -> None:
-    """Switch the supply output off if it is on, ask it again, and report what it said."""
-    supply = None if bench is None else bench.get("supply")
-    if supply is None:
-        confirmed("none", "this station has no supply")
-        return
-    try:
-        if supply.output_state():
-            supply.output(False)
-            if supply.output_state():
-                confirmed("on", "the supply still reports its output ON: switch it off by hand")
-                return
-        confirmed("off", "supply output off (asked from the supply)")
-    except Exception as exc:  # noqa: BLE001 - an unanswered question is shown as such
-        confirmed("unknown", f"the supply did not answer ({exc}): check its output by hand")
-
-
-def make_options(face: PageFace, **given: Any) -> Any:
-    """RunOptions for the page: ``given`` plus, on main's runner, ``ask`` and a silent display."""
-    from benchgate.runner.options import RunOptions
-
-    names = {f.name for f in fields(RunOptions)}
-    legacy = {"ask": face.ask, "ui": "quiet"}
-    return RunOptions(**given, **{k: v for k, v in legacy.items() if k in names})
-
-
-def make_runner(plan: Any, station: Any, options: Any, face: PageFace,
-                on_capture: Callable[[Any, Any], None], confirmed: Callable[[str, str], None]) -> Any:
-    """A :class:`~benchgate.runner.session.Runner` talking to ``face`` (``options`` from
-    :func:`make_options`).
-
-    Its bench opener is wrapped so that each run ends with the supply's own word on its output,
-    and its capture writer so that the page sees every capture as soon as it is saved.
-    Preflight (station lock where there is one, calibration, cautions, hazards) runs here.
-    """
-    from benchgate.instruments import open_station
-    from benchgate.runner.session import Runner, Services
-
-    services = Services.default(options, station)
-    opener = options.open_bench or open_station
-    save = services.save_capture
-
-    def open_bench(*args: Any, **kw: Any) -> ConfirmingBench:
-        return ConfirmingBench(opener(*args, **kw), confirmed)
-
-    def save_capture(capture: Any, path: Any) -> str:
-        sha = save(capture, path)
-        try:
-            on_capture(capture, path)
-        except Exception:  # noqa: BLE001 - the picture is a courtesy; the evidence is saved
-            pass
-        return sha
-
-    services.open_bench = open_bench
-    services.save_capture = save_capture
-    if "attendant" in inspect.signature(Runner).parameters:  # the typed runner (issue 10)
-        return Runner(plan, station, options, services=services, attendant=face)
-    return Runner(plan, station, options, services=services, display=face)

@@ -2,8 +2,9 @@
 
 The station desk (a worker thread) changes the state; the web server's event streams (on the
 server's event loop) send it. :class:`Board` is the meeting point: a JSON-able dict with a
-version number, and a waveform kept apart (it is large and changes rarely). Each change wakes
-every subscribed stream through its own event loop, so no stream ever polls.
+version number, and a waveform kept apart (it is large: the last capture, or the preview of
+the one being taken, at most ten a second; only the newest is kept, never a queue). Each change
+wakes every subscribed stream through its own event loop, so no stream ever polls.
 """
 
 from __future__ import annotations
@@ -94,6 +95,16 @@ class Board:
             self._wave = wave
             self._wave_version += 1
             self._wave_json = _dumps(wave)
+        self._wake()
+
+    def end_recording(self) -> None:
+        """The step ended while its capture's preview was shown: say it is no longer recording."""
+        with self._lock:
+            if not (self._wave and self._wave.get("recording")):
+                return
+            self._wave = {**self._wave, "recording": False, "ended": True}
+            self._wave_version += 1
+            self._wave_json = _dumps(self._wave)
         self._wake()
 
     # ------------------------------------------------------------------ reads

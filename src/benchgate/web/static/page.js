@@ -205,14 +205,14 @@
   }
 
   function renderRecording(s) {
-    // the capture is drawn once it has been recorded; say so while one is being taken
+    // a capture being taken is drawn from its previews as they come; until the first, say so
     const recording = s.phase === "running" && s.step && s.step.kind === "capture";
-    const canvas = $("wave");
-    canvas.dataset.recording = recording ? "yes" : "no";
-    if (recording) {
-      text($("wave-caption"), "Recording step " + s.step.id + " … it is drawn here once recorded" +
-        (wave && wave.n ? " (shown now: step " + wave.step + ")." : "."));
-    } else if (wave && wave.n) {
+    const live = wave && wave.recording && recording && wave.step === s.step.id;
+    if (recording && !live) {
+      $("wave").dataset.recording = "waiting";
+      text($("wave-caption"), "Recording step " + s.step.id + " … its samples are drawn here as they arrive" +
+        (wave && wave.n && !wave.recording ? " (shown now: step " + wave.step + ")." : "."));
+    } else {
       drawWave();
     }
   }
@@ -338,7 +338,17 @@
   }
 
   // ---------------------------------------------------------------- the waveform
+  function number(n) { return String(n).replace(/\B(?=(\d{3})+(?!\d))/g, " "); }
+  function seconds(t, span, top) {
+    // a time on an axis, with enough digits to tell its two ends apart
+    const unit = Math.abs(top) < 1 ? 1000 : 1;
+    const digits = Math.min(6, Math.max(0, 2 - Math.floor(Math.log10(Math.max(span * unit, 1e-9)))));
+    return (t * unit).toFixed(digits) + (unit === 1000 ? " ms" : " s");
+  }
+
   function drawWave() {
+    // a finished capture, or the preview of the one being taken (wave.recording: its columns
+    // span the whole length asked for, filled as the samples arrive; the detail is the newest)
     const canvas = $("wave");
     const ratio = window.devicePixelRatio || 1;
     const w = canvas.clientWidth, h = canvas.clientHeight;
@@ -347,7 +357,11 @@
     const g = canvas.getContext("2d");
     g.setTransform(ratio, 0, 0, ratio, 0, 0);
     g.clearRect(0, 0, w, h);
-    if (!wave || !wave.n) {
+    const preview = !!wave && (!!wave.recording || !!wave.ended);
+    canvas.dataset.recording = wave && wave.recording ? "yes" : "no";
+    canvas.dataset.received = wave ? String(preview ? wave.received : wave.n) : "0";
+    canvas.dataset.step = wave && wave.step ? wave.step : "";
+    if (!wave || (!wave.n && !preview)) {
       text($("wave-caption"), "A capture is drawn here as soon as it has been recorded.");
       canvas.dataset.points = "0";
       return;
@@ -363,7 +377,7 @@
       g.fillStyle = "#3d4852"; g.font = "12px sans-serif";
       g.fillText(wave.vmax.toPrecision(3) + " V", 2, y(wave.vmax, top) + 4);
       g.fillText(wave.vmin.toPrecision(3) + " V", 2, y(wave.vmin, top) + 4);
-      const a = (t0 * 1000).toPrecision(3) + " ms", b = (t1 * 1000).toPrecision(3) + " ms";
+      const a = seconds(t0, t1 - t0, t1), b = seconds(t1, t1 - t0, t1);
       g.fillText(a, left, top + panelH + 14);
       g.fillText(b, w - right - g.measureText(b).width, top + panelH + 14);
     };
@@ -379,7 +393,16 @@
       g.lineTo(x(i, cols), y(wave.hi[i], 4) - 0.5);
     }
     g.stroke();
-    // detail: consecutive samples from the middle of the capture
+    if (preview) {  // where the samples have got to, and a word on the picture itself
+      const at = left + (w - left - right) * Math.min(1, wave.received / wave.expected);
+      g.strokeStyle = "#8a4b00"; g.lineWidth = 2; g.setLineDash([4, 3]);
+      g.beginPath(); g.moveTo(at, 4); g.lineTo(at, 4 + panelH); g.stroke();
+      g.setLineDash([]);
+      g.fillStyle = "#8a4b00"; g.font = "bold 14px sans-serif";
+      const word = wave.recording ? "recording…" : "recording ended";
+      g.fillText(word, w - right - g.measureText(word).width - 4, 20);
+    }
+    // detail: consecutive samples from the middle of the capture (a preview: the newest)
     const det = wave.detail || [];
     const top2 = 4 + panelH + gap;
     axes(top2, wave.detail_start, wave.detail_start + det.length / wave.rate);
@@ -393,9 +416,19 @@
     }
     g.stroke();
     canvas.dataset.points = String(cols);
-    text($("wave-caption"), "Capture of step " + (wave.step || "?") + ", channel " + wave.channel + ": " +
-      wave.n + " samples at " + Math.round(wave.rate) + " S/s, drawn once taken. Top: the whole capture; " +
-      "bottom: " + (wave.detail || []).length + " consecutive samples from its middle.");
+    const where = "step " + (wave.step || "?") + ", channel " + wave.channel;
+    if (wave.recording) {
+      text($("wave-caption"), "Recording… " + where + ": " + number(wave.received) + " of " +
+        number(wave.expected) + " samples at " + number(Math.round(wave.rate)) + " S/s so far. Top: the capture " +
+        "so far; bottom: the newest " + det.length + " samples.");
+    } else if (wave.ended) {
+      text($("wave-caption"), "The recording of " + where + " ended after " + number(wave.received) + " of " +
+        number(wave.expected) + " samples; no capture was kept from it.");
+    } else {
+      text($("wave-caption"), "Capture of " + where + ": " + number(wave.n) + " samples at " +
+        number(Math.round(wave.rate)) + " S/s, drawn once taken. Top: the whole capture; bottom: " + det.length +
+        " consecutive samples from its middle.");
+    }
   }
   window.addEventListener("resize", drawWave);
 
