@@ -59,15 +59,18 @@ class CapturePreview:
     def to_dict(self) -> dict[str, Any]:
         """JSON-able (NaN as None), with the fields the page draws a finished capture from."""
 
-        def clean(values: tuple[float, ...]) -> list[float | None]:
-            return [float(f"{v:.5g}") if math.isfinite(v) else None for v in values]
-
-        lo, hi = clean(self.lo), clean(self.hi)
-        seen = [v for v in (*lo, *hi, *clean(self.recent)) if v is not None]
+        every = np.array((*self.lo, *self.hi, *self.recent), dtype=np.float64)
+        seen = every[np.isfinite(every)]
+        top = float(np.abs(seen).max()) if seen.size else 0.0
+        # five significant digits of the largest value: far finer than a picture can show
+        every = np.round(every, max(0, 5 - math.ceil(math.log10(top))) if top > 0 else 0)
+        values = [None if v != v else v for v in every.tolist()]  # NaN (no sample) as null
+        c = len(self.lo)
         return {"channel": self.channel, "rate": self.sample_rate, "received": self.received,
                 "expected": self.expected, "n": self.received, "duration": self.expected / self.sample_rate,
-                "lo": lo, "hi": hi, "vmin": min(seen) if seen else 0.0, "vmax": max(seen) if seen else 0.0,
-                "detail": clean(self.recent), "detail_start": self.recent_start / self.sample_rate}
+                "lo": values[:c], "hi": values[c:2 * c], "detail": values[2 * c:],
+                "vmin": float(seen.min()) if seen.size else 0.0, "vmax": float(seen.max()) if seen.size else 0.0,
+                "detail_start": self.recent_start / self.sample_rate}
 
 
 class PreviewBuilder:
