@@ -258,6 +258,11 @@ def test_a_preview_replaces_the_picture_until_the_step_ends(face):
     face.step_finished(SimpleNamespace(id="steady", status="aborted", error="stopped"))
     wave = json.loads(face.board.wave()[1])
     assert wave["recording"] is False and wave["ended"] is True  # cut short: no longer "recording"
+    face.capture_preview(builder.take())
+    asker = Asker(face, "The capture failed. Re-seat the board. [Enter = retry, n = stop] ")
+    assert json.loads(face.board.wave()[1])["recording"] is False  # asked after it failed
+    face.answer(face.board.get("ask")["id"], "n")
+    asker.done()
     face.board.set_wave({"step": "steady", "n": 3})  # a capture that landed is left as it is
     version = face.board.wave()[0]
     face.board.end_recording()

@@ -179,6 +179,7 @@ class PageFace:
             self._ask_id += 1
             ask_id = self._ask_id
             self._answer = None
+        self.board.end_recording()  # asked after a capture failed: its picture is not recording
         self.board.update(ask={"id": ask_id, "kind": kind, "text": text, **extra})
         try:
             with self._answer_ready:
