@@ -8,10 +8,25 @@ from pathlib import Path
 import pytest
 
 from benchgate.judge.rules import Verdict
+from benchgate.runner.attendant import Silent
 from benchgate.runner.options import RunOptions
 from benchgate.runner.session import Runner
 
 ROOT = Path(__file__).resolve().parents[2]
+
+
+class PreviewWatch(Silent):
+    """Keeps the step and channel of every preview of a capture being taken."""
+
+    def __init__(self) -> None:
+        self.step = ""
+        self.previews: list[tuple[str, str]] = []
+
+    def step_started(self, index, total, step):
+        self.step = step.id
+
+    def capture_preview(self, preview):
+        self.previews.append((self.step, preview.channel))
 
 
 @pytest.fixture(scope="module")
@@ -22,10 +37,10 @@ def lp2_runs(tmp_path_factory):
 
     plan = load_plan(str(ROOT / "testplans" / "lp2.yaml"))
     tmp = tmp_path_factory.mktemp("lp2")
-    out = {}
+    out = {"face": PreviewWatch()}
     with UnderstudyBench("lp2", speed=20, workdir=tmp / "bench") as ub:
         options = RunOptions(reports_dir=tmp / "reports", unattended=True, clock=ub.clock)
-        with Runner(plan, load_station(ub.station_path), options) as runner:
+        with Runner(plan, load_station(ub.station_path), options, attendant=out["face"]) as runner:
             for serial, defect in (("LP2-0001", None), ("LP2-0002", "wrong_capacitor")):
                 ub.load_unit(serial, defect)
                 out[defect] = runner.run(serial)
@@ -109,3 +124,12 @@ def test_generator_switched_off_when_the_recorder_fails():
     with pytest.raises(InstrumentError, match="link lost"):
         run_tone(ex, plan.steps[0], SimpleNamespace(capture=None), 1)
     assert gen.on is False
+
+
+def test_the_face_sees_each_stimulus_record_while_it_is_taken(lp2_runs):
+    # the two-channel records of tone and sweep steps send previews of their first channel
+    # (the stimulus) like any capture; a preview is sent as soon as a record starts
+    seen = lp2_runs["face"].previews
+    steps = {s for s, _ in seen}
+    assert {"pass-band", "response"} <= steps, steps
+    assert {c for s, c in seen if s == "pass-band"} == {"in"}

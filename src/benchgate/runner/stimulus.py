@@ -35,6 +35,7 @@ from benchgate.instruments.base import Generator, MultiRecorder
 from benchgate.plan.limits import Window
 from benchgate.plan.stimulus import sweep_frequencies
 from benchgate.record import CaptureRecord, StepRecord
+from benchgate.runner.acquire import CaptureProgress
 from benchgate.runner.execute import Executor, register_step
 from benchgate.units.format import format_quantity
 
@@ -66,9 +67,8 @@ def _drive(ex: Executor, step: Any, frequency: float, level: float) -> None:
 def _record(ex: Executor, step: Any, srec: StepRecord, frequency: float, key: str) -> Stimulated:
     duration = step.record_length(frequency)
 
-    def progress(fraction: float, text: str = "") -> None:
-        ex.hooks.progress(fraction, f"record {step.input_channel}+{step.output_channel}", duration * (1 - fraction))
-
+    # fractions to the progress bar, previews of the first channel (the stimulus) to the face
+    progress = CaptureProgress(ex.hooks, f"record {step.input_channel}+{step.output_channel}", duration)
     ref, out = _recorder(ex, step).capture_channels((step.input_channel, step.output_channel), duration=duration,
                                                     rate=step.rate, progress=progress)
     meta = {"stimulus_frequency": frequency}
