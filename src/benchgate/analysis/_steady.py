@@ -61,20 +61,50 @@ def envelope(x: np.ndarray, period_samples: float, stride: int | None = None) ->
     p = float(min(p, n - 1.0))
     m = int(math.floor(p))
     frac = p - m
-    xc = x - x.mean()
-    c1 = np.empty(n + 1)
-    c2 = np.empty(n + 1)
-    c1[0] = c2[0] = 0.0
-    np.cumsum(xc, out=c1[1:])
-    sq = xc * xc
-    np.cumsum(sq, out=c2[1:])
     stride = max(1, m // 8) if stride is None else stride
     starts = np.arange(0, n - m, stride)
-    ends = starts + m
-    s1 = (c1[ends] - c1[starts] + frac * xc[ends]) / p
-    s2 = (c2[ends] - c2[starts] + frac * sq[ends]) / p
-    var = np.maximum(s2 - s1 * s1, 0.0)
+    # running sums of x − mean and its square, needed only where a span starts or ends: at
+    # multiples of the stride and at those plus (m mod stride)
+    blocks = n // stride + 1
+    xc = np.zeros(blocks * stride)
+    np.subtract(x, x.mean(), out=xc[:n])
+    sq = np.zeros(blocks * stride)
+    np.multiply(xc[:n], xc[:n], out=sq[:n])
+    c1_start, c1_end = _sums_at(xc, stride, m, starts.size)
+    c2_start, c2_end = _sums_at(sq, stride, m, starts.size)
+    at_end = slice(m, m + starts.size * stride, stride)  # = ends, as a view
+    s1 = c1_end - c1_start
+    s1 += frac * xc[at_end]
+    s1 /= p
+    s2 = c2_end - c2_start
+    s2 += frac * sq[at_end]
+    s2 /= p
+    s1 *= s1
+    var = np.maximum(s2 - s1, 0.0)
     return Envelope(centre=starts + (p - 1.0) / 2.0, level=np.sqrt(2.0 * var), span=int(round(p)))
+
+
+#: most multiply–adds per matrix product call (OpenBLAS keeps smaller products on one thread).
+_CHUNK_MACS = 131072
+
+
+def _sums_at(v: np.ndarray, stride: int, m: int, count: int) -> tuple[np.ndarray, np.ndarray]:
+    """Σ v[:j·stride] and Σ v[:j·stride + m] for j = 0 … count−1 (``v`` zero-padded to whole
+    blocks of ``stride``): each block's sum before offset m mod stride and its whole sum (one
+    matrix product with a 0/1 matrix), then a running sum over the blocks, not the samples."""
+    q, r = divmod(m, stride)
+    rows = v.reshape(-1, stride)
+    split = np.zeros((stride, 2))
+    split[:r, 0] = 1.0  # the block's sum before offset r …
+    split[:, 1] = 1.0  # … and its whole sum
+    ab = np.empty((rows.shape[0], 2))
+    step = max(1, _CHUNK_MACS // (2 * stride))
+    for i in range(0, rows.shape[0], step):
+        np.matmul(rows[i:i + step], split, out=ab[i:i + step])
+    before = np.empty(rows.shape[0] + 1)
+    before[0] = 0.0
+    np.cumsum(ab[:, 1], out=before[1:])
+    return before[:count], before[q:q + count] + ab[q:q + count, 0]
 
 
 def _smoothing_periods(level: float, sd_env: float) -> int:

@@ -29,37 +29,63 @@ SIGNIFICANT = 3.0
 
 
 def segment_phases(y: np.ndarray, omega: float, segments: int,
-                  work: Workspace | None = None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+                   work: Workspace | None = None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Phase (rad, unwrapped), amplitude and centre (samples) of a fixed-ω three-parameter fit per segment.
 
     The cosine and sine are computed once for the whole capture (or taken from ``work``, set
-    at ω); the per-segment 3×3 normal equations come from segment sums (``numpy.add.reduceat``).
+    at ω, whose own ω is then used throughout); each segment's 3×3 normal equations take
+    Σcos², Σsin², Σcos·sin, Σcos and Σsin in closed form (:func:`segment_trig_sums`) and only
+    Σy·cos, Σy·sin and Σy from the data (one pass over the capture).
     """
     n = y.size
     if work is None or work.n != n:
         work = Workspace(n)
         work.set(omega)
-    c, s = work.c, work.s
     bounds = np.linspace(0, n, segments + 1).round().astype(np.int64)
     starts = bounds[:-1]
     cnt = np.diff(bounds).astype(float)
-
-    def seg(v: np.ndarray) -> np.ndarray:
-        return np.add.reduceat(v, starts)
-
+    cc, ss, cs, c1, s1 = segment_trig_sums(work.omega, bounds, n)
     g = np.empty((segments, 3, 3))
-    g[:, 0, 0] = seg(c * c)
-    g[:, 1, 1] = seg(s * s)
-    g[:, 0, 1] = g[:, 1, 0] = seg(c * s)
-    g[:, 0, 2] = g[:, 2, 0] = seg(c)
-    g[:, 1, 2] = g[:, 2, 1] = seg(s)
+    g[:, 0, 0] = cc
+    g[:, 1, 1] = ss
+    g[:, 0, 1] = g[:, 1, 0] = cs
+    g[:, 0, 2] = g[:, 2, 0] = c1
+    g[:, 1, 2] = g[:, 2, 1] = s1
     g[:, 2, 2] = cnt
-    r = np.stack([seg(y * c), seg(y * s), seg(y)], axis=1)
+    r = np.empty((segments, 3))
+    if segments <= 64:  # one matrix–vector product per segment, no temporary the size of y
+        for i in range(segments):
+            lo, hi = int(bounds[i]), int(bounds[i + 1])
+            r[i, :2] = np.dot(y[lo:hi], work.pair[lo:hi])
+    else:
+        r[:, :2] = np.add.reduceat(y[:, None] * work.pair, starts, axis=0)
+    r[:, 2] = np.add.reduceat(y, starts)
     p = np.linalg.solve(g, r[..., None])[..., 0]
     phase = np.unwrap(np.arctan2(-p[:, 1], p[:, 0]))
     amp = np.hypot(p[:, 0], p[:, 1])
     centre = starts + (cnt - 1) / 2.0
     return phase, amp, centre
+
+
+def segment_trig_sums(omega: float, bounds: np.ndarray, n: int) -> tuple[np.ndarray, ...]:
+    """Σcos², Σsin², Σcos·sin, Σcos, Σsin of ω·t over each segment ``bounds[i]:bounds[i+1]``
+    (t = k − (n−1)/2, as in :class:`~benchgate.analysis.sinefit.Workspace`), in closed form.
+
+    Σ over a segment of L samples centred on m of e^{ixt} is D_L(x)·e^{ix·m} with the Dirichlet
+    kernel D_L(x) = sin(Lx/2)/sin(x/2) (geometric series, derived); cos² = (1 + cos 2ωt)/2,
+    sin² = (1 − cos 2ωt)/2 and cos·sin = sin(2ωt)/2.
+    """
+    lo, hi = bounds[:-1].astype(float), bounds[1:].astype(float)
+    length = hi - lo
+    mid = 0.5 * (lo + hi - 1.0) - 0.5 * (n - 1)
+
+    def phasor_sum(x: float) -> np.ndarray:
+        half = math.sin(0.5 * x)
+        kernel = length if abs(half) < 1e-12 else np.sin(0.5 * x * length) / half
+        return kernel * np.exp(1j * x * mid)
+
+    one, two = phasor_sum(omega), phasor_sum(2.0 * omega)
+    return 0.5 * (length + two.real), 0.5 * (length - two.real), 0.5 * two.imag, one.real, one.imag
 
 
 @dataclass(frozen=True)

@@ -7,6 +7,7 @@ import math
 import numpy as np
 
 from benchgate.analysis._budget import no_oscillation_amplitude, settling, wander
+from benchgate.analysis._robust import mad_at_least
 from benchgate.analysis._steady import NOT_STEADY, STILL_CHANGING
 from benchgate.analysis.capture import Capture
 from benchgate.analysis.context import (
@@ -147,27 +148,42 @@ def _noise_sd(ctx: Context) -> float:
     """Standard deviation (V) of the noise on the steady part: the smaller of the sine fit's
     residual (which also holds a distorted waveform's harmonics) and a robust estimate from
     the first differences (1.4826·MAD/√2, which also holds a sine's slope), both upper bounds
-    of the white noise (common practice, no source)."""
+    of the white noise (common practice, no source). The robust estimate is computed only when
+    counting cannot show it is at least the fit's (:func:`~benchgate.analysis._robust.mad_at_least`);
+    the result is the same either way."""
     tone = ctx.tone
     d = np.diff(ctx.y)
-    robust = 1.4826 * float(np.median(np.abs(d - np.median(d)))) / math.sqrt(2.0) if d.size else 0.0
     fit = math.sqrt(tone.noise_var) if tone.fit is not None and math.isfinite(tone.noise_var) else math.inf
+    if math.isfinite(fit) and mad_at_least(d, fit * math.sqrt(2.0) / 1.4826 * (1.0 + 1e-12)):
+        return fit
+    robust = 1.4826 * float(np.median(np.abs(d - np.median(d)))) / math.sqrt(2.0) if d.size else 0.0
     return min(robust, fit)
 
 
 def _cycle_extremes(whole: np.ndarray, starts: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Index of the (first) largest and smallest sample of each cycle ``starts[i]:starts[i+1]``.
 
-    The cycles differ in length by at most one sample, so one gather into a (cycles × longest)
-    array, the short rows padded with their own first sample, serves both.
+    The cycles differ in length by at most one sample, so one gather of the rows of a sliding
+    window (cycles × longest), a short row's surplus sample replaced by its own first sample,
+    serves both.
     """
     ends = np.r_[starts[1:], whole.size]
-    longest = int(np.max(ends - starts))
-    idx = starts[:, None] + np.arange(longest)[None, :]
-    idx = np.where(idx < ends[:, None], idx, starts[:, None])
-    g = whole[idx]
-    rows = np.arange(starts.size)
-    return idx[rows, np.argmax(g, axis=1)], idx[rows, np.argmin(g, axis=1)]
+    lengths = ends - starts
+    longest = int(np.max(lengths))
+    inside = starts + longest <= whole.size  # rows whose window stays inside the samples
+    rows = np.flatnonzero(inside)
+    g = np.lib.stride_tricks.sliding_window_view(whole, longest)[starts[rows]]
+    short = lengths[rows] < longest
+    g[short, -1] = g[short, 0]  # (cycles differ by at most one sample)
+    imax = np.empty(starts.size, dtype=np.int64)
+    imin = np.empty(starts.size, dtype=np.int64)
+    imax[rows] = starts[rows] + np.argmax(g, axis=1)
+    imin[rows] = starts[rows] + np.argmin(g, axis=1)
+    for i in np.flatnonzero(~inside):  # the last cycle, when its window would pass the end
+        part = whole[starts[i]:ends[i]]
+        imax[i] = starts[i] + int(np.argmax(part))
+        imin[i] = starts[i] + int(np.argmin(part))
+    return imax, imin
 
 
 def _refined_peaks(y: np.ndarray, at: np.ndarray, sign: float, max_curvature: float) -> np.ndarray:

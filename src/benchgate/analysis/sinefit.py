@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 
@@ -60,27 +61,88 @@ def dot(a: np.ndarray, b: np.ndarray) -> float:
 
 
 class Workspace:
-    """Reusable buffers for cos(ω·t) and sin(ω·t) over one capture (t centred, in samples).
+    """exp(i·ω·t) over one capture (t centred, in samples), as a block product.
 
-    The values come from a block product (√n outer angles times √n inner angles), which
-    costs a few multiplies per sample instead of a cosine and a sine, keeps full double
-    precision, and allocates nothing after construction.
+    The phasor at sample k = b·L + l is zo[b]·zi[l]: √n outer angles times √n inner angles,
+    a few multiplies per sample instead of a cosine and a sine, in full double precision.
+    :meth:`project` uses that product directly: Σv·e^{iωt} = Σ_b zo[b]·(Σ_l v[b·L + l]·zi[l]),
+    one matrix product over the data (numpy.matmul) and no array of the capture's length, so a
+    fit step costs one pass over the data per projected vector. The full ``z`` (and its real
+    and imaginary parts ``c`` and ``s``) is built only when asked for, into a buffer allocated
+    once.
     """
+
+    #: most multiply–adds per matrix product call: OpenBLAS runs smaller products on one thread
+    #: (m·n·k below 65536·4), which keeps the cost predictable on a busy machine.
+    _CHUNK_MACS = 131072
 
     def __init__(self, n: int):
         self.n = n
         self.block = max(1, int(math.isqrt(n)))
         self.nblocks = -(-n // self.block)
-        size = self.nblocks * self.block
-        self._c = np.empty(size)
-        self._s = np.empty(size)
-        self._tmp = np.empty(size)
-        self._z = np.empty(size, dtype=complex)
-        self.c = self._c[:n]
-        self.s = self._s[:n]
-        self.tmp = self._tmp[:n]
+        self._z: np.ndarray | None = None
+        self._z_omega = math.nan
+        self._tmp: np.ndarray | None = None
         self.centre = (n - 1) / 2.0
         self.omega = math.nan
+        self._zo = np.zeros(0, dtype=complex)
+        self._zi_pair = np.zeros((0, 2))
+
+    def set(self, omega: float) -> None:
+        """Move to angular frequency ``omega`` (rad/sample); costs O(√n)."""
+        self.omega = float(omega)
+        self._zo = np.exp(1j * self.omega * (np.arange(self.nblocks) * self.block - self.centre))
+        zi = np.exp(1j * self.omega * np.arange(self.block))
+        self._zi_pair = np.ascontiguousarray(zi.view(np.float64).reshape(self.block, 2))
+
+    @property
+    def z(self) -> np.ndarray:
+        """exp(i·ω·t) over the capture (complex; built on first use after :meth:`set`)."""
+        if self._z is None:
+            self._z = np.empty(self.nblocks * self.block, dtype=complex)
+        if self._z_omega != self.omega:
+            zi = self._zi_pair[:, 0] + 1j * self._zi_pair[:, 1]
+            np.multiply.outer(self._zo, zi, out=self._z.reshape(self.nblocks, self.block))
+            self._z_omega = self.omega
+        return self._z[:self.n]
+
+    @property
+    def pair(self) -> np.ndarray:
+        """(n, 2) view of ``z``: columns cos(ω·t), sin(ω·t)."""
+        return self.z.view(np.float64).reshape(self.n, 2)
+
+    @property
+    def c(self) -> np.ndarray:
+        """cos(ω·t) (a strided view of ``z``)."""
+        return self.z.real
+
+    @property
+    def s(self) -> np.ndarray:
+        """sin(ω·t) (a strided view of ``z``)."""
+        return self.z.imag
+
+    @property
+    def tmp(self) -> np.ndarray:
+        """A scratch buffer of n samples."""
+        if self._tmp is None:
+            self._tmp = np.empty(self.n)
+        return self._tmp
+
+    def project(self, v: np.ndarray) -> tuple[float, float]:
+        """(Σ v·cos ωt, Σ v·sin ωt) at the current ω, without building ``z``."""
+        width = self.block
+        full = self.n // width
+        head = v[:full * width].reshape(full, width)
+        rows = max(1, self._CHUNK_MACS // (2 * width))
+        part = np.empty((full, 2))
+        for i in range(0, full, rows):
+            np.matmul(head[i:i + rows], self._zi_pair, out=part[i:i + rows])
+        total = complex(np.dot(self._zo[:full], part[:, 0] + 1j * part[:, 1]))
+        rest = v[full * width:]
+        if rest.size:
+            r = np.dot(rest, self._zi_pair[:rest.size])
+            total += complex(self._zo[full] * complex(r[0], r[1]))
+        return total.real, total.imag
 
     def sums(self) -> tuple[float, float, float, float, float]:
         """Σcos², Σsin², Σcos·sin, Σcos, Σsin over the capture, in closed form.
@@ -91,16 +153,6 @@ class Workspace:
         """
         return _trig_sums(self.omega, self.n)
 
-    def set(self, omega: float) -> None:
-        self.omega = float(omega)
-        shape = (self.nblocks, self.block)
-        zo = np.exp(1j * omega * (np.arange(self.nblocks) * self.block - self.centre))
-        zi = np.exp(1j * omega * np.arange(self.block))
-        z2 = self._z.reshape(shape)
-        np.multiply.outer(zo, zi, out=z2)
-        np.copyto(self._c, self._z.real)
-        np.copyto(self._s, self._z.imag)
-
 
 def phasor(omega: float, n: int) -> np.ndarray:
     """exp(i·ω·t) for t = 0 … n−1 minus (n−1)/2 (complex; for small captures and tests)."""
@@ -108,7 +160,7 @@ def phasor(omega: float, n: int) -> np.ndarray:
         return np.zeros(0, dtype=complex)
     w = Workspace(n)
     w.set(omega)
-    return w.c + 1j * w.s
+    return w.z.copy()
 
 
 def fit3(y: np.ndarray, omega: float) -> SineFit:
@@ -173,20 +225,22 @@ def _trig_sums(omega: float, n: int) -> tuple[float, float, float, float, float]
     return 0.5 * (n + d2), 0.5 * (n - d2), 0.0, _dirichlet(omega, n), 0.0
 
 
-def _solve3(y: np.ndarray, w: Workspace, *, exact_rss: bool = True) -> tuple[float, float, float, float]:
+def _solve3(y: np.ndarray, w: Workspace, *, exact_rss: bool = True,
+            proj: tuple[float, float] | None = None) -> tuple[float, float, float, float]:
     """Three-parameter least squares; with ``exact_rss=False`` the residual sum of squares comes
-    from the normal equations (y·y − p·r; fine for a centred capture) or is skipped (NaN)."""
-    c, s = w.c, w.s
+    from the normal equations (y·y − p·r; fine for a centred capture). ``proj`` is
+    ``w.project(y)`` when the caller has it already."""
     cc, s2, cs, sc, ss = w.sums()
     g = np.array([[cc, cs, sc], [cs, s2, ss], [sc, ss, float(y.size)]])
-    r = np.array([dot(y, c), dot(y, s), float(y.sum())])
+    yc, ys = w.project(y) if proj is None else proj
+    r = np.array([yc, ys, float(y.sum())])
     p = _lstsq_small(g, r)
     if not exact_rss:
         return float(p[0]), float(p[1]), float(p[2]), max(dot(y, y) - float(p @ r), 0.0)
     resid = w.tmp
-    np.multiply(c, -p[0], out=resid)
+    np.multiply(w.c, -p[0], out=resid)
     resid += y
-    resid -= p[1] * s
+    resid -= p[1] * w.s
     resid -= p[2]
     return float(p[0]), float(p[1]), float(p[2]), dot(resid, resid)
 
@@ -247,24 +301,22 @@ def fit4(y: np.ndarray, omega0: float, *, max_iter: int = 30, work: Workspace | 
     y, mean = _centred(y)
     n = y.size
     w = Workspace(n) if work is None or work.n != n else work
-    ty = np.arange(n, dtype=float)
-    ty -= w.centre
-    ty *= y  # t·y: the frequency column's data product needs only Σ t·y·cos and Σ t·y·sin
+    ty = _centred_times(n) * y  # t·y: the frequency column's data products are Σ t·y·cos and Σ t·y·sin
     omega = float(omega0)
     max_step = 0.25 * 2.0 * math.pi / n
     w.set(omega)
-    a, b, c, _ = _solve3(y, w, exact_rss=False)
+    proj = w.project(y)
+    sy = float(y.sum())
+    a, b, c, _ = _solve3(y, w, exact_rss=False, proj=proj)
     converged = False
     it = 0
     yy = dot(y, y)
-    sy = float(y.sum())
     t2 = n * (n * n - 1.0) / 12.0  # Σ t²
     for it in range(1, max_iter + 1):
         # Gauss–Newton column for ω: d = t·(b·cos − a·sin). Its products with cos, sin, 1 and
         # itself are trigonometric sums with closed forms (Σ t·cos² = Σ t·sin² = Σ t·cos = 0 by
-        # symmetry; the rest from the Dirichlet kernel's derivatives), so each step takes four
-        # passes over the capture (cos·y, sin·y, cos·ty, sin·ty) besides the new cos/sin.
-        cz, sz = w.c, w.s
+        # symmetry; the rest from the Dirichlet kernel's derivatives), so each step takes two
+        # passes over the capture ((cos, sin)·y and (cos, sin)·ty) besides the new cos/sin.
         cc, s2, cs, sc, ss = w.sums()
         s1_2w, c2_2w = _dirichlet_derivatives(2.0 * omega, n)
         s1_w, _ = _dirichlet_derivatives(omega, n)
@@ -276,7 +328,8 @@ def fit4(y: np.ndarray, omega0: float, *, max_iter: int = 30, work: Workspace | 
         g[2, 2] = 0.5 * (b * b + a * a) * t2 + 0.5 * (b * b - a * a) * c2_2w  # Σ d²
         g[2, 3] = g[3, 2] = -a * s1_w  # Σ d
         g[3, 3] = n
-        r = np.array([dot(cz, y), dot(sz, y), b * dot(cz, ty) - a * dot(sz, ty), sy])
+        tc, ts = w.project(ty)
+        r = np.array([proj[0], proj[1], b * tc - a * ts, sy])
         p = _lstsq_small(g, r)
         a, b, dw, c = (float(v) for v in p)
         rss_lin = max(yy - float(p @ r), 0.0)
@@ -285,7 +338,6 @@ def fit4(y: np.ndarray, omega0: float, *, max_iter: int = 30, work: Workspace | 
         except np.linalg.LinAlgError:
             var_dw = math.inf
         if dw * dw <= 1e-4 * max(var_dw, 0.0) or abs(dw) < 1e-15 * omega:
-            # the step is far below its own noise: keep this solution (and its residual)
             # the step is far below its own noise: keep this solution; its residual sum of
             # squares follows from the normal equations without another pass over the data
             omega = min(max(omega + dw, 1e-12), math.pi - 1e-12)
@@ -294,9 +346,23 @@ def fit4(y: np.ndarray, omega0: float, *, max_iter: int = 30, work: Workspace | 
         dw = float(np.clip(dw, -max_step, max_step))
         omega = min(max(omega + dw, 1e-12), math.pi - 1e-12)
         w.set(omega)
-    a, b, c, rss = _solve3(y, w)
+        proj = w.project(y)
+    a, b, c, rss = _solve3(y, w, proj=proj)
     return SineFit(omega=omega, a=a, b=b, offset=c + mean, residual_var=max(rss, 0.0) / max(n - 4, 1),
                    n=n, iterations=it, converged=converged)
+
+
+@lru_cache(maxsize=2)
+def _centred_times_cached(n: int) -> np.ndarray:
+    t = np.arange(n, dtype=float)
+    t -= (n - 1) / 2.0
+    t.setflags(write=False)
+    return t
+
+
+def _centred_times(n: int) -> np.ndarray:
+    """t = k − (n−1)/2, k = 0 … n−1 (read-only; kept for the next capture of the same length)."""
+    return _centred_times_cached(int(n))
 
 
 def best_start(y: np.ndarray, omega0: float, *, span_bins: float = 1.0, points: int = 21) -> float:
