@@ -53,5 +53,6 @@ def mad_at_least(d: np.ndarray, bound: float) -> bool:
     hi = float(sub[min(k // 2 + spread, k - 1)])
     if np.count_nonzero(d < lo) >= half or np.count_nonzero(d > hi) >= half:
         return False  # the bracket does not hold the median: no proof
-    near = np.count_nonzero(np.abs(d - 0.5 * (lo + hi)) < 0.5 * (hi - lo) + bound)
-    return int(near) < half
+    # values in (lo − bound, hi + bound), counted as two comparisons (no temporary of floats)
+    near = int(np.count_nonzero(d > lo - bound)) - int(np.count_nonzero(d >= hi + bound))
+    return near < half

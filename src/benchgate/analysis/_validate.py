@@ -34,7 +34,9 @@ class Validation:
 
 
 def _histogram(x: np.ndarray, lo: float, hi: float, bins: int) -> np.ndarray:
-    idx = ((x - lo) * (bins / (hi - lo))).astype(np.int64)
+    scaled = x - lo
+    scaled *= bins / (hi - lo)
+    idx = scaled.astype(np.intp)
     np.minimum(idx, bins - 1, out=idx)
     return np.bincount(idx, minlength=bins)
 
@@ -49,8 +51,11 @@ def state_levels(x: np.ndarray, bins: int = 256) -> tuple[float, float]:
     return _levels_and_counts(x, bins)[:2]
 
 
-def _levels_and_counts(x: np.ndarray, bins: int = 256) -> tuple[float, float, np.ndarray | None]:
-    lo, hi = float(np.min(x)), float(np.max(x))
+def _levels_and_counts(x: np.ndarray, bins: int = 256, *, lo: float | None = None,
+                       hi: float | None = None) -> tuple[float, float, np.ndarray | None]:
+    """State levels and the histogram counts; ``lo``/``hi`` are min(x) and max(x) when known."""
+    lo = float(np.min(x)) if lo is None else lo
+    hi = float(np.max(x)) if hi is None else hi
     if hi <= lo:
         return lo, hi, None
     counts = _histogram(x, lo, hi, bins)
@@ -150,11 +155,11 @@ def validate_capture(capture: Capture) -> Validation:
     if x.size < MIN_SAMPLES:
         reason = f"too few samples ({x.size}; at least {MIN_SAMPLES} needed)"
         return Validation(reason, (reason,), None, False, np.nan, np.nan)
-    bad = int(np.count_nonzero(~np.isfinite(x)))
-    if bad:
+    lo, hi = float(np.min(x)), float(np.max(x))
+    if not (np.isfinite(lo) and np.isfinite(hi)):  # min and max are NaN or ±inf if any sample is
+        bad = int(np.count_nonzero(~np.isfinite(x)))
         reason = f"{bad} NaN or infinite sample(s) in the capture"
         return Validation(reason, (reason,), None, False, np.nan, np.nan)
-    lo, hi = float(np.min(x)), float(np.max(x))
     if max(abs(lo), abs(hi)) > MAX_ABS:
         reason = f"samples out of range (beyond ±{MAX_ABS:g} V): not a voltage capture"
         return Validation(reason, (reason,), None, False, lo, hi)
@@ -164,7 +169,7 @@ def validate_capture(capture: Capture) -> Validation:
     if span <= flat_limit:
         reason = "flat line: no oscillation in the capture"
         return Validation(reason, (reason,), None, False, lo, hi, flat=True)
-    low, high, counts = _levels_and_counts(x)
+    low, high, counts = _levels_and_counts(x, lo=lo, hi=hi)
     pulse = counts is not None and _pulse_like_from_counts(counts, lo, hi, low, high)
     clipped = None
     if capture.adc is not None:

@@ -44,14 +44,17 @@ def crossings(x: np.ndarray, low: float, high: float) -> tuple[np.ndarray, np.nd
     rising_at = idx[turn][kind[turn] == 1]
     falling_at = idx[turn][kind[turn] == -1]
     # the last sample on the far side of 50 % before a transition is always the start of a
-    # 50 % crossing, so only the (few) crossings need searching
-    rise_cross = np.flatnonzero((x[:-1] < mid) & (x[1:] >= mid))
-    fall_cross = np.flatnonzero((x[:-1] > mid) & (x[1:] <= mid))
+    # 50 % crossing, so only the (few) crossings need searching; a crossing is where a boolean
+    # steps from False to True (True > False), no inverted copies needed
+    at_or_above = x >= mid
+    above = x > mid
+    rise_cross = np.flatnonzero(at_or_above[1:] > at_or_above[:-1])  # x[i] < mid <= x[i+1]
+    fall_cross = np.flatnonzero(above[:-1] > above[1:])  # x[i] > mid >= x[i+1]
     return _instants(x, rising_at, rise_cross, mid), _instants(x, falling_at, fall_cross, mid)
 
 
 def _run_starts(mask: np.ndarray) -> np.ndarray:
-    starts = np.flatnonzero(mask[1:] & ~mask[:-1]) + 1
+    starts = np.flatnonzero(mask[1:] > mask[:-1]) + 1
     return np.concatenate(([0], starts)) if mask.size and mask[0] else starts
 
 

@@ -203,8 +203,9 @@ def power_spectrum(x: np.ndarray, sample_rate: float, taper: str = "blackmanharr
         mean = float(x.mean())
         for k, a in enumerate(_coefficients(taper)):
             xf[k] -= mean * n * (a if k == 0 else (-1) ** k * a / 2.0)
-    power = xf.real * xf.real
-    power += xf.imag * xf.imag
+    parts = xf.view(np.float64).reshape(-1, 2)  # re, im side by side: square in place, add
+    np.multiply(parts, parts, out=parts)
+    power = np.add(parts[:, 0], parts[:, 1])
     power *= 2.0 / (n * w_sq)
     power[0] *= 0.5
     if n % 2 == 0:
