@@ -129,7 +129,7 @@ def _settling_compute(ctx: Context) -> float:
     if tone.chirp is not None:  # the tail along the same drifting phase
         tail_amp = _track.chirp_fit(y, fit, tone.track, ctx.capture.sample_rate, start=y.size - k).amplitude
     else:
-        tail_amp = sinefit.fit3(y[-k:], fit.omega).amplitude
+        tail_amp = sinefit.fit3(y[-k:], fit.omega, exact_rss=False).amplitude  # (its residual is not used)
     diff = tone.amplitude - tail_amp
     sd = math.sqrt(max(2.0 * tone.noise_var * (1.0 / k - 1.0 / y.size), 0.0))
     if abs(diff) <= 3.0 * sd:

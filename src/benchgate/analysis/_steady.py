@@ -129,12 +129,7 @@ def _crossing(env: Envelope, level: float, sd_env: float) -> tuple[float | None,
     points_per_period = max(1, int(round(lv.size / max(env.centre[-1] - env.centre[0], 1.0) * env.span)))
     width = min(k * points_per_period, max(1, lv.size // 8))
     if width > 1:
-        c = np.concatenate(([0.0], np.cumsum(lv)))
-        half = width // 2
-        i = np.arange(lv.size)
-        lo = np.clip(i - half, 0, lv.size)
-        hi = np.clip(i + half + 1, 0, lv.size)
-        lv = (c[hi] - c[lo]) / (hi - lo)
+        lv = _smoothed_until(lv, width, 0.9 * level)
     above = np.flatnonzero(lv >= 0.9 * level)
     if above.size == 0:
         return None, 0.0
@@ -158,6 +153,26 @@ def _crossing(env: Envelope, level: float, sd_env: float) -> tuple[float | None,
         step = float(env.centre[1] - env.centre[0]) if env.centre.size > 1 else 1.0
         u = math.hypot(u, 0.5 * width * step / math.sqrt(3.0))
     return at, float(min(u, env.centre[-1]))
+
+
+def _smoothed_until(lv: np.ndarray, width: int, threshold: float) -> np.ndarray:
+    """The centred moving average of ``lv`` over ``width`` points (shorter at the ends), computed
+    over a growing prefix only until it reaches ``threshold`` plus half a width beyond (all the
+    crossing and its slope look at). The running sum of a prefix is the prefix of the running
+    sum, so the values are those of the whole average."""
+    size = lv.size
+    half = width // 2
+    upto = min(size, 4 * width + 1024)
+    while True:
+        c = np.concatenate(([0.0], np.cumsum(lv[:min(upto + half + 1, size)])))
+        i = np.arange(upto)
+        lo = np.clip(i - half, 0, size)
+        hi = np.clip(i + half + 1, 0, size)
+        out = (c[hi] - c[lo]) / (hi - lo)
+        hit = np.flatnonzero(out >= threshold)
+        if upto == size or (hit.size and int(hit[0]) + half + 1 < upto):
+            return out
+        upto = min(size, 4 * upto)
 
 
 def find_steady(env: Envelope, n: int, cycles: float, noise_var: float) -> Steady:

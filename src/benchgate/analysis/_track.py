@@ -35,7 +35,10 @@ def segment_phases(y: np.ndarray, omega: float, segments: int,
     The cosine and sine are computed once for the whole capture (or taken from ``work``, set
     at ω, whose own ω is then used throughout); each segment's 3×3 normal equations take
     Σcos², Σsin², Σcos·sin, Σcos and Σsin in closed form (:func:`segment_trig_sums`) and only
-    Σy·cos, Σy·sin and Σy from the data (one pass over the capture).
+    Σy·cos, Σy·sin and Σy from the data: one pass over the capture, or none for the first two
+    when the four-parameter fit kept its per-block sums of y in ``work``
+    (:meth:`~benchgate.analysis.sinefit.Workspace.segment_sums`; an offset taken out of y
+    changes only the constant's coefficient, not the phase).
     """
     n = y.size
     if work is None or work.n != n:
@@ -53,13 +56,19 @@ def segment_phases(y: np.ndarray, omega: float, segments: int,
     g[:, 1, 2] = g[:, 2, 1] = s1
     g[:, 2, 2] = cnt
     r = np.empty((segments, 3))
-    if segments <= 64:  # one matrix–vector product per segment, no temporary the size of y
+    kept = work.segment_sums(y, bounds)  # from the fit's own pass over y, when it left them
+    if kept is not None:
+        sums, offset = kept
+        r[:, 0], r[:, 1] = sums.real, sums.imag
+        r[:, 2] = np.add.reduceat(y, starts) - offset * cnt  # the same y − offset throughout
+    elif segments <= 64:  # one matrix–vector product per segment, no temporary the size of y
         for i in range(segments):
             lo, hi = int(bounds[i]), int(bounds[i + 1])
             r[i, :2] = np.dot(y[lo:hi], work.pair[lo:hi])
+        r[:, 2] = np.add.reduceat(y, starts)
     else:
         r[:, :2] = np.add.reduceat(y[:, None] * work.pair, starts, axis=0)
-    r[:, 2] = np.add.reduceat(y, starts)
+        r[:, 2] = np.add.reduceat(y, starts)
     p = np.linalg.solve(g, r[..., None])[..., 0]
     phase = np.unwrap(np.arctan2(-p[:, 1], p[:, 0]))
     amp = np.hypot(p[:, 0], p[:, 1])

@@ -110,7 +110,9 @@ class Context:
         env = self.envelope
         tail = cap.samples[int(cap.n * (1.0 - _steady.TAIL_FRACTION)):]
         omega = 2.0 * math.pi * f0 / cap.sample_rate
-        noise_var = sinefit.fit3(tail, omega).residual_var if tail.size >= 8 else float(np.var(tail))
+        # (the residual from the normal equations: this σ² only widens the steady band)
+        noise_var = (sinefit.fit3(tail, omega, exact_rss=False).residual_var if tail.size >= 8
+                     else float(np.var(tail)))
         return _steady.find_steady(env, cap.n, cap.n * f0 / cap.sample_rate, noise_var)
 
     @cached_property

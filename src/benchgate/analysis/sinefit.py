@@ -128,8 +128,12 @@ class Workspace:
             self._tmp = np.empty(self.n)
         return self._tmp
 
-    def project(self, v: np.ndarray) -> tuple[float, float]:
-        """(Σ v·cos ωt, Σ v·sin ωt) at the current ω, without building ``z``."""
+    def project(self, v: np.ndarray, *, keep: float | None = None) -> tuple[float, float]:
+        """(Σ v·cos ωt, Σ v·sin ωt) at the current ω, without building ``z``.
+
+        With ``keep`` (the offset already taken out of ``v``, i.e. v = y − keep), the per-block
+        sums Σ_l v[b·L + l]·e^{iω(b·L + l − centre)} are kept for :meth:`segment_sums`.
+        """
         width = self.block
         full = self.n // width
         head = v[:full * width].reshape(full, width)
@@ -137,12 +141,54 @@ class Workspace:
         part = np.empty((full, 2))
         for i in range(0, full, rows):
             np.matmul(head[i:i + rows], self._zi_pair, out=part[i:i + rows])
-        total = complex(np.dot(self._zo[:full], part[:, 0] + 1j * part[:, 1]))
+        blocks = np.empty(self.nblocks, dtype=complex)
+        np.multiply(self._zo[:full], part[:, 0] + 1j * part[:, 1], out=blocks[:full])
         rest = v[full * width:]
         if rest.size:
             r = np.dot(rest, self._zi_pair[:rest.size])
-            total += complex(self._zo[full] * complex(r[0], r[1]))
+            blocks[full] = self._zo[full] * complex(r[0], r[1])
+        total = complex(np.sum(blocks))
+        if keep is not None:
+            self._kept = (self.omega, float(keep), blocks)
         return total.real, total.imag
+
+    def segment_sums(self, y: np.ndarray, bounds: np.ndarray) -> tuple[np.ndarray, float] | None:
+        """Σ (y − offset)·e^{iωt} over each segment ``bounds[i]:bounds[i+1]`` from the block sums
+        kept by the last :meth:`project` with ``keep`` at the current ω (the whole blocks inside
+        a segment from a running sum, its ragged ends directly), and that offset; None when no
+        such sums are kept. ``y`` must be the capture that was projected."""
+        kept = getattr(self, "_kept", None)
+        if kept is None or kept[0] != self.omega:
+            return None
+        _, offset, blocks = kept
+        width = self.block
+        run = np.concatenate(([0.0 + 0.0j], np.cumsum(blocks)))
+        out = np.empty(bounds.size - 1, dtype=complex)
+        for i in range(bounds.size - 1):
+            lo, hi = int(bounds[i]), int(bounds[i + 1])
+            first, last = -(-lo // width), hi // width  # whole blocks first … last − 1
+            if first >= last:
+                out[i] = self._direct(y, offset, lo, hi)
+                continue
+            total = run[last] - run[first]
+            if lo < first * width:
+                total += self._direct(y, offset, lo, first * width)
+            if hi > last * width:
+                total += self._direct(y, offset, last * width, hi)
+            out[i] = total
+        return out, offset
+
+    def _direct(self, y: np.ndarray, offset: float, lo: int, hi: int) -> complex:
+        """Σ (y − offset)·e^{iωt} over samples lo … hi−1, one matrix–vector product per block."""
+        width = self.block
+        total = 0j
+        while lo < hi:
+            b = lo // width
+            end = min(hi, (b + 1) * width)
+            r = np.dot(y[lo:end] - offset, self._zi_pair[lo - b * width:end - b * width])
+            total += self._zo[b] * complex(r[0], r[1])
+            lo = end
+        return total
 
     def sums(self) -> tuple[float, float, float, float, float]:
         """Σcos², Σsin², Σcos·sin, Σcos, Σsin over the capture, in closed form.
@@ -163,7 +209,7 @@ def phasor(omega: float, n: int) -> np.ndarray:
     return w.z.copy()
 
 
-def fit3(y: np.ndarray, omega: float) -> SineFit:
+def fit3(y: np.ndarray, omega: float, *, exact_rss: bool = True) -> SineFit:
     """Three-parameter sine fit at a known angular frequency.
 
     Parameters
@@ -172,6 +218,10 @@ def fit3(y: np.ndarray, omega: float) -> SineFit:
         Samples (V), at least 4.
     omega : float
         Angular frequency in radians per sample (0 < ω < π).
+    exact_rss : bool
+        False: the residual variance from the normal equations (y·y − p·r, y centred), with no
+        pass over the residual; exact to rounding of y·y, i.e. for any residual above about
+        1e-12 of the signal power.
 
     Returns
     -------
@@ -185,7 +235,7 @@ def fit3(y: np.ndarray, omega: float) -> SineFit:
     n = y.size
     w = Workspace(n)
     w.set(omega)
-    a, b, c, rss = _solve3(y, w)
+    a, b, c, rss = _solve3(y, w, exact_rss=exact_rss)
     return SineFit(omega=float(omega), a=a, b=b, offset=c + mean, residual_var=max(rss, 0.0) / max(n - 3, 1),
                    n=n, iterations=0, converged=True)
 
@@ -305,7 +355,7 @@ def fit4(y: np.ndarray, omega0: float, *, max_iter: int = 30, work: Workspace | 
     omega = float(omega0)
     max_step = 0.25 * 2.0 * math.pi / n
     w.set(omega)
-    proj = w.project(y)
+    proj = w.project(y, keep=mean)
     sy = float(y.sum())
     a, b, c, _ = _solve3(y, w, exact_rss=False, proj=proj)
     converged = False
@@ -346,7 +396,7 @@ def fit4(y: np.ndarray, omega0: float, *, max_iter: int = 30, work: Workspace | 
         dw = float(np.clip(dw, -max_step, max_step))
         omega = min(max(omega + dw, 1e-12), math.pi - 1e-12)
         w.set(omega)
-        proj = w.project(y)
+        proj = w.project(y, keep=mean)
     a, b, c, rss = _solve3(y, w, proj=proj)
     return SineFit(omega=omega, a=a, b=b, offset=c + mean, residual_var=max(rss, 0.0) / max(n - 4, 1),
                    n=n, iterations=it, converged=converged)
