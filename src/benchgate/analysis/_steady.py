@@ -65,19 +65,15 @@ def envelope(x: np.ndarray, period_samples: float, stride: int | None = None) ->
     starts = np.arange(0, n - m, stride)
     # running sums of x − mean and its square, needed only where a span starts or ends: at
     # multiples of the stride and at those plus (m mod stride)
-    blocks = n // stride + 1
-    xc = np.zeros(blocks * stride)
-    np.subtract(x, x.mean(), out=xc[:n])
-    sq = np.zeros(blocks * stride)
-    np.multiply(xc[:n], xc[:n], out=sq[:n])
-    c1_start, c1_end = _sums_at(xc, stride, m, starts.size)
-    c2_start, c2_end = _sums_at(sq, stride, m, starts.size)
-    at_end = slice(m, m + starts.size * stride, stride)  # = ends, as a view
+    mean = x.mean()
+    (c1_start, c1_end), (c2_start, c2_end) = _sums_at(x, mean, stride, m, starts.size)
+    end_x = x[m:m + starts.size * stride:stride] - mean  # x − mean at the span ends
     s1 = c1_end - c1_start
-    s1 += frac * xc[at_end]
+    s1 += frac * end_x
     s1 /= p
     s2 = c2_end - c2_start
-    s2 += frac * sq[at_end]
+    end_x *= end_x
+    s2 += frac * end_x
     s2 /= p
     s1 *= s1
     var = np.maximum(s2 - s1, 0.0)
@@ -88,23 +84,37 @@ def envelope(x: np.ndarray, period_samples: float, stride: int | None = None) ->
 _CHUNK_MACS = 131072
 
 
-def _sums_at(v: np.ndarray, stride: int, m: int, count: int) -> tuple[np.ndarray, np.ndarray]:
-    """Σ v[:j·stride] and Σ v[:j·stride + m] for j = 0 … count−1 (``v`` zero-padded to whole
-    blocks of ``stride``): each block's sum before offset m mod stride and its whole sum (one
-    matrix product with a 0/1 matrix), then a running sum over the blocks, not the samples."""
+def _sums_at(x: np.ndarray, mean: float, stride: int, m: int,
+             count: int) -> tuple[tuple[np.ndarray, np.ndarray], tuple[np.ndarray, np.ndarray]]:
+    """For v = x − mean and v = (x − mean)²: Σ v[:j·stride] and Σ v[:j·stride + m] for
+    j = 0 … count−1. Each block of ``stride`` samples gives its sum before offset m mod stride
+    and its whole sum (one matrix product with a 0/1 matrix), then a running sum goes over the
+    blocks, not the samples. The capture is taken a few thousand samples at a time, so no
+    temporary the size of the capture is made (they stay in the processor's cache)."""
     q, r = divmod(m, stride)
-    rows = v.reshape(-1, stride)
+    n = x.size
     split = np.zeros((stride, 2))
     split[:r, 0] = 1.0  # the block's sum before offset r …
     split[:, 1] = 1.0  # … and its whole sum
-    ab = np.empty((rows.shape[0], 2))
-    step = max(1, _CHUNK_MACS // (2 * stride))
-    for i in range(0, rows.shape[0], step):
-        np.matmul(rows[i:i + step], split, out=ab[i:i + step])
-    before = np.empty(rows.shape[0] + 1)
-    before[0] = 0.0
-    np.cumsum(ab[:, 1], out=before[1:])
-    return before[:count], before[q:q + count] + ab[q:q + count, 0]
+    blocks = n // stride + 1  # the last one partial (zero-padded) or empty
+    ab = np.zeros((2, blocks, 2))
+    rows = max(1, _CHUNK_MACS // (2 * stride))
+    for first in range(0, blocks, rows):
+        last = min(first + rows, blocks)
+        part = x[first * stride:last * stride] - mean
+        if part.size < (last - first) * stride:  # the partial last block
+            part = np.concatenate((part, np.zeros((last - first) * stride - part.size)))
+        part = part.reshape(-1, stride)
+        np.matmul(part, split, out=ab[0, first:last])
+        part *= part
+        np.matmul(part, split, out=ab[1, first:last])
+    out = []
+    for k in range(2):
+        before = np.empty(blocks + 1)
+        before[0] = 0.0
+        np.cumsum(ab[k, :, 1], out=before[1:])
+        out.append((before[:count], before[q:q + count] + ab[k, q:q + count, 0]))
+    return out[0], out[1]
 
 
 def _smoothing_periods(level: float, sd_env: float) -> int:

@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from functools import lru_cache
 
 import numpy as np
 
@@ -87,6 +86,7 @@ class Workspace:
         self.omega = math.nan
         self._zo = np.zeros(0, dtype=complex)
         self._zi_pair = np.zeros((0, 2))
+        self._zi_quad = np.zeros((0, 4))
 
     def set(self, omega: float) -> None:
         """Move to angular frequency ``omega`` (rad/sample); costs O(√n)."""
@@ -94,6 +94,9 @@ class Workspace:
         self._zo = np.exp(1j * self.omega * (np.arange(self.nblocks) * self.block - self.centre))
         zi = np.exp(1j * self.omega * np.arange(self.block))
         self._zi_pair = np.ascontiguousarray(zi.view(np.float64).reshape(self.block, 2))
+        self._zi_quad = np.empty((self.block, 4))  # e^{iωl} and l·e^{iωl}, as (re, im) pairs
+        self._zi_quad[:, :2] = self._zi_pair
+        np.multiply(self._zi_pair, np.arange(self.block, dtype=float)[:, None], out=self._zi_quad[:, 2:])
 
     @property
     def z(self) -> np.ndarray:
@@ -134,23 +137,37 @@ class Workspace:
         With ``keep`` (the offset already taken out of ``v``, i.e. v = y − keep), the per-block
         sums Σ_l v[b·L + l]·e^{iω(b·L + l − centre)} are kept for :meth:`segment_sums`.
         """
+        total, _ = self._projections(v, keep, with_t=False)
+        return total.real, total.imag
+
+    def project_with_t(self, v: np.ndarray, *, keep: float | None = None) -> tuple[complex, complex]:
+        """Σ v·e^{iωt} and Σ t·v·e^{iωt} in one pass: with k = b·L + l,
+        t = (b·L − centre) + l, so each block needs Σ_l v·e^{iωl} and Σ_l l·v·e^{iωl}, one
+        matrix product with four columns. ``keep`` as for :meth:`project`."""
+        return self._projections(v, keep, with_t=True)
+
+    def _projections(self, v: np.ndarray, keep: float | None, *, with_t: bool) -> tuple[complex, complex]:
         width = self.block
         full = self.n // width
         head = v[:full * width].reshape(full, width)
-        rows = max(1, self._CHUNK_MACS // (2 * width))
-        part = np.empty((full, 2))
+        zi = self._zi_quad if with_t else self._zi_pair
+        cols = zi.shape[1]
+        rows = max(1, self._CHUNK_MACS // (cols * width))
+        part = np.empty((self.nblocks, cols))
         for i in range(0, full, rows):
-            np.matmul(head[i:i + rows], self._zi_pair, out=part[i:i + rows])
-        blocks = np.empty(self.nblocks, dtype=complex)
-        np.multiply(self._zo[:full], part[:, 0] + 1j * part[:, 1], out=blocks[:full])
+            np.matmul(head[i:i + rows], zi, out=part[i:min(i + rows, full)])
         rest = v[full * width:]
         if rest.size:
-            r = np.dot(rest, self._zi_pair[:rest.size])
-            blocks[full] = self._zo[full] * complex(r[0], r[1])
+            part[full] = np.dot(rest, zi[:rest.size])
+        blocks = self._zo * (part[:, 0] + 1j * part[:, 1])
         total = complex(np.sum(blocks))
         if keep is not None:
             self._kept = (self.omega, float(keep), blocks)
-        return total.real, total.imag
+        if not with_t:
+            return total, 0j
+        offsets = np.arange(self.nblocks) * float(width) - self.centre  # b·L − centre
+        local = self._zo * (part[:, 2] + 1j * part[:, 3])
+        return total, complex(np.dot(offsets, blocks) + np.sum(local))
 
     def segment_sums(self, y: np.ndarray, bounds: np.ndarray) -> tuple[np.ndarray, float] | None:
         """Σ (y − offset)·e^{iωt} over each segment ``bounds[i]:bounds[i+1]`` from the block sums
@@ -351,11 +368,11 @@ def fit4(y: np.ndarray, omega0: float, *, max_iter: int = 30, work: Workspace | 
     y, mean = _centred(y)
     n = y.size
     w = Workspace(n) if work is None or work.n != n else work
-    ty = _centred_times(n) * y  # t·y: the frequency column's data products are Σ t·y·cos and Σ t·y·sin
     omega = float(omega0)
     max_step = 0.25 * 2.0 * math.pi / n
     w.set(omega)
-    proj = w.project(y, keep=mean)
+    pz, tz = w.project_with_t(y, keep=mean)  # Σ y·e^{iωt} and Σ t·y·e^{iωt}
+    proj = (pz.real, pz.imag)
     sy = float(y.sum())
     a, b, c, _ = _solve3(y, w, exact_rss=False, proj=proj)
     converged = False
@@ -365,8 +382,8 @@ def fit4(y: np.ndarray, omega0: float, *, max_iter: int = 30, work: Workspace | 
     for it in range(1, max_iter + 1):
         # Gauss–Newton column for ω: d = t·(b·cos − a·sin). Its products with cos, sin, 1 and
         # itself are trigonometric sums with closed forms (Σ t·cos² = Σ t·sin² = Σ t·cos = 0 by
-        # symmetry; the rest from the Dirichlet kernel's derivatives), so each step takes two
-        # passes over the capture ((cos, sin)·y and (cos, sin)·ty) besides the new cos/sin.
+        # symmetry; the rest from the Dirichlet kernel's derivatives), so each step takes one
+        # pass over the capture (Σ y·e^{iωt} and Σ t·y·e^{iωt} together).
         cc, s2, cs, sc, ss = w.sums()
         s1_2w, c2_2w = _dirichlet_derivatives(2.0 * omega, n)
         s1_w, _ = _dirichlet_derivatives(omega, n)
@@ -378,8 +395,7 @@ def fit4(y: np.ndarray, omega0: float, *, max_iter: int = 30, work: Workspace | 
         g[2, 2] = 0.5 * (b * b + a * a) * t2 + 0.5 * (b * b - a * a) * c2_2w  # Σ d²
         g[2, 3] = g[3, 2] = -a * s1_w  # Σ d
         g[3, 3] = n
-        tc, ts = w.project(ty)
-        r = np.array([proj[0], proj[1], b * tc - a * ts, sy])
+        r = np.array([proj[0], proj[1], b * tz.real - a * tz.imag, sy])
         p = _lstsq_small(g, r)
         a, b, dw, c = (float(v) for v in p)
         rss_lin = max(yy - float(p @ r), 0.0)
@@ -396,23 +412,11 @@ def fit4(y: np.ndarray, omega0: float, *, max_iter: int = 30, work: Workspace | 
         dw = float(np.clip(dw, -max_step, max_step))
         omega = min(max(omega + dw, 1e-12), math.pi - 1e-12)
         w.set(omega)
-        proj = w.project(y, keep=mean)
+        pz, tz = w.project_with_t(y, keep=mean)
+        proj = (pz.real, pz.imag)
     a, b, c, rss = _solve3(y, w, proj=proj)
     return SineFit(omega=omega, a=a, b=b, offset=c + mean, residual_var=max(rss, 0.0) / max(n - 4, 1),
                    n=n, iterations=it, converged=converged)
-
-
-@lru_cache(maxsize=2)
-def _centred_times_cached(n: int) -> np.ndarray:
-    t = np.arange(n, dtype=float)
-    t -= (n - 1) / 2.0
-    t.setflags(write=False)
-    return t
-
-
-def _centred_times(n: int) -> np.ndarray:
-    """t = k − (n−1)/2, k = 0 … n−1 (read-only; kept for the next capture of the same length)."""
-    return _centred_times_cached(int(n))
 
 
 def best_start(y: np.ndarray, omega0: float, *, span_bins: float = 1.0, points: int = 21) -> float:
