@@ -144,6 +144,19 @@ def vpp(capture: Capture, *, context: Context | None = None) -> Measurement:
                                 "noise_lift_bound_v": noise_lift})
 
 
+def _std(y: np.ndarray, chunk: int = 65536) -> float:
+    """Population standard deviation (as numpy.std), the squared deviations summed a chunk at a
+    time so no temporary the size of the capture is made."""
+    if y.size == 0:
+        return math.nan
+    mean = float(y.mean())
+    total = 0.0
+    for first in range(0, y.size, chunk):
+        d = y[first:first + chunk] - mean
+        total += float(np.dot(d, d))
+    return math.sqrt(total / y.size)
+
+
 def _noise_sd(ctx: Context) -> float:
     """Standard deviation (V) of the noise on the steady part: the smaller of the sine fit's
     residual (which also holds a distorted waveform's harmonics) and a robust estimate from
@@ -236,7 +249,7 @@ def rms(capture: Capture, *, context: Context | None = None) -> Measurement:
         return Measurement.invalid("rms", "V", refused)
     y = _whole_cycles(ctx)
     n = y.size
-    value = float(np.std(y))
+    value = _std(y)
     tone = ctx.tone
     if tone.ok and tone.fit is not None and value > 0:
         # the whole cycles end on a whole sample: take out the fundamental's share of the
