@@ -8,6 +8,10 @@ Targets (issue 14): the full measurement set ≤ 5× one rfft, in-process and th
 ``benchgate analyze`` (file load and JSON included); `benchgate --help` ≤ 0.3 s.
 The file is an uncompressed .npz (numpy.savez); the compressed .npz that ``save_capture``
 writes is timed too (its zlib inflate alone costs about two transforms).
+Per look of an adaptive capture (issue 14): a capture re-measured after every block, each look
+analysed afresh and with the growing capture's kept sums (``analyze(..., growing=GrowingFit())``,
+benchgate.analysis._growing); CPU time summed over the looks, ratio fresh ÷ kept. Only the tone's
+four-parameter fit reuses earlier looks; the rest of the analysis is made afresh at every look.
 Run: python bench/bench_speed.py
 """
 
@@ -25,6 +29,7 @@ from pathlib import Path
 import numpy as np
 
 from benchgate.analysis import AdcInfo, Capture, analyze
+from benchgate.analysis._growing import GrowingFit
 from benchgate.capfile import save_capture
 from benchgate.cli import main as cli_main
 
@@ -59,6 +64,29 @@ def through_cli(path: Path) -> None:
             raise SystemExit(f"benchgate analyze {path} failed")
 
 
+def per_look(cap: Capture, looks: int, names: tuple[str, ...] | None) -> tuple[float, float, float]:
+    """CPU seconds summed over ``looks`` growing looks of ``cap``: afresh, with kept sums, and
+    the four-parameter fit's own share of the fresh figure."""
+    from benchgate.analysis import sinefit
+
+    fresh = kept = fit = 0.0
+    growing = GrowingFit()
+    step = cap.n // looks
+    for k in range(1, looks + 1):
+        look = Capture(cap.samples[:k * step], cap.sample_rate, adc=cap.adc, clock_ppm=cap.clock_ppm)
+        analyze(look, names)  # untimed: the taper of this length is cached for both timed calls
+        t0 = time.process_time()
+        analyze(look, names, growing=growing)
+        t1 = time.process_time()
+        analyze(look, names)
+        t2 = time.process_time()
+        kept += t1 - t0
+        fresh += t2 - t1
+        w0 = 2 * np.pi * 955.3 / cap.sample_rate
+        fit += best(lambda look=look, w0=w0: sinefit.fit4(look.samples, w0), 1)
+    return fresh, kept, fit
+
+
 def main() -> None:
     cap = long_capture()
     x = cap.samples
@@ -86,6 +114,16 @@ def main() -> None:
     print(line("  full measurement set in-process", "in-process"))
     print(line("  benchgate analyze FILE.npz --json (load + analysis + JSON)", "cli"))
     print(line("  same, compressed .npz as save_capture writes it", "cli-compressed"))
+    for label, n, names in (("10 looks of a 1e6-sample capture, full measurement set", 1_000_000, None),
+                            ("10 looks of a 1e6-sample capture, frequency + amplitude + thd", 1_000_000,
+                             ("frequency", "amplitude", "thd")),
+                            ("10 looks of a 25 000-sample capture (TB-3 adaptive step), frequency + "
+                             "amplitude + thd", 25_000, ("frequency", "amplitude", "thd"))):
+        looked = long_capture(n)
+        runs = [per_look(looked, 10, names) for _ in range(3)]
+        fresh, kept, fit = (float(np.median([r[i] for r in runs])) for i in range(3))
+        print(f"per look, {label}: afresh {fresh / 10 * 1e3:.1f} ms, with kept sums {kept / 10 * 1e3:.1f} ms "
+              f"CPU -> ratio {fresh / kept:.2f}× (the fit from scratch is {fit / 10 * 1e3:.1f} ms of a look)")
     cmd = [sys.executable, "-m", "benchgate", "--help"]
     base = [sys.executable, "-c", "pass"]
     t_help = best(lambda: subprocess.run(cmd, capture_output=True, check=True), 5, time.perf_counter)

@@ -205,3 +205,18 @@ def _dirichlet_derivatives(x: float, n: int) -> tuple[float, float]:
 def _trig_sums(omega: float, n: int) -> tuple[float, float, float, float, float]:
     d2 = _dirichlet(2.0 * omega, n)
     return 0.5 * (n + d2), 0.5 * (n - d2), 0.0, _dirichlet(omega, n), 0.0
+
+
+#: rows per matrix–vector product in :func:`pair_dot`: OpenBLAS runs a product of fewer than
+#: 2304·4 elements on one thread (waking a second one on a busy machine can cost a scheduler tick).
+_PAIR_ROWS = 4096
+
+
+def pair_dot(v: np.ndarray, pair: np.ndarray) -> np.ndarray:
+    """v @ pair for a (n, 2) ``pair`` (Σv·cos, Σv·sin), a few thousand rows at a time."""
+    if v.size <= _PAIR_ROWS:
+        return np.dot(v, pair)
+    out = np.zeros(2)
+    for i in range(0, v.size, _PAIR_ROWS):
+        out += np.dot(v[i:i + _PAIR_ROWS], pair[i:i + _PAIR_ROWS])
+    return out

@@ -17,6 +17,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from benchgate.analysis import sinefit
+from benchgate.analysis._phasor import pair_dot
 from benchgate.analysis.sinefit import Workspace
 
 #: most segments the steady part is cut into at first; each holds at least 2 cycles.
@@ -61,10 +62,11 @@ def segment_phases(y: np.ndarray, omega: float, segments: int,
         sums, offset = kept
         r[:, 0], r[:, 1] = sums.real, sums.imag
         r[:, 2] = np.add.reduceat(y, starts) - offset * cnt  # the same y − offset throughout
-    elif segments <= 64:  # one matrix–vector product per segment, no temporary the size of y
+    elif segments <= 64:  # matrix–vector products per segment, no temporary the size of y
+        pair = work.pair
         for i in range(segments):
             lo, hi = int(bounds[i]), int(bounds[i + 1])
-            r[i, :2] = np.dot(y[lo:hi], work.pair[lo:hi])
+            r[i, :2] = pair_dot(y[lo:hi], pair[lo:hi])
         r[:, 2] = np.add.reduceat(y, starts)
     else:
         r[:, :2] = np.add.reduceat(y[:, None] * work.pair, starts, axis=0)

@@ -14,6 +14,7 @@ import numpy as np
 
 from benchgate.analysis import _detect, _steady, _track, sinefit, spectrum
 from benchgate.analysis._detect import detection_threshold, local_floor
+from benchgate.analysis._growing import GrowingFit, KeptSums
 from benchgate.analysis._validate import Validation, state_levels, validate_capture
 from benchgate.analysis.capture import Capture
 
@@ -68,11 +69,12 @@ class Tone:
 class Context:
     """Lazily computed facts about one capture (validation, steady part, fit, spectrum)."""
 
-    def __init__(self, capture: Capture, *, harmonics: int = 10):
+    def __init__(self, capture: Capture, *, harmonics: int = 10, growing: GrowingFit | None = None):
         if int(harmonics) < 1:
             raise ValueError(f"harmonics must be at least 1, got {harmonics!r}")
         self.capture = capture
         self.harmonics = int(harmonics)
+        self.growing = growing  # sums kept over the looks of a growing capture (the tone's fit)
 
     @cached_property
     def validation(self) -> Validation:
@@ -203,8 +205,14 @@ class Context:
         at its frequency and the detection statistic N·A²/(4·floor)."""
         n = y.size
         fs = self.capture.sample_rate
-        work = sinefit.Workspace(n)
-        fit = sinefit.fit4(y, w0, work=work)
+        work: sinefit.Workspace | KeptSums = sinefit.Workspace(n)
+        if self.growing is not None and y.size == self.capture.n - self.start:
+            # the same fit from sums kept over earlier looks (benchgate.analysis._growing); its
+            # per-block sums at the last frequency serve the phase track as fit4's would
+            fit = self.growing.fit4(self.capture.samples, self.start, w0)
+            work = KeptSums(self.growing, n)
+        else:
+            fit = sinefit.fit4(y, w0, work=work)
         cycles = fit.omega * n / (2.0 * math.pi)
         track = _track.track_phase(y, fit, cycles, fs, work) if fit.converged and cycles < n / 2 else None
         chirp = None
@@ -270,7 +278,7 @@ class Context:
         """The phase of the fundamental followed over the steady part (None under 8 cycles)."""
         return self.tone.track
 
-    def fit_workspace(self) -> sinefit.Workspace | None:
+    def fit_workspace(self) -> sinefit.Workspace | KeptSums | None:
         """cos/sin of the steady part at the fitted frequency (left by the fit), if any."""
         _ = self.tone
         return self.__dict__.get("_fit_work")

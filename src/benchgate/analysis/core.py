@@ -7,6 +7,7 @@ from collections.abc import Iterable
 from dataclasses import dataclass, field
 from typing import Any
 
+from benchgate.analysis._growing import GrowingFit
 from benchgate.analysis.capture import Capture
 from benchgate.analysis.context import Context
 from benchgate.analysis.distortion import harmonic_analysis, levels_dbc
@@ -58,7 +59,7 @@ def _finite(obj: Any) -> Any:
 
 
 def analyze(capture: Capture, names: Iterable[str] | None = None, *, harmonics: int = 10,
-            views: bool = False) -> Analysis:
+            views: bool = False, growing: GrowingFit | None = None) -> Analysis:
     """Measure a capture.
 
     Parameters
@@ -72,6 +73,10 @@ def analyze(capture: Capture, names: Iterable[str] | None = None, *, harmonics: 
     views : bool
         Also gather the plot data of the capture (``Analysis.views``) from the same context,
         with the start-up instant (measured for it when not asked for among ``names``).
+    growing : GrowingFit, optional
+        When ``capture`` is one look of a growing capture (an adaptive capture step), the sums
+        kept over its earlier looks: the tone's four-parameter fit then adds only the new
+        samples' sums (same result; :mod:`benchgate.analysis._growing`).
 
     Returns
     -------
@@ -86,7 +91,7 @@ def analyze(capture: Capture, names: Iterable[str] | None = None, *, harmonics: 
     unknown = [n for n in wanted if n not in MEASUREMENTS]
     if unknown:
         raise ValueError(f"unknown measurement(s) {', '.join(map(repr, unknown))}; known: {', '.join(MEASUREMENTS)}")
-    ctx = Context(capture, harmonics=harmonics)
+    ctx = Context(capture, harmonics=harmonics, growing=growing)
     results = {name: measure(name, capture, ctx) for name in wanted}
     tone = ctx.tone
     fundamental = tone.frequency if tone.ok else None

@@ -10,9 +10,11 @@ returned capture exactly as a fixed-length one.
 
 from __future__ import annotations
 
+import inspect
 from collections.abc import Callable, Sequence
 from typing import Any, Protocol, runtime_checkable
 
+from benchgate.analysis._growing import WORTH_SAMPLES, GrowingFit
 from benchgate.analysis.capture import Capture
 from benchgate.errors import BenchgateError
 from benchgate.judge.sequential import SequentialState, look_schedule, rule_alpha
@@ -24,6 +26,14 @@ class GrowingRecorder(Protocol):
 
     def capture_growing(self, channel: str, *, looks: Sequence[float], rate: float | None = None,
                         progress: Any = None, decide: Callable[[Capture], bool]) -> Capture: ...
+
+
+def _takes_growing(analyze: Callable[..., Any]) -> bool:
+    """Whether the analysis function accepts the growing capture's kept sums (``growing=``)."""
+    try:
+        return "growing" in inspect.signature(analyze).parameters
+    except (TypeError, ValueError):
+        return False
 
 
 def step_alpha(step: Any, decision: str, max_risk: float | None) -> float:
@@ -41,10 +51,16 @@ def acquire_adaptive(instrument: Any, step: Any, decision: str, max_risk: float 
     looks = look_schedule(a.shortest, a.longest, a.block)
     state = SequentialState(looks, step_alpha(step, decision, max_risk))
     names = [c.measurement for c in step.checks]
+    # the looks are one growing capture: for a long one the tone's fit keeps its sums from look
+    # to look (benchgate.analysis._growing; the same result as fitting each look afresh). For a
+    # shorter one that costs more than the fit's own passes, so every look is analysed afresh.
+    longest = a.longest * step.rate if step.rate else 0.0
+    keep = _takes_growing(analyze) and longest >= WORTH_SAMPLES
+    reuse: dict[str, Any] = {"growing": GrowingFit()} if keep else {}
 
     def results(capture: Capture) -> dict[str, tuple[float | None, float | None, float | None, float | None]]:
         try:
-            ms = analyze(capture, names, harmonics=step.harmonics).measurements
+            ms = analyze(capture, names, harmonics=step.harmonics, **reuse).measurements
         except (BenchgateError, ValueError):
             ms = {}  # nothing measured: nothing decided at this look
         out = {}
