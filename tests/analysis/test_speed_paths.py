@@ -10,7 +10,7 @@ import pytest
 from numpy.testing import assert_allclose, assert_array_equal
 
 from benchgate.analysis import _steady, sinefit
-from benchgate.analysis._robust import mad_at_least
+from benchgate.analysis._robust import mad_at_least, mad_of_differences_at_least
 from benchgate.analysis._track import segment_phases, segment_trig_sums
 from benchgate.analysis._validate import _histogram
 from benchgate.analysis.levels import _cycle_extremes, _std
@@ -87,16 +87,22 @@ class TestMadBound:
             else:
                 d = rng.exponential(size=n) * rng.choice([-1, 1], size=n)
             mad = float(np.median(np.abs(d - np.median(d))))
+            y = np.concatenate(([0.0], np.cumsum(d)))  # np.diff(y) is d (to rounding)
+            dy = np.diff(y)
+            mad_y = float(np.median(np.abs(dy - np.median(dy))))
             for bound in (0.0, 0.25 * mad, 0.9 * mad, mad, 1.1 * mad, 4 * mad):
                 if mad_at_least(d, bound):
                     claimed += 1
                     assert mad >= bound
+                if mad_of_differences_at_least(y, bound):
+                    assert mad_y >= bound
         assert claimed > 300  # it does prove the bound in the common cases
 
     def test_proves_a_sine_slope_above_its_noise(self):
         # the case it is for: first differences of a sampled sine dwarf the noise
         d = np.diff(np.sin(np.arange(100_000) * 0.12) + np.random.default_rng(0).normal(0, 0.002, 100_000))
         assert mad_at_least(d, 0.01)
+        assert mad_of_differences_at_least(np.concatenate(([0.0], np.cumsum(d))), 0.01)
 
 
 class TestChunkedPasses:

@@ -42,17 +42,47 @@ def mad_at_least(d: np.ndarray, bound: float) -> bool:
     holds and is narrow. (Derived from the definition of order statistics; the median as
     numpy.median defines it.)
     """
-    n = int(d.size)
+    return _proven(int(d.size), d[::SUBSAMPLE_STEP], lambda: iter((d,)), bound)
+
+
+def mad_of_differences_at_least(y: np.ndarray, bound: float) -> bool:
+    """:func:`mad_at_least` for d = numpy.diff(y), without making d: the differences are formed
+    and counted a chunk at a time (the same values, counted the same way)."""
+    n = int(y.size) - 1
+    if n < 1:
+        return False
+
+    def chunks():
+        for first in range(0, n, CHUNK):
+            last = min(first + CHUNK, n)
+            yield y[first + 1:last + 1] - y[first:last]
+
+    sub = y[1::SUBSAMPLE_STEP][: -(-n // SUBSAMPLE_STEP)] - y[:-1:SUBSAMPLE_STEP][: -(-n // SUBSAMPLE_STEP)]
+    return _proven(n, sub, chunks, bound)
+
+
+#: values formed and counted at a time by :func:`mad_of_differences_at_least`.
+CHUNK = 65536
+
+
+def _proven(n: int, subsample: np.ndarray, chunks, bound: float) -> bool:
+    """The counting proof of :func:`mad_at_least` over ``n`` values given as ``chunks()`` (an
+    iterable of arrays, called once per count) and a subsample of them."""
     if n < 4 * SUBSAMPLE_STEP or not bound >= 0.0:
         return False
     half = (n + 1) // 2  # ⌈n/2⌉
-    sub = np.sort(d[::SUBSAMPLE_STEP])
+    sub = np.sort(subsample)
     k = sub.size
     spread = int(math.ceil(BRACKET_SD * 0.5 * math.sqrt(k)))
     lo = float(sub[max(k // 2 - spread, 0)])
     hi = float(sub[min(k // 2 + spread, k - 1)])
-    if np.count_nonzero(d < lo) >= half or np.count_nonzero(d > hi) >= half:
+    below = above = near_lo = near_hi = 0
+    for d in chunks():
+        below += int(np.count_nonzero(d < lo))
+        above += int(np.count_nonzero(d > hi))
+        # values in (lo − bound, hi + bound), counted as two comparisons (no temporary of floats)
+        near_lo += int(np.count_nonzero(d > lo - bound))
+        near_hi += int(np.count_nonzero(d >= hi + bound))
+    if below >= half or above >= half:
         return False  # the bracket does not hold the median: no proof
-    # values in (lo − bound, hi + bound), counted as two comparisons (no temporary of floats)
-    near = int(np.count_nonzero(d > lo - bound)) - int(np.count_nonzero(d >= hi + bound))
-    return near < half
+    return near_lo - near_hi < half

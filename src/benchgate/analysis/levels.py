@@ -7,7 +7,7 @@ import math
 import numpy as np
 
 from benchgate.analysis._budget import no_oscillation_amplitude, settling, wander
-from benchgate.analysis._robust import mad_at_least
+from benchgate.analysis._robust import mad_of_differences_at_least
 from benchgate.analysis._steady import NOT_STEADY, STILL_CHANGING
 from benchgate.analysis.capture import Capture
 from benchgate.analysis.context import (
@@ -163,13 +163,14 @@ def _noise_sd(ctx: Context) -> float:
     residual (which also holds a distorted waveform's harmonics) and a robust estimate from
     the first differences (1.4826·MAD/√2, which also holds a sine's slope), both upper bounds
     of the white noise (common practice, no source). The robust estimate is computed only when
-    counting cannot show it is at least the fit's (:func:`~benchgate.analysis._robust.mad_at_least`);
+    counting cannot show it is at least the fit's
+    (:func:`~benchgate.analysis._robust.mad_of_differences_at_least`);
     the result is the same either way."""
     tone = ctx.tone
-    d = np.diff(ctx.y)
     fit = math.sqrt(tone.noise_var) if tone.fit is not None and math.isfinite(tone.noise_var) else math.inf
-    if math.isfinite(fit) and mad_at_least(d, fit * math.sqrt(2.0) / 1.4826 * (1.0 + 1e-12)):
+    if math.isfinite(fit) and mad_of_differences_at_least(ctx.y, fit * math.sqrt(2.0) / 1.4826 * (1.0 + 1e-12)):
         return fit
+    d = np.diff(ctx.y)
     robust = 1.4826 * float(np.median(np.abs(d - np.median(d)))) / math.sqrt(2.0) if d.size else 0.0
     return min(robust, fit)
 
