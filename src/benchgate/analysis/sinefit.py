@@ -89,6 +89,21 @@ def fit3(y: np.ndarray, omega: float, *, exact_rss: bool = True) -> SineFit:
     ----------
     IEEE Std 1057-2017, three-parameter least-squares sine fit; IEEE Std 1241-2010.
     """
+    if not exact_rss:
+        y = np.asarray(y, dtype=float)
+        n = y.size
+        mean, sy, yy = _level_sums(y)
+        w = Workspace(n)
+        w.set(omega)
+        yc, ys = w.project(y)
+        shift = mean * _dirichlet(float(omega), n)  # Σ mean·cos ωt; Σ mean·sin ωt = 0 (t symmetric)
+        cc, s2, cs, sc, ss = w.sums()
+        gram = np.array([[cc, cs, sc], [cs, s2, ss], [sc, ss, float(n)]])
+        r = np.array([yc - shift, ys, sy])
+        p = _lstsq_small(gram, r)
+        rss = max(yy - float(p @ r), 0.0)
+        return SineFit(omega=float(omega), a=float(p[0]), b=float(p[1]), offset=float(p[2]) + mean,
+                       residual_var=rss / max(n - 3, 1), n=n, iterations=0, converged=True)
     y, mean = _centred(y)
     n = y.size
     w = Workspace(n)
@@ -96,6 +111,22 @@ def fit3(y: np.ndarray, omega: float, *, exact_rss: bool = True) -> SineFit:
     a, b, c, rss = _solve3(y, w, exact_rss=exact_rss)
     return SineFit(omega=float(omega), a=a, b=b, offset=c + mean, residual_var=max(rss, 0.0) / max(n - 3, 1),
                    n=n, iterations=0, converged=True)
+
+
+#: samples taken at a time by :func:`_level_sums` (its temporaries stay in the cache).
+_LEVEL_CHUNK = 65536
+
+
+def _level_sums(y: np.ndarray) -> tuple[float, float, float]:
+    """The mean of y, Σ(y − mean) (zero up to rounding) and Σ(y − mean)², the deviations formed
+    a chunk at a time (no array the size of y)."""
+    mean = float(y.mean()) if y.size else 0.0
+    sy = yy = 0.0
+    for first in range(0, y.size, _LEVEL_CHUNK):
+        d = y[first:first + _LEVEL_CHUNK] - mean
+        sy += float(d.sum())
+        yy += dot(d, d)
+    return mean, sy, yy
 
 
 def _centred(y: np.ndarray) -> tuple[np.ndarray, float]:
@@ -178,18 +209,23 @@ def fit4(y: np.ndarray, omega0: float, *, max_iter: int = 30, work: Workspace | 
     IEEE Std 1057-2017, four-parameter sine fit; P. Händel, "Properties of the IEEE-STD-1057
     four-parameter sine wave fit algorithm", IEEE Trans. Instrum. Meas. 49(6), 2000.
     """
-    y, mean = _centred(y)
+    y = np.asarray(y, dtype=float)
     n = y.size
     w = Workspace(n) if work is None or work.n != n else work
+    mean, sy, yy = _level_sums(y)
 
     def at(omega: float) -> tuple[complex, complex]:
+        # Σ (y − mean)·e^{iωt} and Σ t·(y − mean)·e^{iωt}: one pass over y itself, the mean's
+        # share in closed form (Σ e^{iωt} = D(ω), Σ t·e^{iωt} = i·Σ t·sin ωt; t symmetric)
         w.set(omega)
-        return w.project_with_t(y, keep=mean)  # Σ y·e^{iωt} and Σ t·y·e^{iωt}, one pass
+        p, q = w.project_with_t(y, keep=0.0)
+        return p - mean * _dirichlet(omega, n), q - 1j * mean * _dirichlet_derivatives(omega, n)[0]
 
-    g = gauss_newton(at, n, float(y.sum()), dot(y, y), omega0, max_iter=max_iter)
+    g = gauss_newton(at, n, sy, yy, omega0, max_iter=max_iter)
     if g.converged:
         return SineFit(omega=g.omega, a=g.a, b=g.b, offset=g.c + mean, residual_var=g.rss / max(n - 4, 1),
                        n=n, iterations=g.iterations, converged=True)
+    y = y - mean
     a, b, c, rss = _solve3(y, w, proj=(g.p.real, g.p.imag))  # the exact residual of the last step
     return SineFit(omega=g.omega, a=a, b=b, offset=c + mean, residual_var=max(rss, 0.0) / max(n - 4, 1),
                    n=n, iterations=g.iterations, converged=False)
