@@ -127,7 +127,10 @@ def bg(*args, env=None, **kw):
 def wait_for_event(path, event, step, proc, timeout=60.0):
     def found():
         if path.exists():
-            for line in path.read_text().splitlines():
+            # complete lines only: the run may be half-way through writing the last one
+            for line in path.read_text(encoding="utf-8").splitlines(keepends=True):
+                if not line.endswith("\n"):
+                    break
                 e = json.loads(line)
                 if e["event"] == event and e.get("step") == step:
                     return e

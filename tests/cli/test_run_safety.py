@@ -45,8 +45,9 @@ def bg(*args, **kw):
 def events_of(path: Path) -> list[dict]:
     if not path.exists():
         return []
-    lines = path.read_text(encoding="utf-8").splitlines()
-    return [json.loads(line) for line in lines if line.endswith("}")]
+    # complete lines only: the run may be half-way through writing the last one
+    lines = path.read_text(encoding="utf-8").splitlines(keepends=True)
+    return [json.loads(line) for line in lines if line.endswith("\n")]
 
 
 def wait_for(path: Path, proc, *, event: str, step: str | None = None, timeout: float = 60.0) -> dict:
