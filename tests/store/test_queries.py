@@ -229,3 +229,30 @@ def test_lot_summary_lists_each_unit_with_its_latest_attempt(db):
     assert (units["D"].attempts, units["D"].verdict) == (3, "pass")
     assert (units["E"].attempts, units["E"].verdict) == (1, "incomplete")
     assert all(u.plan_id == "tb3" for u in units.values())
+
+
+def test_lot_unit_list_names_each_report_and_its_sha256(db, tmp_path):
+    # a central user finds each unit's report by its path relative to the station's report
+    # folder and verifies it by its SHA-256 (issue 12); the JSON output and the page carry both
+    import hashlib
+
+    from benchgate.report.summary_html import render_summary_html
+
+    reports = tmp_path / "reports"
+    report = reports / "tb3" / "A" / "run1.json"
+    report.parent.mkdir(parents=True)
+    report.write_text('{"unit": "A"}')
+    db.reports_dir = reports
+    rec = make_record("A", [CheckSpec("capture-tone", "frequency", 955.0, "Hz", 860.0, 1050.0)])
+    db.finish_run(rec, report)
+    _put(db, "B", 1)
+    units = {u.serial: u for u in db.summary(lot="L1").units}
+    assert units["A"].report_file == "tb3/A/run1.json"
+    assert units["A"].report_sha256 == hashlib.sha256(report.read_bytes()).hexdigest()
+    assert (units["B"].report_file, units["B"].report_sha256) == (None, None)
+    since = db.summary(lot="L1", since=(EPOCH + timedelta(minutes=1)).strftime("%Y-%m-%dT%H:%M"))
+    assert [(u.serial, u.report_file) for u in since.units] == [("B", None)]
+    d = json.loads(json.dumps(db.summary(lot="L1").to_dict()))
+    assert d["units"][0]["report_file"] == "tb3/A/run1.json" and d["units"][0]["report_sha256"]
+    html = render_summary_html(db.summary(lot="L1"), page_dir=tmp_path / "elsewhere")
+    assert "tb3/A/run1.json" in html and units["A"].report_sha256 in html

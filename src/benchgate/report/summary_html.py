@@ -156,15 +156,18 @@ def unit_rows(units: Any, page_dir: Path | None) -> list[dict[str, Any]]:
     """The unit list of the page: serial, plan, latest verdict, attempts and the report link.
 
     ``units`` is a sequence of per-unit entries (objects or dicts) with ``serial``,
-    ``plan_id``, ``verdict`` (of the latest attempt), ``attempts`` and ``report_path`` (of the
-    latest attempt), as the results database reports them.
+    ``plan_id``, ``verdict`` (of the latest attempt), ``attempts``, ``report_path`` (of the
+    latest attempt) and, when stored, ``report_file`` (relative to the station's report folder)
+    and ``report_sha256``, as the results database reports them.
     """
     rows = []
     for u in units or ():
         verdict = _field(u, "verdict") or "incomplete"
         rows.append({"serial": str(_field(u, "serial", "")), "plan_id": str(_field(u, "plan_id", "") or ""),
                      "verdict": str(verdict), "attempts": _field(u, "attempts", "—"),
-                     "link": report_link(_field(u, "report_path"), page_dir)})
+                     "link": report_link(_field(u, "report_path"), page_dir),
+                     # what a central user asks the station for, and checks the copy against
+                     "file": _field(u, "report_file"), "sha": _field(u, "report_sha256") or "not stored"})
     return rows
 
 

@@ -12,6 +12,8 @@ row id column (``{pk}``)    ``INTEGER PRIMARY KEY``          ``BIGINT GENERATED 
                                                              IDENTITY PRIMARY KEY``
 float column (``{real}``)   ``REAL`` (8 bytes)               ``DOUBLE PRECISION`` (REAL is 4)
 floor to an integer         ``CAST(x AS INTEGER)`` (x ≥ 0)   ``CAST(FLOOR(x) AS INTEGER)``
+floor, any sign, as float   ``CAST`` and a correction        ``FLOOR(x)``
+lock a key until commit     nothing (one writer anyway)      ``pg_advisory_xact_lock``
 null-safe equality          ``a IS b``                       ``a IS NOT DISTINCT FROM b``
 a table exists              ``sqlite_master``                ``pg_class`` (current schema)
 writer lock                 ``BEGIN IMMEDIATE``              ``BEGIN`` + a transaction-scoped
@@ -44,6 +46,9 @@ URL_SCHEMES = ("postgresql://", "postgres://")
 #: advisory lock keys (PostgreSQL), arbitrary constants private to benchgate
 LOCK_MIGRATE = 0x62656E6368  # migrations: one migrator at a time
 LOCK_DEFS = 0x62656E6369  # check definitions: no duplicate definition rows
+LOCK_KEYS = 0x62656E  # lock_key's name space (the first half of a two-key advisory lock)
+#: beyond this size a double is an integer: floor(x) = x
+_INTEGRAL = 4503599627370496.0  # 2**52
 
 
 def is_url(target: object) -> bool:
@@ -140,6 +145,14 @@ class Conn:
     def same(self, a: str, b: str) -> str:
         raise NotImplementedError
 
+    def floor_real(self, expr: str) -> str:
+        """``floor(expr)`` as a float, exact for any sign and size (``expr`` a simple term)."""
+        raise NotImplementedError
+
+    def lock_key(self, key: str) -> None:
+        """Hold a lock named ``key`` until the transaction ends (another writer of the same key
+        waits)."""
+
     def text(self, value: Any) -> Any:
         return value
 
@@ -207,6 +220,11 @@ class SQLiteConn(Conn):
 
     def same(self, a: str, b: str) -> str:
         return f"{a} IS {b}"
+
+    def floor_real(self, expr: str) -> str:
+        # CAST truncates towards zero: one less for a negative non-integer
+        return (f"(CASE WHEN ABS({expr}) >= {_INTEGRAL} THEN {expr} ELSE CAST(CAST({expr} AS INTEGER)"
+                f" - ({expr} < CAST({expr} AS INTEGER)) AS REAL) END)")
 
     def close(self) -> None:
         self.raw.close()
@@ -280,6 +298,12 @@ class PostgresConn(Conn):
 
     def same(self, a: str, b: str) -> str:
         return f"{a} IS NOT DISTINCT FROM {b}"
+
+    def floor_real(self, expr: str) -> str:
+        return f"FLOOR({expr})"
+
+    def lock_key(self, key: str) -> None:
+        self.execute(f"SELECT pg_advisory_xact_lock({LOCK_KEYS}, hashtext(CAST(? AS TEXT)))", (key,))
 
     def text(self, value: Any) -> Any:
         return value.replace("\x00", "\u2400") if isinstance(value, str) else value

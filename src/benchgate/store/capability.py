@@ -1,25 +1,25 @@
 """Capability statistics per numeric check: n, mean, σ, min, max, Cpk and a histogram.
 
 The inputs are the valid values of each unit's latest complete run in the selection
-(docs/results.md), picked by SQL that :mod:`.queries` passes in. Where the work happens is the
-one difference between the back ends here:
+(docs/results.md). They arrive as bins of the check's fixed grid (:mod:`.rollup`): per bin
+the count, the sums of deviations from the bin's centre and of their squares, the least and the
+largest value. A summary over all runs or one lot reads the bins kept up to date at write time;
+one with ``--since`` has the database bin the selected values (one ``GROUP BY``). Either way only
+bins travel, never the values, and :func:`stats_from_bins` finishes the same way:
 
-- PostgreSQL (a server, possibly far away): two aggregate queries run on the server (first n,
-  mean, min, max; then bin counts and squared deviations about that mean); only a few rows per
-  check travel.
-- SQLite (a file in this process): the picked values are read once and binned with numpy, which
-  is several times faster than SQLite sorting them for a ``GROUP BY`` twice.
-
-Both give the same numbers (two-pass variance, bins ``floor((x − lo) / width)`` clamped to the
-last bin).
+- mean = (Σ nᵦ·cᵦ + Σ s1ᵦ) / n, and the sum of squared deviations about it
+  Σ (s2ᵦ + 2 (cᵦ − mean) s1ᵦ + nᵦ (cᵦ − mean)²), each summed exactly (``math.fsum``): no large
+  sums of squares are subtracted, so σ keeps its precision for values far from zero;
+- the histogram has :data:`HISTOGRAM_BINS` bars whose edges lie on the check's grid: the range
+  covers the data and the limits (padded 4 %), each bar spans a whole number of grid bins, so
+  every count is exact for the edges shown.
 """
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 from typing import Any
-
-import numpy as np
 
 #: histogram bins per numeric check.
 HISTOGRAM_BINS = 30
@@ -65,91 +65,56 @@ def cpk(mean: float, std: float | None, low: float | None, high: float | None) -
     return min(sides) / (3.0 * std)
 
 
-def _ranges(ids, vmin, vmax, defs):
-    """Histogram range per check: the data and the limits, so that both show, padded 4 %."""
-    lows = np.array([np.nan if defs[i][4] is None else defs[i][4] for i in ids], dtype=float)
-    highs = np.array([np.nan if defs[i][5] is None else defs[i][5] for i in ids], dtype=float)
-    lo = np.fmin(vmin, lows)
-    hi = np.fmax(vmax, highs)
+def _histogram(bins: list[tuple[float, int]], width: float, vmin: float, vmax: float,
+               low: float | None, high: float | None) -> Histogram:
+    """The bars over ``bins`` ((grid bin, count)): data and limits padded 4 %, edges on the grid."""
+    lo = min([vmin] + ([low] if low is not None else []))
+    hi = max([vmax] + ([high] if high is not None else []))
     span = hi - lo
-    pad = np.where(span > 0, 0.04 * span, np.maximum(np.abs(lo) * 1e-3, 1e-12))
-    lo, hi = lo - pad, hi + pad
-    return lo, hi, (hi - lo) / HISTOGRAM_BINS
+    pad = 0.04 * span if span > 0 else max(abs(lo) * 1e-3, 1e-12)
+    b0 = math.floor((lo - pad) / width)
+    b1 = math.floor((hi + pad) / width)
+    k = max(1, -(-(b1 - b0 + 1) // HISTOGRAM_BINS))  # grid bins per bar
+    b0 -= (k * HISTOGRAM_BINS - (b1 - b0 + 1)) // 2  # centre what is left over
+    counts = [0] * HISTOGRAM_BINS
+    for b, n in bins:
+        counts[min(max((int(b) - b0) // k, 0), HISTOGRAM_BINS - 1)] += n
+    edges = tuple(float((b0 + j * k) * width) for j in range(HISTOGRAM_BINS + 1))
+    return Histogram(edges, tuple(counts))
 
 
-def _on_server(conn, defs, pick: str, params: list[Any]):
-    src = f"({pick})"
-    rows = conn.execute(f"SELECT v.def, COUNT(*), AVG(v.value), MIN(v.value), MAX(v.value)"
-                        f" FROM {src} v GROUP BY v.def", params).fetchall()
-    if not rows:
-        return None
-    ids = np.array([r[0] for r in rows], dtype=np.int64)
-    n = np.array([r[1] for r in rows], dtype=np.int64)
-    mean = np.array([r[2] for r in rows], dtype=float)
-    vmin = np.array([r[3] for r in rows], dtype=float)
-    vmax = np.array([r[4] for r in rows], dtype=float)
-    lo, hi, width = _ranges(ids, vmin, vmax, defs)
-    # second pass, one query for all checks: bin counts and squared deviations about the mean
-    # of the first pass (two-pass variance, no cancellation)
-    counts = np.zeros((len(rows), HISTOGRAM_BINS), dtype=np.int64)
-    ssd = np.zeros(len(rows))
-    index = {int(d): k for k, d in enumerate(ids)}
-    values = ", ".join(["(CAST(? AS INTEGER), CAST(? AS DOUBLE PRECISION),"
-                        " CAST(? AS DOUBLE PRECISION), CAST(? AS DOUBLE PRECISION))"] * len(rows))
-    vparams: list[Any] = []
-    for k in range(len(rows)):
-        vparams += [int(ids[k]), float(lo[k]), float(width[k]), float(mean[k])]
-    sql = (f"WITH p (def, lo, width, mu) AS (VALUES {values})"
-           f" SELECT v.def, {conn.floor_int('(v.value - p.lo) / p.width')} AS b, COUNT(*),"
-           f" SUM((v.value - p.mu) * (v.value - p.mu)) FROM {src} v JOIN p ON p.def = v.def"
-           " GROUP BY v.def, b")
-    for d, b, cnt, s in conn.execute(sql, vparams + params):
-        k = index[int(d)]
-        counts[k, min(max(int(b), 0), HISTOGRAM_BINS - 1)] += cnt
-        ssd[k] += s
-    return ids, n, mean, vmin, vmax, lo, hi, counts, ssd
-
-
-def _in_process(conn, defs, pick: str, params: list[Any]):
-    rows = conn.execute(pick, params).fetchall()
-    if not rows:
-        return None
-    data = np.array(rows, dtype=float).reshape(-1, 2)
-    d, v = data[:, 0].astype(np.int64), data[:, 1]
-    order = np.argsort(d, kind="stable")
-    d, v = d[order], v[order]
-    ids, start, n = np.unique(d, return_index=True, return_counts=True)
-    mean = np.add.reduceat(v, start) / n
-    vmin, vmax = np.minimum.reduceat(v, start), np.maximum.reduceat(v, start)
-    lo, hi, width = _ranges(ids, vmin, vmax, defs)
-    k = np.repeat(np.arange(len(ids)), n)
-    b = np.clip(np.floor((v - lo[k]) / width[k]), 0, HISTOGRAM_BINS - 1).astype(np.int64)
-    counts = np.bincount(k * HISTOGRAM_BINS + b,
-                         minlength=len(ids) * HISTOGRAM_BINS).reshape(len(ids), HISTOGRAM_BINS)
-    ssd = np.add.reduceat((v - mean[k]) ** 2, start)
-    return ids, n, mean, vmin, vmax, lo, hi, counts, ssd
-
-
-def check_stats(conn, defs: dict, latest_sql: str, params: list[Any]) -> tuple[CheckStats, ...]:
-    """Statistics per check over the values of the runs that ``latest_sql`` (a ``WITH`` clause
-    naming ``latest``, taking ``params``) picks."""
-    pick = (f"{latest_sql} SELECT c.def, c.value FROM checks c"
-            " WHERE c.valid = 1 AND c.value IS NOT NULL AND c.run IN (SELECT id FROM latest)")
-    work = _in_process if conn.dialect == "sqlite" else _on_server
-    got = work(conn, defs, pick, params)
-    if got is None:
-        return ()
-    ids, n, mean, vmin, vmax, lo, hi, counts, ssd = got
-    std = np.sqrt(ssd / np.maximum(n - 1, 1))
+def stats_from_bins(defs: dict, rows: Any) -> tuple[CheckStats, ...]:
+    """Statistics per check from bin rows (def, bin, n, s1, s2, vmin, vmax); ``defs`` maps a
+    definition id to (plan id, step, measurement, unit, low, high, bin width)."""
+    by_def: dict[int, list] = {}
+    for d, b, n, s1, s2, lo, hi in rows:
+        if int(n) > 0:
+            by_def.setdefault(int(d), []).append((float(b), int(n), float(s1), float(s2),
+                                                   float(lo), float(hi)))
     out = []
-    for k, d in enumerate(ids):
-        plan_id, step, meas, unit, low, high = defs[int(d)]
-        s = None if n[k] < 2 else float(std[k])
-        edges = tuple(float(x) for x in np.linspace(lo[k], hi[k], HISTOGRAM_BINS + 1))
+    for d, bins in by_def.items():
+        plan_id, step, meas, unit, low, high, width = defs[d]
+        n = sum(x[1] for x in bins)
+        centre = [(b + 0.5) * width for b, *_ in bins]
+        mean = math.fsum([x[1] * c + x[2] for x, c in zip(bins, centre, strict=True)]) / n
+        ssd = math.fsum([x[3] + 2.0 * (c - mean) * x[2] + x[1] * (c - mean) ** 2
+                         for x, c in zip(bins, centre, strict=True)])
+        s = None if n < 2 else math.sqrt(max(ssd, 0.0) / (n - 1))
+        vmin, vmax = min(x[4] for x in bins), max(x[5] for x in bins)
         out.append(CheckStats(
             plan_id=plan_id, step=step, measurement=meas, unit=unit, low=low, high=high,
-            n=int(n[k]), mean=float(mean[k]), std=s, min=float(vmin[k]), max=float(vmax[k]),
-            cpk=cpk(float(mean[k]), s, low, high),
-            histogram=Histogram(edges, tuple(int(x) for x in counts[k]))))
+            n=n, mean=mean, std=s, min=vmin, max=vmax, cpk=cpk(mean, s, low, high),
+            histogram=_histogram([(x[0], x[1]) for x in bins], width, vmin, vmax, low, high)))
     out.sort(key=lambda c: (c.plan_id, c.step, c.measurement, c.low is None, c.low or 0.0))
     return tuple(out)
+
+
+def bins_sql(conn: Any, latest_sql: str) -> str:
+    """SQL binning the valid values of the runs that ``latest_sql`` (a ``WITH`` clause naming
+    ``latest``) picks, as :func:`stats_from_bins` takes them."""
+    dev = "(v.value - (v.bin + 0.5) * v.w)"
+    return (f"{latest_sql} SELECT v.def, v.bin, COUNT(*), SUM({dev}), SUM({dev} * {dev}),"
+            " MIN(v.value), MAX(v.value) FROM (SELECT c.def, c.value, d.bin_width AS w,"
+            f" {conn.floor_real('c.value / d.bin_width')} AS bin FROM checks c"
+            " JOIN check_defs d ON d.id = c.def WHERE c.valid = 1 AND c.value IS NOT NULL"
+            " AND c.run IN (SELECT id FROM latest)) v GROUP BY v.def, v.bin")

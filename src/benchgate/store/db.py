@@ -19,6 +19,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from benchgate.errors import StoreError
+from benchgate.store import rollup
 from benchgate.store.backend import (
     LOCK_DEFS,
     Conn,
@@ -186,12 +187,18 @@ class ResultsDB:
                record.product, record.station_id, record.operator, record.lot, record.started,
                parse_time(record.started), record.decision_rule, record.software_version,
                hazards, expired, unattended)
-        self._write(lambda c: c.execute(
-            "INSERT INTO runs (run_id, serial, plan_id, plan_version, plan_hash, product,"
-            " station_id, operator, lot, started, started_epoch, decision_rule, software_version,"
-            " accept_hazards, allow_expired_calibration, unattended)"
-            " VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)"
-            " ON CONFLICT (run_id) DO NOTHING", row))
+
+        def work(c: Conn) -> None:
+            was = rollup.before(c, [(record.plan_id, record.serial)])
+            if c.execute(
+                    "INSERT INTO runs (run_id, serial, plan_id, plan_version, plan_hash, product,"
+                    " station_id, operator, lot, started, started_epoch, decision_rule,"
+                    " software_version, accept_hazards, allow_expired_calibration, unattended)"
+                    " VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)"
+                    " ON CONFLICT (run_id) DO NOTHING RETURNING id", row).fetchone() is not None:
+                rollup.after(c, was)  # a new attempt of the unit
+
+        self._write(work)
 
     def finish_run(self, record: UnitRecord, report_path: str | os.PathLike[str] | None) -> None:
         """Complete the run: verdict, reason, end time, flags, and one row per check.
@@ -209,7 +216,9 @@ class ResultsDB:
         epoch = parse_time(record.started)
 
         def work(c: Conn) -> None:
-            pk = c.execute("SELECT id FROM runs WHERE run_id = ?", (record.run_id,)).fetchone()[0]
+            pk, plan_id, serial = c.execute("SELECT id, plan_id, serial FROM runs WHERE run_id = ?",
+                                            (record.run_id,)).fetchone()
+            was = rollup.before(c, [(plan_id, serial)])
             c.execute(
                 "UPDATE runs SET complete = 1, verdict = ?, reason = ?, ended = ?, accept_hazards = ?,"
                 " allow_expired_calibration = ?, unattended = ?, report_path = ?, operator = ?,"
@@ -229,6 +238,7 @@ class ResultsDB:
                              int(m is not None and m.valid), check.verdict.value, check.reason,
                              _finite(check.risk), lengths.get(check.step_id)))
             self._put_checks(c, pk, record.lot, epoch, rows)
+            rollup.after(c, was)
 
         self._write(work)
 
@@ -263,8 +273,9 @@ class ResultsDB:
             c.execute("SELECT pg_advisory_xact_lock(?)", (LOCK_DEFS,))
             row = c.execute(find, key).fetchone()
         if row is None:
-            row = c.execute("INSERT INTO check_defs (plan_id, step, measurement, unit, low, high)"
-                            " VALUES (?, ?, ?, ?, ?, ?) RETURNING id", key).fetchone()
+            row = c.execute("INSERT INTO check_defs (plan_id, step, measurement, unit, low, high,"
+                            " bin_width) VALUES (?, ?, ?, ?, ?, ?, ?) RETURNING id",
+                            key + (rollup.bin_width(low, high),)).fetchone()
         def_id = int(row[0])
         self._defs[key] = def_id  # forgotten again if the transaction rolls back (see _write)
         return def_id
@@ -312,6 +323,7 @@ class ResultsDB:
 
         def work(c: Conn) -> int:
             n = 0
+            was = rollup.before(c, [(run["plan_id"], run["serial"]) for run, _ in runs])
             for run, checks in runs:
                 row = c.execute("INSERT INTO runs (run_id, serial, plan_id, plan_version, plan_hash,"
                                 " started, started_epoch) VALUES (?, ?, ?, ?, ?, ?, ?)"
@@ -330,6 +342,7 @@ class ResultsDB:
                 if run["complete"]:
                     self._put_checks(c, pk, run["lot"], float(run["started_epoch"]), checks)
                 n += 1
+            rollup.after(c, was)
             return n
 
         return self._write(work)

@@ -1,7 +1,9 @@
 """Questions asked of the results database: a unit's history and a lot summary.
 
-The summary is aggregated by the database (window functions and ``GROUP BY``) and finished
-with numpy on the few grouped rows: no Python loop ever walks the run or check rows themselves.
+The summary reads rows kept up to date at write time (:mod:`.rollup`: each unit's standing and
+the binned values of the latest complete runs) or, with ``since``, has the database aggregate the
+selected runs (:mod:`.summary_sql`); Python only finishes the few grouped rows: no Python loop
+ever walks the run or check rows themselves.
 
 Definitions used by :func:`summary` (docs/results.md gives them in full, with the reasons):
 
@@ -38,19 +40,23 @@ from dataclasses import asdict, dataclass, field
 from datetime import UTC, datetime
 from typing import Any
 
+from benchgate.store import summary_sql as sq
 from benchgate.store.backend import wrap
 from benchgate.store.capability import (  # noqa: F401 - Histogram, cpk, HISTOGRAM_BINS re-exported
     HISTOGRAM_BINS,
     CheckStats,
     Histogram,
-    check_stats,
     cpk,
+    stats_from_bins,
 )
-from benchgate.store.outcome import COMPLETE_SQL, is_complete
-
-#: Pareto lists keep this many entries; the rest are summed into "other".
-PARETO_TOP = 15
-
+from benchgate.store.outcome import is_complete
+from benchgate.store.rollup import WHOLE
+from benchgate.store.summary_sql import (  # noqa: F401 - re-exported
+    PARETO_TOP,
+    UNIT_LIST_MAX,
+    ParetoCheck,
+    ParetoReason,
+)
 
 # --------------------------------------------------------------------------- history
 
@@ -143,39 +149,20 @@ def history(conn: Any, serial: str) -> list[HistoryRun]:
 # --------------------------------------------------------------------------- summary
 
 @dataclass(frozen=True)
-class ParetoCheck:
-    plan_id: str
-    step: str
-    measurement: str
-    fail: int
-    error: int
-    inconclusive: int
-
-    @property
-    def total(self) -> int:
-        return self.fail + self.error + self.inconclusive
-
-
-@dataclass(frozen=True)
-class ParetoReason:
-    reason: str
-    count: int
-    kind: str = "fail"  # the verdict behind it: fail, error, inconclusive, aborted, incomplete, other
-
-
-@dataclass(frozen=True)
 class UnitLine:
-    """One unit of a lot summary: its latest attempt's verdict and report, and how many attempts."""
+    """One unit of a lot summary: its latest attempt's verdict and report, and how many attempts.
+
+    ``report_file`` (relative to the station's report folder) and ``report_sha256`` are what a
+    central user asks a station for and verifies (store/evidence.py); ``report_path`` is the
+    path as the station wrote it."""
 
     serial: str
     plan_id: str
     verdict: str  # of the latest attempt; 'incomplete' when it never finished
     attempts: int
     report_path: str | None
-
-
-#: a lot summary lists at most this many units (the page stays readable; the counts stay whole)
-UNIT_LIST_MAX = 5000
+    report_file: str | None = None
+    report_sha256: str | None = None
 
 
 @dataclass(frozen=True)
@@ -233,7 +220,7 @@ def parse_since(since: str) -> float:
     return t.timestamp()
 
 
-def _filters(plan: str | None, lot: str | None, since: str | None
+def _filters(plan: str | None, lot: str | None, since: float | None
              ) -> tuple[str, str, list[Any]]:
     """WHERE fragments over ``runs r`` and over ``checks c`` (same parameters), built from
     fixed text only; the values go in as parameters."""
@@ -249,7 +236,7 @@ def _filters(plan: str | None, lot: str | None, since: str | None
     if since is not None:
         runs.append("r.started_epoch >= ?")
         checks.append("c.started_epoch >= ?")
-        params.append(parse_since(since))
+        params.append(since)
     return "".join(f" AND {x}" for x in runs), "".join(f" AND {x}" for x in checks), params
 
 
@@ -257,39 +244,32 @@ def summary(conn: Any, *, plan: str | None = None, lot: str | None = None,
             since: str | None = None) -> Summary:
     """The lot summary over the runs selected by plan id, lot and start time (all when None).
 
-    Definitions: docs/results.md and the module docstring.
+    Definitions: docs/results.md and the module docstring. The yields, capability and
+    expected false passes come from the rows kept up to date at write time (:mod:`.rollup`);
+    with ``since`` (after the first run in scope) the yields are counted from the selected runs
+    and the values of the part of a day before ``since`` binned from them (:mod:`.summary_sql`).
     """
     conn = wrap(conn)
-    rf, cf, params = _filters(plan, lot, since)
-    # one row per unit: attempts, complete runs, complete runs that did not pass, and whether
-    # the latest complete run passed (window function: latest first within the complete runs)
-    (units_seen, attempts, tested, first, final, retests, retested, finished_cut) = conn.execute(
-        f"WITH sel AS (SELECT r.plan_id, r.serial, r.verdict,"
-        f" CASE WHEN r.complete = 1 AND NOT {COMPLETE_SQL} THEN 1 ELSE 0 END AS cut,"
-        f" CASE WHEN {COMPLETE_SQL} THEN 1 ELSE 0 END AS ok,"
-        f" ROW_NUMBER() OVER (PARTITION BY r.plan_id, r.serial, CASE WHEN {COMPLETE_SQL} THEN 1 ELSE 0 END"
-        f" ORDER BY r.started_epoch DESC, r.run_id DESC) AS k FROM runs r WHERE 1 = 1{rf}),"
-        " u AS (SELECT COUNT(*) AS n, SUM(ok) AS done, SUM(cut) AS cut,"
-        " SUM(CASE WHEN ok = 1 AND verdict <> 'pass' THEN 1 ELSE 0 END) AS bad,"
-        " MAX(CASE WHEN ok = 1 AND k = 1 AND verdict = 'pass' THEN 1 ELSE 0 END) AS final"
-        " FROM sel GROUP BY plan_id, serial)"
-        " SELECT COUNT(*), COALESCE(SUM(n), 0), COALESCE(SUM(CASE WHEN done > 0 THEN 1 ELSE 0 END), 0),"
-        " COALESCE(SUM(CASE WHEN done > 0 AND bad = 0 THEN 1 ELSE 0 END), 0), COALESCE(SUM(final), 0),"
-        " COALESCE(SUM(CASE WHEN done > 1 THEN done - 1 ELSE 0 END), 0),"
-        " COALESCE(SUM(CASE WHEN done > 1 THEN 1 ELSE 0 END), 0), COALESCE(SUM(cut), 0) FROM u",
-        params).fetchone()
+    t = None if since is None else parse_since(since)
+    if t is not None and t <= sq.earliest(conn, lot):
+        t = None  # since selects every run: the same summary as without it
+    rf, cf, params = _filters(plan, lot, t)
+    defs = {row[0]: row[1:] for row in conn.execute(
+        "SELECT id, plan_id, step, measurement, unit, low, high, bin_width FROM check_defs")}
+    uf = "" if plan is None else " AND u.plan_id = ?"
+    up = ([0, lot] if lot is not None else [1, WHOLE]) + ([] if plan is None else [plan])
+    if t is None:
+        (units_seen, attempts, tested, first, final, retests, retested, finished_cut,
+         false_passes, unstated) = sq.maintained_counts(conn, uf, up)
+        units = sq.maintained_units(conn, uf, up) if lot is not None else ()
+    else:
+        (units_seen, attempts, tested, first, final, retests, retested,
+         finished_cut) = sq.raw_counts(conn, rf, params)
+        false_passes, unstated = sq.since_risk(conn, uf, up, t)
+        units = sq.raw_units(conn, rf, params) if lot is not None else ()
     verdicts = {str(v): int(k) for v, k in conn.execute(
         "SELECT CASE WHEN r.complete = 1 THEN r.verdict ELSE 'incomplete' END AS v, COUNT(*) AS n"
         f" FROM runs r WHERE 1 = 1{rf} GROUP BY 1 ORDER BY 2 DESC, 1", params)}
-
-    defs = {row[0]: row[1:] for row in conn.execute(
-        "SELECT id, plan_id, step, measurement, unit, low, high FROM check_defs")}
-    false_passes, unstated = conn.execute(
-        f"{_latest_complete(rf)} SELECT COALESCE(SUM(c.risk), 0.0),"
-        " COALESCE(SUM(CASE WHEN c.risk IS NULL THEN 1 ELSE 0 END), 0)"
-        " FROM checks c JOIN runs r ON r.id = c.run"
-        " WHERE c.run IN (SELECT id FROM latest) AND r.verdict = 'pass' AND c.verdict = 'pass'",
-        params + params).fetchone()  # _latest_complete takes the filter parameters twice
     return Summary(
         expected_false_passes=float(false_passes), risk_unstated=int(unstated),
         plan=plan, lot=lot, since=since, runs=int(attempts),
@@ -297,91 +277,11 @@ def summary(conn: Any, *, plan: str | None = None, lot: str | None = None,
         units_tested=int(tested), units_untested=int(units_seen) - int(tested),
         first_pass=int(first), final_pass=int(final), retests=int(retests),
         units_retested=int(retested), verdicts=verdicts,
-        pareto_checks=_pareto_checks(conn, defs, cf, params),
-        pareto_reasons=_pareto_reasons(conn, rf, cf, params),
-        checks=check_stats(conn, defs, _latest_complete(rf), params + params),
-        units=_unit_lines(conn, rf, params) if lot is not None else (),
+        pareto_checks=sq.pareto_checks(conn, defs, cf, params),
+        pareto_reasons=sq.pareto_reasons(conn, rf, cf, params),
+        checks=stats_from_bins(defs, sq.value_bins(conn, uf, up, plan, t)),
+        units=tuple(UnitLine(*u) for u in units),
     )
-
-
-def _unit_lines(conn, rf, params) -> tuple[UnitLine, ...]:
-    """Each unit in scope with its attempts and its latest attempt (window function, both back ends)."""
-    rows = conn.execute(
-        "WITH sel AS (SELECT r.serial, r.plan_id, r.complete, r.verdict, r.report_path,"
-        " COUNT(*) OVER (PARTITION BY r.plan_id, r.serial) AS n,"
-        " ROW_NUMBER() OVER (PARTITION BY r.plan_id, r.serial"
-        " ORDER BY r.started_epoch DESC, r.run_id DESC) AS k FROM runs r WHERE 1 = 1" + rf + ")"
-        " SELECT serial, plan_id, complete, verdict, report_path, n FROM sel WHERE k = 1"
-        f" ORDER BY serial, plan_id LIMIT {UNIT_LIST_MAX}", params).fetchall()
-    return tuple(UnitLine(serial=str(serial), plan_id=str(plan_id),
-                          verdict=str(verdict) if complete and verdict else "incomplete",
-                          attempts=int(n), report_path=None if path is None else str(path))
-                 for serial, plan_id, complete, verdict, path, n in rows)
-
-
-def _pareto_checks(conn, defs, cf, params) -> tuple[ParetoCheck, ...]:
-    merged: dict[tuple[str, str, str], list[int]] = {}
-    for d, fail, err, inc in conn.execute(
-            "SELECT c.def, SUM(CASE WHEN c.verdict = 'fail' THEN 1 ELSE 0 END),"
-            " SUM(CASE WHEN c.verdict IN ('error', 'aborted') THEN 1 ELSE 0 END),"
-            " SUM(CASE WHEN c.verdict = 'inconclusive' THEN 1 ELSE 0 END) FROM checks c"
-            f" WHERE c.verdict <> 'pass'{cf} GROUP BY c.def", params):
-        acc = merged.setdefault(tuple(defs[d][:3]), [0, 0, 0])
-        acc[0] += fail
-        acc[1] += err
-        acc[2] += inc
-    items = [ParetoCheck(*k, *v) for k, v in merged.items()]
-    items.sort(key=lambda p: (-p.total, -p.fail, p.plan_id, p.step, p.measurement))
-    return tuple(items)
-
-
-def _pareto_reasons(conn, rf, cf, params) -> tuple[ParetoReason, ...]:
-    counts: dict[str, list] = {}
-
-    def add(text: str, n: int, kind: str) -> None:
-        acc = counts.setdefault(text, [0, kind])
-        acc[0] += n
-
-    for meas, verdict, side, reason, n in conn.execute(
-            "SELECT d.measurement, c.verdict,"
-            " CASE WHEN c.verdict = 'fail' AND d.high IS NOT NULL AND c.value > d.high THEN 'above'"
-            "      WHEN c.verdict = 'fail' THEN 'below' END,"
-            " CASE WHEN c.verdict NOT IN ('fail', 'inconclusive') THEN c.reason END,"
-            " COUNT(*) FROM checks c JOIN check_defs d ON d.id = c.def"
-            f" WHERE c.verdict <> 'pass'{cf} GROUP BY 1, 2, 3, 4", params):
-        if verdict == "fail":
-            add(f"{meas} {side} the {'high' if side == 'above' else 'low'} limit", n, "fail")
-        elif verdict == "inconclusive":
-            add(f"{meas} inconclusive (within U of a limit)", n, "inconclusive")
-        else:
-            add(reason, n, verdict)
-    # runs that did not pass without any check saying why (lost instrument, abort, crash)
-    for complete, verdict, reason, n in conn.execute(
-            "SELECT complete, verdict, reason, COUNT(*) FROM runs r"
-            f" WHERE (complete = 0 OR verdict <> 'pass'){rf} AND NOT EXISTS"
-            " (SELECT 1 FROM checks c WHERE c.run = r.id AND c.verdict <> 'pass')"
-            " GROUP BY 1, 2, 3", params):
-        if not complete:
-            add("incomplete: run did not finish", n, "incomplete")
-        else:
-            add(reason or "no reason given", n, verdict or "error")
-    items = sorted(counts.items(), key=lambda kv: (-kv[1][0], kv[0]))
-    if len(items) > PARETO_TOP:
-        rest = sum(v[0] for _, v in items[PARETO_TOP - 1:])
-        items = items[:PARETO_TOP - 1] + [("other", [rest, "other"])]
-    return tuple(ParetoReason(r, n, kind) for r, (n, kind) in items)
-
-
-def _latest_complete(rf: str) -> str:
-    """A ``WITH`` clause naming ``latest``: the id of each unit's latest complete run in scope
-    (takes the filter parameters twice). An anti-join (no later complete run of the same unit
-    in scope), which both databases estimate well and run from the runs_latest index."""
-    return ("WITH latest AS (SELECT o.id FROM runs o WHERE"
-            f" {COMPLETE_SQL.replace('r.', 'o.')}{rf.replace(' r.', ' o.')}"
-            " AND NOT EXISTS (SELECT 1 FROM runs r WHERE r.plan_id = o.plan_id"
-            f" AND r.serial = o.serial AND {COMPLETE_SQL}{rf}"
-            " AND (r.started_epoch > o.started_epoch"
-            " OR (r.started_epoch = o.started_epoch AND r.run_id > o.run_id))))")
 
 
 def fmt_ratio(x: float | None) -> str:

@@ -108,16 +108,67 @@ _V6 = """
 ALTER TABLE runs ADD COLUMN report_file TEXT
 """
 
-#: ordered migrations: (version reached, SQL text that gets there from the version before).
-#: Released versions: 1 and 2 (SQLite only), 3 (cut_short); 4 adds forwarding; 5 risk and
-#: record length per check; 6 the report's path relative to the report folder.
-MIGRATIONS: tuple[tuple[int, str], ...] = (
+# what the lot summary needs, kept up to date at write time (store/rollup.py): each unit's
+# standing per scope (all its runs; its runs in one lot) and the binned values of the latest
+# complete runs, per UTC day of their start; each check definition's bin width. Filled from the
+# existing rows (_v7)
+_V7 = """
+ALTER TABLE check_defs ADD COLUMN bin_width {real};
+CREATE TABLE unit_state (
+    whole INTEGER NOT NULL,
+    lot TEXT NOT NULL,
+    serial TEXT NOT NULL,
+    plan_id TEXT NOT NULL,
+    attempts INTEGER NOT NULL,
+    done INTEGER NOT NULL,
+    bad INTEGER NOT NULL,
+    cut INTEGER NOT NULL,
+    final INTEGER NOT NULL,
+    latest BIGINT,
+    last BIGINT,
+    risk {real} NOT NULL,
+    unstated INTEGER NOT NULL,
+    latest_epoch {real},
+    PRIMARY KEY (whole, lot, serial, plan_id)
+);
+CREATE INDEX unit_state_latest ON unit_state(latest);
+CREATE TABLE value_bins (
+    whole INTEGER NOT NULL,
+    lot TEXT NOT NULL,
+    def BIGINT NOT NULL,
+    bin {real} NOT NULL,
+    day INTEGER NOT NULL,
+    n INTEGER NOT NULL,
+    s1 {real} NOT NULL,
+    s2 {real} NOT NULL,
+    vmin {real} NOT NULL,
+    vmax {real} NOT NULL,
+    PRIMARY KEY (whole, lot, def, bin, day)
+);
+CREATE INDEX runs_started ON runs(started_epoch);
+CREATE INDEX runs_lot ON runs(lot, started_epoch)
+"""
+
+
+def _v7(conn: Any) -> None:
+    from benchgate.store.rollup import rebuild
+
+    conn.script(_V7)
+    rebuild(conn)
+
+
+#: ordered migrations: (version reached, SQL text, or a function of the connection, that gets
+#: there from the version before). Released versions: 1 and 2 (SQLite only), 3 (cut_short);
+#: 4 adds forwarding; 5 risk and record length per check; 6 the report's path relative to the
+#: report folder; 7 the summary's maintained unit states and value bins.
+MIGRATIONS: tuple[tuple[int, Any], ...] = (
     (1, _V1),
     (2, _V2),
     (3, _V3),
     (4, _V4),
     (5, _V5),
     (6, _V6),
+    (7, _v7),
 )
 SCHEMA_VERSION = MIGRATIONS[-1][0]
 
@@ -152,7 +203,10 @@ def migrate(conn: Any, target: int = SCHEMA_VERSION) -> int:
             conn.execute("CREATE TABLE schema_version (version INTEGER NOT NULL, applied TEXT NOT NULL)")
         for version, step in MIGRATIONS:
             if current < version <= target:
-                conn.script(step)
+                if callable(step):
+                    step(conn)
+                else:
+                    conn.script(step)
                 conn.execute("INSERT INTO schema_version (version, applied) VALUES (?, ?)",
                              (version, datetime.now(UTC).isoformat(timespec="seconds")))
                 current = version
