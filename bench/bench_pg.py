@@ -9,7 +9,10 @@ Targets (issue "Several stations, one results database"):
 Uses the server named by ``BENCHGATE_BENCH_PG_URL``, or starts a throw-away cluster
 (tests/pg_cluster.py: Unix socket, so "loopback" here is a local socket). The 10⁶ runs are made
 on the server with ``generate_series`` (the public write path would take hours), through the
-same schema and indexes as any database. Prints seconds and ratios to the targets.
+same schema and indexes as any database; the rows the write path keeps for the summary
+(store/rollup.py) are then computed for all of them at once, as migrating to schema 7 does.
+A summary with ``since`` counts its yields from the selected runs (docs/results.md), so it
+is slower the more runs it selects. Prints seconds and ratios to the targets.
 
     .venv/bin/python bench/bench_pg.py [--runs 1000000] [--units 200] [--queue 2000]
 """
@@ -90,7 +93,11 @@ def bench_summary(url: str, runs: int) -> None:
     print(f"made {runs} runs (10 checks each) on the server in {fill_s:.0f} s")
     with ResultsDB.open(url) as db:
         for label, kwargs in (("all runs", {}), ("all runs, again", {}), ("lot L3", {"lot": "L3"}),
-                              ("since 2027-04-01", {"since": "2027-04-01"})):
+                              ("plan tb3, lot L3", {"plan": "tb3", "lot": "L3"}),
+                              ("since 2027-04-01, yields counted from the runs",
+                               {"since": "2027-04-01"}),
+                              ("lot L9 since 2027-06-10T12:00, part of a day binned from the runs",
+                               {"lot": "L9", "since": "2027-06-10T12:00"})):
             t = time.perf_counter()
             s = db.summary(**kwargs)
             dt = time.perf_counter() - t

@@ -46,7 +46,9 @@ def main() -> int:
         db.close()
         db = ResultsDB.open(path)  # fresh connection: no warm statement cache
         for label, kwargs in (("all runs", {}), ("lot L1", {"lot": "L1"}),
-                              ("plan tb3 since 2026-11-01", {"plan": "tb3", "since": "2026-11-01"})):
+                              ("plan tb3 since 2026-11-01", {"plan": "tb3", "since": "2026-11-01"}),
+                              ("since 2026-11-14T12:00 (yields counted from the runs)",
+                               {"since": "2026-11-14T12:00"})):
             t = time.perf_counter()
             s = db.summary(**kwargs)
             dt = time.perf_counter() - t

@@ -12,6 +12,8 @@ from benchgate.store.backend import PostgresConn, SQLiteConn, redact, scrub
 from benchgate.store.schema import MIGRATIONS, SCHEMA_VERSION, migrate, schema_version
 from synthetic_runs import CheckSpec, make_record
 
+from .test_rollup import assert_kept_equals_rebuilt
+
 
 def _raw(target):
     """A bare connection to a fresh database at ``target`` (no migration yet)."""
@@ -35,6 +37,16 @@ def test_migrates_forward_from_every_version(target, start):
                          " '2026-11-01T00:00:00Z', 1.0, 1, 'aborted')")
             if start >= 3:
                 conn.execute("UPDATE runs SET cut_short = 'aborted'")
+            # and a unit that passed, with one check, as that version stored it: the kept
+            # summary rows of version 7 are filled from it when migrating
+            conn.execute("INSERT INTO runs (run_id, serial, plan_id, plan_version, plan_hash, started,"
+                         " started_epoch, complete, verdict, lot) VALUES ('old2', 'OLD-2', 'tb3', '1',"
+                         " 'h', '2026-11-01T00:00:00Z', 2.0, 1, 'pass', 'L1')")
+            conn.execute("INSERT INTO check_defs (plan_id, step, measurement, unit, low, high)"
+                         " VALUES ('tb3', 'capture-tone', 'frequency', 'Hz', 860.0, 1050.0)")
+            conn.execute("INSERT INTO checks (run, seq, def, lot, started_epoch, value, uncertainty,"
+                         " valid, verdict, reason) SELECT r.id, 0, d.id, 'L1', 2.0, 950.0, 0.4, 1,"
+                         " 'pass', 'ok' FROM runs r, check_defs d WHERE r.run_id = 'old2'")
     finally:
         conn.close()
     with ResultsDB.open(target) as db:
@@ -47,7 +59,15 @@ def test_migrates_forward_from_every_version(target, start):
         rec = make_record("NEW-1", _spec())
         db.finish_run(rec, None)
         assert db.history("NEW-1")[0].status == "pass"
-        assert db.summary().units_tested == 1  # OLD-1 was aborted: not a unit tested
+        s = db.summary()
+        if start == 0:
+            assert s.units_tested == 1
+        else:  # OLD-1 was aborted: not a unit tested; OLD-2 passed before the migration
+            assert (s.units_tested, s.units_untested, s.final_pass, s.runs) == (2, 1, 2, 3)
+            (c,) = s.checks
+            assert (c.n, c.min, c.max) == (2, 950.0, 955.0)
+            assert db.summary(lot="L1").units_tested == 2
+        assert_kept_equals_rebuilt(db)
 
 
 def test_newer_schema_is_refused(target):

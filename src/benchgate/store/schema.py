@@ -132,6 +132,7 @@ CREATE TABLE unit_state (
     PRIMARY KEY (whole, lot, serial, plan_id)
 );
 CREATE INDEX unit_state_latest ON unit_state(latest);
+CREATE INDEX unit_state_unit ON unit_state(serial, plan_id);
 CREATE TABLE value_bins (
     whole INTEGER NOT NULL,
     lot TEXT NOT NULL,
