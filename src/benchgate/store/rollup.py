@@ -75,23 +75,49 @@ def day_of(epoch: float) -> int:
 
 
 def lock_units(c: Any, units: Iterable[Unit]) -> list[Unit]:
-    """Lock the units (PostgreSQL: advisory locks until commit; SQLite has one writer)."""
-    out = sorted(set(units))
+    """Lock the units (PostgreSQL: advisory locks until commit; SQLite has one writer). Returns
+    them sorted, as the database stores them (PostgreSQL has no NUL in text: see backend)."""
+    out = sorted({(c.text(p), c.text(s)) for p, s in units})
     for plan_id, serial in out:
         c.lock_key(f"{plan_id}\x1f{serial}")
     return out
 
 
-def _stored(c: Any, unit: Unit) -> dict[Scope, tuple[State, Values]]:
-    rows = c.execute(
-        "SELECT whole, lot, attempts, done, bad, cut, final, latest, last, risk, unstated,"
-        " latest_epoch FROM unit_state WHERE serial = ? AND plan_id = ?",
-        (unit[1], unit[0])).fetchall()
-    out = {}
-    for whole, lot, *state in rows:
-        st = _norm(state)
-        out[(int(whole), str(lot))] = (st, _values(c, st))
+def _rows(c: Any, sql: str, keys: list[Any]) -> list[Any]:
+    """``sql`` with ``IN ({})`` filled for ``keys``, a few hundred at a time."""
+    out: list[Any] = []
+    for i in range(0, len(keys), 500):
+        part = keys[i:i + 500]
+        out += c.execute(sql.format(", ".join("?" * len(part))), part).fetchall()
     return out
+
+
+def _values(c: Any, runs: Iterable[Any]) -> dict[int, list[tuple[int, float]]]:
+    """The valid values of ``runs``: run id -> sorted (def, value)."""
+    out: dict[int, list[tuple[int, float]]] = {}
+    for run, d, v in _rows(c, "SELECT run, def, value FROM checks WHERE valid = 1 AND value IS NOT"
+                              " NULL AND run IN ({})", sorted({r for r in runs if r is not None})):
+        out.setdefault(int(run), []).append((int(d), float(v)))
+    for v in out.values():
+        v.sort()
+    return out
+
+
+def _with_values(states: dict[Unit, dict[Scope, State]], values: dict[int, list]
+                 ) -> dict[Unit, dict[Scope, tuple[State, Values]]]:
+    return {u: {k: (st, (None, []) if st[5] is None else (day_of(st[9]), values.get(st[5], [])))
+                for k, st in scopes.items()} for u, scopes in states.items()}
+
+
+def _stored(c: Any, units: list[Unit]) -> dict[Unit, dict[Scope, tuple[State, Values]]]:
+    states: dict[Unit, dict[Scope, State]] = {u: {} for u in units}
+    for plan_id, serial, whole, lot, *state in _rows(
+            c, "SELECT plan_id, serial, whole, lot, attempts, done, bad, cut, final, latest, last,"
+               " risk, unstated, latest_epoch FROM unit_state WHERE serial IN ({})",
+            sorted({s for _, s in units})):
+        if (plan_id, serial) in states:
+            states[(plan_id, serial)][(int(whole), str(lot))] = _norm(state)
+    return _with_values(states, _values(c, (st[5] for x in states.values() for st in x.values())))
 
 
 def _norm(state: Any) -> State:
@@ -101,58 +127,60 @@ def _norm(state: Any) -> State:
             float(risk), int(unstated), None if epoch is None else float(epoch))
 
 
-def _values(c: Any, state: State) -> Values:
-    run, epoch = state[5], state[9]
-    if run is None:
-        return (None, [])
-    return (day_of(epoch), sorted((int(d), float(v)) for d, v in c.execute(
-        "SELECT def, value FROM checks WHERE run = ? AND valid = 1 AND value IS NOT NULL", (run,))))
-
-
-def _computed(c: Any, unit: Unit) -> dict[Scope, tuple[State, Values]]:
-    runs = c.execute("SELECT id, run_id, lot, started_epoch, complete, cut_short, verdict FROM runs"
-                     " WHERE serial = ? AND plan_id = ?", (unit[1], unit[0])).fetchall()
-    runs.sort(key=lambda r: (r[3], r[1]))  # time order; ties by run id (as the summary orders)
-    scopes: dict[Scope, list] = {(1, WHOLE): runs}
-    for r in runs:
-        if r[2] is not None:
-            scopes.setdefault((0, str(r[2])), []).append(r)
-    out = {}
-    risks: dict[int, tuple[float, int]] = {}
-    for scope, rs in scopes.items():
-        ok = [r for r in rs if is_complete(bool(r[4]), r[5], r[6])]
-        cut = sum(1 for r in rs if r[4] and not is_complete(True, r[5], r[6]))
-        bad = sum(1 for r in ok if r[6] != "pass")
-        latest = ok[-1] if ok else None
-        final = int(latest is not None and latest[6] == "pass")
-        risk, unstated = 0.0, 0
-        if final:
-            if latest[0] not in risks:
-                got = c.execute("SELECT COALESCE(SUM(risk), 0.0), COALESCE(SUM(CASE WHEN risk IS NULL"
-                                " THEN 1 ELSE 0 END), 0) FROM checks WHERE run = ? AND verdict = 'pass'",
-                                (latest[0],)).fetchone()
-                risks[latest[0]] = (float(got[0]), int(got[1]))
-            risk, unstated = risks[latest[0]]
-        state = (len(rs), len(ok), bad, cut, final, None if latest is None else int(latest[0]),
-                 int(rs[-1][0]), risk, unstated, None if latest is None else float(latest[3]))
-        out[scope] = (state, _values(c, state))
-    return out
+def _computed(c: Any, units: list[Unit]) -> dict[Unit, dict[Scope, tuple[State, Values]]]:
+    runs: dict[Unit, list] = {u: [] for u in units}
+    for plan_id, serial, *r in _rows(
+            c, "SELECT plan_id, serial, id, run_id, lot, started_epoch, complete, cut_short, verdict"
+               " FROM runs WHERE serial IN ({})", sorted({s for _, s in units})):
+        if (plan_id, serial) in runs:
+            runs[(plan_id, serial)].append(r)
+    states: dict[Unit, dict[Scope, Any]] = {}
+    for unit, rs_all in runs.items():
+        rs_all.sort(key=lambda r: (r[3], r[1]))  # time order; ties by run id (as the summary)
+        scopes: dict[Scope, list] = {(1, WHOLE): rs_all} if rs_all else {}
+        for r in rs_all:
+            if r[2] is not None:
+                scopes.setdefault((0, str(r[2])), []).append(r)
+        states[unit] = {}
+        for scope, rs in scopes.items():
+            ok = [r for r in rs if is_complete(bool(r[4]), r[5], r[6])]
+            latest = ok[-1] if ok else None
+            states[unit][scope] = [
+                len(rs), len(ok), sum(1 for r in ok if r[6] != "pass"),
+                sum(1 for r in rs if r[4] and not is_complete(True, r[5], r[6])),
+                int(latest is not None and latest[6] == "pass"),
+                None if latest is None else int(latest[0]), int(rs[-1][0]), 0.0, 0,
+                None if latest is None else float(latest[3])]
+    # the passed checks' risks of the latest complete runs that passed
+    passed = sorted({st[5] for x in states.values() for st in x.values() if st[4]})
+    risks = {int(run): (float(r), int(n)) for run, r, n in _rows(
+        c, "SELECT run, COALESCE(SUM(risk), 0.0), COALESCE(SUM(CASE WHEN risk IS NULL THEN 1"
+           " ELSE 0 END), 0) FROM checks WHERE verdict = 'pass' AND run IN ({}) GROUP BY run",
+        passed)}
+    for x in states.values():
+        for st in x.values():
+            if st[4]:
+                st[7], st[8] = risks.get(st[5], (0.0, 0))
+    done = {u: {k: tuple(st) for k, st in x.items()} for u, x in states.items()}
+    return _with_values(done, _values(c, (st[5] for x in done.values() for st in x.values())))
 
 
 def before(c: Any, units: Iterable[Unit]) -> dict[Unit, Any]:
     """Lock ``units`` and read what they contribute now; pass the result to :func:`after`."""
-    return {u: _stored(c, u) for u in lock_units(c, units)}
+    return _stored(c, lock_units(c, units))
 
 
 def after(c: Any, was: dict[Unit, Any]) -> None:
     """Recompute the units of ``was`` from their runs and apply the difference."""
     bins: dict[tuple[int, str, int, float, int], list] = {}
     widths: dict[int, float] = {}
+    puts: list[tuple] = []
+    drops: list[tuple] = []
 
     def width(d: int) -> float:
         if d not in widths:
-            widths[d] = float(c.execute("SELECT bin_width FROM check_defs WHERE id = ?",
-                                        (d,)).fetchone()[0])
+            widths.update((int(i), float(w)) for i, w in c.execute(
+                "SELECT id, bin_width FROM check_defs").fetchall())
         return widths[d]
 
     def put(scope: Scope, values: Values, sign: int) -> None:
@@ -167,71 +195,73 @@ def after(c: Any, was: dict[Unit, Any]) -> None:
             acc[2] += sign * dev * dev
             acc[3 if sign > 0 else 4].append(x)
 
+    now = _computed(c, sorted(was))
     for unit, old in sorted(was.items()):
-        new = _computed(c, unit)
+        new = now[unit]
         for scope in sorted(set(old) | set(new)):
             o, n = old.get(scope), new.get(scope)
             if o == n:
                 continue
             key = (scope[0], scope[1], unit[1], unit[0])
             if n is None:
-                c.execute("DELETE FROM unit_state WHERE whole = ? AND lot = ? AND serial = ?"
-                          " AND plan_id = ?", key)
+                drops.append(key)
             else:
-                c.execute(
-                    "INSERT INTO unit_state (whole, lot, serial, plan_id, attempts, done, bad, cut,"
-                    " final, latest, last, risk, unstated, latest_epoch)"
-                    " VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)"
-                    " ON CONFLICT (whole, lot, serial, plan_id) DO UPDATE SET attempts ="
-                    " excluded.attempts, done = excluded.done, bad = excluded.bad, cut = excluded.cut,"
-                    " final = excluded.final, latest = excluded.latest, last = excluded.last,"
-                    " risk = excluded.risk, unstated = excluded.unstated,"
-                    " latest_epoch = excluded.latest_epoch", key + n[0])
+                puts.append(key + n[0])
             if (o and o[1]) != (n and n[1]):
                 put(scope, o[1] if o else (None, []), -1)
                 put(scope, n[1] if n else (None, []), +1)
-    for key in sorted(bins):
-        _apply_bin(c, key, *bins[key])
+    if drops:
+        c.executemany("DELETE FROM unit_state WHERE whole = ? AND lot = ? AND serial = ?"
+                      " AND plan_id = ?", drops)
+    if puts:
+        c.executemany(
+            "INSERT INTO unit_state (whole, lot, serial, plan_id, attempts, done, bad, cut,"
+            " final, latest, last, risk, unstated, latest_epoch)"
+            " VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)"
+            " ON CONFLICT (whole, lot, serial, plan_id) DO UPDATE SET attempts ="
+            " excluded.attempts, done = excluded.done, bad = excluded.bad, cut = excluded.cut,"
+            " final = excluded.final, latest = excluded.latest, last = excluded.last,"
+            " risk = excluded.risk, unstated = excluded.unstated,"
+            " latest_epoch = excluded.latest_epoch", puts)
+    if bins:
+        _apply_bins(c, bins)
 
 
-def _apply_bin(c: Any, key: tuple, dn: int, ds1: float, ds2: float,
-               added: list[float], removed: list[float]) -> None:
-    if dn == 0 and not added and not removed:
-        return
-    lo = min(added) if added else math.inf
-    hi = max(added) if added else -math.inf
-    if added:
-        row = c.execute(
-            "INSERT INTO value_bins (whole, lot, def, bin, day, n, s1, s2, vmin, vmax) VALUES"
-            " (?, ?, ?, ?, ?, ?, ?, ?, ?, ?) ON CONFLICT (whole, lot, def, bin, day) DO UPDATE SET"
-            " n = value_bins.n + excluded.n, s1 = value_bins.s1 + excluded.s1,"
-            " s2 = value_bins.s2 + excluded.s2,"
-            " vmin = CASE WHEN excluded.vmin < value_bins.vmin THEN excluded.vmin ELSE value_bins.vmin END,"
-            " vmax = CASE WHEN excluded.vmax > value_bins.vmax THEN excluded.vmax ELSE value_bins.vmax END"
-            " RETURNING n, vmin, vmax", key + (dn, ds1, ds2, lo, hi)).fetchone()
-    else:
-        row = c.execute("UPDATE value_bins SET n = n + ?, s1 = s1 + ?, s2 = s2 + ? WHERE whole = ?"
-                        " AND lot = ? AND def = ? AND bin = ? AND day = ? RETURNING n, vmin, vmax",
-                        (dn, ds1, ds2) + key).fetchone()
-    if row is None:
-        return
-    n, vmin, vmax = int(row[0]), float(row[1]), float(row[2])
-    if n <= 0:
-        c.execute("DELETE FROM value_bins WHERE whole = ? AND lot = ? AND def = ? AND bin = ?"
-                  " AND day = ?", key)
-    elif removed and vmin != vmax and (min(removed) <= vmin or max(removed) >= vmax):
-        # a bin's least or largest value left it: read the bin's values again (one bin only,
-        # through the index on (def, value); the unit rows already point at the new runs)
-        whole, lot, d, b, day = key
-        w = float(c.execute("SELECT bin_width FROM check_defs WHERE id = ?", (d,)).fetchone()[0])
-        got = c.execute(
-            "SELECT MIN(c.value), MAX(c.value) FROM checks c JOIN unit_state u ON u.latest = c.run"
-            " WHERE u.whole = ? AND u.lot = ? AND c.def = ? AND c.valid = 1 AND c.value >= ?"
-            f" AND c.value < ? AND {c.floor_real('u.latest_epoch / 86400.0')} = ?",
-            (whole, lot, d, b * w, (b + 1) * w, day)).fetchone()
-        if got[0] is not None:
-            c.execute("UPDATE value_bins SET vmin = ?, vmax = ? WHERE whole = ? AND lot = ?"
-                      " AND def = ? AND bin = ? AND day = ?", (got[0], got[1]) + key)
+def _apply_bins(c: Any, bins: dict[tuple, list]) -> None:
+    """Add the deltas to the bins (one upsert each, in key order: no deadlock between writers);
+    delete emptied bins; read a bin's least and largest value again when one of them left."""
+    keys = sorted(bins)
+    rows = []
+    for key in keys:
+        dn, ds1, ds2, added, removed = bins[key]
+        rows.append(key + (dn, ds1, ds2, min(added, default=math.inf), max(added, default=-math.inf)))
+    got = c.executemany_returning(
+        "INSERT INTO value_bins (whole, lot, def, bin, day, n, s1, s2, vmin, vmax) VALUES"
+        " (?, ?, ?, ?, ?, ?, ?, ?, ?, ?) ON CONFLICT (whole, lot, def, bin, day) DO UPDATE SET"
+        " n = value_bins.n + excluded.n, s1 = value_bins.s1 + excluded.s1,"
+        " s2 = value_bins.s2 + excluded.s2,"
+        " vmin = CASE WHEN excluded.vmin < value_bins.vmin THEN excluded.vmin ELSE value_bins.vmin END,"
+        " vmax = CASE WHEN excluded.vmax > value_bins.vmax THEN excluded.vmax ELSE value_bins.vmax END"
+        " RETURNING n, vmin, vmax", rows)
+    for key, row in zip(keys, got, strict=True):
+        removed = bins[key][4]
+        n, vmin, vmax = int(row[0]), float(row[1]), float(row[2])
+        if n <= 0:
+            c.execute("DELETE FROM value_bins WHERE whole = ? AND lot = ? AND def = ? AND bin = ?"
+                      " AND day = ?", key)
+        elif removed and vmin != vmax and (min(removed) <= vmin or max(removed) >= vmax):
+            # a bin's least or largest value left it: read the bin's values again (one bin,
+            # through the index on (def, value); the unit rows already point at the new runs)
+            whole, lot, d, b, day = key
+            w = float(c.execute("SELECT bin_width FROM check_defs WHERE id = ?", (d,)).fetchone()[0])
+            lo, hi = c.execute(
+                "SELECT MIN(c.value), MAX(c.value) FROM checks c JOIN unit_state u ON u.latest = c.run"
+                " WHERE u.whole = ? AND u.lot = ? AND c.def = ? AND c.valid = 1 AND c.value >= ?"
+                f" AND c.value < ? AND {c.floor_real('u.latest_epoch / 86400.0')} = ?",
+                (whole, lot, d, b * w, (b + 1) * w, day)).fetchone()
+            if lo is not None:
+                c.execute("UPDATE value_bins SET vmin = ?, vmax = ? WHERE whole = ? AND lot = ?"
+                          " AND def = ? AND bin = ? AND day = ?", (lo, hi) + key)
 
 
 # --------------------------------------------------------------------------- rebuild
