@@ -9,13 +9,13 @@ import signal
 import sqlite3
 import subprocess
 import sys
-import time
 from pathlib import Path
 
 import pytest
 
 from benchgate.cli import main
 from benchgate.store import ResultsDB
+from waiting import wait_until
 
 pytestmark = pytest.mark.slow
 DEADLINE_S = 240.0
@@ -54,14 +54,10 @@ def _central_runs(url: str) -> dict[str, tuple[int, int]]:
 
 
 def _wait_for(what, predicate, deadline_s=DEADLINE_S, proc=None):
-    end = time.monotonic() + deadline_s
-    while time.monotonic() < end:
-        if predicate():
-            return
-        if proc is not None and proc.poll() is not None:
-            break
-        time.sleep(0.05)  # polling a condition with a deadline, not a fixed wait
-    raise AssertionError(f"timed out waiting for {what}")
+    def ended():
+        return None if proc is None or proc.poll() is None else "the station process ended first"
+
+    wait_until(predicate, timeout=deadline_s, what=what, abandon=ended)
 
 
 def _finished(reports: Path, complete: int, incomplete: int = 0):

@@ -31,6 +31,7 @@ from __future__ import annotations
 import os
 import re
 import sqlite3
+import time
 from collections.abc import Iterable, Sequence
 from pathlib import Path
 from typing import Any
@@ -169,6 +170,23 @@ class Conn:
         return StoreError(f"{what}: {' '.join(str(exc).split())}", self.where)
 
 
+def _switch_to_wal(raw: sqlite3.Connection) -> str:
+    """Put the file in WAL mode (a no-op when it is). Turning a new file into WAL needs an
+    exclusive lock, and SQLite does not wait on the busy timeout for that one (it would risk a
+    deadlock between readers): several stations opening a new file at once retry, within the
+    busy timeout, instead of failing with "database is locked"."""
+    deadline = time.monotonic() + BUSY_TIMEOUT_S
+    pause = 0.001
+    while True:
+        try:
+            return str(raw.execute("PRAGMA journal_mode = WAL").fetchone()[0])
+        except sqlite3.OperationalError as exc:
+            if "locked" not in str(exc) or time.monotonic() >= deadline:
+                raise
+        time.sleep(pause)  # back off: another connection holds the file for its switch
+        pause = min(2 * pause, 0.05)
+
+
 class SQLiteConn(Conn):
     dialect = "sqlite"
     errors = (sqlite3.Error,)
@@ -190,7 +208,7 @@ class SQLiteConn(Conn):
             raise StoreError(f"cannot open results database: {exc}", p) from exc
         try:
             raw.execute(f"PRAGMA busy_timeout = {int(BUSY_TIMEOUT_S * 1000)}")
-            mode = raw.execute("PRAGMA journal_mode = WAL").fetchone()[0]
+            mode = _switch_to_wal(raw)
             if str(mode).lower() != "wal":
                 raise StoreError(f"cannot switch the results database to WAL mode (got {mode})", p)
             raw.execute("PRAGMA synchronous = NORMAL")
