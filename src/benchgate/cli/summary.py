@@ -38,6 +38,7 @@ def run(args: argparse.Namespace) -> int:
     from benchgate.store import open_results, resolve
     from benchgate.store.queries import fmt_ratio
     from benchgate.store.setting import unsent_note
+    from benchgate.units.format import expected_count_text
     from benchgate.units.format import format_quantity as q
 
     station = station_results(args.station)
@@ -68,7 +69,7 @@ def run(args: argparse.Namespace) -> int:
     print(f"  first-pass yield {fmt_ratio(s.first_pass_yield)}  ({s.first_pass} units)")
     print(f"  final yield      {fmt_ratio(s.final_yield)}  ({s.final_pass} units)")
     unstated = f"; {s.risk_unstated} passed checks state no risk" if s.risk_unstated else ""
-    print(f"  expected false passes {s.expected_false_passes:.3g}  (sum of the passed units' "
+    print(f"  expected false passes {expected_count_text(s.expected_false_passes)}  (sum of the passed units' "
           f"risks of a false pass, JCGM 106{unstated})")
     print(f"  retests          {s.retests}  ({s.units_retested} units with more than one complete run)")
     if s.verdicts:

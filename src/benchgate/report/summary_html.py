@@ -22,7 +22,7 @@ from markupsafe import Markup, escape
 from benchgate.common.evidence import write_atomic
 from benchgate.report.bounds import clip_axis
 from benchgate.report.cautions import GENERAL_CAUTIONS
-from benchgate.units.format import format_quantity, window_text
+from benchgate.units.format import expected_count_text, format_quantity, window_text
 
 SAFETY = ("Bench work can hurt people and boards: mains-powered instruments, charged capacitors "
           "and hot parts. Follow the plan's cautions, local rules and licensed practice; read the "
@@ -217,7 +217,7 @@ def render_summary_html(summary: Any, *, title: str | None = None,
         "cut_short": getattr(summary, "cut_short", 0),
         "final": _pct(summary.final_yield),
         # JCGM 106 specific risks summed over the passed units (store/queries.py defines it)
-        "false_passes": f"{getattr(summary, 'expected_false_passes', 0.0):.3g}",
+        "false_passes": expected_count_text(getattr(summary, "expected_false_passes", 0.0)),
         "risk_unstated": getattr(summary, "risk_unstated", 0),
         "pareto_checks": [{"p": p, "fail_bar": bar_svg(p.fail, top_check),
                            "other_bar": bar_svg(p.error + p.inconclusive, top_check, kind="error")}

@@ -68,3 +68,17 @@ def value_text(value: float, uncertainty: float | None, unit: str, digits: int =
     if uncertainty is None:
         return text
     return f"{text} ± {format_quantity(uncertainty, unit, digits if u_digits is None else u_digits)}"
+
+
+def expected_count_text(x: float | None) -> str:
+    """An expected number of events (e.g. false passes in a lot) for people: plain decimals,
+    never an exponent; below 0.001 it says so instead of printing a vanishing number."""
+    if x is None or not math.isfinite(x):
+        return "—"
+    if x <= 0.0:
+        return "0"
+    if x < 0.001:
+        return "< 0.001"
+    if x < 100.0:
+        return f"{x:.3g}" if x >= 0.01 else f"{x:.3f}"
+    return f"{x:.0f}"
