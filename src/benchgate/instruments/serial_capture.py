@@ -107,17 +107,27 @@ def build_captures(adc: SerialAdc, channels: tuple[str, ...], state: Arrived, ac
     if extra.get("time_outliers"):
         warnings.append(f"{len(extra['time_outliers'])} samples with an implausible time stamp were "
                         "counted as lost")
-    # the frame's columns are the selected channels in channel-index order
-    by_index = sorted(channels, key=adc.channels.index)
-    return tuple(_one(adc, c, codes[:, by_index.index(c)], declared, actual, measured, verifiable, lost, n,
+    return tuple(_one(adc, c, codes[:, frame_column(adc, channels, c)], declared, actual, measured, verifiable, lost, n,
                            gaps, rejected, garbage, end_total, extra, warnings, fraction, len(channels))
                  for c in channels)
 
 
+def frame_column(adc: SerialAdc, channels: tuple[str, ...], channel: str) -> int:
+    """Where ``channel`` sits in a frame of ``channels``: in channel-index order."""
+    return sorted(channels, key=adc.channels.index).index(channel)
+
+
+def code_scale(adc: SerialAdc, channel: str) -> tuple[float, Any]:
+    """One code's volts (the LSB) and the channel's calibration, if any:
+    volts = gain · (code · LSB) + offset with the calibration, code · LSB without."""
+    cal = adc.calibration.for_channel(channel) if adc.calibration else None
+    return adc.vref / 2.0**adc.bits, cal
+
+
 def _one(adc: SerialAdc, channel, column, declared, actual, measured, verifiable, lost, n, gaps, rejected,
          garbage, end_total, extra, warnings, fraction, together) -> Capture:
-    cal = adc.calibration.for_channel(channel) if adc.calibration else None
-    volts = column.astype(np.float64) * (adc.vref / 2.0**adc.bits)
+    lsb, cal = code_scale(adc, channel)
+    volts = column.astype(np.float64) * lsb
     if cal is not None:
         volts = cal.gain * volts + cal.offset
     meta = {
@@ -187,11 +197,10 @@ class LiveView:
 
     def __init__(self, adc: SerialAdc, channel: str, channels: tuple[str, ...], state: Arrived,
                  decoder: Any, n: int, rate: float, sink: Callable[[CapturePreview], None]):
-        cal = adc.calibration.for_channel(channel) if adc.calibration else None
-        lsb = adc.vref / 2.0**adc.bits
+        lsb, cal = code_scale(adc, channel)
         gain, offset = (lsb, 0.0) if cal is None else (cal.gain * lsb, cal.offset)
         self.builder = PreviewBuilder(channel, rate, n, gain=gain, offset=offset)
-        self.column = sorted(channels, key=adc.channels.index).index(channel)
+        self.column = frame_column(adc, channels, channel)
         self.framed = adc.protocol == "framed"
         self.state, self.decoder = state, decoder
         self.sink: Callable[[CapturePreview], None] | None = sink
