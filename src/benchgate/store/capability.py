@@ -21,6 +21,8 @@ import math
 from dataclasses import dataclass
 from typing import Any
 
+from benchgate.store.rollup import BIN_DEVIATION_SQL
+
 #: histogram bins per numeric check.
 HISTOGRAM_BINS = 30
 
@@ -112,7 +114,7 @@ def stats_from_bins(defs: dict, rows: Any) -> tuple[CheckStats, ...]:
 def bins_sql(conn: Any, latest_sql: str) -> str:
     """SQL binning the valid values of the runs that ``latest_sql`` (a ``WITH`` clause naming
     ``latest``) picks, as :func:`stats_from_bins` takes them."""
-    dev = "(v.value - (v.bin + 0.5) * v.w)"
+    dev = BIN_DEVIATION_SQL
     return (f"{latest_sql} SELECT v.def, v.bin, COUNT(*), SUM({dev}), SUM({dev} * {dev}),"
             " MIN(v.value), MAX(v.value) FROM (SELECT c.def, c.value, d.bin_width AS w,"
             f" {conn.floor_real('c.value / d.bin_width')} AS bin FROM checks c"

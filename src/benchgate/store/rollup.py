@@ -42,6 +42,8 @@ WHOLE = ""
 GRID_DIVISIONS = 128
 #: seconds of one bin day (UTC days since the epoch)
 DAY_S = 86400.0
+#: SQL of a value's deviation from its bin's centre, over a row ``v`` of (value, bin, w)
+BIN_DEVIATION_SQL = "(v.value - (v.bin + 0.5) * v.w)"
 
 Unit = tuple[str, str]  # (plan id, serial)
 Scope = tuple[int, str]  # (whole, lot)
@@ -224,10 +226,10 @@ def after(c: Any, was: dict[Unit, Any]) -> None:
             " risk = excluded.risk, unstated = excluded.unstated,"
             " latest_epoch = excluded.latest_epoch", puts)
     if bins:
-        _apply_bins(c, bins)
+        _apply_bins(c, bins, width)
 
 
-def _apply_bins(c: Any, bins: dict[tuple, list]) -> None:
+def _apply_bins(c: Any, bins: dict[tuple, list], width: Any) -> None:
     """Add the deltas to the bins (one upsert each, in key order: no deadlock between writers);
     delete emptied bins; read a bin's least and largest value again when one of them left."""
     keys = sorted(bins)
@@ -253,7 +255,7 @@ def _apply_bins(c: Any, bins: dict[tuple, list]) -> None:
             # a bin's least or largest value left it: read the bin's values again (one bin,
             # through the index on (def, value); the unit rows already point at the new runs)
             whole, lot, d, b, day = key
-            w = float(c.execute("SELECT bin_width FROM check_defs WHERE id = ?", (d,)).fetchone()[0])
+            w = width(d)
             lo, hi = c.execute(
                 "SELECT MIN(c.value), MAX(c.value) FROM checks c JOIN unit_state u ON u.latest = c.run"
                 " WHERE u.whole = ? AND u.lot = ? AND c.def = ? AND c.valid = 1 AND c.value >= ?"
@@ -303,7 +305,7 @@ def rebuild(c: Any) -> None:
         " AS unstated FROM checks c WHERE c.verdict = 'pass' GROUP BY c.run) a"
         " WHERE a.run = unit_state.latest AND unit_state.final = 1")
     b = c.floor_real("c.value / d.bin_width")
-    dev = "(v.value - (v.bin + 0.5) * v.w)"
+    dev = BIN_DEVIATION_SQL
     c.execute(
         "INSERT INTO value_bins (whole, lot, def, bin, day, n, s1, s2, vmin, vmax)"
         f" SELECT v.whole, v.lot, v.def, v.bin, v.day, COUNT(*), SUM({dev}), SUM({dev} * {dev}),"

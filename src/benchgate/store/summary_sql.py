@@ -14,13 +14,12 @@ selected runs and checks (a partial index holds the checks that did not pass).
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 from typing import Any
 
 from benchgate.store.capability import bins_sql
 from benchgate.store.outcome import COMPLETE_SQL
-from benchgate.store.rollup import DAY_S
+from benchgate.store.rollup import DAY_S, day_of
 
 #: Pareto lists keep this many entries; the rest are summed into "other".
 PARETO_TOP = 15
@@ -111,7 +110,7 @@ def value_bins(conn: Any, uf: str, up: list[Any], plan: str | None, t: float | N
            f" WHERE whole = ? AND lot = ?{pf}")
     if t is None:
         return conn.execute(sql + " GROUP BY def, bin", up).fetchall()
-    day = math.floor(t / DAY_S)
+    day = day_of(t)
     if day * DAY_S < t:
         day += 1  # the first day that starts at or after t
     rows = conn.execute(sql + " AND day >= ? GROUP BY def, bin", up + [day]).fetchall()
