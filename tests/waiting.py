@@ -7,6 +7,7 @@ never what it asserts. Everything that waits without an event goes through :func
 
 from __future__ import annotations
 
+import threading
 import time
 from collections.abc import Callable
 from typing import TypeVar
@@ -34,3 +35,26 @@ def wait_until(condition: Callable[[], T], *, timeout: float, what: str,
         if time.monotonic() >= deadline:
             raise AssertionError(f"{what}: not within {timeout} s")
         time.sleep(POLL_S)
+
+
+def run_together(work: Callable[[int, threading.Barrier], object], count: int, *,
+                 timeout: float) -> None:
+    """Run ``work(k, start)`` on ``count`` threads at once and wait for them all (at most
+    ``timeout`` s each). Each thread calls ``start.wait()`` where its race begins; any
+    exception in any thread fails the test with all of them listed."""
+    errors: list[BaseException] = []
+    start = threading.Barrier(count)
+
+    def one(k: int) -> None:
+        try:
+            work(k, start)
+        except BaseException as exc:  # noqa: BLE001 - reported below
+            errors.append(exc)
+
+    threads = [threading.Thread(target=one, args=(k,)) for k in range(count)]
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join(timeout)
+    assert not any(t.is_alive() for t in threads), f"a thread still ran after {timeout} s"
+    assert not errors, errors

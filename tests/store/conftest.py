@@ -44,18 +44,23 @@ class PGServer:
             pass  # the server may be stopped by the test itself
 
 
+def _start_or_skip() -> pg_cluster.Cluster:
+    """A throw-away cluster; without one the test skips with the reason (in CI it fails)."""
+    try:
+        return pg_cluster.start()
+    except pg_cluster.NoServer as exc:
+        if IN_CI:
+            pytest.fail(f"CI must test PostgreSQL, but no server could be started: {exc}")
+        pytest.skip(f"PostgreSQL tests skipped: {exc}")
+
+
 @pytest.fixture(scope="session")
 def pg_server():
     url = os.environ.get("BENCHGATE_TEST_PG_URL")
     if url:
         yield PGServer(url, None)
         return
-    try:
-        cluster = pg_cluster.start()
-    except pg_cluster.NoServer as exc:
-        if IN_CI:
-            pytest.fail(f"CI must test PostgreSQL, but no server could be started: {exc}")
-        pytest.skip(f"PostgreSQL tests skipped: {exc}")
+    cluster = _start_or_skip()
     try:
         yield PGServer(cluster.url(), cluster)
     finally:
@@ -81,11 +86,6 @@ def target(request, tmp_path):
 @pytest.fixture
 def own_server():
     """A cluster of the test's own, so that stopping it disturbs no other test."""
-    try:
-        cluster = pg_cluster.start()
-    except pg_cluster.NoServer as exc:
-        if IN_CI:
-            pytest.fail(f"CI must test PostgreSQL, but no server could be started: {exc}")
-        pytest.skip(f"PostgreSQL tests skipped: {exc}")
+    cluster = _start_or_skip()
     yield cluster
     cluster.destroy()

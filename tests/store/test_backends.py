@@ -11,6 +11,7 @@ from benchgate.store import ResultsDB, open_results, resolve
 from benchgate.store.backend import PostgresConn, SQLiteConn, redact, scrub
 from benchgate.store.schema import MIGRATIONS, SCHEMA_VERSION, migrate, schema_version
 from synthetic_runs import CheckSpec, make_record
+from waiting import run_together
 
 from .test_rollup import assert_kept_equals_rebuilt
 
@@ -155,23 +156,10 @@ def test_reader_needs_the_schema(pg_url):
 def test_many_first_openers_migrate_once(target):
     # stations starting together on a new database: one migrates, the others wait and find it
     # done (on PostgreSQL this once failed: a stale "no such table" name cache after the lock)
-    import threading
+    def opener(k, start):
+        start.wait(timeout=30)
+        ResultsDB.open(target).close()
 
-    errors: list[BaseException] = []
-    start = threading.Barrier(6)
-
-    def opener():
-        try:
-            start.wait(timeout=30)
-            ResultsDB.open(target).close()
-        except BaseException as exc:  # noqa: BLE001 - reported below
-            errors.append(exc)
-
-    threads = [threading.Thread(target=opener) for _ in range(6)]
-    for t in threads:
-        t.start()
-    for t in threads:
-        t.join(60)
-    assert not errors, errors
+    run_together(opener, 6, timeout=60)
     with ResultsDB.open(target) as db:
         assert db.conn.execute("SELECT COUNT(*) FROM schema_version").fetchone()[0] == SCHEMA_VERSION

@@ -27,6 +27,7 @@ from benchgate.store.outcome import is_complete
 from benchgate.store.queries import parse_since
 from benchgate.store.rollup import bin_width, rebuild
 from synthetic_runs import EPOCH, CheckSpec, make_record
+from waiting import run_together
 
 KINDS = ("pass", "fail", "check-error", "aborted", "station error", "unfinished", "fail-aborted")
 # a two-sided window around zero (negative values, grid edges at 0), a one-sided one, and one
@@ -203,31 +204,18 @@ def test_kept_rows_answer_as_the_definitions(target, tmp_path, seed):
 def test_concurrent_writers_of_the_same_units(pg_url):
     # six connections write retests of the same five units (and share every bin of the whole
     # scope) at once: the unit locks and ordered upserts leave the rows as a rebuild makes them
-    import threading
-
-    errors: list[BaseException] = []
-    start = threading.Barrier(6)
-
-    def writer(k):
+    def writer(k, start):
         rng = random.Random(100 + k)
-        try:
-            with ResultsDB.open(pg_url) as db:
-                start.wait(timeout=30)
-                for i in range(12):
-                    rec = _record(rng, f"C{rng.randrange(5)}", "tb3", rng.choice(["L1", "L2"]),
-                                  k * 12 + i, rng.choice(KINDS))
-                    db.begin_run(rec)
-                    if rec.ended is not None:
-                        db.finish_run(rec, None)
-        except BaseException as exc:  # noqa: BLE001 - reported below
-            errors.append(exc)
+        with ResultsDB.open(pg_url) as db:
+            start.wait(timeout=30)
+            for i in range(12):
+                rec = _record(rng, f"C{rng.randrange(5)}", "tb3", rng.choice(["L1", "L2"]),
+                              k * 12 + i, rng.choice(KINDS))
+                db.begin_run(rec)
+                if rec.ended is not None:
+                    db.finish_run(rec, None)
 
-    threads = [threading.Thread(target=writer, args=(k,)) for k in range(6)]
-    for t in threads:
-        t.start()
-    for t in threads:
-        t.join(120)
-    assert not errors, errors
+    run_together(writer, 6, timeout=120)
     with ResultsDB.open(pg_url) as db:
         assert_kept_equals_rebuilt(db)
         for lot in (None, "L1", "L2"):
