@@ -10,29 +10,19 @@ Run: .venv/bin/python bench/bench_inspect_budget.py
 
 from __future__ import annotations
 
+import sys
 import time
 from pathlib import Path
 
 from benchgate.plan import checks, derive, loads_plan
 from benchgate.plan.model import MAX_STEPS
 
+sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))  # test data, not product
+from heavy_plans import ladder_plan  # noqa: E402
+
 TARGET_S = 3.0
 HEAD = (Path(__file__).resolve().parents[1] / "testplans" / "tb3.yaml").read_text().split("steps:")[0]
 
-LADDER = """  - id: s{i}
-    kind: capture
-    title: t
-    duration: 500 ms
-    checks:
-      frequency:
-        from_circuit:
-          topology: rc_ladder
-          form: highpass
-          sections: {sections}
-          R: 6k8 ±5%
-          C: 10n ±10%
-          monte_carlo: {{draws: {draws}, seed: {i}}}
-"""
 MANY = """  - id: s{i}
     kind: capture
     title: t
@@ -54,7 +44,7 @@ def _budget_plan(sections: int, draws: int) -> str:
     weight = derive.work_weight(c)
     per = (1 + 2 ** (2 * sections) + draws) * weight
     n = derive.MAX_PLAN_WORK // per
-    return HEAD + "steps:\n" + "".join(LADDER.format(i=i, sections=sections, draws=draws) for i in range(n))
+    return ladder_plan(HEAD, n, sections, draws)
 
 
 def _measure(name: str, text: str) -> None:

@@ -11,6 +11,7 @@ import pytest
 from benchgate.errors import PlanErrors
 from benchgate.plan import checks as plan_checks
 from benchgate.plan import derive, loads_plan
+from heavy_plans import ladder_plan
 
 PLANS = Path(__file__).resolve().parents[2] / "testplans"
 TB3 = (PLANS / "tb3.yaml").read_text(encoding="utf-8")
@@ -91,24 +92,8 @@ class TestImpossibleWindows:
 
 
 class TestCheckStaysFast:
-    LADDER = """  - id: s{i}
-    kind: capture
-    title: t
-    duration: 500 ms
-    checks:
-      frequency:
-        from_circuit:
-          topology: rc_ladder
-          form: highpass
-          sections: {sections}
-          R: 6k8 ±5%
-          C: 10n ±10%
-          monte_carlo: {{draws: {draws}, seed: {i}}}
-"""
-
     def plan(self, n: int, sections: int, draws: int) -> str:
-        head = TB3.split("steps:")[0] + "steps:\n"
-        return head + "".join(self.LADDER.format(i=i, sections=sections, draws=draws) for i in range(n))
+        return ladder_plan(TB3, n, sections, draws)
 
     def test_one_derivation_past_the_budget(self, monkeypatch):
         # 8 sections, 16 toleranced parts: 65 536 corners, plus a million draws
