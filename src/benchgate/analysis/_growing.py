@@ -42,6 +42,7 @@ import math
 
 import numpy as np
 
+from benchgate.analysis._phasor import CHUNK_MACS
 from benchgate.analysis.sinefit import (
     SineFit,
     _dirichlet,
@@ -63,8 +64,6 @@ RADIUS = 0.1
 #: passes a fit from scratch makes (bench/bench_speed.py: per look at 10⁵ samples 0.90× as fast,
 #: at 10⁶ 1.02×, at 4·10⁶ 1.04×), so the runner keeps sums only for captures this long.
 WORTH_SAMPLES = 1_000_000
-#: most multiply–adds per matrix product (OpenBLAS runs fewer than 65536·4 on one thread).
-_CHUNK_MACS = 131072
 
 
 class KeptSums:
@@ -132,7 +131,7 @@ class GrowingFit:
             basis[j] = basis[j - 1] * v
         re, im = np.ascontiguousarray(basis.real.T), np.ascontiguousarray(basis.imag.T)
         out = np.empty((rows.shape[0], ORDER + 1), dtype=complex)
-        step = max(1, _CHUNK_MACS // (BLOCK * (ORDER + 1)))  # small products: one BLAS thread
+        step = max(1, CHUNK_MACS // (BLOCK * (ORDER + 1)))  # small products: one BLAS thread
         for i in range(0, rows.shape[0], step):
             part = rows[i:i + step]
             out[i:i + step] = part @ re + 1j * (part @ im)

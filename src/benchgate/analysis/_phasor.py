@@ -11,6 +11,10 @@ import math
 
 import numpy as np
 
+#: most multiply–adds per matrix product call: OpenBLAS runs smaller products on one thread
+#: (m·n·k below 65536·4), which keeps the cost predictable on a busy machine.
+CHUNK_MACS = 131072
+
 
 class Workspace:
     """exp(i·ω·t) over one capture (t centred, in samples), as a block product.
@@ -23,10 +27,6 @@ class Workspace:
     and imaginary parts ``c`` and ``s``) is built only when asked for, into a buffer allocated
     once.
     """
-
-    #: most multiply–adds per matrix product call: OpenBLAS runs smaller products on one thread
-    #: (m·n·k below 65536·4), which keeps the cost predictable on a busy machine.
-    _CHUNK_MACS = 131072
 
     def __init__(self, n: int):
         self.n = n
@@ -105,7 +105,7 @@ class Workspace:
         head = v[:full * width].reshape(full, width)
         zi = self._zi_quad if with_t else self._zi_pair
         cols = zi.shape[1]
-        rows = max(1, self._CHUNK_MACS // (cols * width))
+        rows = max(1, CHUNK_MACS // (cols * width))
         part = np.empty((self.nblocks, cols))
         for i in range(0, full, rows):
             np.matmul(head[i:i + rows], zi, out=part[i:min(i + rows, full)])

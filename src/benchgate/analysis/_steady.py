@@ -11,6 +11,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from benchgate.analysis._phasor import CHUNK_MACS
+
 NOT_STEADY = "amplitude not steady in the last part of the capture (dropouts?)"
 STILL_CHANGING = "amplitude still changing at the end of the capture"
 
@@ -80,10 +82,6 @@ def envelope(x: np.ndarray, period_samples: float, stride: int | None = None) ->
     return Envelope(centre=starts + (p - 1.0) / 2.0, level=np.sqrt(2.0 * var), span=int(round(p)))
 
 
-#: most multiply–adds per matrix product call (OpenBLAS keeps smaller products on one thread).
-_CHUNK_MACS = 131072
-
-
 def _sums_at(x: np.ndarray, mean: float, stride: int, m: int,
              count: int) -> tuple[tuple[np.ndarray, np.ndarray], tuple[np.ndarray, np.ndarray]]:
     """For v = x − mean and v = (x − mean)²: Σ v[:j·stride] and Σ v[:j·stride + m] for
@@ -98,7 +96,7 @@ def _sums_at(x: np.ndarray, mean: float, stride: int, m: int,
     split[:, 1] = 1.0  # … and its whole sum
     blocks = n // stride + 1  # the last one partial (zero-padded) or empty
     ab = np.zeros((2, blocks, 2))
-    rows = max(1, _CHUNK_MACS // (2 * stride))
+    rows = max(1, CHUNK_MACS // (2 * stride))
     for first in range(0, blocks, rows):
         last = min(first + rows, blocks)
         part = x[first * stride:last * stride] - mean
