@@ -92,9 +92,7 @@ class Board:
 
     def set_wave(self, wave: dict[str, Any] | None) -> None:
         with self._lock:
-            self._wave = wave
-            self._wave_version += 1
-            self._wave_json = _dumps(wave)
+            self._put_wave(wave)
         self._wake()
 
     def end_recording(self) -> None:
@@ -102,10 +100,14 @@ class Board:
         with self._lock:
             if not (self._wave and self._wave.get("recording")):
                 return
-            self._wave = {**self._wave, "recording": False, "ended": True}
-            self._wave_version += 1
-            self._wave_json = _dumps(self._wave)
+            self._put_wave({**self._wave, "recording": False, "ended": True})
         self._wake()
+
+    def _put_wave(self, wave: dict[str, Any] | None) -> None:
+        """The new waveform, its version and its JSON (the caller holds the lock)."""
+        self._wave = wave
+        self._wave_version += 1
+        self._wave_json = _dumps(wave)
 
     # ------------------------------------------------------------------ reads
     def get(self, key: str) -> Any:
