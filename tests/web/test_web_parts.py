@@ -19,13 +19,14 @@ PLAN = SimpleNamespace(hazards=(SimpleNamespace(name="mains", text="Live parts a
 
 
 class Asker:
-    """Runs ``face.ask(prompt)`` in a thread (as the runner does) and waits for the page's question."""
+    """Runs one question of ``face`` in a thread (as the runner does) and waits for the page's
+    question."""
 
-    def __init__(self, face: PageFace, prompt: str):
+    def __init__(self, face: PageFace, question):
         self.face = face
         self.result: dict = {}
         self.asked = threading.Event()
-        self.thread = threading.Thread(target=self._run, args=(prompt,), daemon=True)
+        self.thread = threading.Thread(target=self._run, args=(question,), daemon=True)
         self._watch = face.board.change
 
         def change(fn):
@@ -36,9 +37,9 @@ class Asker:
         self.thread.start()
         assert self.asked.wait(10), "the question never reached the page"
 
-    def _run(self, prompt: str) -> None:
+    def _run(self, question) -> None:
         try:
-            self.result["answer"] = self.face.ask(prompt)
+            self.result["answer"] = question(self.face)
         except BaseException as exc:  # noqa: BLE001 - handed to the test
             self.result["error"] = exc
 
@@ -53,41 +54,34 @@ def face():
     return PageFace(Board(), Stop(), PLAN)
 
 
-def test_a_runner_prompt_becomes_a_yes_no_question(face):
-    # runner/execute.py asks a prompt step with ask: true as "<text> [y/n] "
-    asker = Asker(face, "Is the LED lit? [y/n] ")
+def test_a_yes_no_question_takes_one_answer(face):
+    asker = Asker(face, lambda f: f.ask_yes_no("Is the LED lit?"))
     question = face.board.get("ask")
     assert question["kind"] == "yesno" and question["text"] == "Is the LED lit?"
     assert not face.answer(question["id"] + 1, "y")  # an answer to another question is refused
     assert face.answer(question["id"], "y")
     assert not face.answer(question["id"], "n")  # answered once only
-    assert asker.done() == {"answer": "y"}
+    assert asker.done() == {"answer": True}
     assert face.board.get("ask") is None
 
 
-@pytest.mark.parametrize("prompt, kind", [("Clip the probe to OUT. [Enter when done] ", "done"),
-                                          ("Re-seat the board. [Enter = retry, n = stop] ", "retry"),
-                                          ("Operator note: ", "text")])
-def test_other_runner_prompts(face, prompt, kind):
-    asker = Asker(face, prompt)
-    question = face.board.get("ask")
-    assert question["kind"] == kind
-    face.answer(question["id"], "")
-    assert asker.done() == {"answer": ""}
+@pytest.mark.parametrize("question, kind, text", [
+    (lambda f: f.wait_until_done("Clip the probe to OUT."), "done", "Clip the probe to OUT."),
+    (lambda f: f.ask_retry("Re-seat the board.").yes, "retry", "Re-seat the board.")])
+def test_other_questions(face, question, kind, text):
+    asker = Asker(face, question)
+    asked = face.board.get("ask")
+    assert asked["kind"] == kind and asked["text"] == text
+    face.answer(asked["id"], "")
+    assert "error" not in asker.done()
 
 
 def test_hazards_are_asked_one_by_one_and_acknowledged_as_preflight_expects(face):
-    import inspect
-
     from benchgate.runner.options import RunOptions
     from benchgate.runner.preflight import acknowledge_hazards
 
-    if "attendant" in inspect.signature(acknowledge_hazards).parameters:  # the typed runner
-        def preflight():
-            return acknowledge_hazards(PLAN, RunOptions(), face)
-    else:
-        def preflight():
-            return acknowledge_hazards(PLAN, RunOptions(), face.ask, face.info)
+    def preflight():
+        return acknowledge_hazards(PLAN, RunOptions(), face)
     result: dict = {}
 
     def run() -> None:
@@ -259,7 +253,7 @@ def test_a_preview_replaces_the_picture_until_the_step_ends(face):
     wave = json.loads(face.board.wave()[1])
     assert wave["recording"] is False and wave["ended"] is True  # cut short: no longer "recording"
     face.capture_preview(builder.take())
-    asker = Asker(face, "The capture failed. Re-seat the board. [Enter = retry, n = stop] ")
+    asker = Asker(face, lambda f: f.ask_retry("The capture failed. Re-seat the board."))
     assert json.loads(face.board.wave()[1])["recording"] is False  # asked after it failed
     face.answer(face.board.get("ask")["id"], "n")
     asker.done()

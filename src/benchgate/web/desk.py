@@ -25,7 +25,7 @@ from benchgate.errors import BenchgateError
 from benchgate.web import lot
 from benchgate.web.face import PageFace, Stop, StoppableClock
 from benchgate.web.state import Board
-from benchgate.web.wiring import confirm_supply_off, make_options, make_runner
+from benchgate.web.wiring import confirm_supply_off, make_runner
 
 _ACTIVE = ("starting", "preflight", "running")
 MAX_SERIAL = 120
@@ -317,10 +317,11 @@ class Desk:
     def _get_runner(self) -> Any:
         if self.runner is None:
             from benchgate.clock import SystemClock
+            from benchgate.runner.options import RunOptions
 
             c = self.config
-            options = make_options(
-                self.face, operator=c.operator, lot=c.lot, reports_dir=Path(c.reports_dir), db_path=c.db_path,
+            options = RunOptions(
+                operator=c.operator, lot=c.lot, reports_dir=Path(c.reports_dir), db_path=c.db_path,
                 allow_expired_calibration=c.allow_expired_calibration,
                 clock=StoppableClock(c.clock or SystemClock(), self.stop_request),
                 extra_flags={"face": "operator page", **c.extra_flags})

@@ -1,66 +1,47 @@
 """The operator page as a face of the runner: everything a run needs from the person at the bench.
 
-This is the one module that knows how the runner talks to a person, and it speaks both forms:
-
-- the typed interface the runner is moving to (issue 10's ``Attendant``: ``announce``,
-  ``alarm``, ``ask_yes_no``, ``wait_until_done``, ``ask_retry``, ``acknowledge``, and the
-  progress calls ``run_started`` … ``run_finished``), and
-- what main's runner has today: ``RunOptions.ask(prompt) -> str`` (the kind of question is
-  recognised from the prompt's fixed ending) and the display hooks of ``runner/ui.py``.
-
-:func:`benchgate.web.wiring.make_runner` picks whichever the installed runner takes; the desk
-and the server only see :class:`PageFace`, :class:`Stop` and ``make_runner``.
+:class:`PageFace` implements the runner's typed ``Attendant`` (runner/attendant.py): the
+questions (``ask_yes_no``, ``wait_until_done``, ``ask_retry``, ``acknowledge``) wait for the
+page's answer; ``announce``, ``alarm`` and the progress calls ``run_started`` … ``run_finished``
+put what happens on the page's board. :func:`benchgate.web.wiring.make_runner` builds the
+runner around it; the desk and the server only see :class:`PageFace`, :class:`Stop` and
+``make_runner``.
 
 While a capture records, each preview of it (:meth:`PageFace.capture_preview`) replaces the
 page's waveform, marked as recording, until the capture itself is saved and drawn.
 
-The Stop button reaches the runner the way a stop signal does: a :class:`KeyboardInterrupt`
-(the typed runner's ``StopRequested`` when it has one, naming the page) raised in the runner's
-thread at its next call into this face (a progress report, a step start, a check, a question)
-or into the run's clock (waits), so the runner records the unit as aborted and makes the bench
-safe exactly as for Ctrl-C.
+The Stop button reaches the runner the way a stop signal does: a ``StopRequested`` naming the
+page (a :class:`KeyboardInterrupt`) raised in the runner's thread at its next call into this
+face (a progress report, a step start, a check, a question) or into the run's clock (waits),
+so the runner records the unit as aborted and makes the bench safe exactly as for Ctrl-C.
 """
 
 from __future__ import annotations
 
+import signal
 import threading
 import time
 from collections.abc import Callable
-from dataclasses import dataclass
 from typing import Any
 
+from benchgate.runner.attendant import Reply
+from benchgate.runner.safety import StopRequested
 from benchgate.web.state import Board
 
-#: the endings the runner puts on its questions (runner/execute.py, runner/preflight.py)
-_ENDINGS = (("[y/n] ", "yesno"), ("[Enter when done] ", "done"), ("[Enter = retry, n = stop] ", "retry"))
-#: what the runner's preflight accepts as a hazard acknowledgement (runner/preflight.py)
-ACK_PHRASE = "yes I understand"
 #: page updates of a progress bar at most this often (s of wall time), and on every 2 %
 PROGRESS_INTERVAL = 0.1
 
 
-def _stop_exception(why: str) -> KeyboardInterrupt:
-    """What Stop raises: the typed runner's StopRequested naming the page, else KeyboardInterrupt."""
-    try:
-        from benchgate.runner.safety import StopRequested  # type: ignore[attr-defined]
-    except ImportError:
-        return KeyboardInterrupt(why)
-    import signal
+class PageStop(StopRequested):
+    """Stop pressed on the page (or a run abandoned): a stop request naming why."""
 
-    class PageStop(StopRequested):
-        @property
-        def description(self) -> str:
-            return why
+    def __init__(self, why: str):
+        super().__init__(signal.SIGINT)
+        self.why = why
 
-    return PageStop(signal.SIGINT)
-
-
-@dataclass(frozen=True)
-class Reply:
-    """An answer to "try again?" (the shape of the typed runner's ``Reply``)."""
-
-    yes: bool
-    remark: str = ""
+    @property
+    def description(self) -> str:
+        return self.why
 
 
 class Stop:
@@ -88,7 +69,7 @@ class Stop:
             why = self.why or "Stop pressed on the operator page"
             if self.on_raise is not None:
                 self.on_raise(why)
-            raise _stop_exception(why)
+            raise PageStop(why)
 
     def wait(self, timeout: float) -> bool:
         return self._event.wait(timeout)
@@ -144,12 +125,6 @@ def _num(x: Any) -> float | None:
     return x if x == x and abs(x) != float("inf") else None
 
 
-@dataclass(frozen=True)
-class _Notice:
-    kind: str
-    text: str
-
-
 class PageFace:
     """The page's side of the runner for one desk; questions wait for the page's answer (or Stop)."""
 
@@ -198,7 +173,6 @@ class PageFace:
             self.stop.request(f"no operator page was open for {self.abandon_after:g} s while the run "
                               "waited for an answer")
 
-    # the typed interface (Attendant)
     def ask_yes_no(self, question: str) -> bool:
         return self._question("yesno", question) == "y"
 
@@ -217,18 +191,6 @@ class PageFace:
         index = names.index(name) + 1 if name in names else self._hazards_asked + 1
         self._hazards_asked += 1
         return self._question("hazard", text, hazard=name, index=index, count=max(len(names), index)) == "acknowledge"
-
-    # main's runner: one line of input for a prompt whose ending says what it asks
-    def ask(self, prompt: str) -> str:
-        """One answer from the page for the runner's ``prompt`` (blocks; Stop raises)."""
-        if prompt.startswith("Type ") and prompt.rstrip().endswith("to acknowledge:"):
-            hazards = list(self.plan.hazards)
-            h = hazards[min(self._hazards_asked, len(hazards) - 1)]
-            return ACK_PHRASE if self.acknowledge(h.name, h.text) else ""
-        for ending, kind in _ENDINGS:
-            if prompt.endswith(ending):
-                return self._question(kind, prompt[: -len(ending)].strip())
-        return self._question("text", prompt.strip())
 
     def answer(self, ask_id: int, answer: str) -> bool:
         """The page's answer to question ``ask_id``; False when that question is not open."""
@@ -249,7 +211,7 @@ class PageFace:
 
     # ------------------------------------------------------------------ display hooks
     def announce(self, notice: Any) -> None:
-        """A caution, hazard, warning or line of information for the page (typed interface)."""
+        """A caution, hazard, warning or line of information for the page."""
         item = {"kind": str(notice.kind), "text": str(notice.text)}
         self.board.change(lambda s: s["messages"].append(item) if item not in s["messages"] else None)
 
@@ -257,14 +219,6 @@ class PageFace:
         """The supply could not be confirmed off: the page shows it over everything else."""
         self.board.update(alarm=text, supply={"state": "on", "text": text,
                                               "at": time.strftime("%H:%M:%S UTC", time.gmtime())})
-
-    def info(self, text: str) -> None:
-        """main's display hook: a line, with CAUTION/HAZARD/WARNING in front when it is one."""
-        kind = "info"
-        for word in ("CAUTION", "HAZARD", "WARNING"):
-            if text.startswith(word):
-                kind, text = word.lower(), text[len(word):].lstrip(": ")
-        self.announce(_Notice(kind, text))
 
     def run_started(self, record: Any, total_steps: int) -> None:
         self.record = record

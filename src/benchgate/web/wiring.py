@@ -5,9 +5,7 @@ its capture writer so that the page draws every capture as soon as it is saved.
 
 from __future__ import annotations
 
-import inspect
 from collections.abc import Callable
-from dataclasses import fields
 from typing import Any
 
 from benchgate.web.face import PageFace
@@ -52,19 +50,10 @@ def confirm_supply_off(bench: Any, confirmed: Callable[[str, str], None]) -> Non
         confirmed("unknown", f"the supply did not answer ({exc}): check its output by hand")
 
 
-def make_options(face: PageFace, **given: Any) -> Any:
-    """RunOptions for the page: ``given`` plus, on main's runner, ``ask`` and a silent display."""
-    from benchgate.runner.options import RunOptions
-
-    names = {f.name for f in fields(RunOptions)}
-    legacy = {"ask": face.ask, "ui": "quiet"}
-    return RunOptions(**given, **{k: v for k, v in legacy.items() if k in names})
-
-
 def make_runner(plan: Any, station: Any, options: Any, face: PageFace,
                 on_capture: Callable[[Any, Any], None], confirmed: Callable[[str, str], None]) -> Any:
-    """A :class:`~benchgate.runner.session.Runner` talking to ``face`` (``options`` from
-    :func:`make_options`).
+    """A :class:`~benchgate.runner.session.Runner` talking to ``face`` (``options``: the same
+    RunOptions as ``benchgate run``).
 
     Its bench opener is wrapped so that each run ends with the supply's own word on its output,
     and its capture writer so that the page sees every capture as soon as it is saved.
@@ -90,6 +79,4 @@ def make_runner(plan: Any, station: Any, options: Any, face: PageFace,
 
     services.open_bench = open_bench
     services.save_capture = save_capture
-    if "attendant" in inspect.signature(Runner).parameters:  # the typed runner (issue 10)
-        return Runner(plan, station, options, services=services, attendant=face)
-    return Runner(plan, station, options, services=services, display=face)
+    return Runner(plan, station, options, services=services, attendant=face)

@@ -63,11 +63,6 @@
   document.querySelectorAll(".ask-buttons button").forEach((b) => {
     b.addEventListener("click", () => answer(b.dataset.answer));
   });
-  $("ask-form").addEventListener("submit", (e) => {
-    e.preventDefault();
-    answer($("ask-input").value);
-    $("ask-input").value = "";
-  });
   $("scan-form").addEventListener("submit", async (e) => {
     e.preventDefault();
     const input = $("serial");
@@ -98,7 +93,6 @@
     const a = state && state.ask;
     if (!a || !controlling()) return;
     const target = e.target || {};
-    if (target.id === "ask-input") return;
     if (e.key === "Enter" && target.tagName === "BUTTON") return; // the button's own click answers
     const k = e.key.toLowerCase();
     const map = {
@@ -175,7 +169,7 @@
     box.dataset.kind = a.kind;
     box.dataset.askId = String(a.id);
     const kinds = { hazard: "Hazard " + a.index + " of " + a.count, yesno: "Question", done: "Instruction",
-      retry: "The step did not pass", text: "Answer needed" };
+      retry: "The step did not pass" };
     text($("ask-kind"), kinds[a.kind] || "Answer needed");
     text($("ask-title"), a.kind === "hazard" ? String(a.hazard).replace(/_/g, " ") : "");
     text($("ask-text"), a.text);
@@ -185,11 +179,7 @@
       show(b, visible.includes(b.id));
       b.disabled = !controlling();
     });
-    show($("ask-form"), a.kind === "text");
-    $("ask-input").disabled = !controlling();
-    if (wasHidden && controlling()) {
-      if (a.kind === "text") $("ask-input").focus(); else box.focus();
-    }
+    if (wasHidden && controlling()) box.focus();
   }
 
   function renderLive(s) {
