@@ -177,21 +177,31 @@ static uint32_t extend_tick(uint16_t t) /* a tick number seen not long ago, to 3
     return taken32 - (uint16_t)(taken_lo - t);
 }
 
-void sampler_stop(void)
+static void halt_sets(void) /* no set is started any more: the timer and its interrupt off */
 {
-    cli();
     stopping = 1;
     room = 0;
     fast = 0;
     TCCR1B = 0;
     TIMSK1 = 0;
+}
+
+static void keep_converted(void) /* the one-channel set just converted goes to the ring */
+{
+    *wp = ADC;
+    wp = wp + 1 == ring + RING_CODES ? ring : wp + 1;
+    wcount++;
+    inflight = 0;
+}
+
+void sampler_stop(void)
+{
+    cli();
+    halt_sets();
     if (inflight && nch == 1) { /* the set in flight is completed, not dropped */
         while (ADCSRA & _BV(ADSC))
             ;
-        *wp = ADC;
-        wp = wp + 1 == ring + RING_CODES ? ring : wp + 1;
-        wcount++;
-        inflight = 0;
+        keep_converted();
     }
     sei();
     while (inflight) /* several channels: the ADC interrupt completes the set */
@@ -210,22 +220,14 @@ void sampler_pending(pending_t *p)
     extend();
     if (target && taken32 >= target && !done) { /* the last set has been started */
         cli();
-        stopping = 1;
-        room = 0;
-        fast = 0;
-        TCCR1B = 0;
-        TIMSK1 = 0;
+        halt_sets();
         sei();
         if (nch == 1 && inflight) {
             while (ADCSRA & _BV(ADSC))
                 ;
             cli();
-            if (inflight) {
-                *wp = ADC;
-                wp = wp + 1 == ring + RING_CODES ? ring : wp + 1;
-                wcount++;
-                inflight = 0;
-            }
+            if (inflight)
+                keep_converted();
             sei();
         }
         while (inflight)
